@@ -1,0 +1,91 @@
+// Role drivers: what the run controller needs from each instrument, mapped to
+// SCPI text by a command dialect. The dialect is data (filled from an
+// instrument profile file); the defaults here are a generic SCPI dialect that
+// the built-in simulator understands.
+//
+// A `{}` in a command is replaced by the formatted number. An empty command
+// means "this instrument cannot do that" and the call fails with kInvalidInput.
+// Drivers borrow their ScpiSession; the caller keeps it alive.
+#pragma once
+
+#include <string>
+
+#include "drivers/scpi_session.h"
+
+namespace kp {
+
+enum class LoadMode { kCurrent, kResistance, kPower };
+const char* LoadModeName(LoadMode mode);
+
+struct LoadCommands {
+  std::string mode_current = "FUNC CURR";
+  std::string mode_resistance = "FUNC RES";
+  std::string mode_power = "FUNC POW";
+  std::string set_current = "CURR {}";
+  std::string set_resistance = "RES {}";
+  std::string set_power = "POW {}";
+  std::string input_on = "INP ON";
+  std::string input_off = "INP OFF";
+  std::string measure_voltage = "MEAS:VOLT?";
+  std::string measure_current = "MEAS:CURR?";
+  std::string under_voltage_backstop = "VOLT:PROT:LOW {}";  // hardware backstop below cutoff
+};
+
+// Electronic load. Current is positive when the load sinks it (cell discharging).
+class LoadDriver {
+ public:
+  LoadDriver(ScpiSession& session, LoadCommands commands = {}) : session_(session), cmd_(std::move(commands)) {}
+  Status SetMode(LoadMode mode);
+  // Level in A, Ohm or W depending on mode. Selects the mode first when it changed.
+  Status SetLevel(LoadMode mode, double level);
+  Status SetInput(bool on);
+  Status SetUnderVoltageBackstop(double volts);
+  Result<double> MeasureVoltage();
+  Result<double> MeasureCurrent();
+  ScpiSession& session() { return session_; }
+
+ private:
+  Status Command(const std::string& templ, double value, const char* what);
+  Result<double> Reading(const std::string& query, const char* what);
+
+  ScpiSession& session_;
+  LoadCommands cmd_;
+  bool mode_known_ = false;
+  LoadMode mode_ = LoadMode::kCurrent;
+};
+
+struct MeterCommands {
+  std::string measure_voltage = "MEAS:VOLT:DC?";
+};
+
+// Voltmeter on the cell's sense terminals (4-wire).
+class MeterDriver {
+ public:
+  MeterDriver(ScpiSession& session, MeterCommands commands = {}) : session_(session), cmd_(std::move(commands)) {}
+  Result<double> MeasureVoltage();
+
+ private:
+  ScpiSession& session_;
+  MeterCommands cmd_;
+};
+
+struct ThermometerCommands {
+  std::string measure_temperature = "MEAS:TEMP?";
+};
+
+// Temperature probe on the cell body, degrees Celsius.
+class ThermometerDriver {
+ public:
+  ThermometerDriver(ScpiSession& session, ThermometerCommands commands = {})
+      : session_(session), cmd_(std::move(commands)) {}
+  Result<double> MeasureTemperature();
+
+ private:
+  ScpiSession& session_;
+  ThermometerCommands cmd_;
+};
+
+// Reads one number and turns overflow / NaN into a kProtocol error naming `what`.
+Result<double> ReadFiniteNumber(ScpiSession& session, const std::string& query, const char* what);
+
+}  // namespace kp

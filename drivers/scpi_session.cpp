@@ -1,0 +1,100 @@
+#include "drivers/scpi_session.h"
+
+#include <fmt/format.h>
+
+namespace kp {
+
+ScpiSession::ScpiSession(std::unique_ptr<Transport> transport, Clock& clock, ScpiOptions options)
+    : transport_(std::move(transport)), clock_(clock), options_(options), address_(transport_->Address()) {}
+
+void ScpiSession::Trace(char direction, std::string_view text) {
+  if (trace_) trace_(clock_.Now(), direction, address_, text);
+}
+
+Status ScpiSession::Send(std::string_view line) {
+  Trace('>', line);
+  Status st = transport_->WriteLine(line);
+  if (!st.ok()) Trace('!', st.ToString());
+  return st;
+}
+
+Status ScpiSession::Write(std::string_view command) {
+  Status st = Send(command);
+  if (st.ok() || st.code() != StatusCode::kIo) return st;
+  // The link dropped: reconnect once and resend.
+  ++retry_count_;
+  KP_RETURN_IF_ERROR(transport_->Reconnect());
+  return Send(command);
+}
+
+Result<std::string> ScpiSession::Query(std::string_view query) {
+  Status last;
+  for (int attempt = 0; attempt <= options_.retries; ++attempt) {
+    if (attempt > 0) {
+      ++retry_count_;
+      Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, query, last.ToString()));
+      transport_->Flush();
+      if (last.code() == StatusCode::kIo) {
+        Status rc = transport_->Reconnect();
+        if (!rc.ok()) {
+          last = rc;
+          continue;
+        }
+      }
+    }
+    last = Send(query);
+    if (!last.ok()) continue;
+    Result<std::string> reply = transport_->ReadLine(options_.timeout);
+    if (reply.ok()) {
+      Trace('<', *reply);
+      return reply;
+    }
+    last = reply.status();
+    Trace('!', last.ToString());
+    if (last.code() != StatusCode::kTimeout && last.code() != StatusCode::kIo) break;
+  }
+  return last.WithContext(fmt::format("{} '{}'", address_, query));
+}
+
+Result<ScpiNumber> ScpiSession::QueryNumber(std::string_view query) {
+  Status last;
+  for (int attempt = 0; attempt <= options_.retries; ++attempt) {
+    Result<std::string> reply = Query(query);
+    if (!reply.ok()) return reply.status();
+    Result<ScpiNumber> n = ParseScpiNumber(*reply);
+    if (n.ok()) return n;
+    // A garbled line is retried like a lost one: the next reply is usually clean.
+    last = n.status();
+    ++retry_count_;
+    Trace('!', last.ToString());
+    transport_->Flush();
+  }
+  return last.WithContext(fmt::format("{} '{}'", address_, query));
+}
+
+Status ScpiSession::WaitComplete() {
+  KP_ASSIGN_OR_RETURN(std::string reply, Query("*OPC?"));
+  KP_ASSIGN_OR_RETURN(ScpiNumber n, ParseScpiNumber(reply));
+  if (!n.finite() || n.value != 1.0) return ProtocolError(fmt::format("{} '*OPC?' replied '{}', expected 1", address_, reply));
+  return Status::Ok();
+}
+
+Status ScpiSession::DrainErrors() {
+  if (!options_.error_queue) return Status::Ok();
+  std::vector<std::string> entries;
+  for (int i = 0; i < options_.max_error_drain; ++i) {
+    KP_ASSIGN_OR_RETURN(std::string reply, Query("SYST:ERR?"));
+    // Replies look like  0,"No error"  or  -113,"Undefined header"  (SCPI-99).
+    size_t comma = reply.find(',');
+    Result<ScpiNumber> code = ParseScpiNumber(reply.substr(0, comma));
+    if (!code.ok() || !code->finite()) return ProtocolError(fmt::format("{} 'SYST:ERR?' replied '{}'", address_, reply));
+    if (code->value == 0) break;
+    entries.push_back(reply);
+  }
+  if (entries.empty()) return Status::Ok();
+  std::string joined;
+  for (const auto& e : entries) joined += (joined.empty() ? "" : "; ") + e;
+  return InstrumentError(fmt::format("{} reported {}", address_, joined));
+}
+
+}  // namespace kp

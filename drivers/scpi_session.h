@@ -1,0 +1,71 @@
+// ScpiSession: one conversation with one instrument over a Transport.
+//
+// Framing is the transport's; the session adds per-query timeouts, bounded
+// retries (with a reconnect when the link dropped), the IEEE 488.2 common
+// commands, draining of the SYSTem:ERRor? queue, and an optional trace hook
+// that sees every line in both directions. Not thread-safe.
+#pragma once
+
+#include <functional>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "drivers/clock.h"
+#include "drivers/scpi_syntax.h"
+#include "drivers/transport.h"
+
+namespace kp {
+
+struct ScpiOptions {
+  Seconds timeout{2.0};      // per query
+  int retries = 2;           // extra attempts for a query that timed out or dropped
+  bool error_queue = true;   // the instrument implements SYSTem:ERRor?
+  int max_error_drain = 20;  // stop draining a queue that never empties
+};
+
+// Direction of a traced line: '>' sent, '<' received, '!' a failure note.
+using ScpiTraceHook = std::function<void(Seconds at, char direction, const std::string& address, std::string_view text)>;
+
+class ScpiSession {
+ public:
+  ScpiSession(std::unique_ptr<Transport> transport, Clock& clock, ScpiOptions options = {});
+
+  void SetTrace(ScpiTraceHook hook) { trace_ = std::move(hook); }
+  const std::string& address() const { return address_; }
+  // Number of retried exchanges so far (for the run log).
+  int retry_count() const { return retry_count_; }
+
+  // Sends a command that has no reply.
+  Status Write(std::string_view command);
+  // Sends a query and returns its reply line, retrying on timeout / drop.
+  Result<std::string> Query(std::string_view query);
+  // Query whose reply is one SCPI number. Overflow (9.9E37) and NaN come back
+  // as a ScpiNumber of that kind, not as an error: the caller decides.
+  Result<ScpiNumber> QueryNumber(std::string_view query);
+
+  // IEEE 488.2 common commands.
+  Result<std::string> Identify() { return Query("*IDN?"); }
+  Status Reset() { return Write("*RST"); }
+  Status Clear() { return Write("*CLS"); }
+  // *OPC? returns "1" once pending operations are done.
+  Status WaitComplete();
+
+  // Drains SYSTem:ERRor? until "0,..." and returns kInstrumentError carrying
+  // every reported entry ("-113,\"Undefined header\"") when any were queued.
+  Status DrainErrors();
+
+ private:
+  Status Send(std::string_view line);
+  void Trace(char direction, std::string_view text);
+
+  std::unique_ptr<Transport> transport_;
+  Clock& clock_;
+  ScpiOptions options_;
+  std::string address_;
+  ScpiTraceHook trace_;
+  int retry_count_ = 0;
+};
+
+}  // namespace kp

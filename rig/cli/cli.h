@@ -1,0 +1,59 @@
+// The `kneepoint` command line. Each command lives in its own cmd_*.cpp and
+// registers itself with a CliRegistry; main.cpp adds commands from libraries
+// above rig (the panel's `view`).
+//
+// Exit status: 0 success, 2 bad input (message on stderr), 1 other failures.
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+#include <atomic>
+#include <functional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "drivers/status.h"
+
+namespace kp::cli {
+
+inline constexpr int kExitOk = 0;
+inline constexpr int kExitFailure = 1;
+inline constexpr int kExitBadInput = 2;
+
+class CliRegistry {
+ public:
+  explicit CliRegistry(CLI::App& app) : app_(app) {}
+  CLI::App& app() { return app_; }
+  // Adds a subcommand whose `run` is called when it was chosen.
+  CLI::App* Add(const std::string& name, const std::string& description, std::function<int()> run);
+  // Runs the chosen subcommand (after parsing); kExitBadInput when none.
+  int Dispatch();
+
+ private:
+  CLI::App& app_;
+  std::vector<std::pair<CLI::App*, std::function<int()>>> commands_;
+};
+
+using Registrar = void (*)(CliRegistry&);
+
+int RunCli(int argc, char** argv, std::span<const Registrar> extra = {});
+
+// Prints "kneepoint: <message>" to stderr and returns the exit status for it.
+int Fail(const Status& status);
+int ExitCodeFor(const Status& status);
+
+// The usual cautions for lithium cells; printed by run-type commands at start.
+const char* SafetyCautions();
+
+// SIGINT / SIGTERM set the returned flag (installed once, idempotent).
+const std::atomic<bool>* InstallStopSignals();
+
+// Built-in command groups.
+void RegisterDemo(CliRegistry& r);
+void RegisterRunQueries(CliRegistry& r);  // runs, report, export
+
+// "5:02:13" for a duration in seconds.
+std::string FormatDuration(double seconds);
+
+}  // namespace kp::cli

@@ -1,0 +1,66 @@
+// RunController: executes a Plan on a rig's role drivers, logging to a Store.
+//
+// The loop: sleep (on the injected Clock) until the engine's next wakeup, read
+// voltage, current and temperature, log the sample, let the safety monitor
+// judge it, then let the engine decide setpoints and step changes. On every
+// exit path — completion, safety abort, instrument loss, disk failure, stop
+// request, exception — the load input is switched off before anything else is
+// logged.
+#pragma once
+
+#include <atomic>
+#include <cstdint>
+#include <functional>
+#include <string>
+
+#include "drivers/clock.h"
+#include "drivers/roles.h"
+#include "procedures/engine.h"
+#include "procedures/plan.h"
+#include "rig/store.h"
+
+namespace kp {
+
+// The instruments a run uses, borrowed from whoever assembled the rig.
+struct RigRoles {
+  LoadDriver* load = nullptr;              // required
+  MeterDriver* meter = nullptr;            // optional: cell voltage by 4-wire sense; else the load's reading
+  ThermometerDriver* thermometer = nullptr;  // required for safety
+  std::string description;                 // "sim", "rig.toml"
+};
+
+struct RunOptions {
+  std::string cell_name;
+  // Set from a signal handler or another thread: the run ends as aborted by operator.
+  const std::atomic<bool>* stop = nullptr;
+  std::string stop_reason = "stopped by operator (signal)";
+  // Called after each sample (for progress displays); keep it cheap.
+  std::function<void(const Reading&, double delivered_mah)> on_sample;
+};
+
+struct RunResult {
+  int64_t run_id = 0;
+  Outcome outcome = Outcome::kRunning;
+  std::string reason;
+};
+
+class RunController {
+ public:
+  RunController(Store& store, Clock& clock, RigRoles roles) : store_(store), clock_(clock), roles_(roles) {}
+
+  // Fails only when the run could not even be recorded; a run that started and
+  // then aborted returns its RunResult with outcome kAborted.
+  Result<RunResult> Execute(const Plan& plan, const RunOptions& options);
+
+ private:
+  Result<Reading> Read(double t_s);
+  Status Apply(const Setpoint& sp);
+  void SafeOff();
+
+  Store& store_;
+  Clock& clock_;
+  RigRoles roles_;
+  bool input_on_ = false;
+};
+
+}  // namespace kp

@@ -1,0 +1,18 @@
+#include "rig/sim_rig.h"
+
+#include "drivers/inproc_transport.h"
+
+namespace kp {
+
+SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : bench_(std::move(cell), clock, options) {
+  load_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.load(), clock, "inproc:sim-load"), clock);
+  meter_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.meter(), clock, "inproc:sim-meter"), clock);
+  thermo_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.thermometer(), clock, "inproc:sim-temp"), clock);
+  load_ = std::make_unique<LoadDriver>(*load_session_);
+  meter_ = std::make_unique<MeterDriver>(*meter_session_);
+  thermometer_ = std::make_unique<ThermometerDriver>(*thermo_session_);
+}
+
+RigRoles SimRig::roles() { return RigRoles{load_.get(), meter_.get(), thermometer_.get(), "sim"}; }
+
+}  // namespace kp

@@ -1,0 +1,405 @@
+#include "rig/store.h"
+
+#include <fmt/format.h>
+#include <signal.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <ctime>
+
+namespace kp {
+namespace {
+
+// Schema migrations, one function per version step. Each runs inside the
+// transaction that also bumps PRAGMA user_version.
+Status MigrateTo1(sql::Db& db) {
+  return db.Exec(R"sql(
+    CREATE TABLE cells(
+      id INTEGER PRIMARY KEY,
+      name TEXT NOT NULL UNIQUE,
+      chemistry TEXT NOT NULL,
+      rated_mah REAL NOT NULL,
+      created_at TEXT NOT NULL);
+    CREATE TABLE runs(
+      id INTEGER PRIMARY KEY,
+      cell_id INTEGER NOT NULL REFERENCES cells(id),
+      procedure_name TEXT NOT NULL,
+      procedure_text TEXT NOT NULL,
+      rig TEXT NOT NULL,
+      rated_mah REAL NOT NULL,
+      started_at TEXT NOT NULL,
+      ended_at TEXT,
+      outcome TEXT NOT NULL CHECK(outcome IN ('running','completed','aborted','interrupted')),
+      reason TEXT NOT NULL DEFAULT '',
+      runner_pid INTEGER,
+      runner_host TEXT,
+      heartbeat_at INTEGER);
+    CREATE TABLE steps(
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      seq INTEGER NOT NULL,
+      idx INTEGER NOT NULL,
+      kind TEXT NOT NULL,
+      label TEXT NOT NULL,
+      started_s REAL NOT NULL,
+      ended_s REAL,
+      end_reason TEXT,
+      PRIMARY KEY(run_id, seq)) WITHOUT ROWID;
+    CREATE TABLE samples(
+      run_id INTEGER NOT NULL,
+      seq INTEGER NOT NULL,
+      t_s REAL NOT NULL,
+      voltage_v REAL NOT NULL,
+      current_a REAL NOT NULL,
+      temperature_c REAL NOT NULL,
+      step INTEGER NOT NULL,
+      PRIMARY KEY(run_id, seq)) WITHOUT ROWID;
+    CREATE TABLE events(
+      id INTEGER PRIMARY KEY,
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      t_s REAL NOT NULL,
+      kind TEXT NOT NULL,
+      message TEXT NOT NULL,
+      wall_at TEXT NOT NULL);
+    CREATE INDEX events_by_run ON events(run_id, id);
+    CREATE TABLE requests(
+      id INTEGER PRIMARY KEY,
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      action TEXT NOT NULL CHECK(action IN ('abort','pause','continue')),
+      requested_by TEXT NOT NULL,
+      requested_at TEXT NOT NULL,
+      handled_at TEXT);
+  )sql");
+}
+
+using Migration = Status (*)(sql::Db&);
+constexpr Migration kMigrations[] = {&MigrateTo1};
+static_assert(std::size(kMigrations) == kSchemaVersion);
+
+std::string HostName() {
+  char buf[256] = {0};
+  if (gethostname(buf, sizeof buf - 1) != 0) return "unknown";
+  return buf;
+}
+
+bool ProcessAlive(int64_t pid) {
+  if (pid <= 0) return false;
+  if (kill(static_cast<pid_t>(pid), 0) == 0) return true;
+  return errno == EPERM;
+}
+
+}  // namespace
+
+const char* OutcomeName(Outcome o) {
+  switch (o) {
+    case Outcome::kRunning: return "running";
+    case Outcome::kCompleted: return "completed";
+    case Outcome::kAborted: return "aborted";
+    case Outcome::kInterrupted: return "interrupted";
+  }
+  return "?";
+}
+
+std::optional<Outcome> ParseOutcome(std::string_view s) {
+  for (Outcome o : {Outcome::kRunning, Outcome::kCompleted, Outcome::kAborted, Outcome::kInterrupted}) {
+    if (s == OutcomeName(o)) return o;
+  }
+  return std::nullopt;
+}
+
+Store::Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options)
+    : db_(std::move(db)), wall_(wall), options_(options) {}
+
+Store::~Store() {
+  if (in_batch_) (void)Commit();
+}
+
+Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall, Options options) {
+  KP_ASSIGN_OR_RETURN(auto db, sql::Db::Open(path, options.create && !options.read_only, options.read_only));
+  std::unique_ptr<Store> store(new Store(std::move(db), wall, options));
+  if (!options.read_only) {
+    KP_RETURN_IF_ERROR(store->db_->Exec("PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")
+                           .WithContext("setting up " + path));
+    KP_RETURN_IF_ERROR(store->Migrate());
+  } else {
+    KP_ASSIGN_OR_RETURN(int v, store->SchemaVersion());
+    if (v != kSchemaVersion)
+      return InvalidInput(fmt::format("{}: schema version {} (this kneepoint reads {}); open it read-write once to upgrade", path, v,
+                                      kSchemaVersion));
+  }
+  return store;
+}
+
+Result<int> Store::SchemaVersion() {
+  KP_ASSIGN_OR_RETURN(auto st, db_->Prepare("PRAGMA user_version"));
+  KP_ASSIGN_OR_RETURN(bool row, st.Step());
+  return row ? static_cast<int>(st.Int(0)) : 0;
+}
+
+Result<std::string> Store::JournalMode() {
+  KP_ASSIGN_OR_RETURN(auto st, db_->Prepare("PRAGMA journal_mode"));
+  KP_ASSIGN_OR_RETURN(bool row, st.Step());
+  return row ? st.Text(0) : std::string();
+}
+
+Status Store::Migrate() {
+  KP_ASSIGN_OR_RETURN(int version, SchemaVersion());
+  if (version > kSchemaVersion) {
+    return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
+                                    db_->path(), version, kSchemaVersion));
+  }
+  while (version < kSchemaVersion) {
+    KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
+    Status st = kMigrations[version](*db_);
+    if (st.ok()) st = db_->Exec(fmt::format("PRAGMA user_version={}", version + 1));
+    if (st.ok()) st = db_->Exec("COMMIT");
+    if (!st.ok()) {
+      (void)db_->Exec("ROLLBACK");
+      return st.WithContext(fmt::format("migrating {} to schema version {}", db_->path(), version + 1));
+    }
+    ++version;
+  }
+  return Status::Ok();
+}
+
+Status Store::EnsureBatch() {
+  if (in_batch_) return Status::Ok();
+  KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
+  in_batch_ = true;
+  batch_started_ = wall_.Now();
+  return Status::Ok();
+}
+
+Status Store::Commit() {
+  if (!in_batch_) return Status::Ok();
+  // A heartbeat in the same transaction tells readers the runner is alive.
+  if (seq_run_ >= 0) {
+    KP_ASSIGN_OR_RETURN(auto hb, db_->Prepare("UPDATE runs SET heartbeat_at=?1 WHERE id=?2"));
+    KP_RETURN_IF_ERROR(hb.Bind(1, static_cast<int64_t>(std::time(nullptr))).Bind(2, seq_run_).Run());
+  }
+  Status st = db_->Exec("COMMIT");
+  if (!st.ok()) {
+    // Nothing of the batch becomes visible; the caller stops the run.
+    (void)db_->Exec("ROLLBACK");
+    in_batch_ = false;
+    return st.WithContext("committing samples");
+  }
+  in_batch_ = false;
+  return Status::Ok();
+}
+
+Status Store::MaybeCommit() {
+  if (in_batch_ && (wall_.Now() - batch_started_).count() >= options_.commit_interval_s) return Commit();
+  return Status::Ok();
+}
+
+Result<int64_t> Store::EnsureCell(const NewRun& run) {
+  KP_ASSIGN_OR_RETURN(auto find, db_->Prepare("SELECT id FROM cells WHERE name=?1"));
+  find.Bind(1, run.cell_name);
+  KP_ASSIGN_OR_RETURN(bool row, find.Step());
+  if (row) return find.Int(0);
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO cells(name, chemistry, rated_mah, created_at) VALUES(?1,?2,?3,?4)"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, run.cell_name).Bind(2, run.chemistry).Bind(3, run.rated_mah).Bind(4, wall_.WallTimeIso()).Run());
+  return static_cast<int64_t>(sqlite3_last_insert_rowid(db_->raw()));
+}
+
+Result<int64_t> Store::BeginRun(const NewRun& run) {
+  KP_RETURN_IF_ERROR(Commit());
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(int64_t cell_id, EnsureCell(run));
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare(
+                                    "INSERT INTO runs(cell_id, procedure_name, procedure_text, rig, rated_mah, started_at, outcome,"
+                                    " runner_pid, runner_host, heartbeat_at) VALUES(?1,?2,?3,?4,?5,?6,'running',?7,?8,?9)"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, cell_id)
+                         .Bind(2, run.procedure_name)
+                         .Bind(3, run.procedure_text)
+                         .Bind(4, run.rig)
+                         .Bind(5, run.rated_mah)
+                         .Bind(6, wall_.WallTimeIso())
+                         .Bind(7, static_cast<int64_t>(getpid()))
+                         .Bind(8, HostName())
+                         .Bind(9, static_cast<int64_t>(std::time(nullptr)))
+                         .Run());
+  int64_t id = sqlite3_last_insert_rowid(db_->raw());
+  seq_run_ = id;
+  next_seq_ = 0;
+  step_seq_ = 0;
+  KP_RETURN_IF_ERROR(Commit());
+  return id;
+}
+
+Status Store::AppendSample(int64_t run_id, const Sample& s) {
+  if (run_id != seq_run_) return InvalidInput(fmt::format("run {} is not the run this store is writing", run_id));
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  if (!has_insert_) {
+    KP_ASSIGN_OR_RETURN(insert_sample_, db_->Prepare("INSERT INTO samples(run_id, seq, t_s, voltage_v, current_a, temperature_c, step)"
+                                                     " VALUES(?1,?2,?3,?4,?5,?6,?7)"));
+    has_insert_ = true;
+  }
+  KP_RETURN_IF_ERROR(insert_sample_.Bind(1, run_id)
+                         .Bind(2, next_seq_)
+                         .Bind(3, s.t_s)
+                         .Bind(4, s.voltage_v)
+                         .Bind(5, s.current_a)
+                         .Bind(6, s.temperature_c)
+                         .Bind(7, s.step)
+                         .Run());
+  ++next_seq_;
+  return MaybeCommit();
+}
+
+Status Store::BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s) {
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO steps(run_id, seq, idx, kind, label, started_s) VALUES(?1,?2,?3,?4,?5,?6)"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, run_id).Bind(2, step_seq_).Bind(3, index).Bind(4, kind).Bind(5, label).Bind(6, t_s).Run());
+  ++step_seq_;
+  return Commit();
+}
+
+Status Store::EndStep(int64_t run_id, double t_s, std::string_view reason) {
+  if (step_seq_ == 0) return Status::Ok();
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE steps SET ended_s=?1, end_reason=?2 WHERE run_id=?3 AND seq=?4"));
+  KP_RETURN_IF_ERROR(up.Bind(1, t_s).Bind(2, reason).Bind(3, run_id).Bind(4, step_seq_ - 1).Run());
+  return Commit();
+}
+
+Status Store::AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message) {
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at) VALUES(?1,?2,?3,?4,?5)"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, run_id).Bind(2, t_s).Bind(3, kind).Bind(4, message).Bind(5, wall_.WallTimeIso()).Run());
+  return Commit();
+}
+
+Status Store::FinishRun(int64_t run_id, Outcome outcome, std::string_view reason) {
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome=?1, reason=?2, ended_at=?3 WHERE id=?4"));
+  KP_RETURN_IF_ERROR(up.Bind(1, OutcomeName(outcome)).Bind(2, reason).Bind(3, wall_.WallTimeIso()).Bind(4, run_id).Run());
+  Status st = Commit();
+  if (run_id == seq_run_) seq_run_ = -1;
+  return st;
+}
+
+Result<int> Store::ReconcileOrphans() {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, runner_pid, runner_host, heartbeat_at FROM runs WHERE outcome='running'"));
+  std::vector<std::pair<int64_t, std::string>> gone;
+  const std::string host = HostName();
+  const int64_t now = static_cast<int64_t>(std::time(nullptr));
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    int64_t id = q.Int(0), pid = q.Int(1), beat = q.Int(3);
+    std::string run_host = q.Text(2);
+    if (id == seq_run_) continue;  // our own live run
+    if (run_host == host) {
+      if (!ProcessAlive(pid)) gone.emplace_back(id, fmt::format("runner process {} is gone", pid));
+    } else if (now - beat > 600) {
+      gone.emplace_back(id, fmt::format("no heartbeat from runner on {} for {} s", run_host, now - beat));
+    }
+  }
+  for (const auto& [id, why] : gone) {
+    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='interrupted', reason=?1 WHERE id=?2 AND outcome='running'"));
+    KP_RETURN_IF_ERROR(up.Bind(1, why).Bind(2, id).Run());
+  }
+  return static_cast<int>(gone.size());
+}
+
+namespace {
+constexpr const char* kRunColumns =
+    "SELECT r.id, c.name, c.chemistry, r.rated_mah, r.procedure_name, r.procedure_text, r.rig, r.started_at,"
+    " COALESCE(r.ended_at,''), r.outcome, r.reason,"
+    " (SELECT COUNT(*) FROM samples s WHERE s.run_id=r.id) FROM runs r JOIN cells c ON c.id=r.cell_id";
+
+RunRow ReadRun(const sql::Stmt& q) {
+  RunRow r;
+  r.id = q.Int(0);
+  r.cell = q.Text(1);
+  r.chemistry = q.Text(2);
+  r.rated_mah = q.Real(3);
+  r.procedure_name = q.Text(4);
+  r.procedure_text = q.Text(5);
+  r.rig = q.Text(6);
+  r.started_at = q.Text(7);
+  r.ended_at = q.Text(8);
+  r.outcome = ParseOutcome(q.Text(9)).value_or(Outcome::kInterrupted);
+  r.reason = q.Text(10);
+  r.sample_count = q.Int(11);
+  return r;
+}
+}  // namespace
+
+Result<std::vector<RunRow>> Store::ListRuns() {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
+  std::vector<RunRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back(ReadRun(q));
+  }
+  return out;
+}
+
+Result<RunRow> Store::GetRun(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
+  q.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool row, q.Step());
+  if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  return ReadRun(q);
+}
+
+Status Store::ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(
+                                  "SELECT t_s, voltage_v, current_a, temperature_c, step FROM samples WHERE run_id=?1 ORDER BY seq"));
+  q.Bind(1, run_id);
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    Sample s{q.Real(0), q.Real(1), q.Real(2), q.Real(3), static_cast<int>(q.Int(4))};
+    KP_RETURN_IF_ERROR(fn(s));
+  }
+  return Status::Ok();
+}
+
+Result<std::vector<Sample>> Store::LoadSamples(int64_t run_id) {
+  std::vector<Sample> out;
+  KP_RETURN_IF_ERROR(ForEachSample(run_id, [&](const Sample& s) {
+    out.push_back(s);
+    return Status::Ok();
+  }));
+  return out;
+}
+
+Result<std::vector<EventRow>> Store::LoadEvents(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, kind, message, wall_at FROM events WHERE run_id=?1 ORDER BY id"));
+  q.Bind(1, run_id);
+  std::vector<EventRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back({q.Real(0), q.Text(1), q.Text(2), q.Text(3)});
+  }
+  return out;
+}
+
+Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(
+                                  "SELECT seq, idx, kind, label, started_s, ended_s, COALESCE(end_reason,'') FROM steps"
+                                  " WHERE run_id=?1 ORDER BY seq"));
+  q.Bind(1, run_id);
+  std::vector<StepRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    StepRow s;
+    s.seq = q.Int(0);
+    s.index = static_cast<int>(q.Int(1));
+    s.kind = q.Text(2);
+    s.label = q.Text(3);
+    s.started_s = q.Real(4);
+    if (!q.IsNull(5)) s.ended_s = q.Real(5);
+    s.end_reason = q.Text(6);
+    out.push_back(std::move(s));
+  }
+  return out;
+}
+
+}  // namespace kp

@@ -1,0 +1,133 @@
+// Store: the only door to disk. One SQLite database (WAL mode) holds cells,
+// runs (with the procedure text they ran), steps, samples, events and control
+// requests.
+//
+// Writing: one runner process writes; samples go through one prepared
+// statement into an open transaction that is committed at least once per
+// second of wall time (Commit / MaybeCommit), at every event and step change,
+// and at run end — so a killed process loses at most about a second of samples
+// and never leaves a partial batch visible.
+// Reading: any number of other processes read concurrently (WAL).
+// Not thread-safe: one Store per thread.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "analysis/sample.h"
+#include "drivers/clock.h"
+#include "drivers/status.h"
+#include "rig/sqlite.h"
+
+namespace kp {
+
+inline constexpr int kSchemaVersion = 1;
+
+enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
+const char* OutcomeName(Outcome o);
+std::optional<Outcome> ParseOutcome(std::string_view s);
+
+struct NewRun {
+  std::string cell_name;
+  std::string chemistry;
+  double rated_mah = 0.0;
+  std::string procedure_name;
+  std::string procedure_text;
+  std::string rig;  // rig description ("sim", rig file path...)
+};
+
+struct RunRow {
+  int64_t id = 0;
+  std::string cell;
+  std::string chemistry;
+  double rated_mah = 0.0;
+  std::string procedure_name;
+  std::string procedure_text;
+  std::string rig;
+  std::string started_at;
+  std::string ended_at;  // empty while running
+  Outcome outcome = Outcome::kRunning;
+  std::string reason;
+  int64_t sample_count = 0;
+};
+
+struct EventRow {
+  double t_s = 0.0;
+  std::string kind;  // "step", "abort", "fault", "retry", "note", ...
+  std::string message;
+  std::string wall_at;
+};
+
+struct StepRow {
+  int64_t seq = 0;
+  int index = 0;
+  std::string kind;
+  std::string label;
+  double started_s = 0.0;
+  std::optional<double> ended_s;
+  std::string end_reason;
+};
+
+class Store {
+ public:
+  struct Options {
+    double commit_interval_s = 1.0;  // wall seconds between batch commits
+    bool create = true;
+    bool read_only = false;
+  };
+  // Opens or creates `path`, migrating an older schema in a transaction;
+  // refuses a newer schema. `wall` times the batch commits.
+  static Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, Options options);
+  static Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall) { return Open(path, wall, Options{}); }
+  ~Store();
+
+  // --- writer side ---
+  Result<int64_t> BeginRun(const NewRun& run);
+  // Buffered into the open batch; commits when the batch is a second old.
+  Status AppendSample(int64_t run_id, const Sample& s);
+  Status BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s);
+  Status EndStep(int64_t run_id, double t_s, std::string_view reason);
+  // Events commit the open batch with them.
+  Status AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message);
+  Status FinishRun(int64_t run_id, Outcome outcome, std::string_view reason);
+  Status Commit();
+  Status MaybeCommit();
+
+  // --- reader side ---
+  // Marks runs whose runner process is gone as interrupted; returns how many.
+  Result<int> ReconcileOrphans();
+  Result<std::vector<RunRow>> ListRuns();
+  Result<RunRow> GetRun(int64_t run_id);
+  Result<std::vector<Sample>> LoadSamples(int64_t run_id);
+  // Streams samples in order without holding them all in memory.
+  Status ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn);
+  Result<std::vector<EventRow>> LoadEvents(int64_t run_id);
+  Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
+
+  Result<int> SchemaVersion();
+  Result<std::string> JournalMode();
+  sql::Db& db() { return *db_; }
+
+ private:
+  Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options);
+  Status Migrate();
+  Status EnsureBatch();
+  Result<int64_t> EnsureCell(const NewRun& run);
+
+  std::unique_ptr<sql::Db> db_;
+  Clock& wall_;
+  Options options_;
+  bool in_batch_ = false;
+  Seconds batch_started_{0};
+  int64_t next_seq_ = 0;
+  int64_t seq_run_ = -1;
+  int64_t step_seq_ = 0;
+  bool has_insert_ = false;
+  sql::Stmt insert_sample_;
+};
+
+}  // namespace kp

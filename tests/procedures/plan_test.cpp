@@ -1,0 +1,84 @@
+#include "procedures/plan.h"
+
+#include <gtest/gtest.h>
+
+#include "procedures/engine.h"
+
+namespace kp {
+namespace {
+
+CellSpec Cell2500() {
+  CellSpec c;
+  c.rated_mah = 2500;
+  c.nominal_v = 3.6;
+  c.max_v = 4.2;
+  c.cutoff_v = 2.75;
+  c.max_temp_c = 60;
+  return c;
+}
+
+// IEC 61960-3 clause 7.3.1: discharge at 0.2 It, where It (A) = Cn (Ah) / 1 h,
+// down to the manufacturer's end-of-discharge voltage (secondary source).
+TEST(RatedCapacityPlan, FollowsIec61960Clause731) {
+  Plan p = RatedCapacityPlan(Cell2500());
+  ASSERT_EQ(p.steps.size(), 1u);
+  EXPECT_EQ(p.steps[0].kind, StepKind::kConstantCurrent);
+  EXPECT_DOUBLE_EQ(p.steps[0].current_a, 0.2 * 2.5);  // 0.2 It = 500 mA
+  ASSERT_TRUE(p.steps[0].end.voltage_below_v.has_value());
+  EXPECT_DOUBLE_EQ(*p.steps[0].end.voltage_below_v, 2.75);
+  EXPECT_LE(p.limits.max_temp_c, 60.0);
+  EXPECT_FALSE(p.source_text.empty());
+}
+
+TEST(CellSpec, CRate) {
+  CellSpec c = Cell2500();
+  EXPECT_DOUBLE_EQ(c.CRateToAmps(1.0), 2.5);
+  EXPECT_DOUBLE_EQ(c.CRateToAmps(0.2), 0.5);
+}
+
+TEST(StepEngine, EndsOnCutoffAndSwitchesOff) {
+  Plan p = RatedCapacityPlan(Cell2500());
+  StepEngine e(p);
+  EngineOutput out = e.Start(0);
+  ASSERT_TRUE(out.setpoint.has_value());
+  EXPECT_TRUE(out.setpoint->load_on);
+  EXPECT_DOUBLE_EQ(out.setpoint->level, 0.5);
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), 1.0);
+  out = e.OnReading({1.0, 3.9, 0.5, 25});
+  EXPECT_FALSE(out.finished);
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), 2.0);
+  out = e.OnReading({2.0, 2.749, 0.5, 25});
+  EXPECT_TRUE(out.finished);
+  ASSERT_TRUE(out.setpoint.has_value());
+  EXPECT_FALSE(out.setpoint->load_on);
+  ASSERT_EQ(out.changes.size(), 1u);
+  EXPECT_NE(out.changes[0].reason.find("2.749 V <= 2.750 V"), std::string::npos) << out.changes[0].reason;
+  EXPECT_NEAR(e.step_charge_mah(), 0.0, 1e-12);  // reset for the (absent) next step
+}
+
+TEST(StepEngine, TimeAndChargeEndConditions) {
+  Plan p;
+  p.cell = Cell2500();
+  Step rest;
+  rest.kind = StepKind::kRest;
+  rest.end.time_s = 10;
+  Step cc;
+  cc.kind = StepKind::kConstantCurrent;
+  cc.current_a = 3.6;
+  cc.end.charge_mah = 10.0;  // 3.6 A delivers 1 mAh per second
+  p.steps = {rest, cc};
+  StepEngine e(p);
+  (void)e.Start(0);
+  for (int t = 1; t < 10; ++t) EXPECT_TRUE(e.OnReading({double(t), 3.9, 0, 25}).changes.empty());
+  auto out = e.OnReading({10, 3.9, 0, 25});
+  ASSERT_EQ(out.changes.size(), 1u);
+  EXPECT_EQ(out.changes[0].started_step, 1);
+  int t = 10;
+  while (!e.finished() && t < 100) (void)e.OnReading({double(++t), 3.8, 3.6, 25});
+  // The first interval integrates from the boundary reading at 0 A: 0.5 mAh,
+  // then 1 mAh per second, so 10 mAh is reached at t = 21 s.
+  EXPECT_EQ(t, 21);
+}
+
+}  // namespace
+}  // namespace kp

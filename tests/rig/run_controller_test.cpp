@@ -1,0 +1,131 @@
+#include "rig/run_controller.h"
+
+#include <gtest/gtest.h>
+
+#include "analysis/metrics.h"
+#include "drivers/inproc_transport.h"
+#include "rig/sim_rig.h"
+#include "tests/support/test_support.h"
+
+namespace kp {
+namespace {
+
+CellSpec Cell2500() {
+  CellSpec c;
+  c.rated_mah = 2500;
+  c.nominal_v = 3.6;
+  c.max_v = 4.2;
+  c.cutoff_v = 2.75;
+  c.max_temp_c = 60;
+  return c;
+}
+
+struct Fixture {
+  testing::TempDir dir;
+  SteadyClock wall;
+  VirtualClock clock;
+  std::unique_ptr<Store> store;
+  Fixture() {
+    auto s = Store::Open(dir.File("run.db"), wall);
+    EXPECT_TRUE(s.ok()) << s.status().ToString();
+    store = std::move(*s);
+  }
+};
+
+TEST(RunController, RatedCapacityCheckCompletesWithLoadOff) {
+  Fixture f;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56));
+  RunController rc(*f.store, f.clock, rig.roles());
+  RunOptions o;
+  o.cell_name = "A1";
+  auto r = rc.Execute(RatedCapacityPlan(Cell2500()), o);
+  ASSERT_TRUE(r.ok()) << r.status().ToString();
+  EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+  EXPECT_FALSE(rig.bench().load_input_on());
+  auto samples = f.store->LoadSamples(r->run_id);
+  ASSERT_TRUE(samples.ok());
+  // 0.2C from a 2.56 Ah cell: about 5.1 h at one sample per second.
+  EXPECT_GT(samples->size(), 18000u);
+  double mah = DeliveredChargeMah(*samples);
+  EXPECT_GT(mah, 2500.0);
+  EXPECT_LT(mah, 2560.0);
+  EXPECT_LE(samples->back().voltage_v, 2.75);
+  EXPECT_GT((*samples)[samples->size() - 2].voltage_v, 2.75);
+  // The curve has a knee: over the last 2 % of the time the voltage falls at
+  // least five times faster than over the first half.
+  size_t n = samples->size();
+  double early_drop = (*samples)[0].voltage_v - (*samples)[n / 2].voltage_v;
+  double late_drop = (*samples)[n * 98 / 100].voltage_v - samples->back().voltage_v;
+  EXPECT_GT(late_drop / 0.02, 5.0 * early_drop / 0.5);
+  auto events = f.store->LoadEvents(r->run_id);
+  ASSERT_TRUE(events.ok());
+  EXPECT_NE(events->back().message.find("<= 2.750 V"), std::string::npos) << events->back().message;
+}
+
+TEST(RunController, OverTemperatureAbortsWithLoadOff) {
+  Fixture f;
+  sim::SimOptions so;
+  so.runaway_start_s = 600;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56), so);
+  RunController rc(*f.store, f.clock, rig.roles());
+  auto r = rc.Execute(RatedCapacityPlan(Cell2500()), {});
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kAborted);
+  EXPECT_NE(r->reason.find("over-temperature"), std::string::npos) << r->reason;
+  EXPECT_FALSE(rig.bench().load_input_on());
+  EXPECT_GE(rig.bench().cell_temperature_c(), 60.0);
+  EXPECT_EQ(f.store->GetRun(r->run_id)->outcome, Outcome::kAborted);
+}
+
+TEST(RunController, TimeLimitAborts) {
+  Fixture f;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56));
+  RunController rc(*f.store, f.clock, rig.roles());
+  Plan p = RatedCapacityPlan(Cell2500());
+  p.limits.max_total_s = 3600;
+  auto r = rc.Execute(p, {});
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kAborted);
+  EXPECT_NE(r->reason.find("time limit"), std::string::npos) << r->reason;
+  EXPECT_FALSE(rig.bench().load_input_on());
+}
+
+TEST(RunController, StopFlagAbortsAsOperator) {
+  Fixture f;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56));
+  RunController rc(*f.store, f.clock, rig.roles());
+  std::atomic<bool> stop{false};
+  RunOptions o;
+  o.stop = &stop;
+  o.on_sample = [&](const Reading& r, double) {
+    if (r.t_s >= 100) stop = true;
+  };
+  auto r = rc.Execute(RatedCapacityPlan(Cell2500()), o);
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kAborted);
+  EXPECT_NE(r->reason.find("operator"), std::string::npos);
+  EXPECT_FALSE(rig.bench().load_input_on());
+}
+
+// Lost thermometer: the run aborts, the load (on another link) goes off, and
+// every sample logged before stays in the database.
+TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
+  Fixture f;
+  sim::SimBench bench(sim::DemoLiIonCell(2.56), f.clock);
+  testing::FaultyDevice dying(bench.thermometer());
+  dying.silent_after = 50;
+  ScpiSession load_s(std::make_unique<InProcTransport>(bench.load(), f.clock), f.clock);
+  ScpiSession temp_s(std::make_unique<InProcTransport>(dying, f.clock), f.clock);
+  LoadDriver load(load_s);
+  ThermometerDriver thermo(temp_s);
+  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, "test"});
+  auto r = rc.Execute(RatedCapacityPlan(Cell2500()), {});
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kAborted);
+  EXPECT_NE(r->reason.find("instrument lost"), std::string::npos) << r->reason;
+  EXPECT_FALSE(bench.load_input_on());
+  EXPECT_EQ(f.store->LoadSamples(r->run_id)->size(), 50u);  // one per answered temperature query
+}
+
+}  // namespace
+}  // namespace kp
