@@ -79,7 +79,9 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   app.set_version_flag("--version", "kneepoint 0.1.0");
   CliRegistry registry(app);
   RegisterDemo(registry);
-  RegisterRunQueries(registry);
+  RegisterRuns(registry);
+  RegisterReport(registry);
+  RegisterExport(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

@@ -51,7 +51,9 @@ const std::atomic<bool>* InstallStopSignals();
 
 // Built-in command groups.
 void RegisterDemo(CliRegistry& r);
-void RegisterRunQueries(CliRegistry& r);  // runs, report, export
+void RegisterRuns(CliRegistry& r);
+void RegisterReport(CliRegistry& r);
+void RegisterExport(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);
