@@ -1,6 +1,7 @@
 #include "procedures/engine.h"
 
 #include <cmath>
+#include <cstdio>
 
 #include <fmt/format.h>
 
@@ -90,6 +91,29 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     return out;
   }
   next_wakeup_s_ = r.t_s + step.sample_period_s;
+  return out;
+}
+
+std::string StepEngine::Snapshot(double t_s) const {
+  return fmt::format("v1 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_, step_charge_mah_,
+                     step_energy_wh_);
+}
+
+Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) {
+  int step = 0;
+  double elapsed = 0, charge = 0, energy = 0;
+  std::string text(snapshot);
+  if (std::sscanf(text.c_str(), "v1 step=%d elapsed=%lf charge=%lf energy=%lf", &step, &elapsed, &charge, &energy) != 4)
+    return InvalidInput(fmt::format("unreadable engine snapshot '{}'", text));
+  if (step < 0 || step > static_cast<int>(plan_.steps.size()))
+    return InvalidInput(fmt::format("snapshot step {} is outside the procedure ({} steps)", step, plan_.steps.size()));
+  EngineOutput out;
+  applied_.reset();
+  last_.reset();
+  EnterStep(step, t_s - elapsed, out);
+  step_charge_mah_ = charge;
+  step_energy_wh_ = energy;
+  if (!finished()) next_wakeup_s_ = t_s + plan_.steps[static_cast<size_t>(step_)].sample_period_s;
   return out;
 }
 

@@ -4,6 +4,7 @@
 #pragma once
 
 #include <optional>
+#include <string_view>
 #include <string>
 #include <vector>
 
@@ -48,6 +49,14 @@ class StepEngine {
   double NextWakeup() const { return next_wakeup_s_; }
   // Feeds the reading taken at (or just after) NextWakeup().
   EngineOutput OnReading(const Reading& r);
+
+  // Serialisable position in the plan (step, time into the step, the step's
+  // charge and energy so far, and any loop counters), stored with the run so an
+  // interrupted run can resume. `t_s` is the time of the latest reading.
+  std::string Snapshot(double t_s) const;
+  // Continues from a Snapshot at run time `t_s` (the gap while the runner was
+  // gone does not count as step time). Returns the setpoint to apply.
+  Result<EngineOutput> Restore(std::string_view snapshot, double t_s);
 
   int step_index() const { return step_; }
   bool finished() const { return step_ >= static_cast<int>(plan_.steps.size()); }

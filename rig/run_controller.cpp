@@ -13,7 +13,12 @@ void RunController::SafeOff() {
   for (int attempt = 0; attempt < 3; ++attempt) {
     if (roles_.load->SetInput(false).ok()) {
       input_on_ = false;
-      return;
+      break;
+    }
+  }
+  if (roles_.supply != nullptr) {
+    for (int attempt = 0; attempt < 3; ++attempt) {
+      if (roles_.supply->SetOutput(false).ok()) break;
     }
   }
 }

@@ -15,6 +15,7 @@
 
 #include "drivers/clock.h"
 #include "drivers/roles.h"
+#include "drivers/supply.h"
 #include "procedures/engine.h"
 #include "procedures/plan.h"
 #include "rig/store.h"
@@ -26,6 +27,7 @@ struct RigRoles {
   LoadDriver* load = nullptr;              // required
   MeterDriver* meter = nullptr;            // optional: cell voltage by 4-wire sense; else the load's reading
   ThermometerDriver* thermometer = nullptr;  // required for safety
+  SupplyDriver* supply = nullptr;          // optional: needed by charge steps
   std::string description;                 // "sim", "rig.toml"
 };
 

@@ -13,6 +13,11 @@ SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : be
   thermometer_ = std::make_unique<ThermometerDriver>(*thermo_session_);
 }
 
-RigRoles SimRig::roles() { return RigRoles{load_.get(), meter_.get(), thermometer_.get(), "sim"}; }
+RigRoles SimRig::roles() { RigRoles r;
+  r.load = load_.get();
+  r.meter = meter_.get();
+  r.thermometer = thermometer_.get();
+  r.description = "sim";
+  return r; }
 
 }  // namespace kp

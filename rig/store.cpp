@@ -279,6 +279,36 @@ Status Store::FinishRun(int64_t run_id, Outcome outcome, std::string_view reason
   return st;
 }
 
+Result<int64_t> Store::AddRequest(int64_t run_id, std::string_view action, std::string_view requested_by) {
+  if (action != "abort" && action != "pause" && action != "continue")
+    return InvalidInput(fmt::format("unknown request '{}': use abort, pause or continue", action));
+  KP_RETURN_IF_ERROR(GetRun(run_id).status());
+  KP_RETURN_IF_ERROR(Commit());
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO requests(run_id, action, requested_by, requested_at) VALUES(?1,?2,?3,?4)"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, run_id).Bind(2, action).Bind(3, requested_by).Bind(4, wall_.WallTimeIso()).Run());
+  return static_cast<int64_t>(sqlite3_last_insert_rowid(db_->raw()));
+}
+
+Result<std::vector<RequestRow>> Store::PendingRequests(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, run_id, action, requested_by, requested_at FROM requests"
+                                           " WHERE run_id=?1 AND handled_at IS NULL ORDER BY id"));
+  q.Bind(1, run_id);
+  std::vector<RequestRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back({q.Int(0), q.Int(1), q.Text(2), q.Text(3), q.Text(4)});
+  }
+  return out;
+}
+
+Status Store::MarkRequestHandled(int64_t request_id) {
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE requests SET handled_at=?1 WHERE id=?2"));
+  KP_RETURN_IF_ERROR(up.Bind(1, wall_.WallTimeIso()).Bind(2, request_id).Run());
+  return Commit();
+}
+
 Result<int> Store::ReconcileOrphans() {
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, runner_pid, runner_host, heartbeat_at FROM runs WHERE outcome='running'"));
   std::vector<std::pair<int64_t, std::string>> gone;

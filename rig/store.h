@@ -62,6 +62,15 @@ struct EventRow {
   std::string wall_at;
 };
 
+// A control request written by another process (panel, `kneepoint abort`...).
+struct RequestRow {
+  int64_t id = 0;
+  int64_t run_id = 0;
+  std::string action;  // "abort", "pause", "continue"
+  std::string requested_by;
+  std::string requested_at;
+};
+
 struct StepRow {
   int64_t seq = 0;
   int index = 0;
@@ -96,6 +105,13 @@ class Store {
   Status FinishRun(int64_t run_id, Outcome outcome, std::string_view reason);
   Status Commit();
   Status MaybeCommit();
+
+  // --- control requests (any process) ---
+  // Queues a request for the runner of `run_id`; committed at once.
+  Result<int64_t> AddRequest(int64_t run_id, std::string_view action, std::string_view requested_by);
+  // Requests not yet handled, oldest first.
+  Result<std::vector<RequestRow>> PendingRequests(int64_t run_id);
+  Status MarkRequestHandled(int64_t request_id);
 
   // --- reader side ---
   // Marks runs whose runner process is gone as interrupted; returns how many.

@@ -82,3 +82,30 @@ TEST(StepEngine, TimeAndChargeEndConditions) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+TEST(StepEngine, SnapshotRestoreContinuesTheStep) {
+  Plan p = RatedCapacityPlan(Cell2500());
+  p.steps[0].end.voltage_below_v.reset();
+  p.steps[0].end.time_s = 100;
+  StepEngine a(p);
+  (void)a.Start(0);
+  for (int t = 1; t <= 40; ++t) (void)a.OnReading({double(t), 3.9, 0.5, 25});
+  std::string snap = a.Snapshot(40);
+  StepEngine b(p);
+  auto out = b.Restore(snap, 1000);  // resumed after a 960 s gap
+  ASSERT_TRUE(out.ok()) << out.status().ToString();
+  ASSERT_TRUE(out->setpoint.has_value());
+  EXPECT_TRUE(out->setpoint->load_on);
+  EXPECT_NEAR(b.step_charge_mah(), a.step_charge_mah(), 1e-12);
+  // 60 s of step time remain.
+  int t = 1000;
+  while (!b.finished() && t < 2000) (void)b.OnReading({double(++t), 3.9, 0.5, 25});
+  EXPECT_EQ(t, 1060);
+  EXPECT_FALSE(b.Restore("garbage", 0).ok());
+}
+
+}  // namespace
+}  // namespace kp

@@ -118,7 +118,7 @@ TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
   ScpiSession temp_s(std::make_unique<InProcTransport>(dying, f.clock), f.clock);
   LoadDriver load(load_s);
   ThermometerDriver thermo(temp_s);
-  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, "test"});
+  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, nullptr, "test"});
   auto r = rc.Execute(RatedCapacityPlan(Cell2500()), {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, Outcome::kAborted);

@@ -104,3 +104,29 @@ TEST(Store, OrphanedRunIsMarkedInterrupted) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+TEST(Store, ControlRequestsQueueAndHandle) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  auto store = Store::Open(dir.File("r.db"), wall);
+  ASSERT_TRUE(store.ok());
+  auto run = (*store)->BeginRun(DemoRun());
+  ASSERT_TRUE(run.ok());
+  EXPECT_FALSE((*store)->AddRequest(*run, "explode", "test").ok());
+  EXPECT_FALSE((*store)->AddRequest(*run + 1, "abort", "test").ok());
+  auto id = (*store)->AddRequest(*run, "pause", "panel 'x'");
+  ASSERT_TRUE(id.ok());
+  auto pending = (*store)->PendingRequests(*run);
+  ASSERT_TRUE(pending.ok());
+  ASSERT_EQ(pending->size(), 1u);
+  EXPECT_EQ((*pending)[0].action, "pause");
+  EXPECT_EQ((*pending)[0].requested_by, "panel 'x'");
+  ASSERT_OK((*store)->MarkRequestHandled(*id));
+  EXPECT_TRUE((*store)->PendingRequests(*run)->empty());
+}
+
+}  // namespace
+}  // namespace kp
