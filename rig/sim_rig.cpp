@@ -11,12 +11,15 @@ SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : be
   load_ = std::make_unique<LoadDriver>(*load_session_);
   meter_ = std::make_unique<MeterDriver>(*meter_session_);
   thermometer_ = std::make_unique<ThermometerDriver>(*thermo_session_);
+  supply_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.supply(), clock, "inproc:sim-supply"), clock);
+  supply_ = std::make_unique<SupplyDriver>(*supply_session_);
 }
 
 RigRoles SimRig::roles() { RigRoles r;
   r.load = load_.get();
   r.meter = meter_.get();
   r.thermometer = thermometer_.get();
+  r.supply = supply_.get();
   r.description = "sim";
   return r; }
 

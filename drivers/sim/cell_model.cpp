@@ -4,6 +4,22 @@
 #include <cmath>
 
 namespace kp::sim {
+namespace {
+
+constexpr double kGasConstant = 8.314462618;  // J/(mol·K), CODATA
+constexpr double kKelvin = 273.15;
+constexpr double kMonthS = 30.0 * 86400.0;
+// Below an empty available well the OCV collapses linearly to 0 V over this
+// much of the capacity, so a load that keeps pulling sees the voltage vanish.
+constexpr double kCollapseLevel = 0.02;
+
+// x + expm1(-x) = x²/2 − x³/6 + …, without cancellation for small x.
+double RampTerm(double x) {
+  if (x < 1e-4) return x * x * (0.5 - x / 6.0 + x * x / 24.0);
+  return x + std::expm1(-x);
+}
+
+}  // namespace
 
 double Interpolate(const std::vector<std::pair<double, double>>& table, double x) {
   if (table.empty()) return 0.0;
@@ -15,36 +31,136 @@ double Interpolate(const std::vector<std::pair<double, double>>& table, double x
   return lo->second + f * (hi->second - lo->second);
 }
 
-CellParams DemoLiIonCell(double capacity_ah) {
-  CellParams p;
-  p.name = "sim NMC 18650";
-  p.chemistry = "li-ion";
-  p.capacity_ah = capacity_ah;
-  // Pseudo-OCV breakpoints of a Ni-rich 21700 cell, Sunil, Pattipati &
-  // Balasingam, IEEE Trans. Instrum. Meas. 2025 (secondary: authors' README).
-  p.ocv_table = {{0.0, 2.5000},    {0.0050, 2.8080}, {0.0352, 3.1179}, {0.0854, 3.3182},
-                 {0.1357, 3.4193}, {0.2915, 3.5826}, {0.4523, 3.6941}, {0.8392, 4.0664},
-                 {0.9548, 4.1121}, {1.0, 4.2000}};
-  p.r0_ohm = 0.045;  // 18650-class R0 is about 20-80 mOhm (from memory)
-  return p;
+void KibamStep(double c, double k_per_s, double current_a, double t_s, double& y1, double& y2) {
+  if (c >= 1.0) {  // single well
+    y1 -= current_a * t_s;
+    return;
+  }
+  if (k_per_s <= 0.0) {  // no exchange: the bound charge stays put
+    y1 -= current_a * t_s;
+    return;
+  }
+  const double kp = k_per_s / (c * (1.0 - c));
+  const double x = kp * t_s;
+  const double e = std::exp(-x);
+  const double one_minus_e = -std::expm1(-x);
+  const double ramp = RampTerm(x);
+  const double y0 = y1 + y2;
+  const double i = current_a;
+  double n1 = y1 * e + (y0 * kp * c - i) * one_minus_e / kp - i * c * ramp / kp;
+  double n2 = y2 * e + y0 * (1.0 - c) * one_minus_e - i * (1.0 - c) * ramp / kp;
+  y1 = n1;
+  y2 = n2;
 }
 
-CellModel::CellModel(CellParams params)
-    : params_(std::move(params)), soc_(params_.initial_soc), temperature_c_(params_.ambient_c) {}
+CellModel::CellModel(CellParams params) : params_(std::move(params)) {
+  const double q = params_.capacity_ah * 3600.0;
+  const double c = std::clamp(params_.kibam_c, 1e-6, 1.0);
+  state_.available_c = c * q * params_.initial_soc;
+  state_.bound_c = (1.0 - c) * q * params_.initial_soc;
+  state_.temperature_c = params_.ambient_c;
+}
 
-double CellModel::OpenCircuitVoltage() const { return Interpolate(params_.ocv_table, soc_); }
+double CellModel::soc() const {
+  return (state_.available_c + state_.bound_c) / (params_.capacity_ah * 3600.0);
+}
 
-Thevenin CellModel::Equivalent() const { return {OpenCircuitVoltage(), params_.r0_ohm}; }
+double CellModel::available_level() const {
+  const double c = std::clamp(params_.kibam_c, 1e-6, 1.0);
+  return state_.available_c / (c * params_.capacity_ah * 3600.0);
+}
+
+double CellModel::bound_level() const {
+  const double c = params_.kibam_c;
+  if (c >= 1.0) return available_level();
+  return state_.bound_c / ((1.0 - c) * params_.capacity_ah * 3600.0);
+}
+
+double CellModel::ArrheniusFactor() const {
+  if (params_.activation_energy_j_per_mol <= 0.0) return 1.0;
+  const double t_k = std::max(state_.temperature_c + kKelvin, 150.0);
+  const double ref_k = params_.reference_c + kKelvin;
+  return std::exp(params_.activation_energy_j_per_mol / kGasConstant * (1.0 / t_k - 1.0 / ref_k));
+}
+
+double CellModel::ResistanceFactor() const {
+  double f = ArrheniusFactor();
+  if (params_.resistance_rise_at_empty > 0.0 && params_.resistance_rise_width > 0.0) {
+    const double h1 = std::clamp(available_level(), 0.0, 1.0);
+    f *= 1.0 + params_.resistance_rise_at_empty * std::exp(-h1 / params_.resistance_rise_width);
+  }
+  return f;
+}
+
+double CellModel::R0() const { return params_.r0_ohm * ResistanceFactor(); }
+
+double CellModel::TotalResistance() const {
+  return (params_.r0_ohm + params_.r1_ohm + params_.r2_ohm) * ResistanceFactor();
+}
+
+double CellModel::OpenCircuitVoltage() const {
+  const double h1 = available_level();
+  const double shift = params_.ocv_temp_coeff_v_per_k * (state_.temperature_c - params_.reference_c);
+  if (h1 >= 0.0) return std::max(0.0, Interpolate(params_.ocv_table, h1) + shift);
+  const double empty_v = Interpolate(params_.ocv_table, 0.0) + shift;
+  return std::max(0.0, empty_v * (1.0 + h1 / kCollapseLevel));
+}
+
+Thevenin CellModel::Equivalent() const {
+  return {OpenCircuitVoltage() - state_.v1_v - state_.v2_v, R0()};
+}
 
 void CellModel::Advance(double dt_s, double current_a, double extra_heat_w) {
   if (dt_s <= 0) return;
-  soc_ -= current_a * dt_s / 3600.0 / params_.capacity_ah;
-  soc_ = std::clamp(soc_, 0.0, 1.0);
-  // First-order thermal model: C dT/dt = P - (T - Ta)/Rth, solved exactly over dt.
-  double p = current_a * current_a * params_.r0_ohm + extra_heat_w;
-  double t_inf = params_.ambient_c + p * params_.thermal_resistance_k_per_w;
-  double tau = params_.heat_capacity_j_per_k * params_.thermal_resistance_k_per_w;
-  temperature_c_ = t_inf + (temperature_c_ - t_inf) * std::exp(-dt_s / tau);
+  const CellParams& p = params_;
+  const double arr = ArrheniusFactor();
+  const double rf = ResistanceFactor();
+  const double r0 = p.r0_ohm * rf, r1 = p.r1_ohm * rf, r2 = p.r2_ohm * rf;
+
+  // RC pairs: dv/dt = (I·R − v)/τ, exact for constant I.
+  auto rc = [&](double v, double r, double tau) {
+    if (r <= 0.0 || tau <= 0.0) return current_a * r;
+    return current_a * r + (v - current_a * r) * std::exp(-dt_s / tau);
+  };
+  const double v1 = rc(state_.v1_v, r1, p.tau1_s);
+  const double v2 = rc(state_.v2_v, r2, p.tau2_s);
+  // Joule heat: I²R0 plus v²/R in each RC resistor (mean of the step's ends).
+  double heat_w = current_a * current_a * r0 + extra_heat_w;
+  if (r1 > 0) heat_w += 0.5 * (state_.v1_v * state_.v1_v + v1 * v1) / r1;
+  if (r2 > 0) heat_w += 0.5 * (state_.v2_v * state_.v2_v + v2 * v2) / r2;
+  state_.v1_v = v1;
+  state_.v2_v = v2;
+
+  // Wells. Charging stores only the efficient part; the rest becomes heat.
+  double well_current_a = current_a;
+  if (current_a < 0) {
+    well_current_a = current_a * std::clamp(p.charge_efficiency, 0.0, 1.0);
+    heat_w += (well_current_a - current_a) * OpenCircuitVoltage();
+  }
+  const double c = std::clamp(p.kibam_c, 1e-6, 1.0);
+  KibamStep(c, p.kibam_k_per_s / arr, well_current_a, dt_s, state_.available_c, state_.bound_c);
+  const double q = p.capacity_ah * 3600.0;
+  const double y1_max = c * q, y2_max = (1.0 - c) * q;
+  if (state_.available_c > y1_max) {  // full: the excess charge turns into heat
+    heat_w += (state_.available_c - y1_max) / dt_s * p.full_v;
+    state_.available_c = y1_max;
+  }
+  state_.bound_c = std::min(state_.bound_c, y2_max);
+  state_.available_c = std::max(state_.available_c, -kCollapseLevel * y1_max);
+  state_.bound_c = std::max(state_.bound_c, 0.0);
+
+  // Self-discharge: first-order leak of the stored charge.
+  if (p.self_discharge_per_month > 0.0 && p.self_discharge_per_month < 1.0) {
+    const double lambda = -std::log1p(-p.self_discharge_per_month) / kMonthS;
+    const double f = std::exp(-lambda * dt_s);
+    if (state_.available_c > 0) state_.available_c *= f;
+    state_.bound_c *= f;
+  }
+
+  // First-order thermal model: C dT/dt = P − (T − Ta)/Rth, solved exactly over dt.
+  const double t_inf = p.ambient_c + heat_w * p.thermal_resistance_k_per_w;
+  const double tau = p.heat_capacity_j_per_k * p.thermal_resistance_k_per_w;
+  state_.temperature_c = t_inf + (state_.temperature_c - t_inf) * std::exp(-dt_s / tau);
 }
 
 }  // namespace kp::sim

@@ -12,7 +12,7 @@ namespace kp::sim {
 // plus the role-specific headers.
 class SimBench::Device final : public LineDevice {
  public:
-  enum class Role { kLoad, kMeter, kThermometer };
+  enum class Role { kLoad, kMeter, kThermometer, kSupply };
   Device(SimBench& bench, Role role) : bench_(bench), role_(role) {}
 
   std::optional<std::string> HandleLine(std::string_view line) override {
@@ -24,6 +24,7 @@ class SimBench::Device final : public LineDevice {
     if (ScpiHeaderMatches("*IDN?", h)) return Identity();
     if (ScpiHeaderMatches("*RST", h)) {
       if (role_ == Role::kLoad) ResetLoad();
+      if (role_ == Role::kSupply) ResetSupply();
       return std::nullopt;
     }
     if (ScpiHeaderMatches("*CLS", h)) {
@@ -44,6 +45,7 @@ class SimBench::Device final : public LineDevice {
       case Role::kLoad: handled = HandleLoad(c, reply); break;
       case Role::kMeter: handled = HandleMeter(c, reply); break;
       case Role::kThermometer: handled = HandleThermometer(c, reply); break;
+      case Role::kSupply: handled = HandleSupply(c, reply); break;
     }
     if (!handled) PushError(-113, "Undefined header");
     return reply;
@@ -55,6 +57,7 @@ class SimBench::Device final : public LineDevice {
       case Role::kLoad: return "Kneepoint Simulation,KP-SIM-LOAD,SN0001,1.0";
       case Role::kMeter: return "Kneepoint Simulation,KP-SIM-METER,SN0002,1.0";
       case Role::kThermometer: return "Kneepoint Simulation,KP-SIM-TEMP,SN0003,1.0";
+      case Role::kSupply: return "Kneepoint Simulation,KP-SIM-SUPPLY,SN0004,1.0";
     }
     return "";
   }
@@ -94,6 +97,59 @@ class SimBench::Device final : public LineDevice {
     bench_.uv_protect_v_ = 0.0;
   }
 
+  void ResetSupply() {
+    bench_.supply_on_ = false;
+    bench_.supply_voltage_v_ = 0.0;
+    bench_.supply_current_limit_a_ = 0.0;
+  }
+
+  // Parses ON|OFF|1|0 into `out`; queues an error otherwise.
+  void OnOff(const ScpiCommand& c, bool& out) {
+    if (c.args.size() != 1) return PushError(-109, "Missing parameter");
+    const std::string& a = c.args[0];
+    if (a == "1" || ScpiHeaderMatches("ON", a)) out = true;
+    else if (a == "0" || ScpiHeaderMatches("OFF", a)) out = false;
+    else PushError(-224, "Illegal parameter value");
+  }
+
+  bool HandleSupply(const ScpiCommand& c, std::optional<std::string>& reply) {
+    const std::string& h = c.header;
+    SimBench& b = bench_;
+    if (ScpiHeaderMatches("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", h)) {
+      if (auto v = Number(c, 0.0, b.options_.supply_max_voltage_v)) b.supply_voltage_v_ = *v;
+      return true;
+    }
+    if (ScpiHeaderMatches("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]?", h)) {
+      reply = FormatNr3(b.supply_voltage_v_);
+      return true;
+    }
+    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]", h)) {
+      if (auto v = Number(c, 0.0, b.options_.supply_max_current_a)) b.supply_current_limit_a_ = *v;
+      return true;
+    }
+    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]?", h)) {
+      reply = FormatNr3(b.supply_current_limit_a_);
+      return true;
+    }
+    if (ScpiHeaderMatches("OUTPut[:STATe]", h)) {
+      OnOff(c, b.supply_on_);
+      return true;
+    }
+    if (ScpiHeaderMatches("OUTPut[:STATe]?", h)) {
+      reply = b.supply_on_ ? "1" : "0";
+      return true;
+    }
+    if (ScpiHeaderMatches("MEASure[:SCALar]:VOLTage[:DC]?", h)) {
+      reply = FormatNr3(b.FlowsLocked().terminal_v);
+      return true;
+    }
+    if (ScpiHeaderMatches("MEASure[:SCALar]:CURRent[:DC]?", h)) {
+      reply = FormatNr3(b.FlowsLocked().supply_a);
+      return true;
+    }
+    return false;
+  }
+
   bool HandleLoad(const ScpiCommand& c, std::optional<std::string>& reply) {
     const std::string& h = c.header;
     SimBench& b = bench_;
@@ -130,11 +186,7 @@ class SimBench::Device final : public LineDevice {
       return true;
     }
     if (ScpiHeaderMatches("INPut[:STATe]", h)) {
-      if (c.args.size() != 1) return PushError(-109, "Missing parameter"), true;
-      const std::string& a = c.args[0];
-      if (a == "1" || ScpiHeaderMatches("ON", a)) b.input_on_ = true;
-      else if (a == "0" || ScpiHeaderMatches("OFF", a)) b.input_on_ = false;
-      else PushError(-224, "Illegal parameter value");
+      OnOff(c, b.input_on_);
       return true;
     }
     if (ScpiHeaderMatches("INPut[:STATe]?", h)) {
@@ -146,20 +198,18 @@ class SimBench::Device final : public LineDevice {
       return true;
     }
     if (ScpiHeaderMatches("MEASure[:SCALar]:CURRent[:DC]?", h)) {
-      reply = FormatNr3(b.CurrentLocked());
+      reply = FormatNr3(b.FlowsLocked().load_a);
       return true;
     }
     if (ScpiHeaderMatches("MEASure[:SCALar]:POWer[:DC]?", h)) {
-      reply = FormatNr3(b.CurrentLocked() * TerminalVoltage());
+      Flows f = b.FlowsLocked();
+      reply = FormatNr3(f.load_a * f.terminal_v);
       return true;
     }
     return false;
   }
 
-  double TerminalVoltage() {
-    Thevenin t = bench_.cell_.Equivalent();
-    return t.emf_v - bench_.CurrentLocked() * t.r_ohm;
-  }
+  double TerminalVoltage() { return bench_.FlowsLocked().terminal_v; }
 
   bool HandleMeter(const ScpiCommand& c, std::optional<std::string>& reply) {
     if (ScpiHeaderMatches("MEASure[:SCALar]:VOLTage[:DC]?", c.header)) {
@@ -192,6 +242,7 @@ SimBench::SimBench(CellParams cell, Clock& clock, SimOptions options)
   load_ = std::make_unique<Device>(*this, Device::Role::kLoad);
   meter_ = std::make_unique<Device>(*this, Device::Role::kMeter);
   thermometer_ = std::make_unique<Device>(*this, Device::Role::kThermometer);
+  supply_ = std::make_unique<Device>(*this, Device::Role::kSupply);
 }
 
 SimBench::~SimBench() = default;
@@ -199,6 +250,7 @@ SimBench::~SimBench() = default;
 LineDevice& SimBench::load() { return *load_; }
 LineDevice& SimBench::meter() { return *meter_; }
 LineDevice& SimBench::thermometer() { return *thermometer_; }
+LineDevice& SimBench::supply() { return *supply_; }
 
 bool SimBench::load_input_on() const {
   std::lock_guard<std::mutex> lock(mu_);
@@ -206,7 +258,19 @@ bool SimBench::load_input_on() const {
 }
 double SimBench::load_current_a() const {
   std::lock_guard<std::mutex> lock(mu_);
-  return CurrentLocked();
+  return FlowsLocked().load_a;
+}
+bool SimBench::supply_output_on() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return supply_on_;
+}
+double SimBench::supply_current_a() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return FlowsLocked().supply_a;
+}
+double SimBench::cell_current_a() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return FlowsLocked().cell_a;
 }
 double SimBench::cell_soc() const {
   std::lock_guard<std::mutex> lock(mu_);
@@ -216,39 +280,109 @@ double SimBench::cell_temperature_c() const {
   std::lock_guard<std::mutex> lock(mu_);
   return cell_.temperature_c();
 }
+CellModel SimBench::cell() {
+  std::lock_guard<std::mutex> lock(mu_);
+  AdvanceLocked();
+  return cell_;
+}
+void SimBench::SetAmbient(double ambient_c) {
+  std::lock_guard<std::mutex> lock(mu_);
+  AdvanceLocked();
+  cell_.set_ambient_c(ambient_c);
+}
 
-double SimBench::CurrentLocked() const {
-  if (!input_on_) return 0.0;
-  Thevenin t = cell_.Equivalent();
-  if (t.emf_v <= 0) return 0.0;
-  double i = 0.0;
+double SimBench::LoadCurrentAt(double terminal_v) const {
+  if (!input_on_ || terminal_v <= 0) return 0.0;
   switch (mode_) {
-    case LoadMode::kCurrent: i = level_current_a_; break;
-    case LoadMode::kResistance: i = t.emf_v / (t.r_ohm + level_resistance_ohm_); break;
-    case LoadMode::kPower: {
-      // I·(E - I·R) = P  ->  R·I² - E·I + P = 0, smaller root; beyond the
-      // maximum-power point the load gets E/(2R).
-      double disc = t.emf_v * t.emf_v - 4.0 * t.r_ohm * level_power_w_;
-      i = disc >= 0 ? (t.emf_v - std::sqrt(disc)) / (2.0 * t.r_ohm) : t.emf_v / (2.0 * t.r_ohm);
-      break;
-    }
+    case LoadMode::kCurrent: return level_current_a_;
+    case LoadMode::kResistance: return terminal_v / level_resistance_ohm_;
+    case LoadMode::kPower: return level_power_w_ / terminal_v;
   }
-  // A load cannot pull the terminal below 0 V.
-  i = std::min(i, t.emf_v / t.r_ohm);
-  // Hardware under-voltage backstop: the load stops sinking below the limit.
-  if (uv_protect_v_ > 0 && t.emf_v - i * t.r_ohm < uv_protect_v_) i = std::max(0.0, (t.emf_v - uv_protect_v_) / t.r_ohm);
-  return std::max(0.0, i);
+  return 0.0;
+}
+
+SimBench::Flows SimBench::FlowsLocked() const {
+  Flows f;
+  const Thevenin t = cell_.Equivalent();
+  const double emf = t.emf_v, r = t.r_ohm;
+  // The load alone on the cell.
+  double il = 0.0;
+  if (input_on_ && emf > 0) {
+    switch (mode_) {
+      case LoadMode::kCurrent: il = level_current_a_; break;
+      case LoadMode::kResistance: il = emf / (r + level_resistance_ohm_); break;
+      case LoadMode::kPower: {
+        // I·(E - I·R) = P  ->  R·I² - E·I + P = 0, smaller root; beyond the
+        // maximum-power point the load gets E/(2R).
+        double disc = emf * emf - 4.0 * r * level_power_w_;
+        il = disc >= 0 ? (emf - std::sqrt(disc)) / (2.0 * r) : emf / (2.0 * r);
+        break;
+      }
+    }
+    f.state_dependent = mode_ != LoadMode::kCurrent;
+    // A load cannot pull the terminal below 0 V.
+    if (il > emf / r) il = emf / r, f.state_dependent = true;
+    // Hardware under-voltage backstop: the load stops sinking below the limit.
+    if (uv_protect_v_ > 0 && emf - il * r < uv_protect_v_) {
+      il = std::max(0.0, (emf - uv_protect_v_) / r);
+      f.state_dependent = true;
+    }
+    il = std::max(0.0, il);
+  }
+  f.load_a = il;
+  if (supply_on_ && supply_current_limit_a_ > 0) {
+    f.state_dependent = true;
+    const double vs = supply_voltage_v_;
+    // Constant voltage: the terminal sits at vs, the cell takes (vs − emf)/r.
+    const double il_cv = LoadCurrentAt(vs);
+    const double is_cv = il_cv + (vs - emf) / r;
+    if (is_cv > 0 && is_cv <= supply_current_limit_a_) {
+      f.supply_a = is_cv;
+      f.load_a = il_cv;
+    } else if (is_cv > supply_current_limit_a_) {
+      // Constant current at the limit; the terminal settles where the load's
+      // own law meets the cell's line V = emf − (I_load − I_supply)·r.
+      const double is = supply_current_limit_a_;
+      f.supply_a = is;
+      if (input_on_) {
+        switch (mode_) {
+          case LoadMode::kCurrent: f.load_a = level_current_a_; break;
+          case LoadMode::kResistance: f.load_a = (emf + is * r) / (1.0 + r / level_resistance_ohm_) / level_resistance_ohm_; break;
+          case LoadMode::kPower: {
+            // V² − (E + Is·r)·V + P·r = 0, larger root (the stable operating point).
+            double e = emf + is * r;
+            double disc = e * e - 4.0 * level_power_w_ * r;
+            f.load_a = disc >= 0 ? level_power_w_ / ((e + std::sqrt(disc)) / 2.0) : il;
+            break;
+          }
+        }
+      }
+    }
+    // is_cv <= 0: the cell sits above the set voltage; a supply only sources.
+  }
+  f.cell_a = f.load_a - f.supply_a;
+  f.terminal_v = emf - f.cell_a * r;
+  return f;
 }
 
 void SimBench::AdvanceLocked() {
   Seconds now = clock_.Now();
   while (sim_time_ < now) {
-    double dt = std::min(options_.max_step_s, (now - sim_time_).count());
-    double extra = 0.0;
-    if (options_.runaway_start_s >= 0 && sim_time_.count() >= options_.runaway_start_s) {
-      extra = options_.runaway_heat_rate_w_per_s * (sim_time_.count() - options_.runaway_start_s);
+    const Flows f = FlowsLocked();
+    const bool runaway = options_.runaway_start_s >= 0 && sim_time_.count() >= options_.runaway_start_s;
+    double limit = options_.max_rest_step_s;
+    if (f.state_dependent || runaway || cell_.available_level() < 0.03) {
+      limit = options_.max_step_s;
+    } else if (f.cell_a != 0.0) {
+      limit = options_.max_constant_current_step_s;
+      // Close to the load's backstop the current will soon depend on the state.
+      if (uv_protect_v_ > 0 && f.terminal_v - uv_protect_v_ < 0.3) limit = options_.max_step_s;
     }
-    cell_.Advance(dt, CurrentLocked(), extra);
+    limit = std::max(limit, 1e-6);
+    double dt = std::min(limit, (now - sim_time_).count());
+    double extra = 0.0;
+    if (runaway) extra = options_.runaway_heat_rate_w_per_s * (sim_time_.count() - options_.runaway_start_s);
+    cell_.Advance(dt, f.cell_a, extra);
     sim_time_ += Seconds(dt);
   }
 }

@@ -42,7 +42,10 @@ TEST(SimBench, ConstantCurrentDrainsChargeAtTheSetRate) {
   ASSERT_OK(b.load.SetInput(true));
   b.clock.Advance(Seconds(3600));  // 1.25 Ah out of 2.5 Ah
   ASSERT_TRUE(b.meter.MeasureVoltage().ok());
-  EXPECT_NEAR(b.bench.cell_soc(), 0.5, 1e-9);
+  // The demo cell also self-discharges (2.5 %/month: about 2e-5 of its charge
+  // in this hour), so the drained half is exact only to that much.
+  EXPECT_NEAR(b.bench.cell_soc(), 0.5, 1e-4);
+  EXPECT_LT(b.bench.cell_soc(), 0.5);
   ASSERT_OK(b.load.SetInput(false));
   EXPECT_FALSE(b.bench.load_input_on());
 }
