@@ -199,18 +199,18 @@ temp_coeff_mv_per_k = -0.3
 reference_c = 25.0
 
 [impedance]
-r0_mohm = 120
-fast_mohm = 40
+r0_mohm = 60
+fast_mohm = 15
 fast_tau_s = 3
-slow_mohm = 80
+slow_mohm = 30
 slow_tau_s = 200
-activation_kj_per_mol = 30
+activation_kj_per_mol = 15
 empty_rise = 1.5
 empty_rise_width = 0.3
 
 [wells]
 available_fraction = 0.4
-exchange_per_hour = 0.3
+exchange_per_hour = 0.4
 
 [thermal]
 heat_capacity_j_per_k = 22
