@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <unordered_map>
 #include <fmt/format.h>
 
 #include "drivers/scpi_syntax.h"
@@ -21,19 +22,22 @@ class SimBench::Device final : public LineDevice {
     ScpiCommand c = SplitScpiCommand(line);
     const std::string& h = c.header;
     if (h.empty()) return std::nullopt;
-    if (ScpiHeaderMatches("*IDN?", h)) return Identity();
-    if (ScpiHeaderMatches("*RST", h)) {
+    header_ = &h;
+    auto memo = memo_.find(h);
+    cached_ = memo != memo_.end() ? &memo->second : nullptr;
+    if (Is("*IDN?")) return Identity();
+    if (Is("*RST")) {
       if (role_ == Role::kLoad) ResetLoad();
       if (role_ == Role::kSupply) ResetSupply();
       return std::nullopt;
     }
-    if (ScpiHeaderMatches("*CLS", h)) {
+    if (Is("*CLS")) {
       errors_.clear();
       return std::nullopt;
     }
-    if (ScpiHeaderMatches("*OPC?", h)) return std::string("1");
-    if (ScpiHeaderMatches("*ESR?", h) || ScpiHeaderMatches("*STB?", h)) return std::string("0");
-    if (ScpiHeaderMatches("SYSTem:ERRor[:NEXT]?", h)) {
+    if (Is("*OPC?")) return std::string("1");
+    if (Is("*ESR?") || Is("*STB?")) return std::string("0");
+    if (Is("SYSTem:ERRor[:NEXT]?")) {
       if (errors_.empty()) return std::string("0,\"No error\"");
       std::string e = errors_.front();
       errors_.pop_front();
@@ -115,35 +119,35 @@ class SimBench::Device final : public LineDevice {
   bool HandleSupply(const ScpiCommand& c, std::optional<std::string>& reply) {
     const std::string& h = c.header;
     SimBench& b = bench_;
-    if (ScpiHeaderMatches("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", h)) {
+    if (Is("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, b.options_.supply_max_voltage_v)) b.supply_voltage_v_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]?", h)) {
+    if (Is("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]?")) {
       reply = FormatNr3(b.supply_voltage_v_);
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]", h)) {
+    if (Is("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, b.options_.supply_max_current_a)) b.supply_current_limit_a_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]?", h)) {
+    if (Is("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]?")) {
       reply = FormatNr3(b.supply_current_limit_a_);
       return true;
     }
-    if (ScpiHeaderMatches("OUTPut[:STATe]", h)) {
+    if (Is("OUTPut[:STATe]")) {
       OnOff(c, b.supply_on_);
       return true;
     }
-    if (ScpiHeaderMatches("OUTPut[:STATe]?", h)) {
+    if (Is("OUTPut[:STATe]?")) {
       reply = b.supply_on_ ? "1" : "0";
       return true;
     }
-    if (ScpiHeaderMatches("MEASure[:SCALar]:VOLTage[:DC]?", h)) {
+    if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
       reply = FormatNr3(b.FlowsLocked().terminal_v);
       return true;
     }
-    if (ScpiHeaderMatches("MEASure[:SCALar]:CURRent[:DC]?", h)) {
+    if (Is("MEASure[:SCALar]:CURRent[:DC]?")) {
       reply = FormatNr3(b.FlowsLocked().supply_a);
       return true;
     }
@@ -153,7 +157,7 @@ class SimBench::Device final : public LineDevice {
   bool HandleLoad(const ScpiCommand& c, std::optional<std::string>& reply) {
     const std::string& h = c.header;
     SimBench& b = bench_;
-    if (ScpiHeaderMatches("[SOURce:]FUNCtion", h)) {
+    if (Is("[SOURce:]FUNCtion")) {
       if (c.args.size() != 1) return PushError(-109, "Missing parameter"), true;
       if (ScpiHeaderMatches("CURRent", c.args[0])) b.mode_ = LoadMode::kCurrent;
       else if (ScpiHeaderMatches("RESistance", c.args[0])) b.mode_ = LoadMode::kResistance;
@@ -161,47 +165,47 @@ class SimBench::Device final : public LineDevice {
       else PushError(-224, "Illegal parameter value");
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]FUNCtion?", h)) {
+    if (Is("[SOURce:]FUNCtion?")) {
       reply = b.mode_ == LoadMode::kCurrent ? "CURR" : b.mode_ == LoadMode::kResistance ? "RES" : "POW";
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]", h)) {
+    if (Is("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, b.options_.load_max_current_a)) b.level_current_a_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]?", h)) {
+    if (Is("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]?")) {
       reply = FormatNr3(b.level_current_a_);
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]RESistance[:LEVel][:IMMediate][:AMPLitude]", h)) {
+    if (Is("[SOURce:]RESistance[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 1e-3, 1e7)) b.level_resistance_ohm_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]POWer[:LEVel][:IMMediate][:AMPLitude]", h)) {
+    if (Is("[SOURce:]POWer[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, 1000.0)) b.level_power_w_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("[SOURce:]VOLTage:PROTection:LOW", h)) {
+    if (Is("[SOURce:]VOLTage:PROTection:LOW")) {
       if (auto v = Number(c, 0.0, 100.0)) b.uv_protect_v_ = *v;
       return true;
     }
-    if (ScpiHeaderMatches("INPut[:STATe]", h)) {
+    if (Is("INPut[:STATe]")) {
       OnOff(c, b.input_on_);
       return true;
     }
-    if (ScpiHeaderMatches("INPut[:STATe]?", h)) {
+    if (Is("INPut[:STATe]?")) {
       reply = b.input_on_ ? "1" : "0";
       return true;
     }
-    if (ScpiHeaderMatches("MEASure[:SCALar]:VOLTage[:DC]?", h)) {
+    if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
       reply = FormatNr3(TerminalVoltage());
       return true;
     }
-    if (ScpiHeaderMatches("MEASure[:SCALar]:CURRent[:DC]?", h)) {
+    if (Is("MEASure[:SCALar]:CURRent[:DC]?")) {
       reply = FormatNr3(b.FlowsLocked().load_a);
       return true;
     }
-    if (ScpiHeaderMatches("MEASure[:SCALar]:POWer[:DC]?", h)) {
+    if (Is("MEASure[:SCALar]:POWer[:DC]?")) {
       Flows f = b.FlowsLocked();
       reply = FormatNr3(f.load_a * f.terminal_v);
       return true;
@@ -212,7 +216,7 @@ class SimBench::Device final : public LineDevice {
   double TerminalVoltage() { return bench_.FlowsLocked().terminal_v; }
 
   bool HandleMeter(const ScpiCommand& c, std::optional<std::string>& reply) {
-    if (ScpiHeaderMatches("MEASure[:SCALar]:VOLTage[:DC]?", c.header)) {
+    if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
       double v = TerminalVoltage();
       if (bench_.options_.meter_noise_v > 0) {
         std::normal_distribution<double> noise(0.0, bench_.options_.meter_noise_v);
@@ -225,16 +229,31 @@ class SimBench::Device final : public LineDevice {
   }
 
   bool HandleThermometer(const ScpiCommand& c, std::optional<std::string>& reply) {
-    if (ScpiHeaderMatches("MEASure[:SCALar]:TEMPerature[:DC]?", c.header)) {
+    if (Is("MEASure[:SCALar]:TEMPerature[:DC]?")) {
       reply = FormatNr3(bench_.cell_.temperature_c());
       return true;
     }
     return false;
   }
 
+  // Header dispatch: each handler asks Is(pattern) in turn and the first match
+  // wins. A run repeats a handful of headers thousands of times, so the
+  // pattern that matched a header text is remembered and later calls compare
+  // against it instead of parsing the pattern again.
+  bool Is(std::string_view pattern) {
+    if (cached_ != nullptr) return *cached_ == pattern;
+    if (!ScpiHeaderMatches(pattern, *header_)) return false;
+    if (memo_.size() > 256) memo_.clear();
+    memo_.emplace(*header_, pattern);
+    return true;
+  }
+
   SimBench& bench_;
   Role role_;
   std::deque<std::string> errors_;
+  std::unordered_map<std::string, std::string_view> memo_;
+  const std::string* header_ = nullptr;
+  const std::string_view* cached_ = nullptr;
 };
 
 SimBench::SimBench(CellParams cell, Clock& clock, SimOptions options)
