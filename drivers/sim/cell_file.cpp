@@ -243,6 +243,11 @@ Result<CellPreset> BuiltInCell(std::string_view name) {
   return NotFound(fmt::format("no built-in cell '{}' (known: {})", name, names));
 }
 
+Result<CellPreset> LoadCell(std::string_view name_or_path) {
+  if (!BuiltInCellText(name_or_path).empty()) return BuiltInCell(name_or_path);
+  return LoadCellFile(std::string(name_or_path));
+}
+
 CellParams VaryCell(const CellParams& nominal, const CellSpread& spread, uint64_t seed) {
   CellParams p = nominal;
   std::mt19937_64 rng(seed);

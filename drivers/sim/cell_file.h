@@ -46,6 +46,10 @@ Result<CellPreset> BuiltInCell(std::string_view name);
 // The parameter-file text of a built-in preset (empty when unknown).
 std::string_view BuiltInCellText(std::string_view name);
 
+// A built-in preset name, or else a parameter-file path (what a command line
+// or rig option names).
+Result<CellPreset> LoadCell(std::string_view name_or_path);
+
 // One cell of a batch: the nominal parameters varied by `spread`, drawn from a
 // generator seeded with `seed` (same seed, same cell; different seeds differ).
 // A zero spread returns the nominal cell unchanged.
