@@ -1,13 +1,13 @@
 #include "drivers/sim/cell_file.h"
 
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
 #include <cmath>
 #include <functional>
 #include <map>
 #include <random>
 #include <set>
-
-#include <fmt/format.h>
-#include <toml++/toml.h>
 
 #include "drivers/sim/cell_presets.h"
 
@@ -35,8 +35,7 @@ const std::vector<NumberKey>& NumberKeys() {
       {"store", "capacity_mah", 0, 1e7, true, [](CellPreset& c, double v) { c.params.capacity_ah = v / 1000.0; }},
       {"store", "self_discharge_pct_per_month", 0, 99, false,
        [](CellPreset& c, double v) { c.params.self_discharge_per_month = v / 100.0; }},
-      {"store", "charge_efficiency_pct", 0, 100, false,
-       [](CellPreset& c, double v) { c.params.charge_efficiency = v / 100.0; }},
+      {"store", "charge_efficiency_pct", 0, 100, false, [](CellPreset& c, double v) { c.params.charge_efficiency = v / 100.0; }},
       {"store", "initial_level", 0, 1, false, [](CellPreset& c, double v) { c.params.initial_soc = v; }},
       {"ocv", "temp_coeff_mv_per_k", -10, 10, false,
        [](CellPreset& c, double v) { c.params.ocv_temp_coeff_v_per_k = v / 1000.0; }},
@@ -51,17 +50,13 @@ const std::vector<NumberKey>& NumberKeys() {
       {"impedance", "empty_rise", 0, 100, false, [](CellPreset& c, double v) { c.params.resistance_rise_at_empty = v; }},
       {"impedance", "empty_rise_width", 0, 1, true, [](CellPreset& c, double v) { c.params.resistance_rise_width = v; }},
       {"wells", "available_fraction", 0, 1, true, [](CellPreset& c, double v) { c.params.kibam_c = v; }},
-      {"wells", "exchange_per_hour", 0, 1e6, false,
-       [](CellPreset& c, double v) { c.params.kibam_k_per_s = v / 3600.0; }},
-      {"thermal", "heat_capacity_j_per_k", 0, 1e9, true,
-       [](CellPreset& c, double v) { c.params.heat_capacity_j_per_k = v; }},
-      {"thermal", "to_ambient_k_per_w", 0, 1e6, true,
-       [](CellPreset& c, double v) { c.params.thermal_resistance_k_per_w = v; }},
+      {"wells", "exchange_per_hour", 0, 1e6, false, [](CellPreset& c, double v) { c.params.kibam_k_per_s = v / 3600.0; }},
+      {"thermal", "heat_capacity_j_per_k", 0, 1e9, true, [](CellPreset& c, double v) { c.params.heat_capacity_j_per_k = v; }},
+      {"thermal", "to_ambient_k_per_w", 0, 1e6, true, [](CellPreset& c, double v) { c.params.thermal_resistance_k_per_w = v; }},
       {"thermal", "ambient_c", -60, 100, false, [](CellPreset& c, double v) { c.params.ambient_c = v; }},
       {"spread", "capacity_pct", 0, 50, false, [](CellPreset& c, double v) { c.spread.capacity_rel = v / 100.0; }},
       {"spread", "resistance_pct", 0, 50, false, [](CellPreset& c, double v) { c.spread.resistance_rel = v / 100.0; }},
-      {"spread", "self_discharge_pct", 0, 50, false,
-       [](CellPreset& c, double v) { c.spread.self_discharge_rel = v / 100.0; }},
+      {"spread", "self_discharge_pct", 0, 50, false, [](CellPreset& c, double v) { c.spread.self_discharge_rel = v / 100.0; }},
   };
   return keys;
 }
@@ -101,7 +96,8 @@ class Parser {
       }
     }
     const toml::node* format = root.get("format");
-    if (format == nullptr) return Error(nullptr, "format", fmt::format("missing; the first line should be format = \"{}\"", kFormat));
+    if (format == nullptr)
+      return Error(nullptr, "format", fmt::format("missing; the first line should be format = \"{}\"", kFormat));
     if (format->value<std::string>() != std::string(kFormat))
       return Error(format, "format", fmt::format("unsupported; expected \"{}\"", kFormat));
 
@@ -205,8 +201,8 @@ Result<CellPreset> ParseCellText(std::string_view text, std::string_view source_
   try {
     root = toml::parse(text, source_name);
   } catch (const toml::parse_error& e) {
-    return InvalidInput(fmt::format("{}:{}:{}: {}", source_name, e.source().begin.line, e.source().begin.column,
-                                    e.description()));
+    return InvalidInput(
+        fmt::format("{}:{}:{}: {}", source_name, e.source().begin.line, e.source().begin.column, e.description()));
   }
   return Parser(source_name).Parse(root);
 }
@@ -217,8 +213,7 @@ Result<CellPreset> LoadCellFile(const std::string& path) {
     root = toml::parse_file(path);
   } catch (const toml::parse_error& e) {
     if (e.source().begin.line == 0) return InvalidInput(fmt::format("{}: {}", path, e.description()));
-    return InvalidInput(
-        fmt::format("{}:{}:{}: {}", path, e.source().begin.line, e.source().begin.column, e.description()));
+    return InvalidInput(fmt::format("{}:{}:{}: {}", path, e.source().begin.line, e.source().begin.column, e.description()));
   }
   return Parser(path).Parse(root);
 }

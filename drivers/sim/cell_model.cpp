@@ -61,9 +61,7 @@ CellModel::CellModel(CellParams params) : params_(std::move(params)) {
   state_.temperature_c = params_.ambient_c;
 }
 
-double CellModel::soc() const {
-  return (state_.available_c + state_.bound_c) / (params_.capacity_ah * 3600.0);
-}
+double CellModel::soc() const { return (state_.available_c + state_.bound_c) / (params_.capacity_ah * 3600.0); }
 
 double CellModel::available_level() const {
   const double c = std::clamp(params_.kibam_c, 1e-6, 1.0);
@@ -94,9 +92,7 @@ double CellModel::ResistanceFactor() const {
 
 double CellModel::R0() const { return params_.r0_ohm * ResistanceFactor(); }
 
-double CellModel::TotalResistance() const {
-  return (params_.r0_ohm + params_.r1_ohm + params_.r2_ohm) * ResistanceFactor();
-}
+double CellModel::TotalResistance() const { return (params_.r0_ohm + params_.r1_ohm + params_.r2_ohm) * ResistanceFactor(); }
 
 double CellModel::OpenCircuitVoltage() const {
   const double h1 = available_level();
@@ -106,9 +102,7 @@ double CellModel::OpenCircuitVoltage() const {
   return std::max(0.0, empty_v * (1.0 + h1 / kCollapseLevel));
 }
 
-Thevenin CellModel::Equivalent() const {
-  return {OpenCircuitVoltage() - state_.v1_v - state_.v2_v, R0()};
-}
+Thevenin CellModel::Equivalent() const { return {OpenCircuitVoltage() - state_.v1_v - state_.v2_v, R0()}; }
 
 void CellModel::Advance(double dt_s, double current_a, double extra_heat_w) {
   if (dt_s <= 0) return;

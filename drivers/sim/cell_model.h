@@ -47,7 +47,7 @@ struct CellParams {
   double r0_ohm = 0.045;  // series (ohmic) resistance
   double r1_ohm = 0.0;    // fast RC pair (charge transfer)
   double tau1_s = 10.0;
-  double r2_ohm = 0.0;    // slow RC pair (diffusion)
+  double r2_ohm = 0.0;  // slow RC pair (diffusion)
   double tau2_s = 300.0;
   // Arrhenius activation energy: R(T) = R_ref·exp(Ea/Rg·(1/T − 1/T_ref)); the
   // well exchange rate k scales with the inverse factor. 0: no dependence.
@@ -103,9 +103,9 @@ class CellModel {
   // steps of seconds keep the RC and well dynamics accurate.
   void Advance(double dt_s, double current_a, double extra_heat_w = 0.0);
 
-  double soc() const;                // stored charge / capacity, both wells
-  double available_level() const;    // h1 / capacity: what the OCV follows
-  double bound_level() const;        // h2 / capacity
+  double soc() const;              // stored charge / capacity, both wells
+  double available_level() const;  // h1 / capacity: what the OCV follows
+  double bound_level() const;      // h2 / capacity
   double temperature_c() const { return state_.temperature_c; }
   double OpenCircuitVoltage() const;  // at the available level and temperature
   // Resistances at the present temperature.

@@ -1,9 +1,10 @@
 #include "drivers/sim/sim_bench.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
 #include <unordered_map>
-#include <fmt/format.h>
 
 #include "drivers/scpi_syntax.h"
 
@@ -46,10 +47,18 @@ class SimBench::Device final : public LineDevice {
     std::optional<std::string> reply;
     bool handled = false;
     switch (role_) {
-      case Role::kLoad: handled = HandleLoad(c, reply); break;
-      case Role::kMeter: handled = HandleMeter(c, reply); break;
-      case Role::kThermometer: handled = HandleThermometer(c, reply); break;
-      case Role::kSupply: handled = HandleSupply(c, reply); break;
+      case Role::kLoad:
+        handled = HandleLoad(c, reply);
+        break;
+      case Role::kMeter:
+        handled = HandleMeter(c, reply);
+        break;
+      case Role::kThermometer:
+        handled = HandleThermometer(c, reply);
+        break;
+      case Role::kSupply:
+        handled = HandleSupply(c, reply);
+        break;
     }
     if (!handled) PushError(-113, "Undefined header");
     return reply;
@@ -58,10 +67,14 @@ class SimBench::Device final : public LineDevice {
  private:
   std::string Identity() const {
     switch (role_) {
-      case Role::kLoad: return "Kneepoint Simulation,KP-SIM-LOAD,SN0001,1.0";
-      case Role::kMeter: return "Kneepoint Simulation,KP-SIM-METER,SN0002,1.0";
-      case Role::kThermometer: return "Kneepoint Simulation,KP-SIM-TEMP,SN0003,1.0";
-      case Role::kSupply: return "Kneepoint Simulation,KP-SIM-SUPPLY,SN0004,1.0";
+      case Role::kLoad:
+        return "Kneepoint Simulation,KP-SIM-LOAD,SN0001,1.0";
+      case Role::kMeter:
+        return "Kneepoint Simulation,KP-SIM-METER,SN0002,1.0";
+      case Role::kThermometer:
+        return "Kneepoint Simulation,KP-SIM-TEMP,SN0003,1.0";
+      case Role::kSupply:
+        return "Kneepoint Simulation,KP-SIM-SUPPLY,SN0004,1.0";
     }
     return "";
   }
@@ -111,13 +124,15 @@ class SimBench::Device final : public LineDevice {
   void OnOff(const ScpiCommand& c, bool& out) {
     if (c.args.size() != 1) return PushError(-109, "Missing parameter");
     const std::string& a = c.args[0];
-    if (a == "1" || ScpiHeaderMatches("ON", a)) out = true;
-    else if (a == "0" || ScpiHeaderMatches("OFF", a)) out = false;
-    else PushError(-224, "Illegal parameter value");
+    if (a == "1" || ScpiHeaderMatches("ON", a))
+      out = true;
+    else if (a == "0" || ScpiHeaderMatches("OFF", a))
+      out = false;
+    else
+      PushError(-224, "Illegal parameter value");
   }
 
   bool HandleSupply(const ScpiCommand& c, std::optional<std::string>& reply) {
-    const std::string& h = c.header;
     SimBench& b = bench_;
     if (Is("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, b.options_.supply_max_voltage_v)) b.supply_voltage_v_ = *v;
@@ -140,7 +155,7 @@ class SimBench::Device final : public LineDevice {
       return true;
     }
     if (Is("OUTPut[:STATe]?")) {
-      reply = b.supply_on_ ? "1" : "0";
+      reply = std::string(b.supply_on_ ? "1" : "0");
       return true;
     }
     if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
@@ -155,14 +170,17 @@ class SimBench::Device final : public LineDevice {
   }
 
   bool HandleLoad(const ScpiCommand& c, std::optional<std::string>& reply) {
-    const std::string& h = c.header;
     SimBench& b = bench_;
     if (Is("[SOURce:]FUNCtion")) {
       if (c.args.size() != 1) return PushError(-109, "Missing parameter"), true;
-      if (ScpiHeaderMatches("CURRent", c.args[0])) b.mode_ = LoadMode::kCurrent;
-      else if (ScpiHeaderMatches("RESistance", c.args[0])) b.mode_ = LoadMode::kResistance;
-      else if (ScpiHeaderMatches("POWer", c.args[0])) b.mode_ = LoadMode::kPower;
-      else PushError(-224, "Illegal parameter value");
+      if (ScpiHeaderMatches("CURRent", c.args[0]))
+        b.mode_ = LoadMode::kCurrent;
+      else if (ScpiHeaderMatches("RESistance", c.args[0]))
+        b.mode_ = LoadMode::kResistance;
+      else if (ScpiHeaderMatches("POWer", c.args[0]))
+        b.mode_ = LoadMode::kPower;
+      else
+        PushError(-224, "Illegal parameter value");
       return true;
     }
     if (Is("[SOURce:]FUNCtion?")) {
@@ -194,7 +212,7 @@ class SimBench::Device final : public LineDevice {
       return true;
     }
     if (Is("INPut[:STATe]?")) {
-      reply = b.input_on_ ? "1" : "0";
+      reply = std::string(b.input_on_ ? "1" : "0");
       return true;
     }
     if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
@@ -215,7 +233,7 @@ class SimBench::Device final : public LineDevice {
 
   double TerminalVoltage() { return bench_.FlowsLocked().terminal_v; }
 
-  bool HandleMeter(const ScpiCommand& c, std::optional<std::string>& reply) {
+  bool HandleMeter(const ScpiCommand& /*c*/, std::optional<std::string>& reply) {
     if (Is("MEASure[:SCALar]:VOLTage[:DC]?")) {
       double v = TerminalVoltage();
       if (bench_.options_.meter_noise_v > 0) {
@@ -228,7 +246,7 @@ class SimBench::Device final : public LineDevice {
     return false;
   }
 
-  bool HandleThermometer(const ScpiCommand& c, std::optional<std::string>& reply) {
+  bool HandleThermometer(const ScpiCommand& /*c*/, std::optional<std::string>& reply) {
     if (Is("MEASure[:SCALar]:TEMPerature[:DC]?")) {
       reply = FormatNr3(bench_.cell_.temperature_c());
       return true;
@@ -313,9 +331,12 @@ void SimBench::SetAmbient(double ambient_c) {
 double SimBench::LoadCurrentAt(double terminal_v) const {
   if (!input_on_ || terminal_v <= 0) return 0.0;
   switch (mode_) {
-    case LoadMode::kCurrent: return level_current_a_;
-    case LoadMode::kResistance: return terminal_v / level_resistance_ohm_;
-    case LoadMode::kPower: return level_power_w_ / terminal_v;
+    case LoadMode::kCurrent:
+      return level_current_a_;
+    case LoadMode::kResistance:
+      return terminal_v / level_resistance_ohm_;
+    case LoadMode::kPower:
+      return level_power_w_ / terminal_v;
   }
   return 0.0;
 }
@@ -328,8 +349,12 @@ SimBench::Flows SimBench::FlowsLocked() const {
   double il = 0.0;
   if (input_on_ && emf > 0) {
     switch (mode_) {
-      case LoadMode::kCurrent: il = level_current_a_; break;
-      case LoadMode::kResistance: il = emf / (r + level_resistance_ohm_); break;
+      case LoadMode::kCurrent:
+        il = level_current_a_;
+        break;
+      case LoadMode::kResistance:
+        il = emf / (r + level_resistance_ohm_);
+        break;
       case LoadMode::kPower: {
         // I·(E - I·R) = P  ->  R·I² - E·I + P = 0, smaller root; beyond the
         // maximum-power point the load gets E/(2R).
@@ -365,8 +390,12 @@ SimBench::Flows SimBench::FlowsLocked() const {
       f.supply_a = is;
       if (input_on_) {
         switch (mode_) {
-          case LoadMode::kCurrent: f.load_a = level_current_a_; break;
-          case LoadMode::kResistance: f.load_a = (emf + is * r) / (1.0 + r / level_resistance_ohm_) / level_resistance_ohm_; break;
+          case LoadMode::kCurrent:
+            f.load_a = level_current_a_;
+            break;
+          case LoadMode::kResistance:
+            f.load_a = (emf + is * r) / (1.0 + r / level_resistance_ohm_) / level_resistance_ohm_;
+            break;
           case LoadMode::kPower: {
             // V² − (E + Is·r)·V + P·r = 0, larger root (the stable operating point).
             double e = emf + is * r;

@@ -36,8 +36,8 @@ struct SimOptions {
   double max_step_s = 1.0;
   double max_constant_current_step_s = 10.0;
   double max_rest_step_s = 600.0;
-  double meter_noise_v = 0.0;    // Gaussian noise on voltage readings (1 sigma)
-  uint64_t seed = 1;             // noise seed
+  double meter_noise_v = 0.0;  // Gaussian noise on voltage readings (1 sigma)
+  uint64_t seed = 1;           // noise seed
   double load_max_current_a = 30.0;
   double supply_max_voltage_v = 20.0;
   double supply_max_current_a = 10.0;

@@ -2,11 +2,11 @@
 // copies, and error messages that point at the file, line and key.
 #include "drivers/sim/cell_file.h"
 
+#include <gtest/gtest.h>
+
 #include <filesystem>
 #include <fstream>
 #include <sstream>
-
-#include <gtest/gtest.h>
 
 #include "tests/support/test_support.h"
 
@@ -55,7 +55,7 @@ TEST(CellFile, DemoCellIsTheLiIonPreset) {
   EXPECT_EQ(demo.capacity_ah, 2.4);
   EXPECT_EQ(demo.r0_ohm, p->params.r0_ohm);
   EXPECT_EQ(demo.name, p->params.name);
-  EXPECT_DOUBLE_EQ(p->params.r0_ohm, 0.045);            // 45 mOhm in the file
+  EXPECT_DOUBLE_EQ(p->params.r0_ohm, 0.045);              // 45 mOhm in the file
   EXPECT_DOUBLE_EQ(p->params.kibam_k_per_s, 1.3 / 3600);  // per hour in the file
 }
 

@@ -2,10 +2,10 @@
 // circuit/thermal results. Each check names its source.
 #include "drivers/sim/cell_model.h"
 
+#include <gtest/gtest.h>
+
 #include <cmath>
 #include <cstdio>
-
-#include <gtest/gtest.h>
 
 #include "drivers/sim/cell_file.h"
 #include "tests/sim/sim_helpers.h"
@@ -47,8 +47,7 @@ TEST(CellModel, PeukertBehaviourEmergesPerChemistry) {
   // the band for Li-ion is the one stated for this check (1.02-1.10). LiFePO4
   // is taken like Li-ion (from memory). Alkaline primaries lose far more to
   // rate: k well above the secondary chemistries, 1.15-1.6 (from memory).
-  const PeukertBand bands[] = {
-      {"li-ion", 1.02, 1.10}, {"lifepo4", 1.02, 1.10}, {"nimh", 1.05, 1.10}, {"alkaline", 1.15, 1.60}};
+  const PeukertBand bands[] = {{"li-ion", 1.02, 1.10}, {"lifepo4", 1.02, 1.10}, {"nimh", 1.05, 1.10}, {"alkaline", 1.15, 1.60}};
   for (const PeukertBand& b : bands) {
     double k = FittedPeukert(Preset(b.preset));
     std::printf("Peukert exponent %-9s k = %.3f\n", b.preset, k);
@@ -94,14 +93,16 @@ TEST(CellModel, PulsesWithRestsDeliverMoreThanContinuous) {
     bool done = false;
     while (!done) {
       for (int s = 0; s < pat.on_s && !done; ++s) {
-        if (TerminalV(pulsed, peak_a) <= p.cutoff_v) done = true;
-        else pulsed.Advance(1.0, peak_a), pulsed_as += peak_a;
+        if (TerminalV(pulsed, peak_a) <= p.cutoff_v)
+          done = true;
+        else
+          pulsed.Advance(1.0, peak_a), pulsed_as += peak_a;
       }
       for (int s = 0; s < pat.rest_s && !done; ++s) pulsed.Advance(1.0, 0.0);
     }
     double pulsed_mah = pulsed_as / 3.6;
-    std::printf("%s at 1C: continuous %.0f mAh, pulsed %d s on/%d s off %.0f mAh\n", name, continuous_mah, pat.on_s,
-                pat.rest_s, pulsed_mah);
+    std::printf("%s at 1C: continuous %.0f mAh, pulsed %d s on/%d s off %.0f mAh\n", name, continuous_mah, pat.on_s, pat.rest_s,
+                pulsed_mah);
     EXPECT_GT(pulsed_mah, continuous_mah * 1.01) << name;
   }
 }
@@ -211,7 +212,9 @@ TEST(CellModel, RatingsMatchPublishedChemistryFacts) {
     EXPECT_LE(p.nominal_v, f.nominal_hi) << f.preset;
     EXPECT_GE(p.cutoff_v, f.cutoff_lo) << f.preset;
     EXPECT_LE(p.cutoff_v, f.cutoff_hi) << f.preset;
-    if (f.full_v > 0) EXPECT_DOUBLE_EQ(p.full_v, f.full_v) << f.preset;
+    if (f.full_v > 0) {
+      EXPECT_DOUBLE_EQ(p.full_v, f.full_v) << f.preset;
+    }
 
     CellModel m(p);
     if (p.rechargeable) {

@@ -1,10 +1,10 @@
 // Kinetic Battery Model: the closed form used by the simulator against an
 // independent numerical integration (Boost.Odeint, Dormand-Prince 5(4)).
-#include <array>
-#include <cmath>
-
-#include <boost/numeric/odeint.hpp>
 #include <gtest/gtest.h>
+
+#include <array>
+#include <boost/numeric/odeint.hpp>
+#include <cmath>
 
 #include "drivers/sim/cell_model.h"
 
@@ -23,8 +23,7 @@ State Integrate(double c, double k, double current_a, double t_s, State y) {
     dxdt[1] = -k * (h2 - h1);
   };
   namespace ode = boost::numeric::odeint;
-  ode::integrate_adaptive(ode::make_controlled<ode::runge_kutta_dopri5<State>>(1e-13, 1e-13), rhs, y, 0.0, t_s,
-                          t_s / 1000.0);
+  ode::integrate_adaptive(ode::make_controlled<ode::runge_kutta_dopri5<State>>(1e-13, 1e-13), rhs, y, 0.0, t_s, t_s / 1000.0);
   return y;
 }
 

@@ -1,13 +1,12 @@
 // SimBench integrates the cell lazily with step lengths chosen by what the
 // current depends on; long steps must give the same answer as short ones.
-#include "drivers/sim/sim_bench.h"
-
 #include <gtest/gtest.h>
 
 #include "drivers/inproc_transport.h"
 #include "drivers/roles.h"
 #include "drivers/scpi_session.h"
 #include "drivers/sim/cell_file.h"
+#include "drivers/sim/sim_bench.h"
 #include "tests/support/test_support.h"
 
 namespace kp {

@@ -107,8 +107,10 @@ TEST(SimRig, SupplyChargesConstantCurrentThenTapers) {
     prev_t = t + 10;
     i = *ri, v = *rv;
     if (cc_end_s < 0) {
-      if (i < 1.25 - 1e-6) cc_end_s = t;
-      else EXPECT_LT(v, 4.2 + 1e-9);
+      if (i < 1.25 - 1e-6)
+        cc_end_s = t;
+      else
+        EXPECT_LT(v, 4.2 + 1e-9);
     } else {
       EXPECT_NEAR(v, 4.2, 1e-6);
       if (i > prev_i + 1e-9) tapering_monotonic = false;
@@ -116,7 +118,7 @@ TEST(SimRig, SupplyChargesConstantCurrentThenTapers) {
     }
     prev_i = i;
   }
-  EXPECT_GT(cc_end_s, 1800);            // a long CC phase from 20 %
+  EXPECT_GT(cc_end_s, 1800);                             // a long CC phase from 20 %
   EXPECT_LT(cc_end_s, 0.8 * 1.25 * 3600 / 1.25 * 2.56);  // before 80 % of the charge went in
   EXPECT_TRUE(tapering_monotonic);
   EXPECT_LT(i, 0.05);
@@ -148,8 +150,8 @@ TEST(SimRig, LoadAndSupplyShareTheCell) {
   auto v = roles.meter->MeasureVoltage();
   ASSERT_TRUE(is.ok() && il.ok() && v.ok());
   EXPECT_NEAR(*il, 0.5, 1e-9);
-  EXPECT_NEAR(*v, 3.8, 1e-6);  // the supply holds the terminal in CV
-  EXPECT_GT(*is, 0.5);         // feeding the load and charging the cell
+  EXPECT_NEAR(*v, 3.8, 1e-6);                                  // the supply holds the terminal in CV
+  EXPECT_GT(*is, 0.5);                                         // feeding the load and charging the cell
   EXPECT_NEAR(rig.bench().cell_current_a(), *il - *is, 1e-5);  // readings carry 6 digits
   // With the supply limited below the load current, the cell makes up the rest.
   ASSERT_OK(roles.supply->SetCurrentLimit(0.2));
