@@ -2,6 +2,8 @@
 // the simulated DC supply charges it constant-current then constant-voltage.
 #include "rig/sim_rig.h"
 
+#include <cstdio>
+
 #include <gtest/gtest.h>
 
 #include "analysis/metrics.h"
@@ -130,6 +132,41 @@ TEST(SimRig, SupplyChargesConstantCurrentThenTapers) {
   EXPECT_NEAR(charge_as * cell.charge_efficiency / 3600.0, (soc - 0.2) * 2.56, 0.01 * 2.56);
   ASSERT_OK(supply->SetOutput(false));
   EXPECT_FALSE(rig.bench().supply_output_on());
+}
+
+// One cell through a cycle on one rig: discharged by a run, recharged CC-CV by
+// the supply, rested, and discharged again; the second run finds the charge
+// the supply put back (less what the taper left out and the efficiency lost).
+TEST(SimRig, DischargeRechargeDischargeOnOneCell) {
+  Fixture f;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56));
+  RunController rc(*f.store, f.clock, rig.roles());
+  auto r1 = rc.Execute(RatedCapacityPlan(Cell2500()), {});
+  ASSERT_TRUE(r1.ok());
+  ASSERT_EQ(r1->outcome, Outcome::kCompleted) << r1->reason;
+  const double first_mah = DeliveredChargeMah(f.Samples(r1->run_id));
+  EXPECT_LT(rig.bench().cell_soc(), 0.03);
+
+  SupplyDriver& supply = *rig.roles().supply;
+  ASSERT_OK(supply.SetVoltage(4.2));
+  ASSERT_OK(supply.SetCurrentLimit(1.25));
+  ASSERT_OK(supply.SetOutput(true));
+  for (int t = 0; t < 6 * 3600; t += 60) {
+    f.clock.Advance(Seconds(60));
+    auto i = supply.MeasureCurrent();
+    ASSERT_TRUE(i.ok());
+    if (*i < 0.05) break;
+  }
+  ASSERT_OK(supply.SetOutput(false));
+  f.clock.Advance(Seconds(3600));  // rest
+
+  auto r2 = rc.Execute(RatedCapacityPlan(Cell2500()), {});
+  ASSERT_TRUE(r2.ok());
+  ASSERT_EQ(r2->outcome, Outcome::kCompleted) << r2->reason;
+  const double second_mah = DeliveredChargeMah(f.Samples(r2->run_id));
+  EXPECT_NEAR(second_mah, first_mah, 0.03 * first_mah);
+  std::printf("first %.1f mAh, after CC-CV recharge %.1f mAh\n", first_mah, second_mah);
+  EXPECT_LT(second_mah, first_mah);  // the charge stopped at C/50, short of full
 }
 
 // Load and supply both connected: the cell current is their difference.
