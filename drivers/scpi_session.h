@@ -23,6 +23,10 @@ struct ScpiOptions {
   int retries = 2;           // extra attempts for a query that timed out or dropped
   bool error_queue = true;   // the instrument implements SYSTem:ERRor?
   int max_error_drain = 20;  // stop draining a queue that never empties
+  // Follow every command with *OPC? and wait for its "1": the instrument has
+  // then taken the setting before the run goes on, and a command lost on a
+  // dropped link is sent again after the reconnect.
+  bool confirm_writes = false;
 };
 
 // Direction of a traced line: '>' sent, '<' received, '!' a failure note.
