@@ -91,6 +91,11 @@ Result<double> LoadDriver::MeasurePower() { return ReadFiniteNumber(session_, cm
 
 Result<double> MeterDriver::MeasureVoltage() {
   KP_ASSIGN_OR_RETURN(double v, ReadFiniteNumber(session_, cmd_.measure_voltage, "cell voltage"));
+  same_count_ = (same_count_ > 0 && v == last_raw_) ? same_count_ + 1 : 1;
+  last_raw_ = v;
+  if (stuck_limit_ > 0 && same_count_ >= stuck_limit_)
+    return ProtocolError(fmt::format("{}: cell voltage read exactly {} V {} times in a row: the meter looks stuck", session_.address(),
+                                     FormatNr3(v), same_count_));
   return cal_.Apply(v);
 }
 

@@ -92,11 +92,18 @@ class MeterDriver {
   MeterDriver(ScpiSession& session, MeterCommands commands = {}) : session_(session), cmd_(std::move(commands)) {}
   Result<double> MeasureVoltage();
   void SetCalibration(Calibration voltage) { cal_ = voltage; }
+  // Stuck-reading guard: fail (kProtocol) once the raw reading has been
+  // exactly the same `readings` times in a row (0: off). A live cell under
+  // load and a real meter's last digit never sit still that long.
+  void SetStuckLimit(int readings) { stuck_limit_ = readings; }
 
  private:
   ScpiSession& session_;
   MeterCommands cmd_;
   Calibration cal_;
+  int stuck_limit_ = 0;
+  int same_count_ = 0;
+  double last_raw_ = 0.0;
 };
 
 struct ThermometerCommands {

@@ -82,6 +82,7 @@ class FileRig final : public Rig {
         } else if (role == "meter") {
           meter_ = std::make_unique<MeterDriver>(s, is.profile.meter);
           meter_->SetCalibration(is.voltage);
+          meter_->SetStuckLimit(is.stuck_after);
         } else if (role == "thermometer") {
           thermometer_ = std::make_unique<ThermometerDriver>(s, is.profile.thermometer);
           thermometer_->SetCalibration(is.temperature);

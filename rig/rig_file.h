@@ -15,7 +15,8 @@
 //   profile = "generic-scpi-load"          # name or path of a .kpp profile
 //   roles = ["load"]                       # load, meter, thermometer, supply
 //   channel = "101"                        # replaces {ch} in the profile
-//   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false
+//   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false,
+//   stuck_after = 0                        # meter: N identical readings = stuck
 //   voltage_offset_v / voltage_gain, current_offset_a / current_gain,
 //   temperature_offset_c / temperature_gain  (reading * gain + offset)
 //
@@ -45,6 +46,7 @@ struct InstrumentSpec {
   int retries = 2;
   bool confirm_writes = false;
   bool remote_sense = false;
+  int stuck_after = 0;  // meter: identical readings in a row that mean "stuck" (0: off)
   Calibration voltage, current, temperature;
   int line = 0;  // where the [[instrument]] table starts
 };
