@@ -28,7 +28,8 @@ FaultedReply FaultInjector::Respond(std::string_view line) {
   }
   ++queries_;
   ScpiCommand c = SplitScpiCommand(line);
-  if (!errors_.empty() && ScpiHeaderMatches("SYSTem:ERRor[:NEXT]?", c.header)) {
+  const bool error_query = ScpiHeaderMatches("SYSTem:ERRor[:NEXT]?", c.header);
+  if (!errors_.empty() && error_query) {
     out.reply = errors_.front();
     errors_.pop_front();
     return out;
@@ -52,7 +53,7 @@ FaultedReply FaultInjector::Respond(std::string_view line) {
   } else if (Every(options_.drop_every, queries_)) {
     out.reply.reset();
     out.fault = "dropped reply";
-  } else if (Every(options_.error_every, queries_)) {
+  } else if (Every(options_.error_every, queries_) && !error_query) {
     out.reply = "9.91E37";
     errors_.push_back("-230,\"Data corrupt or stale\"");
     out.fault = "scpi error";

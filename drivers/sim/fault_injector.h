@@ -24,7 +24,8 @@ struct FaultOptions {
   int corrupt_every = 0;     // > 0: every N-th reply is garbled
   int delay_every = 0;       // > 0: every N-th reply is held back delay_s (wall time)
   double delay_s = 0.0;
-  int disconnect_at = 0;     // > 0: the N-th query is handled, then the link is closed (once)
+  int disconnect_at = 0;     // > 0: the N-th query is handled, then the link is closed (once);
+                             // a pseudo-terminal cannot be closed, so there it acts as a dropped reply
   int error_every = 0;       // > 0: every N-th query answers 9.91E37 (no reading) and queues an SCPI error
   int stick_at = 0;          // > 0: from the N-th query on, measurement replies repeat the value they had then
   bool any() const {

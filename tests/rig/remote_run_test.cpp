@@ -62,22 +62,25 @@ Outcomes RunInProcess(const sim::SimOptions& so = {}) {
   return o;
 }
 
-std::string RigText(const std::vector<std::string>& addr, const std::string& meter_extra = "") {
+using Profiles = std::vector<std::string>;
+const Profiles kSimProfiles = {"kneepoint-sim", "kneepoint-sim", "kneepoint-sim"};
+
+std::string RigText(const std::vector<std::string>& addr, const std::string& meter_extra = "", const Profiles& profiles = kSimProfiles) {
   const char* roles[] = {"load", "meter", "thermometer"};
   std::string text =
       "[bench]\nname = \"sim over links\"\nclock_speed = 1.0\ntrace = \"trace.log\"\n"
       "max_current_a = 5.0\nmax_voltage_v = 4.3\nload_rating_w = 50.0\n";
   for (size_t i = 0; i < 3; ++i) {
     text += fmt::format(
-        "\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\nroles = [\"{}\"]\n"
-        "timeout_s = 0.3\nretries = 2\nconfirm_writes = true\n{}",
-        roles[i], addr[i], roles[i], i == 1 ? meter_extra : "");
+        "\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"{}\"\nroles = [\"{}\"]\n"
+        "timeout_s = 0.3\nretries = 2\nconfirm_writes = true\nchannel = 101\n{}",
+        roles[i], addr[i], profiles[i], roles[i], i == 1 ? meter_extra : "");
   }
   return text;
 }
 
 Outcomes RunOverLink(const char* listen, const sim::FaultOptions& faults = {}, const sim::SimOptions& so = {},
-                     const std::string& meter_extra = "") {
+                     const std::string& meter_extra = "", const Profiles& profiles = kSimProfiles) {
   testing::TempDir dir;
   SteadyClock wall;
   VirtualClock clock;
@@ -88,7 +91,7 @@ Outcomes RunOverLink(const char* listen, const sim::FaultOptions& faults = {}, c
                                       faults);
   EXPECT_TRUE(server.ok()) << server.status().ToString();
   std::string rig_path = dir.File("bench.toml");
-  std::ofstream(rig_path) << RigText((*server)->client_addresses(), meter_extra);
+  std::ofstream(rig_path) << RigText((*server)->client_addresses(), meter_extra, profiles);
   Outcomes o;
   {
     RigOpenOptions ro;
@@ -143,6 +146,17 @@ TEST(RemoteRun, TcpAndPtyStoreTheSameChargeAsInProcess) {
     EXPECT_EQ(remote.trace.find("retry"), std::string::npos);  // a clean link needs none
     EXPECT_NE(remote.trace.find(">  INP ON"), std::string::npos);
   }
+}
+
+// The shipped generic profiles speak a dialect the simulator understands, so
+// a rig file written for generic instruments can be tried on `kneepoint sim`.
+TEST(RemoteRun, GenericProfilesDriveTheSimulator) {
+  Outcomes local = RunInProcess();
+  Outcomes remote = RunOverLink("tcp:127.0.0.1:0", {}, {}, "", {"generic-scpi-load", "generic-scpi-dmm", "generic-scpi-thermocouple"});
+  EXPECT_EQ(remote.result.outcome, Outcome::kCompleted) << remote.result.reason;
+  EXPECT_FALSE(remote.load_on_after);
+  EXPECT_DOUBLE_EQ(remote.mah, local.mah);
+  EXPECT_NE(remote.trace.find("MEAS:TEMP? TC,K,(@101)"), std::string::npos);
 }
 
 struct FaultCase {
