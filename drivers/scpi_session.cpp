@@ -18,13 +18,21 @@ Status ScpiSession::Send(std::string_view line) {
   return st;
 }
 
+void ScpiSession::Resync(const Status& last) {
+  if (last.code() == StatusCode::kTimeout && options_.late_reply.count() > 0) {
+    Result<std::string> late = transport_->ReadLine(options_.late_reply);
+    if (late.ok()) Trace('!', fmt::format("discarded late reply '{}'", *late));
+  }
+  transport_->Flush();
+}
+
 Status ScpiSession::Write(std::string_view command) {
   Status last;
   for (int attempt = 0; attempt <= options_.retries; ++attempt) {
     if (attempt > 0) {
       ++retry_count_;
       Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, command, last.ToString()));
-      transport_->Flush();
+      Resync(last);
       if (last.code() == StatusCode::kIo) {
         Status rc = transport_->Reconnect();
         if (!rc.ok()) {
@@ -63,7 +71,7 @@ Result<std::string> ScpiSession::Query(std::string_view query) {
     if (attempt > 0) {
       ++retry_count_;
       Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, query, last.ToString()));
-      transport_->Flush();
+      Resync(last);
       if (last.code() == StatusCode::kIo) {
         Status rc = transport_->Reconnect();
         if (!rc.ok()) {

@@ -54,6 +54,7 @@ class FileRig final : public Rig {
       opts.timeout = Seconds(is.timeout_s);
       opts.retries = is.retries;
       opts.confirm_writes = is.confirm_writes;
+      opts.late_reply = Seconds(is.late_reply_s >= 0 ? is.late_reply_s : is.timeout_s);
       auto session = std::make_unique<ScpiSession>(std::move(*t), *clock_, opts);
       if (trace) session->SetTrace(trace);
       (void)session->Clear();

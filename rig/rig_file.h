@@ -17,6 +17,7 @@
 //   channel = "101"                        # replaces {ch} in the profile
 //   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false,
 //   stuck_after = 0                        # meter: N identical readings = stuck
+//   late_reply_s = timeout_s               # after a timeout, wait this long to discard a late reply
 //   voltage_offset_v / voltage_gain, current_offset_a / current_gain,
 //   temperature_offset_c / temperature_gain  (reading * gain + offset)
 //
@@ -46,6 +47,7 @@ struct InstrumentSpec {
   int retries = 2;
   bool confirm_writes = false;
   bool remote_sense = false;
+  double late_reply_s = -1.0;  // < 0: same as timeout_s
   int stuck_after = 0;  // meter: identical readings in a row that mean "stuck" (0: off)
   Calibration voltage, current, temperature;
   int line = 0;  // where the [[instrument]] table starts

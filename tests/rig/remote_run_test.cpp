@@ -65,7 +65,7 @@ Outcomes RunInProcess(const sim::SimOptions& so = {}) {
 using Profiles = std::vector<std::string>;
 const Profiles kSimProfiles = {"kneepoint-sim", "kneepoint-sim", "kneepoint-sim"};
 
-std::string RigText(const std::vector<std::string>& addr, const std::string& meter_extra = "", const Profiles& profiles = kSimProfiles) {
+std::string RigText(const std::vector<std::string>& addr, const std::string& extra = "", const Profiles& profiles = kSimProfiles) {
   const char* roles[] = {"load", "meter", "thermometer"};
   std::string text =
       "[bench]\nname = \"sim over links\"\nclock_speed = 1.0\ntrace = \"trace.log\"\n"
@@ -74,7 +74,7 @@ std::string RigText(const std::vector<std::string>& addr, const std::string& met
     text += fmt::format(
         "\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"{}\"\nroles = [\"{}\"]\n"
         "timeout_s = 0.3\nretries = 2\nconfirm_writes = true\nchannel = 101\n{}",
-        roles[i], addr[i], profiles[i], roles[i], i == 1 ? meter_extra : "");
+        roles[i], addr[i], profiles[i], roles[i], extra);
   }
   return text;
 }
@@ -163,7 +163,7 @@ struct FaultCase {
   const char* name;
   sim::FaultOptions faults;
   sim::SimOptions sim;
-  std::string meter_extra;
+  std::string extra;  // rig-file keys added to every instrument
   bool completes;
   const char* evidence;  // in the trace for completed runs, in the stored reason for aborts
 };
@@ -171,7 +171,7 @@ struct FaultCase {
 std::vector<FaultCase> FaultCases() {
   std::vector<FaultCase> v;
   sim::FaultOptions f;
-  f.drop_every = 900;
+  f.drop_every = 1500;
   v.push_back({"drop", f, {}, "", true, "retry 1 of"});
   f = {};
   f.corrupt_every = 700;
@@ -180,6 +180,10 @@ std::vector<FaultCase> FaultCases() {
   f.delay_every = 300;
   f.delay_s = 0.02;  // shorter than the 0.3 s timeout: only slower
   v.push_back({"delay", f, {}, "", true, ""});
+  f = {};
+  f.delay_every = 1500;
+  f.delay_s = 0.45;  // longer than the 0.3 s timeout: the late reply must not pair with the retry
+  v.push_back({"late reply", f, {}, "late_reply_s = 1.5\n", true, "discarded late reply"});
   f = {};
   f.disconnect_at = 400;
   v.push_back({"disconnect", f, {}, "", true, "link closed"});
@@ -199,7 +203,7 @@ TEST(RemoteRun, EveryInjectedFaultEndsCleanly) {
   Outcomes clean = RunInProcess();
   for (const FaultCase& c : FaultCases()) {
     SCOPED_TRACE(c.name);
-    Outcomes o = RunOverLink("tcp:127.0.0.1:0", c.faults, c.sim, c.meter_extra);
+    Outcomes o = RunOverLink("tcp:127.0.0.1:0", c.faults, c.sim, c.extra);
     EXPECT_FALSE(o.load_on_after) << "the simulated load must be off";
     EXPECT_EQ(o.row.outcome, o.result.outcome);
     ExpectNoGaps(o.samples);

@@ -108,7 +108,7 @@ TEST(RigFile, MalformedProfileNamesBothFiles) {
   std::ofstream(dir.File("bench.toml")) << text;
   auto spec = LoadRigFile(dir.File("bench.toml"));
   ASSERT_FALSE(spec.ok());
-  const std::string& m = spec.status().message();
+  const std::string m = spec.status().message();
   EXPECT_NE(m.find("bench.toml:21: key 'instrument[2].profile'"), std::string::npos) << m;
   EXPECT_NE(m.find("odd-meter.kpp:2: key 'meter-read-voltage'"), std::string::npos) << m;
 }
