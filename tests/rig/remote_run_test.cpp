@@ -4,6 +4,7 @@
 // with *OPC? (confirm_writes), so each reading is taken at the same simulated
 // instant as in the in-process run: the bytes cross real sockets, the physics
 // stays deterministic.
+#include <filesystem>
 #include <fstream>
 #include <iterator>
 
@@ -221,6 +222,82 @@ TEST(RemoteRun, EveryInjectedFaultEndsCleanly) {
       EXPECT_LT(o.samples.size(), clean.samples.size());
     }
   }
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+struct ServedRig {
+  testing::TempDir dir;
+  VirtualClock clock;
+  sim::SimBench bench{sim::DemoLiIonCell(2.56), clock};
+  std::unique_ptr<sim::SimServer> server;
+  ServedRig() {
+    auto s = sim::SimServer::Start(*ParseAddress("tcp:127.0.0.1:0"),
+                                   {{"load", &bench.load()}, {"meter", &bench.meter()}, {"thermometer", &bench.thermometer()}});
+    EXPECT_TRUE(s.ok());
+    server = std::move(*s);
+  }
+  Result<std::unique_ptr<Rig>> Open(const std::string& bench_keys, const std::string& meter_keys, const std::string& thermo_keys) {
+    const auto& a = server->client_addresses();
+    std::string text = "[bench]\n" + bench_keys;
+    const char* roles[] = {"load", "meter", "thermometer"};
+    const std::string* extra[] = {nullptr, &meter_keys, &thermo_keys};
+    for (int i = 0; i < 3; ++i)
+      text += fmt::format("\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\nroles = [\"{}\"]\n{}", roles[i], a[i],
+                          roles[i], extra[i] ? *extra[i] : "");
+    std::ofstream(dir.File("cal.toml")) << text;
+    RigOpenOptions o;
+    o.clock = &clock;
+    o.note = [](std::string_view) {};
+    return OpenRig(dir.File("cal.toml"), o);
+  }
+};
+
+TEST(FileRig, AppliesCalibrationAndRigLimits) {
+  ServedRig s;
+  auto rig = s.Open("max_current_a = 2.0\nload_rating_w = 5.0\n", "voltage_gain = 1.01\nvoltage_offset_v = 0.005\n",
+                    "temperature_offset_c = 0.5\n");
+  ASSERT_TRUE(rig.ok()) << rig.status().ToString();
+  RigRoles roles = (*rig)->roles();
+  auto raw_v = roles.load->MeasureVoltage();  // the load's own reading, uncalibrated
+  auto cal_v = roles.meter->MeasureVoltage();
+  ASSERT_TRUE(raw_v.ok() && cal_v.ok());
+  EXPECT_NEAR(*cal_v, *raw_v * 1.01 + 0.005, 1e-5);  // NR3 carries 6 significant digits
+  EXPECT_DOUBLE_EQ(*roles.thermometer->MeasureTemperature(), 22.5);
+  EXPECT_DOUBLE_EQ((*rig)->limits().max_current_a, 2.0);
+  Status over = roles.load->SetLevel(LoadMode::kCurrent, 2.5);
+  EXPECT_EQ(over.code(), StatusCode::kLimitExceeded) << over.ToString();
+  EXPECT_EQ(roles.load->SetLevel(LoadMode::kPower, 6.0).code(), StatusCode::kLimitExceeded);
+  EXPECT_TRUE(roles.load->SetLevel(LoadMode::kCurrent, 1.5).ok());
+  EXPECT_FALSE(s.bench.load_input_on());  // opening a rig never switches the load on
+  EXPECT_NE((*rig)->LockKey().find(s.server->client_addresses()[0]), std::string::npos);
+}
+
+TEST(FileRig, RefusesACellAboveTheRigVoltageAndAWrongInstrument) {
+  ServedRig s;
+  auto high = s.Open("max_voltage_v = 3.0\n", "", "");
+  ASSERT_FALSE(high.ok());
+  EXPECT_EQ(high.status().code(), StatusCode::kLimitExceeded);
+  EXPECT_NE(high.status().message().find("max_voltage_v"), std::string::npos) << high.status().message();
+
+  std::filesystem::create_directories(s.dir.path() / "profiles");
+  std::ofstream(s.dir.File("profiles/other-dmm.kpp")) << "roles = meter\nidentity = *,OTHER-DMM,*\nmeter-read-voltage = MEAS:VOLT:DC?\n";
+  auto text = fmt::format(
+      "[[instrument]]\nname = \"l\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\nroles = [\"load\", \"thermometer\"]\n"
+      "[[instrument]]\nname = \"m\"\naddress = \"{}\"\nprofile = \"other-dmm\"\nroles = [\"meter\"]\n",
+      s.server->client_addresses()[0], s.server->client_addresses()[1]);
+  std::ofstream(s.dir.File("wrong.toml")) << text;
+  RigOpenOptions o;
+  o.clock = &s.clock;
+  auto wrong = OpenRig(s.dir.File("wrong.toml"), o);
+  ASSERT_FALSE(wrong.ok());
+  EXPECT_NE(wrong.status().message().find("wrong.toml:6: instrument 'm' answered *IDN? with 'Kneepoint Simulation,KP-SIM-METER"),
+            std::string::npos)
+      << wrong.status().message();
 }
 
 }  // namespace
