@@ -32,7 +32,7 @@ void SteadyClock::SleepUntil(Seconds deadline, const std::atomic<bool>* wake) {
 }
 
 void VirtualClock::SleepUntil(Seconds deadline, const std::atomic<bool>* /*wake*/) {
-  if (deadline > now_) now_ = deadline;
+  if (deadline.count() > now_s_.load()) now_s_.store(deadline.count());
 }
 
 std::string VirtualClock::WallTimeIso() const {

@@ -41,17 +41,18 @@ class SteadyClock final : public Clock {
 };
 
 // Virtual clock: Now() moves only when somebody sleeps or calls Advance().
-// Not thread-safe; one run loop drives it.
+// One run loop drives it; Now() may be read from other threads (a simulator
+// server serving the same bench), so the time is held atomically.
 class VirtualClock final : public Clock {
  public:
-  explicit VirtualClock(Seconds start = Seconds(0)) : now_(start) {}
-  Seconds Now() const override { return now_; }
+  explicit VirtualClock(Seconds start = Seconds(0)) : now_s_(start.count()) {}
+  Seconds Now() const override { return Seconds(now_s_.load()); }
   void SleepUntil(Seconds deadline, const std::atomic<bool>* wake = nullptr) override;
-  void Advance(Seconds by) { now_ += by; }
+  void Advance(Seconds by) { now_s_.store(now_s_.load() + by.count()); }
   std::string WallTimeIso() const override;
 
  private:
-  Seconds now_;
+  std::atomic<double> now_s_;
 };
 
 }  // namespace kp

@@ -26,15 +26,11 @@ const char* LoadModeName(LoadMode mode) {
 Result<double> ReadFiniteNumber(ScpiSession& session, const std::string& query, const char* what) {
   if (query.empty()) return InvalidInput(fmt::format("{}: the instrument profile has no command for {}", session.address(), what));
   KP_ASSIGN_OR_RETURN(ScpiNumber n, session.QueryNumber(query));
-  switch (n.kind) {
-    case ScpiNumber::Kind::kFinite: return n.value;
-    case ScpiNumber::Kind::kOverflow:
-    case ScpiNumber::Kind::kUnderflow:
-      return ProtocolError(fmt::format("{}: {} is over range (9.9E37, no reading)", session.address(), what));
-    case ScpiNumber::Kind::kNotANumber:
-      return ProtocolError(fmt::format("{}: {} is not a number (9.91E37)", session.address(), what));
-  }
-  return InternalError("unreachable");
+  if (n.finite()) return n.value;
+  std::string why = n.kind == ScpiNumber::Kind::kNotANumber ? "is not a number (9.91E37)" : "is over range (9.9E37, no reading)";
+  Status queued = session.DrainErrors();
+  std::string extra = queued.ok() ? "" : "; " + queued.message();
+  return ProtocolError(fmt::format("{}: {} {}{}", session.address(), what, why, extra));
 }
 
 Status LoadDriver::Command(const std::string& templ, double value, const char* what) {
@@ -55,6 +51,10 @@ Status LoadDriver::SetMode(LoadMode mode) {
 
 Status LoadDriver::SetLevel(LoadMode mode, double level) {
   if (!mode_known_ || mode != mode_) KP_RETURN_IF_ERROR(SetMode(mode));
+  if (mode == LoadMode::kCurrent && max_current_a_ > 0 && level > max_current_a_)
+    return LimitExceeded(fmt::format("{}: {:.3f} A is above the rig's max current {:.3f} A", session_.address(), level, max_current_a_));
+  if (mode == LoadMode::kPower && max_power_w_ > 0 && level > max_power_w_)
+    return LimitExceeded(fmt::format("{}: {:.2f} W is above the load rating {:.2f} W", session_.address(), level, max_power_w_));
   switch (mode) {
     case LoadMode::kCurrent: return Command(cmd_.set_current, level, "set the current");
     case LoadMode::kResistance: return Command(cmd_.set_resistance, level, "set the resistance");
@@ -69,13 +69,39 @@ Status LoadDriver::SetUnderVoltageBackstop(double volts) {
   return Command(cmd_.under_voltage_backstop, volts, "set the under-voltage protection");
 }
 
-Result<double> LoadDriver::MeasureVoltage() { return ReadFiniteNumber(session_, cmd_.measure_voltage, "load voltage"); }
-Result<double> LoadDriver::MeasureCurrent() { return ReadFiniteNumber(session_, cmd_.measure_current, "load current"); }
+Status LoadDriver::SetOverCurrentBackstop(double amps) {
+  return Command(cmd_.over_current_backstop, amps, "set the over-current protection");
+}
 
-Result<double> MeterDriver::MeasureVoltage() { return ReadFiniteNumber(session_, cmd_.measure_voltage, "cell voltage"); }
+Status LoadDriver::SetRemoteSense(bool on) {
+  const std::string& c = on ? cmd_.remote_sense_on : cmd_.remote_sense_off;
+  if (c.empty()) return InvalidInput(fmt::format("{}: the instrument profile has no command to switch remote sense", session_.address()));
+  return session_.Write(c);
+}
+
+Result<double> LoadDriver::MeasureVoltage() {
+  KP_ASSIGN_OR_RETURN(double v, ReadFiniteNumber(session_, cmd_.measure_voltage, "load voltage"));
+  return cal_v_.Apply(v);
+}
+Result<double> LoadDriver::MeasureCurrent() {
+  KP_ASSIGN_OR_RETURN(double i, ReadFiniteNumber(session_, cmd_.measure_current, "load current"));
+  return cal_i_.Apply(i);
+}
+Result<double> LoadDriver::MeasurePower() { return ReadFiniteNumber(session_, cmd_.measure_power, "load power"); }
+
+Result<double> MeterDriver::MeasureVoltage() {
+  KP_ASSIGN_OR_RETURN(double v, ReadFiniteNumber(session_, cmd_.measure_voltage, "cell voltage"));
+  same_count_ = (same_count_ > 0 && v == last_raw_) ? same_count_ + 1 : 1;
+  last_raw_ = v;
+  if (stuck_limit_ > 0 && same_count_ >= stuck_limit_)
+    return ProtocolError(fmt::format("{}: cell voltage read exactly {} V {} times in a row: the meter looks stuck", session_.address(),
+                                     FormatNr3(v), same_count_));
+  return cal_.Apply(v);
+}
 
 Result<double> ThermometerDriver::MeasureTemperature() {
-  return ReadFiniteNumber(session_, cmd_.measure_temperature, "cell temperature");
+  KP_ASSIGN_OR_RETURN(double t, ReadFiniteNumber(session_, cmd_.measure_temperature, "cell temperature"));
+  return cal_.Apply(t);
 }
 
 }  // namespace kp

@@ -17,6 +17,14 @@ namespace kp {
 enum class LoadMode { kCurrent, kResistance, kPower };
 const char* LoadModeName(LoadMode mode);
 
+// Linear correction applied to a reading: corrected = raw * gain + offset
+// (from the rig file's calibration keys). Setpoints are sent uncorrected.
+struct Calibration {
+  double offset = 0.0;
+  double gain = 1.0;
+  double Apply(double raw) const { return raw * gain + offset; }
+};
+
 struct LoadCommands {
   std::string mode_current = "FUNC CURR";
   std::string mode_resistance = "FUNC RES";
@@ -29,6 +37,10 @@ struct LoadCommands {
   std::string measure_voltage = "MEAS:VOLT?";
   std::string measure_current = "MEAS:CURR?";
   std::string under_voltage_backstop = "VOLT:PROT:LOW {}";  // hardware backstop below cutoff
+  std::string measure_power;           // optional
+  std::string over_current_backstop;   // optional: the load's own current protection
+  std::string remote_sense_on;         // optional: 4-wire sense at the cell
+  std::string remote_sense_off;
 };
 
 // Electronic load. Current is positive when the load sinks it (cell discharging).
@@ -40,9 +52,23 @@ class LoadDriver {
   Status SetLevel(LoadMode mode, double level);
   Status SetInput(bool on);
   Status SetUnderVoltageBackstop(double volts);
+  Status SetOverCurrentBackstop(double amps);
+  Status SetRemoteSense(bool on);
   Result<double> MeasureVoltage();
   Result<double> MeasureCurrent();
+  Result<double> MeasurePower();
   ScpiSession& session() { return session_; }
+
+  void SetCalibration(Calibration voltage, Calibration current) {
+    cal_v_ = voltage;
+    cal_i_ = current;
+  }
+  // Rig limits: SetLevel refuses (kLimitExceeded) a current above
+  // `max_current_a` or a power above `max_power_w` (<= 0: no limit).
+  void SetLimits(double max_current_a, double max_power_w) {
+    max_current_a_ = max_current_a;
+    max_power_w_ = max_power_w;
+  }
 
  private:
   Status Command(const std::string& templ, double value, const char* what);
@@ -52,6 +78,8 @@ class LoadDriver {
   LoadCommands cmd_;
   bool mode_known_ = false;
   LoadMode mode_ = LoadMode::kCurrent;
+  Calibration cal_v_, cal_i_;
+  double max_current_a_ = 0.0, max_power_w_ = 0.0;
 };
 
 struct MeterCommands {
@@ -63,10 +91,19 @@ class MeterDriver {
  public:
   MeterDriver(ScpiSession& session, MeterCommands commands = {}) : session_(session), cmd_(std::move(commands)) {}
   Result<double> MeasureVoltage();
+  void SetCalibration(Calibration voltage) { cal_ = voltage; }
+  // Stuck-reading guard: fail (kProtocol) once the raw reading has been
+  // exactly the same `readings` times in a row (0: off). A live cell under
+  // load and a real meter's last digit never sit still that long.
+  void SetStuckLimit(int readings) { stuck_limit_ = readings; }
 
  private:
   ScpiSession& session_;
   MeterCommands cmd_;
+  Calibration cal_;
+  int stuck_limit_ = 0;
+  int same_count_ = 0;
+  double last_raw_ = 0.0;
 };
 
 struct ThermometerCommands {
@@ -79,13 +116,16 @@ class ThermometerDriver {
   ThermometerDriver(ScpiSession& session, ThermometerCommands commands = {})
       : session_(session), cmd_(std::move(commands)) {}
   Result<double> MeasureTemperature();
+  void SetCalibration(Calibration temperature) { cal_ = temperature; }
 
  private:
   ScpiSession& session_;
   ThermometerCommands cmd_;
+  Calibration cal_;
 };
 
-// Reads one number and turns overflow / NaN into a kProtocol error naming `what`.
+// Reads one number and turns overflow / NaN into a kProtocol error naming `what`
+// (with the instrument's own SYSTem:ERRor? text when it queued any).
 Result<double> ReadFiniteNumber(ScpiSession& session, const std::string& query, const char* what);
 
 }  // namespace kp

@@ -18,13 +18,51 @@ Status ScpiSession::Send(std::string_view line) {
   return st;
 }
 
+void ScpiSession::Resync(const Status& last) {
+  if (last.code() == StatusCode::kTimeout && options_.late_reply.count() > 0) {
+    Result<std::string> late = transport_->ReadLine(options_.late_reply);
+    if (late.ok()) Trace('!', fmt::format("discarded late reply '{}'", *late));
+  }
+  transport_->Flush();
+}
+
 Status ScpiSession::Write(std::string_view command) {
-  Status st = Send(command);
-  if (st.ok() || st.code() != StatusCode::kIo) return st;
-  // The link dropped: reconnect once and resend.
-  ++retry_count_;
-  KP_RETURN_IF_ERROR(transport_->Reconnect());
-  return Send(command);
+  Status last;
+  for (int attempt = 0; attempt <= options_.retries; ++attempt) {
+    if (attempt > 0) {
+      ++retry_count_;
+      Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, command, last.ToString()));
+      Resync(last);
+      if (last.code() == StatusCode::kIo) {
+        Status rc = transport_->Reconnect();
+        if (!rc.ok()) {
+          last = rc;
+          continue;
+        }
+      }
+    }
+    last = Send(command);
+    if (last.ok() && options_.confirm_writes) {
+      last = Send("*OPC?");
+      if (last.ok()) {
+        Result<std::string> reply = transport_->ReadLine(options_.timeout);
+        if (!reply.ok()) {
+          last = reply.status();
+          Trace('!', last.ToString());
+        } else {
+          Trace('<', *reply);
+          Result<ScpiNumber> n = ParseScpiNumber(*reply);
+          if (!n.ok() || !n->finite() || n->value != 1.0) {
+            last = ProtocolError(fmt::format("'*OPC?' after '{}' replied '{}', expected 1", command, *reply));
+            Trace('!', last.message());
+          }
+        }
+      }
+    }
+    if (last.ok()) return last;
+    if (last.code() != StatusCode::kTimeout && last.code() != StatusCode::kIo && last.code() != StatusCode::kProtocol) break;
+  }
+  return last.WithContext(fmt::format("{} '{}'", address_, command));
 }
 
 Result<std::string> ScpiSession::Query(std::string_view query) {
@@ -33,7 +71,7 @@ Result<std::string> ScpiSession::Query(std::string_view query) {
     if (attempt > 0) {
       ++retry_count_;
       Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, query, last.ToString()));
-      transport_->Flush();
+      Resync(last);
       if (last.code() == StatusCode::kIo) {
         Status rc = transport_->Reconnect();
         if (!rc.ok()) {

@@ -23,6 +23,13 @@ struct ScpiOptions {
   int retries = 2;           // extra attempts for a query that timed out or dropped
   bool error_queue = true;   // the instrument implements SYSTem:ERRor?
   int max_error_drain = 20;  // stop draining a queue that never empties
+  // Follow every command with *OPC? and wait for its "1": the instrument has
+  // then taken the setting before the run goes on, and a command lost on a
+  // dropped link is sent again after the reconnect.
+  bool confirm_writes = false;
+  // After a query timed out, wait this long for its late reply and discard it
+  // before retrying, so a slow answer cannot pair with the next query (0: no wait).
+  Seconds late_reply{0.0};
 };
 
 // Direction of a traced line: '>' sent, '<' received, '!' a failure note.
@@ -58,6 +65,8 @@ class ScpiSession {
 
  private:
   Status Send(std::string_view line);
+  // Before a retry: drops unread input and, after a timeout, a late reply.
+  void Resync(const Status& last);
   void Trace(char direction, std::string_view text);
 
   std::unique_ptr<Transport> transport_;

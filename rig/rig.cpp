@@ -2,6 +2,7 @@
 
 #include <fmt/format.h>
 
+#include "rig/rig_file.h"
 #include "rig/sim_rig.h"
 
 namespace kp {
@@ -25,7 +26,11 @@ class BuiltInSimRig final : public Rig {
 
 Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptions& options) {
   if (spec == "sim") return std::unique_ptr<Rig>(new BuiltInSimRig(options));
-  return InvalidInput(fmt::format("unknown rig '{}': use 'sim' or a rig file", spec));
+  if (spec.ends_with(".toml")) {
+    KP_ASSIGN_OR_RETURN(RigFileSpec file, LoadRigFile(spec));
+    return OpenFileRig(file, options);
+  }
+  return InvalidInput(fmt::format("unknown rig '{}': use 'sim' or a rig file (.toml)", spec));
 }
 
 }  // namespace kp

@@ -1,10 +1,11 @@
 // Rig: the assembled instruments a run uses, chosen by configuration.
 //
 // OpenRig("sim", ...) builds the built-in simulated bench; a path to a rig file
-// builds real (or simulator-over-TCP) instruments from it. Callers never
+// builds real (or simulator-over-TCP) instruments from it (rig/rig_file.h). Callers never
 // branch on which one they got: they take roles() and the Clock.
 #pragma once
 
+#include <functional>
 #include <memory>
 #include <string>
 
@@ -15,6 +16,15 @@
 
 namespace kp {
 
+// Absolute limits of the bench itself (wiring, load rating), whatever the
+// procedure asks; 0 means no limit declared. Runs should use the tighter of
+// these and the procedure's limits.
+struct RigLimits {
+  double max_current_a = 0.0;
+  double max_voltage_v = 0.0;
+  double load_rating_w = 0.0;
+};
+
 class Rig {
  public:
   virtual ~Rig() = default;
@@ -24,6 +34,7 @@ class Rig {
   virtual Clock& clock() = 0;
   // Identifies the instruments for the one-runner-per-rig lock (addresses).
   virtual std::string LockKey() const = 0;
+  virtual RigLimits limits() const { return {}; }
 };
 
 struct RigOpenOptions {
@@ -31,6 +42,13 @@ struct RigOpenOptions {
   double sim_speed = 0.0;
   sim::CellParams sim_cell = sim::DemoLiIonCell();
   sim::SimOptions sim_options;
+  // Rig files: trace every SCPI exchange to this file (overrides the file's `trace`).
+  std::string trace_path;
+  // Rig files: use this clock instead of a SteadyClock at the file's
+  // clock_speed (tests share a VirtualClock with a simulator server). Not owned.
+  Clock* clock = nullptr;
+  // Receives notes for the log (termios fallback, refused optional settings).
+  std::function<void(std::string_view)> note;
 };
 
 Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptions& options);

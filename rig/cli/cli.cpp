@@ -82,6 +82,9 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterRuns(registry);
   RegisterReport(registry);
   RegisterExport(registry);
+  RegisterPorts(registry);
+  RegisterProbe(registry);
+  RegisterSim(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

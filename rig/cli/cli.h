@@ -54,6 +54,9 @@ void RegisterDemo(CliRegistry& r);
 void RegisterRuns(CliRegistry& r);
 void RegisterReport(CliRegistry& r);
 void RegisterExport(CliRegistry& r);
+void RegisterPorts(CliRegistry& r);
+void RegisterProbe(CliRegistry& r);
+void RegisterSim(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

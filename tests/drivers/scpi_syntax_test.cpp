@@ -81,3 +81,50 @@ TEST(ScpiCommand, SplitsHeaderAndArguments) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// Further forms of <DECIMAL NUMERIC PROGRAM DATA> (IEEE 488.2 §7.7.2.2, from
+// memory): optional sign, digits with an optional point on either side, and an
+// exponent 'E'/'e' with an optional sign; and the response encodings NR1
+// (integer), NR2 (fixed point) and NR3 (floating point) of §8.7.2-8.7.4 (from
+// memory) that every instrument's reply takes.
+TEST(ScpiNumberForms, DecimalNumericDataOf4882) {
+  struct Case {
+    const char* text;
+    double value;
+  } cases[] = {
+      {"0", 0.0},          {"-0", 0.0},          {"007", 7.0},           {"+.5", 0.5},
+      {"12.", 12.0},       {"1E3", 1000.0},      {"1e3", 1000.0},        {"1E+3", 1000.0},
+      {"2.5E-3", 0.0025},  {"-.5E-2", -0.005},   {"+1.000000E+01", 10.0}, {"6.02E+23", 6.02e23},
+      {"1.0E-300", 1e-300}, {"-3.71200E+00", -3.712},
+  };
+  for (const Case& c : cases) {
+    auto r = ParseScpiNumber(c.text);
+    ASSERT_TRUE(r.ok()) << c.text << ": " << r.status().ToString();
+    EXPECT_TRUE(r->finite()) << c.text;
+    EXPECT_DOUBLE_EQ(r->value, c.value) << c.text;
+  }
+}
+
+// Suffixes, units, keyword forms and non-decimal radices are other data types
+// (§7.7.3 suffix, §7.7.4 non-decimal numeric, from memory): a reading must not
+// silently parse them.
+TEST(ScpiNumberForms, RejectsOtherDataTypes) {
+  for (const char* bad : {"5 V", "5mV", "#H1F", "#B101", "#Q17", "MAX", "MIN", "DEF", "1.2.3", "1E3.5", "1E+", "+-1", "1 2"}) {
+    EXPECT_FALSE(ParseScpiNumber(bad).ok()) << "'" << bad << "'";
+  }
+}
+
+// The over-range value may come in any numeric form (SCPI-99 Vol 1 §7.2.1,
+// from memory): NR3 with padding, NR2 with trailing zeros, or as an integer.
+TEST(ScpiNumberForms, OverRangeInEveryForm) {
+  EXPECT_EQ(ParseScpiNumber("9.90000000E+37")->kind, ScpiNumber::Kind::kOverflow);
+  EXPECT_EQ(ParseScpiNumber("99000000000000000000000000000000000000")->kind, ScpiNumber::Kind::kOverflow);
+  EXPECT_EQ(ParseScpiNumber("-9.90000E+37")->kind, ScpiNumber::Kind::kUnderflow);
+  EXPECT_EQ(ParseScpiNumber("+9.91000E+37")->kind, ScpiNumber::Kind::kNotANumber);
+}
+
+}  // namespace
+}  // namespace kp

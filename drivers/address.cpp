@@ -1,0 +1,108 @@
+#include "drivers/address.h"
+
+#include <charconv>
+
+#include <fmt/format.h>
+
+namespace kp {
+namespace {
+
+constexpr const char* kForms = "expected tcp:HOST:PORT, serial:PATH?baud=N&parity=none&data=8&stop=1&flow=none&eol=lf, or pty";
+
+Result<int> ParseInt(std::string_view text, std::string_view what, const std::string& address) {
+  int v = 0;
+  auto [p, ec] = std::from_chars(text.data(), text.data() + text.size(), v);
+  if (ec != std::errc() || p != text.data() + text.size() || text.empty())
+    return InvalidInput(fmt::format("address '{}': {} '{}' is not a whole number", address, what, text));
+  return v;
+}
+
+Status ParseEol(std::string_view v, Address& a) {
+  if (v == "lf") a.eol = "\n";
+  else if (v == "crlf") a.eol = "\r\n";
+  else if (v == "cr") a.eol = "\r";
+  else return InvalidInput(fmt::format("address '{}': eol '{}' must be lf, crlf or cr", a.text, v));
+  return Status::Ok();
+}
+
+Status ParseOption(std::string_view key, std::string_view v, Address& a) {
+  const std::string& t = a.text;
+  if (key == "eol") return ParseEol(v, a);
+  if (a.kind != Address::Kind::kSerial)
+    return InvalidInput(fmt::format("address '{}': option '{}' applies to serial ports only (tcp takes eol)", t, key));
+  SerialSettings& s = a.serial;
+  if (key == "baud") {
+    KP_ASSIGN_OR_RETURN(s.baud, ParseInt(v, "baud", t));
+    if (s.baud < 50 || s.baud > 4000000) return InvalidInput(fmt::format("address '{}': baud {} is out of range 50..4000000", t, s.baud));
+  } else if (key == "data") {
+    KP_ASSIGN_OR_RETURN(s.data_bits, ParseInt(v, "data", t));
+    if (s.data_bits < 5 || s.data_bits > 8) return InvalidInput(fmt::format("address '{}': data must be 5..8 bits", t));
+  } else if (key == "stop") {
+    KP_ASSIGN_OR_RETURN(s.stop_bits, ParseInt(v, "stop", t));
+    if (s.stop_bits != 1 && s.stop_bits != 2) return InvalidInput(fmt::format("address '{}': stop must be 1 or 2", t));
+  } else if (key == "parity") {
+    if (v == "none") s.parity = Parity::kNone;
+    else if (v == "odd") s.parity = Parity::kOdd;
+    else if (v == "even") s.parity = Parity::kEven;
+    else return InvalidInput(fmt::format("address '{}': parity '{}' must be none, odd or even", t, v));
+  } else if (key == "flow") {
+    if (v == "none") s.flow = FlowControl::kNone;
+    else if (v == "rtscts") s.flow = FlowControl::kRtsCts;
+    else if (v == "xonxoff") s.flow = FlowControl::kXonXoff;
+    else return InvalidInput(fmt::format("address '{}': flow '{}' must be none, rtscts or xonxoff", t, v));
+  } else {
+    return InvalidInput(fmt::format("address '{}': unknown option '{}' (baud, data, parity, stop, flow, eol)", t, key));
+  }
+  return Status::Ok();
+}
+
+Status ParseQuery(std::string_view query, Address& a) {
+  while (!query.empty()) {
+    size_t amp = query.find('&');
+    std::string_view item = query.substr(0, amp);
+    query = amp == std::string_view::npos ? std::string_view() : query.substr(amp + 1);
+    size_t eq = item.find('=');
+    if (eq == std::string_view::npos || eq == 0)
+      return InvalidInput(fmt::format("address '{}': option '{}' must be KEY=VALUE", a.text, item));
+    KP_RETURN_IF_ERROR(ParseOption(item.substr(0, eq), item.substr(eq + 1), a));
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+std::string EolName(const std::string& eol) {
+  if (eol == "\r\n") return "crlf";
+  if (eol == "\r") return "cr";
+  return "lf";
+}
+
+Result<Address> ParseAddress(std::string_view text) {
+  Address a;
+  a.text = std::string(text);
+  size_t q = text.find('?');
+  std::string_view head = text.substr(0, q);
+  std::string_view query = q == std::string_view::npos ? std::string_view() : text.substr(q + 1);
+  if (head == "pty") {
+    a.kind = Address::Kind::kPty;
+  } else if (head.starts_with("tcp:")) {
+    a.kind = Address::Kind::kTcp;
+    std::string_view rest = head.substr(4);
+    size_t colon = rest.rfind(':');
+    if (colon == std::string_view::npos || colon == 0)
+      return InvalidInput(fmt::format("address '{}': {}", text, kForms));
+    a.host = std::string(rest.substr(0, colon));
+    KP_ASSIGN_OR_RETURN(a.port, ParseInt(rest.substr(colon + 1), "port", a.text));
+    if (a.port < 0 || a.port > 65535) return InvalidInput(fmt::format("address '{}': port must be 0..65535", text));
+  } else if (head.starts_with("serial:")) {
+    a.kind = Address::Kind::kSerial;
+    a.path = std::string(head.substr(7));
+    if (a.path.empty()) return InvalidInput(fmt::format("address '{}': serial needs a device path", text));
+  } else {
+    return InvalidInput(fmt::format("address '{}': {}", text, kForms));
+  }
+  KP_RETURN_IF_ERROR(ParseQuery(query, a));
+  return a;
+}
+
+}  // namespace kp

@@ -1,0 +1,50 @@
+// Instrument addresses: one syntax everywhere (rig files, `probe`, `sim`).
+//
+//   tcp:HOST:PORT                       raw SCPI socket (instruments usually listen on 5025)
+//   serial:PATH[?KEY=VALUE&...]         serial port; keys (defaults in brackets):
+//        baud=N [9600]  data=5..8 [8]  parity=none|odd|even [none]  stop=1|2 [1]
+//        flow=none|rtscts|xonxoff [none]
+//   pty                                 `kneepoint sim` only: serve on new pseudo-terminals
+//
+// Every form also takes `eol=lf|crlf|cr` (line terminator sent and expected,
+// [lf]); tcp takes it as `tcp:HOST:PORT?eol=crlf`. HOST may be a name or an
+// IPv4 address. Paths under /dev/pts/ are opened with POSIX termios directly
+// (libserialport cannot open pseudo-terminals).
+#pragma once
+
+#include <string>
+#include <string_view>
+
+#include "drivers/status.h"
+
+namespace kp {
+
+enum class Parity { kNone, kOdd, kEven };
+enum class FlowControl { kNone, kRtsCts, kXonXoff };
+
+struct SerialSettings {
+  int baud = 9600;
+  int data_bits = 8;
+  Parity parity = Parity::kNone;
+  int stop_bits = 1;
+  FlowControl flow = FlowControl::kNone;
+};
+
+struct Address {
+  enum class Kind { kTcp, kSerial, kPty };
+  Kind kind = Kind::kTcp;
+  std::string host;      // tcp
+  int port = 0;          // tcp (0 only when listening: pick a free port)
+  std::string path;      // serial
+  SerialSettings serial;  // serial
+  std::string eol = "\n";
+  std::string text;       // as written, for messages
+};
+
+// Parses an address; errors say which part is wrong and list the valid forms.
+Result<Address> ParseAddress(std::string_view text);
+
+// Name of a terminator for messages: "lf", "crlf", "cr".
+std::string EolName(const std::string& eol);
+
+}  // namespace kp

@@ -1,0 +1,209 @@
+#include "rig/rig_file.h"
+
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <set>
+#include <sstream>
+
+#include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "drivers/address.h"
+
+namespace kp {
+namespace {
+
+namespace fs = std::filesystem;
+
+class Reader {
+ public:
+  explicit Reader(std::string path) : path_(std::move(path)) {}
+
+  Status Error(const toml::node* node, const std::string& key, const std::string& what) const {
+    int line = node != nullptr ? static_cast<int>(node->source().begin.line) : 0;
+    return InvalidInput(fmt::format("{}:{}: key '{}': {}", path_, line, key, what));
+  }
+  Status ErrorAt(int line, const std::string& key, const std::string& what) const {
+    return InvalidInput(fmt::format("{}:{}: key '{}': {}", path_, line, key, what));
+  }
+
+  // Rejects keys not in `known`.
+  Status OnlyKnown(const toml::table& t, const std::string& prefix, const std::set<std::string>& known) const {
+    for (const auto& [k, v] : t) {
+      if (!known.count(std::string(k.str()))) {
+        std::string list;
+        for (const auto& n : known) list += (list.empty() ? "" : ", ") + n;
+        return Error(&v, prefix + std::string(k.str()), "unknown key (known: " + list + ")");
+      }
+    }
+    return Status::Ok();
+  }
+
+  Status Number(const toml::table& t, const std::string& prefix, const char* key, double& out, double lo, double hi) const {
+    const toml::node* n = t.get(key);
+    if (n == nullptr) return Status::Ok();
+    std::optional<double> v = n->value<double>();
+    if (!v || (!n->is_floating_point() && !n->is_integer())) return Error(n, prefix + key, "must be a number");
+    if (!(*v >= lo && *v <= hi)) return Error(n, prefix + key, fmt::format("{} is outside {} .. {}", *v, lo, hi));
+    out = *v;
+    return Status::Ok();
+  }
+
+  Status Integer(const toml::table& t, const std::string& prefix, const char* key, int& out, int lo, int hi) const {
+    const toml::node* n = t.get(key);
+    if (n == nullptr) return Status::Ok();
+    if (!n->is_integer()) return Error(n, prefix + key, "must be a whole number");
+    int64_t v = *n->value<int64_t>();
+    if (v < lo || v > hi) return Error(n, prefix + key, fmt::format("{} is outside {} .. {}", v, lo, hi));
+    out = static_cast<int>(v);
+    return Status::Ok();
+  }
+
+  Status Bool(const toml::table& t, const std::string& prefix, const char* key, bool& out) const {
+    const toml::node* n = t.get(key);
+    if (n == nullptr) return Status::Ok();
+    if (!n->is_boolean()) return Error(n, prefix + key, "must be true or false");
+    out = *n->value<bool>();
+    return Status::Ok();
+  }
+
+  Status String(const toml::table& t, const std::string& prefix, const char* key, std::string& out, bool required, int line) const {
+    const toml::node* n = t.get(key);
+    if (n == nullptr) {
+      if (required) return ErrorAt(line, prefix + key, "missing");
+      return Status::Ok();
+    }
+    if (!n->is_string()) return Error(n, prefix + key, "must be a string in quotes");
+    out = *n->value<std::string>();
+    if (required && out.empty()) return Error(n, prefix + key, "must not be empty");
+    return Status::Ok();
+  }
+
+  const std::string& path() const { return path_; }
+
+ private:
+  std::string path_;
+};
+
+const std::set<std::string> kRoles = {"load", "meter", "thermometer", "supply"};
+
+}  // namespace
+
+Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path) {
+  Reader r(path);
+  toml::table root;
+  try {
+    root = toml::parse(text, path);
+  } catch (const toml::parse_error& e) {
+    return InvalidInput(fmt::format("{}:{}:{}: {}", path, e.source().begin.line, e.source().begin.column, e.description()));
+  }
+  std::string base_dir = fs::path(path).parent_path().string();
+  if (base_dir.empty()) base_dir = ".";
+  RigFileSpec spec;
+  spec.path = path;
+  KP_RETURN_IF_ERROR(r.OnlyKnown(root, "", {"bench", "instrument"}));
+
+  if (const toml::node* bn = root.get("bench")) {
+    const toml::table* b = bn->as_table();
+    if (b == nullptr) return r.Error(bn, "bench", "must be a table ([bench])");
+    const std::string p = "bench.";
+    KP_RETURN_IF_ERROR(r.OnlyKnown(*b, p, {"name", "clock_speed", "trace", "max_current_a", "max_voltage_v", "load_rating_w"}));
+    int line = static_cast<int>(bn->source().begin.line);
+    KP_RETURN_IF_ERROR(r.String(*b, p, "name", spec.name, false, line));
+    KP_RETURN_IF_ERROR(r.Number(*b, p, "clock_speed", spec.clock_speed, 1e-3, 1e6));
+    std::string trace;
+    KP_RETURN_IF_ERROR(r.String(*b, p, "trace", trace, false, line));
+    if (!trace.empty()) spec.trace = fs::path(trace).is_relative() ? (fs::path(base_dir) / trace).string() : trace;
+    KP_RETURN_IF_ERROR(r.Number(*b, p, "max_current_a", spec.limits.max_current_a, 0.0, 1e4));
+    KP_RETURN_IF_ERROR(r.Number(*b, p, "max_voltage_v", spec.limits.max_voltage_v, 0.0, 1e4));
+    KP_RETURN_IF_ERROR(r.Number(*b, p, "load_rating_w", spec.limits.load_rating_w, 0.0, 1e6));
+  }
+  if (spec.name.empty()) spec.name = fs::path(path).stem().string();
+
+  const toml::node* in = root.get("instrument");
+  if (in == nullptr) return r.ErrorAt(1, "instrument", "no [[instrument]] tables: a rig needs at least a load and a thermometer");
+  const toml::array* arr = in->as_array();
+  if (arr == nullptr || !arr->is_array_of_tables()) return r.Error(in, "instrument", "must be written as [[instrument]] tables");
+
+  std::map<std::string, std::string> role_owner;
+  std::set<std::string> names;
+  for (size_t i = 0; i < arr->size(); ++i) {
+    const toml::node& node = *arr->get(i);
+    const toml::table& t = *node.as_table();
+    InstrumentSpec is;
+    is.line = static_cast<int>(node.source().begin.line);
+    const std::string p = fmt::format("instrument[{}].", i + 1);
+    KP_RETURN_IF_ERROR(r.OnlyKnown(t, p, {"name", "address", "profile", "roles", "channel", "timeout_s", "retries", "confirm_writes",
+                                          "remote_sense", "stuck_after", "late_reply_s", "voltage_offset_v", "voltage_gain", "current_offset_a", "current_gain",
+                                          "temperature_offset_c", "temperature_gain"}));
+    KP_RETURN_IF_ERROR(r.String(t, p, "name", is.name, false, is.line));
+    if (is.name.empty()) is.name = fmt::format("instrument {}", i + 1);
+    if (!names.insert(is.name).second) return r.Error(t.get("name"), p + "name", fmt::format("'{}' is used twice", is.name));
+    KP_RETURN_IF_ERROR(r.String(t, p, "address", is.address, true, is.line));
+    if (Result<Address> a = ParseAddress(is.address); !a.ok()) return r.Error(t.get("address"), p + "address", a.status().message());
+    else if (a->kind == Address::Kind::kPty)
+      return r.Error(t.get("address"), p + "address", "'pty' is for `kneepoint sim`; use serial:/dev/pts/N");
+    else if (a->kind == Address::Kind::kTcp && a->port == 0)
+      return r.Error(t.get("address"), p + "address", "port 0 is only for listening");
+    KP_RETURN_IF_ERROR(r.String(t, p, "profile", is.profile_ref, true, is.line));
+
+    const toml::node* rn = t.get("roles");
+    if (rn == nullptr) return r.ErrorAt(is.line, p + "roles", "missing (e.g. roles = [\"load\"])");
+    const toml::array* ra = rn->as_array();
+    if (ra == nullptr || ra->empty()) return r.Error(rn, p + "roles", "must be a non-empty list of strings");
+    for (const toml::node& e : *ra) {
+      std::optional<std::string> role = e.value<std::string>();
+      if (!role || !kRoles.count(*role)) return r.Error(&e, p + "roles", "each role must be \"load\", \"meter\", \"thermometer\" or \"supply\"");
+      if (auto [it, fresh] = role_owner.emplace(*role, is.name); !fresh)
+        return r.Error(&e, p + "roles", fmt::format("role '{}' is already taken by '{}'", *role, it->second));
+      is.roles.push_back(*role);
+    }
+    if (const toml::node* cn = t.get("channel")) {
+      if (cn->is_integer()) is.channel = std::to_string(*cn->value<int64_t>());
+      else if (cn->is_string()) is.channel = *cn->value<std::string>();
+      else return r.Error(cn, p + "channel", "must be a number or a string");
+    }
+    KP_RETURN_IF_ERROR(r.Number(t, p, "timeout_s", is.timeout_s, 0.01, 600.0));
+    KP_RETURN_IF_ERROR(r.Integer(t, p, "retries", is.retries, 0, 10));
+    KP_RETURN_IF_ERROR(r.Bool(t, p, "confirm_writes", is.confirm_writes));
+    KP_RETURN_IF_ERROR(r.Bool(t, p, "remote_sense", is.remote_sense));
+    KP_RETURN_IF_ERROR(r.Integer(t, p, "stuck_after", is.stuck_after, 0, 1000000));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "late_reply_s", is.late_reply_s, 0.0, 600.0));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "voltage_offset_v", is.voltage.offset, -1e3, 1e3));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "voltage_gain", is.voltage.gain, 0.5, 2.0));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "current_offset_a", is.current.offset, -1e3, 1e3));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "current_gain", is.current.gain, 0.5, 2.0));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "temperature_offset_c", is.temperature.offset, -100.0, 100.0));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "temperature_gain", is.temperature.gain, 0.5, 2.0));
+
+    // The profile: found, well-formed, and able to fill the roles asked of it.
+    const toml::node* pn = t.get("profile");
+    Result<std::string> found = FindProfile(is.profile_ref, base_dir);
+    if (!found.ok()) return r.Error(pn, p + "profile", found.status().message());
+    Result<InstrumentProfile> prof = LoadProfileFile(*found);
+    if (!prof.ok()) return r.Error(pn, p + "profile", prof.status().message());
+    for (const std::string& role : is.roles) {
+      if (!prof->HasRole(role))
+        return r.Error(rn, p + "roles", fmt::format("profile '{}' cannot act as {}", is.profile_ref, role));
+    }
+    is.profile = std::move(*prof);
+    if (!is.channel.empty()) ApplyChannel(is.profile, is.channel);
+    spec.instruments.push_back(std::move(is));
+  }
+  for (const char* needed : {"load", "thermometer"}) {
+    if (!role_owner.count(needed))
+      return r.Error(in, "instrument", fmt::format("no instrument has the role '{}' (a run needs a load and a thermometer)", needed));
+  }
+  return spec;
+}
+
+Result<RigFileSpec> LoadRigFile(const std::string& path) {
+  std::ifstream f(path);
+  if (!f) return NotFound(fmt::format("cannot read rig file '{}'", path));
+  std::stringstream ss;
+  ss << f.rdbuf();
+  return ParseRigFile(ss.str(), path);
+}
+
+}  // namespace kp

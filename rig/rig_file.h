@@ -1,0 +1,75 @@
+// Rig files: a TOML description of the real (or simulator-over-TCP) bench.
+//
+//   [bench]
+//   name = "bench 2"
+//   clock_speed = 1.0        # run-clock seconds per wall second: 1 on hardware,
+//                            # K against `kneepoint sim --speed K`
+//   trace = "scpi.log"       # optional SCPI trace file (relative to the rig file)
+//   max_current_a = 10.0     # absolute rig limits (0 or absent: none)
+//   max_voltage_v = 5.0
+//   load_rating_w = 150.0
+//
+//   [[instrument]]
+//   name = "load"
+//   address = "tcp:192.168.0.20:5025"      # see drivers/address.h
+//   profile = "generic-scpi-load"          # name or path of a .kpp profile
+//   roles = ["load"]                       # load, meter, thermometer, supply
+//   channel = "101"                        # replaces {ch} in the profile
+//   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false,
+//   stuck_after = 0                        # meter: N identical readings = stuck
+//   late_reply_s = timeout_s               # after a timeout, wait this long to discard a late reply
+//   voltage_offset_v / voltage_gain, current_offset_a / current_gain,
+//   temperature_offset_c / temperature_gain  (reading * gain + offset)
+//
+// Every error names the file, the line and the key. Unknown keys are errors
+// (a misspelt limit must not be silently ignored).
+#pragma once
+
+#include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "drivers/profile.h"
+#include "drivers/roles.h"
+#include "rig/rig.h"
+
+namespace kp {
+
+struct InstrumentSpec {
+  std::string name;
+  std::string address;
+  std::string profile_ref;
+  InstrumentProfile profile;  // resolved and loaded, {ch} applied
+  std::vector<std::string> roles;
+  std::string channel;
+  double timeout_s = 2.0;
+  int retries = 2;
+  bool confirm_writes = false;
+  bool remote_sense = false;
+  double late_reply_s = -1.0;  // < 0: same as timeout_s
+  int stuck_after = 0;  // meter: identical readings in a row that mean "stuck" (0: off)
+  Calibration voltage, current, temperature;
+  int line = 0;  // where the [[instrument]] table starts
+};
+
+struct RigFileSpec {
+  std::string path;
+  std::string name;
+  double clock_speed = 1.0;
+  std::string trace;  // resolved path, empty for none
+  RigLimits limits;
+  std::vector<InstrumentSpec> instruments;
+};
+
+// Parses rig-file text; `path` names it in messages and anchors relative
+// paths (profiles, trace).
+Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path);
+Result<RigFileSpec> LoadRigFile(const std::string& path);
+
+// Opens every instrument of a rig file: transports, SCPI sessions (with the
+// trace), *IDN? checked against each profile, role drivers with calibration and
+// limits, the load switched off. Used by OpenRig for a path.
+Result<std::unique_ptr<Rig>> OpenFileRig(const RigFileSpec& spec, const RigOpenOptions& options);
+
+}  // namespace kp

@@ -1,0 +1,139 @@
+#include "rig/rig_file.h"
+
+#include <filesystem>
+#include <fstream>
+
+#include <gtest/gtest.h>
+
+#include "tests/support/test_support.h"
+
+namespace kp {
+namespace {
+
+const char* kGood = R"(# a bench with three instruments
+[bench]
+name = "bench 2"
+clock_speed = 1.0
+max_current_a = 8.0
+max_voltage_v = 4.4
+load_rating_w = 60.0
+
+[[instrument]]
+name = "load"
+address = "tcp:192.0.2.10:5025"
+profile = "generic-scpi-load-4wire"
+roles = ["load"]
+remote_sense = true
+current_offset_a = -0.002
+current_gain = 1.001
+
+[[instrument]]
+name = "dmm"
+address = "serial:/dev/ttyUSB0?baud=115200&eol=crlf"
+profile = "generic-scpi-dmm"
+roles = ["meter"]
+voltage_gain = 0.9995
+
+[[instrument]]
+name = "tc"
+address = "tcp:192.0.2.11:5025"
+profile = "generic-scpi-thermocouple"
+roles = ["thermometer"]
+channel = 103
+temperature_offset_c = 0.4
+)";
+
+TEST(RigFile, ParsesEveryKey) {
+  auto spec = ParseRigFile(kGood, "/tmp/bench.toml");
+  ASSERT_TRUE(spec.ok()) << spec.status().ToString();
+  EXPECT_EQ(spec->name, "bench 2");
+  EXPECT_DOUBLE_EQ(spec->limits.max_current_a, 8.0);
+  EXPECT_DOUBLE_EQ(spec->limits.load_rating_w, 60.0);
+  ASSERT_EQ(spec->instruments.size(), 3u);
+  const InstrumentSpec& load = spec->instruments[0];
+  EXPECT_EQ(load.line, 9);
+  EXPECT_TRUE(load.remote_sense);
+  EXPECT_EQ(load.profile.load.remote_sense_on, "SYST:SENS ON");
+  EXPECT_DOUBLE_EQ(load.current.Apply(1.0), 1.001 - 0.002);
+  EXPECT_DOUBLE_EQ(spec->instruments[1].voltage.gain, 0.9995);
+  EXPECT_EQ(spec->instruments[2].profile.thermometer.measure_temperature, "MEAS:TEMP? TC,K,(@103)");
+  EXPECT_DOUBLE_EQ(spec->instruments[2].temperature.Apply(25.0), 25.4);
+}
+
+std::string Replace(std::string text, const std::string& from, const std::string& to) {
+  size_t pos = text.find(from);
+  EXPECT_NE(pos, std::string::npos) << from;
+  if (pos != std::string::npos) text.replace(pos, from.size(), to);
+  return text;
+}
+
+TEST(RigFile, MalformedGivesFileLineAndKey) {
+  struct Case {
+    std::string text;
+    const char* says;
+  } cases[] = {
+      {Replace(kGood, "clock_speed = 1.0", "clock_speed = \"fast\""), "bench.toml:4: key 'bench.clock_speed': must be a number"},
+      {Replace(kGood, "max_current_a = 8.0", "max_curent_a = 8.0"), "bench.toml:5: key 'bench.max_curent_a': unknown key"},
+      {Replace(kGood, "address = \"tcp:192.0.2.10:5025\"", "address = \"tcp:192.0.2.10\""),
+       "bench.toml:11: key 'instrument[1].address': address 'tcp:192.0.2.10'"},
+      {Replace(kGood, "address = \"tcp:192.0.2.10:5025\"\n", ""), "bench.toml:9: key 'instrument[1].address': missing"},
+      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"voltmeter\"]"), "bench.toml:22: key 'instrument[2].roles': each role must be"},
+      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"load\"]"), "bench.toml:22: key 'instrument[2].roles': role 'load' is already taken by 'load'"},
+      {Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"generic-scpi-thermocouple\""),
+       "bench.toml:22: key 'instrument[2].roles': profile 'generic-scpi-thermocouple' cannot act as meter"},
+      {Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"no-such-profile\""),
+       "bench.toml:21: key 'instrument[2].profile': no profile named 'no-such-profile'"},
+      {Replace(kGood, "channel = 103", "channel = [1]"), "bench.toml:30: key 'instrument[3].channel': must be a number or a string"},
+      {Replace(kGood, "remote_sense = true", "remote_sense = 1"), "bench.toml:14: key 'instrument[1].remote_sense': must be true or false"},
+      {Replace(kGood, "voltage_gain = 0.9995", "voltage_gain = 9.995"), "bench.toml:23: key 'instrument[2].voltage_gain': 9.995 is outside"},
+      {Replace(kGood, "name = \"dmm\"", "name = \"load\""), "bench.toml:19: key 'instrument[2].name': 'load' is used twice"},
+      {Replace(kGood, "roles = [\"thermometer\"]", "roles = [\"supply\"]"), "key 'instrument[3].roles': profile 'generic-scpi-thermocouple' cannot act as supply"},
+      {Replace(kGood, "[bench]", "[bench"), "bench.toml:2:"},
+      {"[bench]\nname = \"x\"\n", "bench.toml:1: key 'instrument': no [[instrument]] tables"},
+      {Replace(kGood, "address = \"tcp:192.0.2.11:5025\"", "address = \"pty\""), "bench.toml:27: key 'instrument[3].address': 'pty' is for `kneepoint sim`"},
+  };
+  for (const Case& c : cases) {
+    auto spec = ParseRigFile(c.text, "/tmp/bench.toml");
+    ASSERT_FALSE(spec.ok()) << c.says;
+    EXPECT_EQ(spec.status().code(), StatusCode::kInvalidInput);
+    EXPECT_NE(spec.status().message().find(c.says), std::string::npos) << spec.status().message();
+  }
+}
+
+TEST(RigFile, MalformedProfileNamesBothFiles) {
+  testing::TempDir dir;
+  std::filesystem::create_directories(dir.path() / "profiles");
+  std::ofstream(dir.File("profiles/odd-meter.kpp")) << "roles = meter\nmeter-read-voltage = READ\n";
+  std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"odd-meter\"");
+  std::ofstream(dir.File("bench.toml")) << text;
+  auto spec = LoadRigFile(dir.File("bench.toml"));
+  ASSERT_FALSE(spec.ok());
+  const std::string m = spec.status().message();
+  EXPECT_NE(m.find("bench.toml:21: key 'instrument[2].profile'"), std::string::npos) << m;
+  EXPECT_NE(m.find("odd-meter.kpp:2: key 'meter-read-voltage'"), std::string::npos) << m;
+}
+
+TEST(RigFile, ShippedExamplesParse) {
+  // The source tree is found through the shipped profiles (drivers/profiles).
+  auto shipped = FindProfile("generic-scpi-dmm", "/nonexistent");
+  ASSERT_TRUE(shipped.ok());
+  std::filesystem::path root = std::filesystem::path(*shipped).parent_path().parent_path().parent_path();
+  for (const char* name : {"sim-tcp.toml", "bench-generic.toml"}) {
+    std::string path = (root / "rig" / "examples" / name).string();
+    auto spec = LoadRigFile(path);
+    EXPECT_TRUE(spec.ok()) << path << ": " << spec.status().ToString();
+  }
+}
+
+TEST(RigFile, UnknownRigSpecIsRefused) {
+  RigOpenOptions o;
+  auto r = OpenRig("bench.ini", o);
+  ASSERT_FALSE(r.ok());
+  EXPECT_EQ(r.status().code(), StatusCode::kInvalidInput);
+  auto missing = OpenRig("/nonexistent/bench.toml", o);
+  ASSERT_FALSE(missing.ok());
+  EXPECT_EQ(missing.status().code(), StatusCode::kNotFound);
+}
+
+}  // namespace
+}  // namespace kp
