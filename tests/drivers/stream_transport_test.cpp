@@ -56,8 +56,9 @@ void DriveLoad(Served& s) {
   auto i = load.MeasureCurrent();
   ASSERT_TRUE(i.ok());
   EXPECT_DOUBLE_EQ(*i, 1.28);
-  // Half an hour at 0.5C took 640 mAh of 2560: state of charge 0.75.
-  EXPECT_NEAR(s.bench.cell_soc(), 0.75, 1e-9);
+  // Half an hour at 0.5C took 640 mAh of 2560: state of charge 0.75, less the
+  // cell's own self-discharge over that half hour (a few parts in 1e5).
+  EXPECT_NEAR(s.bench.cell_soc(), 0.75, 1e-4);
   auto v = meter.MeasureVoltage();
   ASSERT_TRUE(v.ok());
   EXPECT_GT(*v, 3.0);
@@ -85,7 +86,7 @@ TEST(StreamTransport, CrLfTerminator) {
   auto t = s.Session(2);
   auto temp = ThermometerDriver(*t).MeasureTemperature();
   ASSERT_TRUE(temp.ok()) << temp.status().ToString();
-  EXPECT_DOUBLE_EQ(*temp, 22.0);
+  EXPECT_NEAR(*temp, sim::DemoLiIonCell().ambient_c, 1e-4);  // an idle cell sits at ambient
 }
 
 TEST(StreamTransport, RefusedConnectionIsAnIoError) {
