@@ -43,7 +43,11 @@ TEST(StepEngine, EndsOnCutoffAndSwitchesOff) {
   ASSERT_TRUE(out.setpoint.has_value());
   EXPECT_TRUE(out.setpoint->load_on);
   EXPECT_DOUBLE_EQ(out.setpoint->level, 0.5);
-  EXPECT_DOUBLE_EQ(e.NextWakeup(), 1.0);
+  // A reading follows the load edge after Plan::edge_settle_s, then one per period.
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s);
+  out = e.OnReading({p.edge_settle_s, 3.9, 0.5, 25});
+  EXPECT_FALSE(out.finished);
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s + 1.0);
   out = e.OnReading({1.0, 3.9, 0.5, 25});
   EXPECT_FALSE(out.finished);
   EXPECT_DOUBLE_EQ(e.NextWakeup(), 2.0);
