@@ -132,6 +132,7 @@ class Parser {
     while (pos <= text.size()) {
       size_t nl = text.find('\n', pos);
       std::string_view line = text.substr(pos, nl == std::string_view::npos ? std::string_view::npos : nl - pos);
+      if (nl == std::string_view::npos && line.empty() && line_no > 0) break;  // text ends with a newline
       ++line_no;
       line_ = line_no;
       line_text_ = line;
@@ -200,7 +201,7 @@ class Parser {
   }
   double Convert(const Tok& t, Dimension want, const char* what) {
     if (t.unit.empty())
-      Fail(t, fmt::format("'{}' has no unit: write the {} with its unit ({})", t.text, what, UnitsOf(want)));
+      Fail(t, fmt::format("'{}' has no unit: give {} with a unit ({})", t.text, what, UnitsOf(want)));
     std::optional<UnitInfo> u = ParseUnit(t.unit);
     if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
     if (u->dimension == Dimension::kCRate && want == Dimension::kCurrent) {
@@ -232,7 +233,7 @@ class Parser {
     if (t.kind != Tok::kNumber)
       Fail(t, fmt::format("expected {} (a current like 500mA or 0.2C, a power like 2W, or a resistance like 3.9Ohm), found {}", what,
                           Describe(t)));
-    if (t.unit.empty()) Fail(t, fmt::format("'{}' has no unit: write the {} as a current, power or resistance", t.text, what));
+    if (t.unit.empty()) Fail(t, fmt::format("'{}' has no unit: give {} as a current, power or resistance (A, W, Ohm)", t.text, what));
     std::optional<UnitInfo> u = ParseUnit(t.unit);
     if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
     Level l{LoadMode::kCurrent, 0.0, t.col};
@@ -439,7 +440,10 @@ class Parser {
   }
 
   void CellLine(const Tok& kw) {
-    if (cell_seen_) Fail(kw, fmt::format("a second 'cell' line (the first is on line {})", cell_line_));
+    if (cell_line_ > 0) Fail(kw, fmt::format("a second 'cell' line (the first is on line {})", cell_line_));
+    // Counted as seen even if the rest of the line is wrong: one error, not one per step.
+    cell_seen_ = true;
+    cell_line_ = line_;
     const Tok& chem = ExpectWord("the chemistry (li-ion, lifepo4, nimh, alkaline...)");
     CellSpec& c = plan_.cell;
     c.chemistry = chem.text;
@@ -466,8 +470,6 @@ class Parser {
     if (!cutoff) Fail(toks_.back(), "the cell needs cutoff= (its end-of-discharge voltage, e.g. cutoff=2.75V)");
     if (c.max_v > 0 && c.max_v <= c.cutoff_v) Fail(kw, "the cell's max= must be above its cutoff=");
     if (c.nominal_v == 0) c.nominal_v = c.max_v > 0 ? 0.5 * (c.max_v + c.cutoff_v) : c.cutoff_v;
-    cell_seen_ = true;
-    cell_line_ = line_;
   }
 
   void SafetyLine() {
@@ -497,6 +499,9 @@ class Parser {
   }
 
   void StepStatement(const Tok& kw) {
+    static const char* const kSteps[] = {"rest", "discharge", "pulse", "cycle", "dcir", "charge"};
+    if (std::none_of(std::begin(kSteps), std::end(kSteps), [&](const char* k) { return kw.text == k; }))
+      Fail(kw, fmt::format("unknown statement '{}'", kw.text));
     if (!cell_seen_) Fail(kw, "steps need the 'cell' line first (rated capacity and cutoff)");
     const std::string& k = kw.text;
     Step s;
@@ -595,7 +600,7 @@ class Parser {
       return;
     }
     if (plan_.steps.empty()) {
-      Error(last_line, 1, "the procedure has no steps");
+      if (out_.errors.empty()) Error(std::max(1, last_line), 1, "the procedure has no steps");
       return;
     }
     SafetyLimits& l = plan_.limits;
