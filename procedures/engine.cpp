@@ -179,21 +179,7 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     out.finished = true;
     return out;
   }
-  if (last_ && r.t_s > last_->t_s) {
-    double dt_h = (r.t_s - last_->t_s) / 3600.0;
-    double dq = 0.5 * (r.current_a + last_->current_a) * dt_h * 1000.0;
-    double de = 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
-    step_charge_mah_ += dq;
-    step_energy_wh_ += de;
-    for (size_t li = 0; li < loops_.size(); ++li) {
-      const Loop& l = plan_.loops[li];
-      if (l.first_step <= step_ && step_ <= l.last_step) {
-        loops_[li].charge_mah += dq;
-        loops_[li].energy_wh += de;
-      }
-    }
-  }
-  last_ = r;
+  Integrate(r);
   const Step& step = plan_.steps[static_cast<size_t>(step_)];
 
   auto end_step = [&](int ended, int exited_loop, const std::string& reason) {
@@ -268,6 +254,26 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
   }
   Schedule(r.t_s, changed);
   return out;
+}
+
+
+void StepEngine::Integrate(const Reading& r) {
+  if (finished()) return;
+  if (last_ && r.t_s > last_->t_s) {
+    double dt_h = (r.t_s - last_->t_s) / 3600.0;
+    double dq = 0.5 * (r.current_a + last_->current_a) * dt_h * 1000.0;
+    double de = 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
+    step_charge_mah_ += dq;
+    step_energy_wh_ += de;
+    for (size_t li = 0; li < loops_.size(); ++li) {
+      const Loop& l = plan_.loops[li];
+      if (l.first_step <= step_ && step_ <= l.last_step) {
+        loops_[li].charge_mah += dq;
+        loops_[li].energy_wh += de;
+      }
+    }
+  }
+  last_ = r;
 }
 
 std::string StepEngine::Snapshot(double t_s) const {

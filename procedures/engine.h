@@ -72,6 +72,10 @@ class StepEngine {
   // Feeds the reading taken at (or just after) NextWakeup().
   EngineOutput OnReading(const Reading& r);
 
+  // Counts a reading into the step's charge and energy without deciding
+  // anything (readings taken while paused, or the one that caused a pause).
+  void Integrate(const Reading& r);
+
   // Serialisable position in the plan (step, time into the step, the step's
   // charge and energy so far, loop counters, a half-done resistance test),
   // stored with the run so an interrupted run can resume. `t_s` is the time of

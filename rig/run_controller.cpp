@@ -175,14 +175,19 @@ Status RunSession::Handle(const EngineOutput& out) {
 }
 
 std::optional<RunResult> RunSession::PauseForHeat(const std::string& why) {
-  std::string snapshot = engine_.Snapshot(t_s_);
   rc_.SafeOff();
+  // The reading that tripped the limit still counts (the load was on until it).
+  if (prev_) engine_.Integrate(*prev_);
+  std::string snapshot = engine_.Snapshot(t_s_);
   if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "pause", why); !st.ok())
     return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
   const Step* step = engine_.current_step();
   double period = step != nullptr ? std::max(1.0, step->sample_period_s) : 1.0;
+  // First reading just after the load went off, so the log shows the edge.
+  double wait = plan_.edge_settle_s;
   while (true) {
-    rc_.clock_.SleepUntil(t0_ + Seconds(t_s_ + period), options_.stop);
+    rc_.clock_.SleepUntil(t0_ + Seconds(t_s_ + wait), options_.stop);
+    wait = period;
     if (StopRequested()) {
       t_s_ = Now();
       return Finish(Outcome::kAborted, options_.stop_reason, "abort");
@@ -197,6 +202,7 @@ std::optional<RunResult> RunSession::PauseForHeat(const std::string& why) {
   }
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
+  engine_.Integrate(*prev_);  // integration restarts from the cooled, load-off reading
   Status st = rc_.store_.AddEvent(run_id_, t_s_, "resume", fmt::format("cell cooled to {:.1f} degC; continuing", prev_->temperature_c));
   if (st.ok()) st = Handle(*out);
   if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
