@@ -1,6 +1,7 @@
 #include "procedures/plan.h"
 
 #include <algorithm>
+#include <cmath>
 
 #include <fmt/format.h>
 
@@ -24,6 +25,23 @@ double Step::CycleSeconds() const {
   double s = 0.0;
   for (const Segment& g : segments) s += g.duration_s;
   return s;
+}
+
+double Step::RealSeconds(double elapsed_s) const {
+  double cycle = CycleSeconds();
+  if (cycle <= 0.0 || kind == StepKind::kResistanceTest) return elapsed_s;
+  double real_cycle = 0.0;
+  for (const Segment& g : segments) real_cycle += g.real_duration_s;
+  double n = std::floor(elapsed_s / cycle);
+  double real = n * real_cycle;
+  double rest = elapsed_s - n * cycle;
+  for (const Segment& g : segments) {
+    double part = std::min(rest, g.duration_s);
+    real += part * (g.real_duration_s / g.duration_s);
+    rest -= part;
+    if (rest <= 0.0) break;
+  }
+  return real;
 }
 
 std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig) {

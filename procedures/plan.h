@@ -103,6 +103,10 @@ struct Step {
 
   // Sum of the segments' (run) durations; 0 for steps without segments.
   double CycleSeconds() const;
+  // The real (uncompressed) time that `elapsed_s` of run time in this step
+  // stands for: analysis uses it to project a compressed duty-cycle test
+  // back to the product's life. Identity for steps without compression.
+  double RealSeconds(double elapsed_s) const;
 };
 
 // A loop over steps [first_step, last_step]. count > 0: run the body that many

@@ -349,6 +349,20 @@ TEST(Library, EveryFileChecksAndRoundTrips) {
   EXPECT_GE(files, 8);
 }
 
+// Compression is recorded so a run's time maps back to real time: with the
+// 50 s sleep run as 5 s, one 6.5 s run cycle stands for 51.5 s.
+TEST(Parser, CompressedTimeProjectsBack) {
+  auto p = Parse(std::string(kCell) + "profile n\n  phase sleep 10uA/50s\n  phase tx 30mA/1.5s\nend\ncycle n compress=5s until time>=1h\n");
+  ASSERT_TRUE(p.ok()) << Errors(p);
+  const Step& s = p.plan.steps[0];
+  EXPECT_DOUBLE_EQ(s.CycleSeconds(), 6.5);
+  EXPECT_DOUBLE_EQ(s.RealSeconds(6.5), 51.5);
+  EXPECT_DOUBLE_EQ(s.RealSeconds(2.5), 25.0);         // half-way through the compressed sleep
+  EXPECT_DOUBLE_EQ(s.RealSeconds(13.0 + 5.75), 103.0 + 50.75);  // two cycles, sleep, half the tx
+  Step plain;
+  EXPECT_DOUBLE_EQ(plain.RealSeconds(42.0), 42.0);
+}
+
 // Estimates from rated capacity alone: 0.2C empties a full cell in 5 h.
 TEST(Estimate, CapacityCheckTakesFiveHours) {
   auto p = Parse(std::string(kCell) + "rest 30min\ndischarge 0.2C until voltage<=2.75V\n");
