@@ -155,13 +155,20 @@ EngineOutput StepEngine::Start(double t_s, const std::optional<Reading>& initial
   return out;
 }
 
+double StepEngine::MinPeriod() const {
+  const Step* s = current_step();
+  return s != nullptr ? s->sample_period_s : 0.0;
+}
+
 std::optional<std::string> StepEngine::EndReason(const EndConditions& e, const Reading& r, double elapsed, double charge_mah,
                                                  double energy_wh) const {
   if (e.voltage_below_v && r.voltage_v <= *e.voltage_below_v)
     return fmt::format("voltage {:.3f} V <= {:.3f} V", r.voltage_v, *e.voltage_below_v);
   if (e.voltage_above_v && r.voltage_v >= *e.voltage_above_v)
     return fmt::format("voltage {:.3f} V >= {:.3f} V", r.voltage_v, *e.voltage_above_v);
-  if (e.current_below_a && std::abs(r.current_a) <= *e.current_below_a)
+  // A taper is judged only after two sample periods in the step: a supply
+  // that is still ramping up must not end a charge at once.
+  if (e.current_below_a && std::abs(r.current_a) <= *e.current_below_a && elapsed >= 2.0 * MinPeriod())
     return fmt::format("current {:.4f} A <= {:.4f} A", std::abs(r.current_a), *e.current_below_a);
   if (e.time_s && elapsed >= *e.time_s - kEps) return fmt::format("time {:.1f} s >= {:.1f} s", elapsed, *e.time_s);
   if (e.charge_mah && std::abs(charge_mah) >= *e.charge_mah)

@@ -109,6 +109,7 @@ class StepEngine {
   std::optional<std::string> EndReason(const EndConditions& e, const Reading& r, double elapsed_s, double charge_mah,
                                        double energy_wh) const;
   Setpoint SetpointFor(const Step& step) const;
+  double MinPeriod() const;  // the current step's sample period
   Setpoint SegmentSetpoint(const Segment& g) const;
   void Schedule(double t_s, bool changed_now);
 
