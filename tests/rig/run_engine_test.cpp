@@ -226,6 +226,19 @@ TEST(RunEngineAborts, OverTemperature) {
   ExpectAbortedWithLoadOff(b, r, "over-temperature");
 }
 
+// The open-circuit reading at t = 0 is judged before the load is ever applied:
+// an alkaline procedure on a charged Li-ion cell stops there.
+TEST(RunEngineAborts, WrongCellStopsBeforeTheLoadIsApplied) {
+  Bench b;
+  auto p = ParseProcedure("cell alkaline rated=2500mAh nominal=1.5V max=1.65V cutoff=0.8V\ndischarge 3.9Ohm until voltage<=0.8V\n", "t");
+  ASSERT_TRUE(p.ok());
+  RunResult r = b.Run(p.plan);
+  ExpectAbortedWithLoadOff(b, r, "before start: over-voltage");
+  auto s = b.Samples(r.run_id);
+  ASSERT_EQ(s.size(), 1u);
+  EXPECT_DOUBLE_EQ(s[0].current_a, 0.0);
+}
+
 TEST(RunEngineAborts, OverCharge) {
   Bench b;
   RunResult r = b.Run(Compile("safety max-charge=100mAh\ndischarge 1A until voltage<=2.75V\n"));
