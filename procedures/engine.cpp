@@ -1,20 +1,18 @@
 #include "procedures/engine.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
 #include <cstdlib>
 #include <map>
 #include <sstream>
 
-#include <fmt/format.h>
-
 namespace kp {
 namespace {
 constexpr double kEps = 1e-9;
 
-bool HasSegments(StepKind k) {
-  return k == StepKind::kPulseTrain || k == StepKind::kDutyCycle || k == StepKind::kResistanceTest;
-}
+bool HasSegments(StepKind k) { return k == StepKind::kPulseTrain || k == StepKind::kDutyCycle || k == StepKind::kResistanceTest; }
 }  // namespace
 
 StepEngine::StepEngine(const Plan& plan) : plan_(plan), loops_(plan.loops.size()) {}
@@ -30,7 +28,8 @@ Setpoint StepEngine::SegmentSetpoint(const Segment& g) const {
 Setpoint StepEngine::SetpointFor(const Step& step) const {
   Setpoint sp;
   switch (step.kind) {
-    case StepKind::kRest: break;
+    case StepKind::kRest:
+      break;
     case StepKind::kConstantCurrent:
       sp.load_on = true;
       sp.mode = LoadMode::kCurrent;
@@ -234,8 +233,8 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
       std::string reason;
       if (std::abs(di) > 1e-9) {
         res.value = (res.u1_v - res.u2_v) / di;
-        res.detail = fmt::format("R_dc = {:.6g} Ohm = ({:.6f} V - {:.6f} V) / ({:.6f} A - {:.6f} A) at t = {:.3f} s and {:.3f} s", res.value,
-                                 res.u1_v, res.u2_v, res.i2_a, res.i1_a, res.t1_s, res.t2_s);
+        res.detail = fmt::format("R_dc = {:.6g} Ohm = ({:.6f} V - {:.6f} V) / ({:.6f} A - {:.6f} A) at t = {:.3f} s and {:.3f} s",
+                                 res.value, res.u1_v, res.u2_v, res.i2_a, res.i1_a, res.t1_s, res.t2_s);
         out.results.push_back(res);
         reason = fmt::format("resistance measured: {:.2f} mOhm", res.value * 1000.0);
       } else {
@@ -263,7 +262,6 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
   return out;
 }
 
-
 void StepEngine::Integrate(const Reading& r) {
   if (finished()) return;
   if (last_ && r.t_s > last_->t_s) {
@@ -284,8 +282,8 @@ void StepEngine::Integrate(const Reading& r) {
 }
 
 std::string StepEngine::Snapshot(double t_s) const {
-  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_, step_charge_mah_,
-                              step_energy_wh_);
+  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_,
+                              step_charge_mah_, step_energy_wh_);
   if (dcir_) s += fmt::format(" u1={:.17g} i1={:.17g} t1={:.17g}", dcir_->u1_v, dcir_->i1_a, dcir_->t1_s - t_s);
   for (size_t i = 0; i < loops_.size(); ++i)
     s += fmt::format(" loop{}={}:{:.17g}:{:.17g}:{:.17g}", i, loops_[i].iter, t_s - loops_[i].start_s, loops_[i].charge_mah,

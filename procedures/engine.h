@@ -46,9 +46,9 @@ struct StepChange {
 // A figure a step measured (the DC resistance of a dcir step).
 struct StepResult {
   int step = -1;
-  std::string name;    // "dc-resistance"
-  double value = 0.0;  // SI base unit (Ohm)
-  std::string detail;  // the readings it came from, human-readable
+  std::string name;                           // "dc-resistance"
+  double value = 0.0;                         // SI base unit (Ohm)
+  std::string detail;                         // the readings it came from, human-readable
   double u1_v = 0.0, i1_a = 0.0, t1_s = 0.0;  // reading at the end of the first current
   double u2_v = 0.0, i2_a = 0.0, t2_s = 0.0;  // reading at the end of the second current
 };

@@ -1,10 +1,10 @@
 #include "procedures/estimate.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
-
-#include <fmt/format.h>
 
 #include "procedures/units.h"
 
@@ -17,9 +17,12 @@ constexpr int kMaxExecutions = 100000;
 double SegmentCurrentA(const Segment& g, const CellSpec& cell) {
   double v = cell.nominal_v > 0 ? cell.nominal_v : 1.0;
   switch (g.mode) {
-    case LoadMode::kCurrent: return g.level;
-    case LoadMode::kPower: return g.level / v;
-    case LoadMode::kResistance: return v / g.level;
+    case LoadMode::kCurrent:
+      return g.level;
+    case LoadMode::kPower:
+      return g.level / v;
+    case LoadMode::kResistance:
+      return v / g.level;
   }
   return 0.0;
 }
@@ -34,11 +37,16 @@ std::string Hms(double s) {
 double MeanCurrentA(const Step& step, const CellSpec& cell) {
   double v = cell.nominal_v > 0 ? cell.nominal_v : 1.0;
   switch (step.kind) {
-    case StepKind::kRest: return 0.0;
-    case StepKind::kConstantCurrent: return step.current_a;
-    case StepKind::kConstantPower: return step.power_w / v;
-    case StepKind::kConstantResistance: return v / step.resistance_ohm;
-    case StepKind::kCharge: return -step.charge_current_a;
+    case StepKind::kRest:
+      return 0.0;
+    case StepKind::kConstantCurrent:
+      return step.current_a;
+    case StepKind::kConstantPower:
+      return step.power_w / v;
+    case StepKind::kConstantResistance:
+      return v / step.resistance_ohm;
+    case StepKind::kCharge:
+      return -step.charge_current_a;
     case StepKind::kPulseTrain:
     case StepKind::kDutyCycle:
     case StepKind::kResistanceTest: {
@@ -136,7 +144,8 @@ PlanEstimate EstimatePlan(const Plan& plan) {
         ++st.iter;
         if (l.count == 0 || st.iter < l.count) {
           for (size_t inner = k + 1; inner < plan.loops.size(); ++inner)
-            if (plan.loops[inner].first_step >= l.first_step && plan.loops[inner].last_step <= l.last_step) loops[inner] = LoopRun{};
+            if (plan.loops[inner].first_step >= l.first_step && plan.loops[inner].last_step <= l.last_step)
+              loops[inner] = LoopRun{};
           next = l.first_step;
           break;
         }
@@ -152,40 +161,47 @@ PlanEstimate EstimatePlan(const Plan& plan) {
 std::string DescribePlan(const Plan& plan, const PlanEstimate& est) {
   const CellSpec& c = plan.cell;
   const SafetyLimits& l = plan.limits;
-  std::string out = fmt::format("procedure '{}': {} cell, rated {:g} mAh, nominal {:g} V, max {:g} V, cutoff {:g} V, max {:g} degC\n",
-                                plan.name, c.chemistry, c.rated_mah, c.nominal_v, c.max_v, c.cutoff_v, c.max_temp_c);
-  out += fmt::format("safety: temperature < {:g} degC ({}), voltage {:g} V .. {:g} V, current <= {}, time <= {}, charge <= {:g} mAh\n",
-                     l.max_temp_c,
-                     l.over_temp_action == OverTempAction::kPause
-                         ? fmt::format("pause, resume at {:g} degC, abort at {:g} degC", l.resume_temp_c, l.hard_temp_c)
-                         : std::string("abort"),
-                     l.min_voltage_v, l.max_voltage_v, FormatQuantity(l.max_current_a, Dimension::kCurrent), Hms(l.max_total_s),
-                     l.max_charge_mah);
+  std::string out =
+      fmt::format("procedure '{}': {} cell, rated {:g} mAh, nominal {:g} V, max {:g} V, cutoff {:g} V, max {:g} degC\n",
+                  plan.name, c.chemistry, c.rated_mah, c.nominal_v, c.max_v, c.cutoff_v, c.max_temp_c);
+  out += fmt::format(
+      "safety: temperature < {:g} degC ({}), voltage {:g} V .. {:g} V, current <= {}, time <= {}, charge <= {:g} mAh\n",
+      l.max_temp_c,
+      l.over_temp_action == OverTempAction::kPause
+          ? fmt::format("pause, resume at {:g} degC, abort at {:g} degC", l.resume_temp_c, l.hard_temp_c)
+          : std::string("abort"),
+      l.min_voltage_v, l.max_voltage_v, FormatQuantity(l.max_current_a, Dimension::kCurrent), Hms(l.max_total_s),
+      l.max_charge_mah);
   out += "steps (estimates assume a full cell at the start; charge > 0 is discharged):\n";
   for (size_t i = 0; i < plan.steps.size(); ++i) {
     for (const Loop& lp : plan.loops) {
       if (lp.first_step != static_cast<int>(i)) continue;
-      if (lp.count > 0) out += fmt::format("  repeat {} times, steps {}-{} (line {})\n", lp.count, lp.first_step + 1, lp.last_step + 1, lp.source_line);
-      else out += fmt::format("  repeat until the loop's condition holds, steps {}-{} (line {})\n", lp.first_step + 1, lp.last_step + 1, lp.source_line);
+      if (lp.count > 0)
+        out += fmt::format("  repeat {} times, steps {}-{} (line {})\n", lp.count, lp.first_step + 1, lp.last_step + 1,
+                           lp.source_line);
+      else
+        out += fmt::format("  repeat until the loop's condition holds, steps {}-{} (line {})\n", lp.first_step + 1,
+                           lp.last_step + 1, lp.source_line);
     }
     const Step& s = plan.steps[i];
     const StepEstimate& e = est.steps[i];
     std::string figures = e.executions == 0 ? "not reached"
-                          : !e.known       ? "duration unknown (ends on a condition that cannot be estimated)"
-                                           : fmt::format("~{} and {:+.1f} mAh{}", Hms(e.duration_s), e.charge_mah,
-                                                         e.executions > 1 ? fmt::format(" over {} runs", e.executions) : "");
-    out += fmt::format("  {:>3}. [{}] {}  (line {}, sample every {}{})\n       {}\n", i + 1, StepKindName(s.kind), s.label, s.source_line,
-                       FormatQuantity(s.sample_period_s, Dimension::kTime),
-                       s.log_change_v ? fmt::format(", log on {} change", FormatQuantity(*s.log_change_v, Dimension::kVoltage)) : "",
-                       figures);
+                          : !e.known        ? "duration unknown (ends on a condition that cannot be estimated)"
+                                            : fmt::format("~{} and {:+.1f} mAh{}", Hms(e.duration_s), e.charge_mah,
+                                                   e.executions > 1 ? fmt::format(" over {} runs", e.executions) : "");
+    out += fmt::format(
+        "  {:>3}. [{}] {}  (line {}, sample every {}{})\n       {}\n", i + 1, StepKindName(s.kind), s.label, s.source_line,
+        FormatQuantity(s.sample_period_s, Dimension::kTime),
+        s.log_change_v ? fmt::format(", log on {} change", FormatQuantity(*s.log_change_v, Dimension::kVoltage)) : "", figures);
     for (const Segment& g : s.segments) {
       std::string level = g.mode == LoadMode::kCurrent ? FormatQuantity(g.level, Dimension::kCurrent)
                           : g.mode == LoadMode::kPower ? FormatQuantity(g.level, Dimension::kPower)
                                                        : FormatQuantity(g.level, Dimension::kResistance);
       out += fmt::format("         - {} {} for {}{}\n", g.name, level, FormatQuantity(g.duration_s, Dimension::kTime),
-                         g.compressed() ? fmt::format(" (compressed from {}, x{:.4g})", FormatQuantity(g.real_duration_s, Dimension::kTime),
-                                                      g.real_duration_s / g.duration_s)
-                                        : "");
+                         g.compressed()
+                             ? fmt::format(" (compressed from {}, x{:.4g})", FormatQuantity(g.real_duration_s, Dimension::kTime),
+                                           g.real_duration_s / g.duration_s)
+                             : "");
     }
     if (s.kind == StepKind::kPulseTrain || s.kind == StepKind::kDutyCycle) {
       Step real = s;
@@ -194,13 +210,14 @@ std::string DescribePlan(const Plan& plan, const PlanEstimate& est) {
         compressed = compressed || g.compressed();
         g.duration_s = g.real_duration_s;
       }
-      out += fmt::format("         mean current {}{}\n", FormatQuantity(MeanCurrentA(s, c), Dimension::kCurrent),
-                         compressed ? fmt::format(" as run; {} at real timing", FormatQuantity(MeanCurrentA(real, c), Dimension::kCurrent))
-                                    : "");
+      out += fmt::format(
+          "         mean current {}{}\n", FormatQuantity(MeanCurrentA(s, c), Dimension::kCurrent),
+          compressed ? fmt::format(" as run; {} at real timing", FormatQuantity(MeanCurrentA(real, c), Dimension::kCurrent))
+                     : "");
     }
   }
-  out += fmt::format("estimated total: {}{}, {:+.1f} mAh net\n", Hms(est.total_s), est.complete ? "" : " or more (some ends unknown)",
-                     est.total_mah);
+  out += fmt::format("estimated total: {}{}, {:+.1f} mAh net\n", Hms(est.total_s),
+                     est.complete ? "" : " or more (some ends unknown)", est.total_mah);
   return out;
 }
 

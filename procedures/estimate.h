@@ -12,10 +12,10 @@
 namespace kp {
 
 struct StepEstimate {
-  int executions = 0;        // how many times the step runs (loops)
-  double duration_s = 0.0;   // summed over executions
-  double charge_mah = 0.0;   // net, > 0 discharged; summed over executions
-  bool known = true;         // false when an end could not be estimated (temperature...)
+  int executions = 0;       // how many times the step runs (loops)
+  double duration_s = 0.0;  // summed over executions
+  double charge_mah = 0.0;  // net, > 0 discharged; summed over executions
+  bool known = true;        // false when an end could not be estimated (temperature...)
 };
 
 struct PlanEstimate {

@@ -1,22 +1,30 @@
 #include "procedures/plan.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
-
-#include <fmt/format.h>
 
 namespace kp {
 
 const char* StepKindName(StepKind kind) {
   switch (kind) {
-    case StepKind::kRest: return "rest";
-    case StepKind::kConstantCurrent: return "constant-current discharge";
-    case StepKind::kConstantPower: return "constant-power discharge";
-    case StepKind::kConstantResistance: return "constant-resistance discharge";
-    case StepKind::kPulseTrain: return "pulse train";
-    case StepKind::kDutyCycle: return "duty cycle";
-    case StepKind::kResistanceTest: return "dc resistance";
-    case StepKind::kCharge: return "charge";
+    case StepKind::kRest:
+      return "rest";
+    case StepKind::kConstantCurrent:
+      return "constant-current discharge";
+    case StepKind::kConstantPower:
+      return "constant-power discharge";
+    case StepKind::kConstantResistance:
+      return "constant-resistance discharge";
+    case StepKind::kPulseTrain:
+      return "pulse train";
+    case StepKind::kDutyCycle:
+      return "duty cycle";
+    case StepKind::kResistanceTest:
+      return "dc resistance";
+    case StepKind::kCharge:
+      return "charge";
   }
   return "?";
 }
@@ -55,33 +63,42 @@ std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig) {
   auto where = [](const Step& s) { return fmt::format("line {}: ", s.source_line); };
   for (Step& s : plan.steps) {
     if (s.sample_period_s < rig.min_sample_period_s) {
-      problems.push_back(where(s) + fmt::format("sample period {:g} s is faster than the rig can read ({:g} s)", s.sample_period_s,
-                                                rig.min_sample_period_s));
+      problems.push_back(where(s) + fmt::format("sample period {:g} s is faster than the rig can read ({:g} s)",
+                                                s.sample_period_s, rig.min_sample_period_s));
     }
     auto check_level = [&](LoadMode mode, double level, const std::string& what) {
       if (mode == LoadMode::kCurrent && level > rig.max_current_a)
-        problems.push_back(where(s) + fmt::format("{} asks {:g} A; the rig's load sinks at most {:g} A", what, level, rig.max_current_a));
+        problems.push_back(where(s) +
+                           fmt::format("{} asks {:g} A; the rig's load sinks at most {:g} A", what, level, rig.max_current_a));
       if (mode == LoadMode::kPower && level > rig.max_power_w)
-        problems.push_back(where(s) + fmt::format("{} asks {:g} W; the rig's load takes at most {:g} W", what, level, rig.max_power_w));
+        problems.push_back(where(s) +
+                           fmt::format("{} asks {:g} W; the rig's load takes at most {:g} W", what, level, rig.max_power_w));
     };
     switch (s.kind) {
-      case StepKind::kConstantCurrent: check_level(LoadMode::kCurrent, s.current_a, "the discharge"); break;
-      case StepKind::kConstantPower: check_level(LoadMode::kPower, s.power_w, "the discharge"); break;
+      case StepKind::kConstantCurrent:
+        check_level(LoadMode::kCurrent, s.current_a, "the discharge");
+        break;
+      case StepKind::kConstantPower:
+        check_level(LoadMode::kPower, s.power_w, "the discharge");
+        break;
       case StepKind::kCharge:
         if (!rig.has_supply) problems.push_back(where(s) + "a charge step needs a supply, and this rig has none");
         if (s.charge_voltage_v > rig.max_voltage_v)
-          problems.push_back(where(s) + fmt::format("charge to {:g} V exceeds the rig's {:g} V", s.charge_voltage_v, rig.max_voltage_v));
+          problems.push_back(where(s) +
+                             fmt::format("charge to {:g} V exceeds the rig's {:g} V", s.charge_voltage_v, rig.max_voltage_v));
         break;
-      default: break;
+      default:
+        break;
     }
     for (const Segment& g : s.segments) {
       check_level(g.mode, g.level, "segment '" + g.name + "'");
       // A reading just after the edge and one just before the next need two
       // full reading times inside the segment.
       if (g.duration_s < 2.0 * rig.min_sample_period_s)
-        problems.push_back(where(s) + fmt::format("segment '{}' lasts {:g} s, shorter than two readings of this rig ({:g} s each); "
-                                                  "it could not be sampled",
-                                                  g.name, g.duration_s, rig.min_sample_period_s));
+        problems.push_back(where(s) +
+                           fmt::format("segment '{}' lasts {:g} s, shorter than two readings of this rig ({:g} s each); "
+                                       "it could not be sampled",
+                                       g.name, g.duration_s, rig.min_sample_period_s));
     }
   }
   return problems;

@@ -49,7 +49,7 @@ struct EndConditions {
   std::optional<double> voltage_above_v;
   std::optional<double> current_below_a;  // magnitude, for charge tapers
   std::optional<double> time_s;
-  std::optional<double> charge_mah;       // magnitude delivered (either sign)
+  std::optional<double> charge_mah;  // magnitude delivered (either sign)
   std::optional<double> energy_wh;
   std::optional<double> temperature_above_c;
   bool any() const {
@@ -85,9 +85,9 @@ struct Segment {
 struct Step {
   StepKind kind = StepKind::kRest;
   std::string label;
-  double current_a = 0.0;       // kConstantCurrent (> 0 discharges)
-  double power_w = 0.0;         // kConstantPower
-  double resistance_ohm = 0.0;  // kConstantResistance
+  double current_a = 0.0;         // kConstantCurrent (> 0 discharges)
+  double power_w = 0.0;           // kConstantPower
+  double resistance_ohm = 0.0;    // kConstantResistance
   std::vector<Segment> segments;  // kPulseTrain, kDutyCycle, kResistanceTest
   std::string profile_name;       // kDutyCycle
   double charge_current_a = 0.0;  // kCharge: constant-current phase (supply limit)

@@ -1,13 +1,13 @@
 #include "procedures/procedure_parser.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cctype>
 #include <cmath>
 #include <cstdlib>
 #include <map>
 #include <optional>
-
-#include <fmt/format.h>
 
 #include "procedures/units.h"
 
@@ -54,7 +54,8 @@ std::vector<Tok> Lex(std::string_view line) {
       t.kind = Tok::kWord;
       t.text = std::string(line.substr(i, j - i));
       i = j;
-    } else if (std::isdigit(c) != 0 || ((c == '-' || c == '.') && i + 1 < n && std::isdigit(static_cast<unsigned char>(line[i + 1])) != 0)) {
+    } else if (std::isdigit(c) != 0 ||
+               ((c == '-' || c == '.') && i + 1 < n && std::isdigit(static_cast<unsigned char>(line[i + 1])) != 0)) {
       size_t j = i;
       if (line[j] == '-') ++j;
       int dots = 0;
@@ -110,8 +111,8 @@ struct Block {
   enum Kind { kRepeat, kProfile } kind;
   int line = 0;
   int col = 0;
-  Loop loop;          // kRepeat
-  std::string name;   // kProfile
+  Loop loop;         // kRepeat
+  std::string name;  // kProfile
   std::vector<Segment> segments;
 };
 
@@ -167,9 +168,12 @@ class Parser {
   [[noreturn]] void Fail(const Tok& t, std::string message) const { throw LineError{t.col, std::move(message)}; }
   static std::string Describe(const Tok& t) {
     switch (t.kind) {
-      case Tok::kEnd: return "end of line";
-      case Tok::kString: return "\"" + t.text + "\"";
-      default: return "'" + t.text + "'";
+      case Tok::kEnd:
+        return "end of line";
+      case Tok::kString:
+        return "\"" + t.text + "\"";
+      default:
+        return "'" + t.text + "'";
     }
   }
   const Tok& ExpectWord(const char* what) {
@@ -200,8 +204,7 @@ class Parser {
     return Convert(t, want, what);
   }
   double Convert(const Tok& t, Dimension want, const char* what) {
-    if (t.unit.empty())
-      Fail(t, fmt::format("'{}' has no unit: give {} with a unit ({})", t.text, what, UnitsOf(want)));
+    if (t.unit.empty()) Fail(t, fmt::format("'{}' has no unit: give {} with a unit ({})", t.text, what, UnitsOf(want)));
     std::optional<UnitInfo> u = ParseUnit(t.unit);
     if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
     if (u->dimension == Dimension::kCRate && want == Dimension::kCurrent) {
@@ -231,19 +234,27 @@ class Parser {
   Level LoadLevel(const char* what, bool allow_zero) {
     const Tok& t = Next();
     if (t.kind != Tok::kNumber)
-      Fail(t, fmt::format("expected {} (a current like 500mA or 0.2C, a power like 2W, or a resistance like 3.9Ohm), found {}", what,
-                          Describe(t)));
-    if (t.unit.empty()) Fail(t, fmt::format("'{}' has no unit: give {} as a current, power or resistance (A, W, Ohm)", t.text, what));
+      Fail(t, fmt::format("expected {} (a current like 500mA or 0.2C, a power like 2W, or a resistance like 3.9Ohm), found {}",
+                          what, Describe(t)));
+    if (t.unit.empty())
+      Fail(t, fmt::format("'{}' has no unit: give {} as a current, power or resistance (A, W, Ohm)", t.text, what));
     std::optional<UnitInfo> u = ParseUnit(t.unit);
     if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
     Level l{LoadMode::kCurrent, 0.0, t.col};
     switch (u->dimension) {
       case Dimension::kCurrent:
-      case Dimension::kCRate: l.value = Convert(t, Dimension::kCurrent, what); break;
-      case Dimension::kPower: l = {LoadMode::kPower, t.num * u->scale, t.col}; break;
-      case Dimension::kResistance: l = {LoadMode::kResistance, t.num * u->scale, t.col}; break;
+      case Dimension::kCRate:
+        l.value = Convert(t, Dimension::kCurrent, what);
+        break;
+      case Dimension::kPower:
+        l = {LoadMode::kPower, t.num * u->scale, t.col};
+        break;
+      case Dimension::kResistance:
+        l = {LoadMode::kResistance, t.num * u->scale, t.col};
+        break;
       default:
-        Fail(t, fmt::format("{} must be a current, power or resistance, but '{}' is a {}", what, t.text, DimensionName(u->dimension)));
+        Fail(t, fmt::format("{} must be a current, power or resistance, but '{}' is a {}", what, t.text,
+                            DimensionName(u->dimension)));
     }
     if (l.value < 0.0) Fail(t, fmt::format("{} cannot be negative (discharge levels are positive)", what));
     if (l.value == 0.0 && (!allow_zero || l.mode != LoadMode::kCurrent))
@@ -254,7 +265,8 @@ class Parser {
   Segment SegmentSpec(const char* what) {
     Level l = LoadLevel(what, true);
     const Tok& slash = Next();
-    if (slash.kind != Tok::kSlash) Fail(slash, fmt::format("expected '/' and a duration after the level (as in 2A/10s), found {}", Describe(slash)));
+    if (slash.kind != Tok::kSlash)
+      Fail(slash, fmt::format("expected '/' and a duration after the level (as in 2A/10s), found {}", Describe(slash)));
     const Tok& d = Peek();
     double dur = Positive(Quantity(Dimension::kTime, "segment duration"), d, "a segment's duration");
     Segment g;
@@ -351,9 +363,12 @@ class Parser {
 
   static std::string LevelText(LoadMode m, double v) {
     switch (m) {
-      case LoadMode::kCurrent: return FormatQuantity(v, Dimension::kCurrent);
-      case LoadMode::kPower: return FormatQuantity(v, Dimension::kPower);
-      case LoadMode::kResistance: return FormatQuantity(v, Dimension::kResistance);
+      case LoadMode::kCurrent:
+        return FormatQuantity(v, Dimension::kCurrent);
+      case LoadMode::kPower:
+        return FormatQuantity(v, Dimension::kPower);
+      case LoadMode::kResistance:
+        return FormatQuantity(v, Dimension::kResistance);
     }
     return "?";
   }
@@ -369,14 +384,16 @@ class Parser {
 
   // ---- statements ----
   void Statement() {
-    const Tok& kw = ExpectWord("a statement (cell, safety, rest, discharge, pulse, cycle, dcir, charge, repeat, profile, end...)");
+    const Tok& kw =
+        ExpectWord("a statement (cell, safety, rest, discharge, pulse, cycle, dcir, charge, repeat, profile, end...)");
     const std::string& k = kw.text;
     bool in_profile = !blocks_.empty() && blocks_.back().kind == Block::kProfile;
     if (in_profile && k != "phase" && k != "end")
       Fail(kw, fmt::format("inside 'profile' only 'phase' lines and 'end' are allowed, found '{}'", k));
     if (k == "name") {
       const Tok& t = Next();
-      if (t.kind != Tok::kString || t.text.empty()) Fail(t, "expected the procedure name in quotes, as in name \"capacity check\"");
+      if (t.kind != Tok::kString || t.text.empty())
+        Fail(t, "expected the procedure name in quotes, as in name \"capacity check\"");
       plan_.name = t.text;
       ExpectEnd();
     } else if (k == "cell") {
@@ -386,14 +403,18 @@ class Parser {
     } else if (k == "sample") {
       Options([&](const Tok& key) {
         const Tok& vt = Peek();
-        if (key.text == "every") default_period_s_ = Positive(Quantity(Dimension::kTime, "the sample period"), vt, "the sample period");
-        else if (key.text == "log-change") default_log_change_v_ = Positive(Quantity(Dimension::kVoltage, "the logging threshold"), vt, "log-change");
-        else Fail(key, fmt::format("unknown sampling option '{}': use every= or log-change=", key.text));
+        if (key.text == "every")
+          default_period_s_ = Positive(Quantity(Dimension::kTime, "the sample period"), vt, "the sample period");
+        else if (key.text == "log-change")
+          default_log_change_v_ = Positive(Quantity(Dimension::kVoltage, "the logging threshold"), vt, "log-change");
+        else
+          Fail(key, fmt::format("unknown sampling option '{}': use every= or log-change=", key.text));
       });
     } else if (k == "profile") {
       const Tok& n = ExpectWord("the profile's name");
       ExpectEnd();
-      if (profiles_.count(n.text)) Fail(n, fmt::format("profile '{}' is already defined on line {}", n.text, profiles_line_[n.text]));
+      if (profiles_.count(n.text))
+        Fail(n, fmt::format("profile '{}' is already defined on line {}", n.text, profiles_line_[n.text]));
       Block b{Block::kProfile, line_, kw.col, {}, n.text, {}};
       blocks_.push_back(std::move(b));
     } else if (k == "phase") {
@@ -477,19 +498,30 @@ class Parser {
     Options([&](const Tok& key) {
       const Tok& vt = Peek();
       const std::string& k = key.text;
-      if (k == "max-temp") l.max_temp_c = Quantity(Dimension::kTemperature, "max-temp"), set_.max_temp = true;
-      else if (k == "min-voltage") l.min_voltage_v = Quantity(Dimension::kVoltage, "min-voltage"), set_.min_v = true;
-      else if (k == "max-voltage") l.max_voltage_v = Positive(Quantity(Dimension::kVoltage, "max-voltage"), vt, "max-voltage"), set_.max_v = true;
-      else if (k == "max-current") l.max_current_a = Positive(Quantity(Dimension::kCurrent, "max-current"), vt, "max-current"), set_.max_i = true;
-      else if (k == "max-time") l.max_total_s = Positive(Quantity(Dimension::kTime, "max-time"), vt, "max-time"), set_.max_t = true;
-      else if (k == "max-charge") l.max_charge_mah = Positive(Quantity(Dimension::kCharge, "max-charge"), vt, "max-charge"), set_.max_q = true;
-      else if (k == "resume-temp") l.resume_temp_c = Quantity(Dimension::kTemperature, "resume-temp"), set_.resume = true, resume_col_ = vt.col;
-      else if (k == "hard-temp") l.hard_temp_c = Quantity(Dimension::kTemperature, "hard-temp"), set_.hard = true;
+      if (k == "max-temp")
+        l.max_temp_c = Quantity(Dimension::kTemperature, "max-temp"), set_.max_temp = true;
+      else if (k == "min-voltage")
+        l.min_voltage_v = Quantity(Dimension::kVoltage, "min-voltage"), set_.min_v = true;
+      else if (k == "max-voltage")
+        l.max_voltage_v = Positive(Quantity(Dimension::kVoltage, "max-voltage"), vt, "max-voltage"), set_.max_v = true;
+      else if (k == "max-current")
+        l.max_current_a = Positive(Quantity(Dimension::kCurrent, "max-current"), vt, "max-current"), set_.max_i = true;
+      else if (k == "max-time")
+        l.max_total_s = Positive(Quantity(Dimension::kTime, "max-time"), vt, "max-time"), set_.max_t = true;
+      else if (k == "max-charge")
+        l.max_charge_mah = Positive(Quantity(Dimension::kCharge, "max-charge"), vt, "max-charge"), set_.max_q = true;
+      else if (k == "resume-temp")
+        l.resume_temp_c = Quantity(Dimension::kTemperature, "resume-temp"), set_.resume = true, resume_col_ = vt.col;
+      else if (k == "hard-temp")
+        l.hard_temp_c = Quantity(Dimension::kTemperature, "hard-temp"), set_.hard = true;
       else if (k == "when-hot") {
         const Tok& a = ExpectWord("'abort' or 'pause'");
-        if (a.text == "abort") l.over_temp_action = OverTempAction::kAbort;
-        else if (a.text == "pause") l.over_temp_action = OverTempAction::kPause, pause_line_ = line_, pause_col_ = a.col;
-        else Fail(a, fmt::format("when-hot takes 'abort' or 'pause', not '{}'", a.text));
+        if (a.text == "abort")
+          l.over_temp_action = OverTempAction::kAbort;
+        else if (a.text == "pause")
+          l.over_temp_action = OverTempAction::kPause, pause_line_ = line_, pause_col_ = a.col;
+        else
+          Fail(a, fmt::format("when-hot takes 'abort' or 'pause', not '{}'", a.text));
       } else {
         Fail(key, fmt::format("unknown safety limit '{}': use max-temp=, min-voltage=, max-voltage=, max-current=, max-time=, "
                               "max-charge=, when-hot=, resume-temp=, hard-temp=",
@@ -519,7 +551,7 @@ class Parser {
       site.level_col = l.col;
       s.kind = l.mode == LoadMode::kCurrent ? StepKind::kConstantCurrent
                : l.mode == LoadMode::kPower ? StepKind::kConstantPower
-                                             : StepKind::kConstantResistance;
+                                            : StepKind::kConstantResistance;
       (l.mode == LoadMode::kCurrent ? s.current_a : l.mode == LoadMode::kPower ? s.power_w : s.resistance_ohm) = l.value;
       StepTail(s, true);
     } else if (k == "pulse") {
@@ -551,7 +583,8 @@ class Parser {
         int pick = -1;
         for (size_t i = 0; i < s.segments.size(); ++i) {
           const Segment& g = s.segments[i];
-          if (g.mode == LoadMode::kCurrent && g.level == low && (pick < 0 || g.duration_s > s.segments[pick].duration_s)) pick = static_cast<int>(i);
+          if (g.mode == LoadMode::kCurrent && g.level == low && (pick < 0 || g.duration_s > s.segments[pick].duration_s))
+            pick = static_cast<int>(i);
         }
         if (pick < 0) Fail(vt, "compress= needs a phase given as a current");
         if (to_s >= s.segments[pick].duration_s)
@@ -576,12 +609,14 @@ class Parser {
       const Tok& ct = Peek();
       site.level_col = ct.col;
       s.charge_current_a = Positive(Quantity(Dimension::kCurrent, "the charge current"), ct, "the charge current");
-      if (!PeekWord("to")) Fail(Peek(), fmt::format("expected 'to' and the constant-voltage setting (as in to 4.2V), found {}", Describe(Peek())));
+      if (!PeekWord("to"))
+        Fail(Peek(), fmt::format("expected 'to' and the constant-voltage setting (as in to 4.2V), found {}", Describe(Peek())));
       Next();
       const Tok& vt = Peek();
       s.charge_voltage_v = Positive(Quantity(Dimension::kVoltage, "the charge voltage"), vt, "the charge voltage");
       if (plan_.cell.max_v > 0 && s.charge_voltage_v > plan_.cell.max_v + 1e-9)
-        Fail(vt, fmt::format("charge voltage {} is above the cell's max {}", vt.text, FormatQuantity(plan_.cell.max_v, Dimension::kVoltage)));
+        Fail(vt, fmt::format("charge voltage {} is above the cell's max {}", vt.text,
+                             FormatQuantity(plan_.cell.max_v, Dimension::kVoltage)));
       StepTail(s, true);
     } else {
       Fail(kw, fmt::format("unknown statement '{}'", k));
@@ -618,7 +653,8 @@ class Parser {
     }
     if (!set_.max_i) l.max_current_a = std::max(0.1, 1.25 * most_a);
     if (l.over_temp_action == OverTempAction::kPause) {
-      if (!set_.resume) Error(pause_line_, pause_col_, "when-hot=pause needs resume-temp= (the temperature to continue at)");
+      if (!set_.resume)
+        Error(pause_line_, pause_col_, "when-hot=pause needs resume-temp= (the temperature to continue at)");
       else if (l.resume_temp_c >= l.max_temp_c)
         Error(pause_line_, resume_col_, "resume-temp must be below max-temp (hysteresis)");
       if (!set_.hard) l.hard_temp_c = l.max_temp_c + 10.0;
@@ -631,7 +667,8 @@ class Parser {
       for (const Segment& g : s.segments) too_much = too_much || (g.mode == LoadMode::kCurrent && over(g.level));
       if (too_much)
         Error(s.source_line, site.level_col,
-              fmt::format("this step asks more than the safety limit max-current={}", FormatQuantity(l.max_current_a, Dimension::kCurrent)));
+              fmt::format("this step asks more than the safety limit max-current={}",
+                          FormatQuantity(l.max_current_a, Dimension::kCurrent)));
       if (s.end.voltage_below_v && *s.end.voltage_below_v < l.min_voltage_v)
         Error(s.source_line, site.keyword_col,
               fmt::format("the step's voltage end {:g} V is below the safety min-voltage {:g} V: it would abort before it ends",
@@ -661,7 +698,8 @@ class Parser {
   std::map<std::string, int> profiles_line_;
   std::vector<StepSite> sites_;
   struct {
-    bool max_temp = false, min_v = false, max_v = false, max_i = false, max_t = false, max_q = false, resume = false, hard = false;
+    bool max_temp = false, min_v = false, max_v = false, max_i = false, max_t = false, max_q = false, resume = false,
+         hard = false;
   } set_;
   int pause_line_ = 0, pause_col_ = 1, resume_col_ = 1;
 };

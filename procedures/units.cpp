@@ -1,39 +1,59 @@
 #include "procedures/units.h"
 
-#include <cmath>
-
 #include <fmt/format.h>
+
+#include <cmath>
 
 namespace kp {
 
 const char* DimensionName(Dimension d) {
   switch (d) {
-    case Dimension::kCurrent: return "current";
-    case Dimension::kPower: return "power";
-    case Dimension::kResistance: return "resistance";
-    case Dimension::kVoltage: return "voltage";
-    case Dimension::kTime: return "time";
-    case Dimension::kCharge: return "charge";
-    case Dimension::kEnergy: return "energy";
-    case Dimension::kTemperature: return "temperature";
-    case Dimension::kCRate: return "C-rate";
-    case Dimension::kPercent: return "percentage";
+    case Dimension::kCurrent:
+      return "current";
+    case Dimension::kPower:
+      return "power";
+    case Dimension::kResistance:
+      return "resistance";
+    case Dimension::kVoltage:
+      return "voltage";
+    case Dimension::kTime:
+      return "time";
+    case Dimension::kCharge:
+      return "charge";
+    case Dimension::kEnergy:
+      return "energy";
+    case Dimension::kTemperature:
+      return "temperature";
+    case Dimension::kCRate:
+      return "C-rate";
+    case Dimension::kPercent:
+      return "percentage";
   }
   return "?";
 }
 
 const char* UnitsOf(Dimension d) {
   switch (d) {
-    case Dimension::kCurrent: return "uA, mA, A or a C-rate like 0.2C";
-    case Dimension::kPower: return "mW, W";
-    case Dimension::kResistance: return "mOhm, Ohm, kOhm";
-    case Dimension::kVoltage: return "mV, V";
-    case Dimension::kTime: return "ms, s, min, h";
-    case Dimension::kCharge: return "uAh, mAh, Ah";
-    case Dimension::kEnergy: return "mWh, Wh";
-    case Dimension::kTemperature: return "degC";
-    case Dimension::kCRate: return "C";
-    case Dimension::kPercent: return "%";
+    case Dimension::kCurrent:
+      return "uA, mA, A or a C-rate like 0.2C";
+    case Dimension::kPower:
+      return "mW, W";
+    case Dimension::kResistance:
+      return "mOhm, Ohm, kOhm";
+    case Dimension::kVoltage:
+      return "mV, V";
+    case Dimension::kTime:
+      return "ms, s, min, h";
+    case Dimension::kCharge:
+      return "uAh, mAh, Ah";
+    case Dimension::kEnergy:
+      return "mWh, Wh";
+    case Dimension::kTemperature:
+      return "degC";
+    case Dimension::kCRate:
+      return "C";
+    case Dimension::kPercent:
+      return "%";
   }
   return "?";
 }
@@ -71,19 +91,27 @@ std::string FormatQuantity(double v, Dimension d) {
       if (a != 0 && a < 1e-3) return fmt::format("{:g} uA", v * 1e6);
       if (a < 1.0) return fmt::format("{:g} mA", v * 1e3);
       return fmt::format("{:g} A", v);
-    case Dimension::kPower: return a < 1.0 ? fmt::format("{:g} mW", v * 1e3) : fmt::format("{:g} W", v);
-    case Dimension::kResistance: return a < 1.0 ? fmt::format("{:g} mOhm", v * 1e3) : fmt::format("{:g} Ohm", v);
-    case Dimension::kVoltage: return fmt::format("{:g} V", v);
+    case Dimension::kPower:
+      return a < 1.0 ? fmt::format("{:g} mW", v * 1e3) : fmt::format("{:g} W", v);
+    case Dimension::kResistance:
+      return a < 1.0 ? fmt::format("{:g} mOhm", v * 1e3) : fmt::format("{:g} Ohm", v);
+    case Dimension::kVoltage:
+      return fmt::format("{:g} V", v);
     case Dimension::kTime:
       if (a < 1.0) return fmt::format("{:g} ms", v * 1e3);
       if (a >= 3600.0) return fmt::format("{:g} h", v / 3600.0);
       if (a >= 120.0) return fmt::format("{:g} min", v / 60.0);
       return fmt::format("{:g} s", v);
-    case Dimension::kCharge: return fmt::format("{:g} mAh", v);
-    case Dimension::kEnergy: return fmt::format("{:g} Wh", v);
-    case Dimension::kTemperature: return fmt::format("{:g} degC", v);
-    case Dimension::kCRate: return fmt::format("{:g}C", v);
-    case Dimension::kPercent: return fmt::format("{:g}%", v);
+    case Dimension::kCharge:
+      return fmt::format("{:g} mAh", v);
+    case Dimension::kEnergy:
+      return fmt::format("{:g} Wh", v);
+    case Dimension::kTemperature:
+      return fmt::format("{:g} degC", v);
+    case Dimension::kCRate:
+      return fmt::format("{:g}C", v);
+    case Dimension::kPercent:
+      return fmt::format("{:g}%", v);
   }
   return fmt::format("{:g}", v);
 }

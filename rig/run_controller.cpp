@@ -1,9 +1,9 @@
 #include "rig/run_controller.h"
 
+#include <fmt/format.h>
+
 #include <cmath>
 #include <exception>
-
-#include <fmt/format.h>
 
 #include "rig/safety_monitor.h"
 
@@ -159,7 +159,8 @@ Status RunSession::Handle(const EngineOutput& out) {
   Store& store = rc_.store_;
   // Setpoint first: an edge is applied as close to its time as possible.
   if (out.setpoint) KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
-  for (const StepResult& res : out.results) KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "result", res.name + ": " + res.detail));
+  for (const StepResult& res : out.results)
+    KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "result", res.name + ": " + res.detail));
   for (const StepChange& c : out.changes) {
     if (c.ended_step >= 0) KP_RETURN_IF_ERROR(store.EndStep(run_id_, t_s_, c.reason));
     if (c.ended_step >= 0 || c.started_step < 0) last_reason_ = c.reason;
@@ -203,7 +204,8 @@ std::optional<RunResult> RunSession::PauseForHeat(const std::string& why) {
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
   engine_.Integrate(*prev_);  // integration restarts from the cooled, load-off reading
-  Status st = rc_.store_.AddEvent(run_id_, t_s_, "resume", fmt::format("cell cooled to {:.1f} degC; continuing", prev_->temperature_c));
+  Status st =
+      rc_.store_.AddEvent(run_id_, t_s_, "resume", fmt::format("cell cooled to {:.1f} degC; continuing", prev_->temperature_c));
   if (st.ok()) st = Handle(*out);
   if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
   return std::nullopt;
@@ -265,7 +267,8 @@ Result<RunResult> RunSession::Run() {
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
     }
     rc_.SafeOff();
-    return Finish(Outcome::kCompleted, last_reason_.empty() ? "procedure complete" : "procedure complete: " + last_reason_, "end");
+    return Finish(Outcome::kCompleted, last_reason_.empty() ? "procedure complete" : "procedure complete: " + last_reason_,
+                  "end");
   } catch (const std::exception& e) {
     return Finish(Outcome::kAborted, std::string("internal error: ") + e.what(), "fault");
   } catch (...) {

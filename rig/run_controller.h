@@ -29,11 +29,11 @@ namespace kp {
 
 // The instruments a run uses, borrowed from whoever assembled the rig.
 struct RigRoles {
-  LoadDriver* load = nullptr;              // required
-  MeterDriver* meter = nullptr;            // optional: cell voltage by 4-wire sense; else the load's reading
+  LoadDriver* load = nullptr;                // required
+  MeterDriver* meter = nullptr;              // optional: cell voltage by 4-wire sense; else the load's reading
   ThermometerDriver* thermometer = nullptr;  // required for safety
-  SupplyDriver* supply = nullptr;          // optional: needed by charge steps
-  std::string description;                 // "sim", "rig.toml"
+  SupplyDriver* supply = nullptr;            // optional: needed by charge steps
+  std::string description;                   // "sim", "rig.toml"
 };
 
 struct RunOptions {

@@ -1,8 +1,8 @@
 #include "rig/safety_monitor.h"
 
-#include <cmath>
-
 #include <fmt/format.h>
+
+#include <cmath>
 
 namespace kp {
 
@@ -10,8 +10,9 @@ SafetyVerdict SafetyMonitor::Check(const Reading& r, double delivered_mah) const
   auto abort = [](std::string why) { return SafetyVerdict{SafetyVerdict::kAbort, std::move(why)}; };
   if (r.temperature_c >= limits_.max_temp_c) {
     if (limits_.over_temp_action == OverTempAction::kPause && r.temperature_c < limits_.hard_temp_c)
-      return {SafetyVerdict::kPause, fmt::format("over-temperature: cell at {:.1f} degC, limit {:.1f} degC; pausing until {:.1f} degC",
-                                                 r.temperature_c, limits_.max_temp_c, limits_.resume_temp_c)};
+      return {SafetyVerdict::kPause,
+              fmt::format("over-temperature: cell at {:.1f} degC, limit {:.1f} degC; pausing until {:.1f} degC", r.temperature_c,
+                          limits_.max_temp_c, limits_.resume_temp_c)};
     double limit = limits_.over_temp_action == OverTempAction::kPause ? limits_.hard_temp_c : limits_.max_temp_c;
     return abort(fmt::format("over-temperature: cell at {:.1f} degC, limit {:.1f} degC", r.temperature_c, limit));
   }

@@ -32,7 +32,8 @@ int RunCheck(const CheckOptions& opt) {
 
 void RegisterCheck(CliRegistry& r) {
   static CheckOptions opt;
-  CLI::App* c = r.Add("check", "Validate a procedure file and print the expanded plan with estimates", [] { return RunCheck(opt); });
+  CLI::App* c =
+      r.Add("check", "Validate a procedure file and print the expanded plan with estimates", [] { return RunCheck(opt); });
   c->add_option("file", opt.file, "Procedure file")->required();
   c->add_option("--min-sample", opt.min_sample_s, "Fastest full reading of the intended rig, in seconds")->capture_default_str();
 }

@@ -1,10 +1,10 @@
 // `run FILE --rig sim|RIG.toml --db DB [--cell NAME] [--speed K]`: executes a
 // procedure on a rig, logging into a database. SIGINT / SIGTERM end the run
 // cleanly: load off, run recorded as aborted by the operator.
+#include <fmt/format.h>
+
 #include <cmath>
 #include <iostream>
-
-#include <fmt/format.h>
 
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
@@ -44,7 +44,8 @@ int RunRun(const RunCmdOptions& opt) {
   std::string cell = opt.cell;
   if (cell.empty()) {
     if (opt.rig != "sim")
-      return Fail(InvalidInput("give the cell under test a name with --cell (its label or serial), so its runs can be found later"));
+      return Fail(
+          InvalidInput("give the cell under test a name with --cell (its label or serial), so its runs can be found later"));
     // The simulator's cell is described by the procedure itself.
     cell = fmt::format("sim-{}-{:.0f}mAh", plan->cell.chemistry, plan->cell.rated_mah);
   }
@@ -63,8 +64,8 @@ int RunRun(const RunCmdOptions& opt) {
   run.on_sample = [&](const Reading& r, double mah) {
     if (r.t_s < next_report) return;
     next_report = r.t_s + opt.progress_s;
-    std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v, r.current_a,
-                             r.temperature_c, mah)
+    std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
+                             r.current_a, r.temperature_c, mah)
               << std::flush;
   };
   std::cout << fmt::format("running '{}' on cell '{}' ({}), logging to {}\n", plan->name, cell, opt.rig, opt.db);
@@ -73,7 +74,8 @@ int RunRun(const RunCmdOptions& opt) {
   std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
   if (auto events = (*store)->LoadEvents(result->run_id); events.ok()) {
     for (const EventRow& e : *events)
-      if (e.kind == "result" || e.kind == "pause" || e.kind == "resume") std::cout << fmt::format("  {} {}: {}\n", FormatDuration(e.t_s), e.kind, e.message);
+      if (e.kind == "result" || e.kind == "pause" || e.kind == "resume")
+        std::cout << fmt::format("  {} {}: {}\n", FormatDuration(e.t_s), e.kind, e.message);
   }
   if (auto rep = BuildRunReport(**store, result->run_id); rep.ok()) std::cout << RunReportText(*rep);
   return result->outcome == Outcome::kCompleted ? kExitOk : kExitFailure;
@@ -88,7 +90,8 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--rig", opt.rig, "'sim' for the built-in simulator, or a rig file")->required();
   c->add_option("--db", opt.db, "Database to log into (created when missing)")->required();
   c->add_option("--cell", opt.cell, "Name of the cell under test (required on real rigs)");
-  c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")->capture_default_str();
+  c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")
+      ->capture_default_str();
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
 }
 

@@ -1,10 +1,10 @@
 #include "rig/cli/procedure_file.h"
 
+#include <fmt/format.h>
+
 #include <filesystem>
 #include <fstream>
 #include <sstream>
-
-#include <fmt/format.h>
 
 #include "procedures/procedure_parser.h"
 

@@ -146,7 +146,8 @@ TEST(EngineSteps, ResistanceTestUsesReadingsAtTheEndOfEachCurrent) {
 }
 
 TEST(EngineLoops, RepeatCountAndNestedUntil) {
-  Plan p = Compile("repeat 3\n  rest 10s\n  repeat until charge>=29mAh\n    discharge 3.6A until time>=10s\n  end\nend\nrest 1s\n");
+  Plan p =
+      Compile("repeat 3\n  rest 10s\n  repeat until charge>=29mAh\n    discharge 3.6A until time>=10s\n  end\nend\nrest 1s\n");
   Driver d(p);
   d.Run();
   int rests = 0, discharges = 0;
@@ -167,7 +168,8 @@ TEST(EngineLoops, RepeatUntilVoltageEndsTheLoopMidStep) {
   d.Run();
   ASSERT_TRUE(d.engine.finished());
   bool loop_end = false;
-  for (const StepChange& c : d.changes) loop_end = loop_end || c.reason.find("repeat (line 2) done: voltage") != std::string::npos;
+  for (const StepChange& c : d.changes)
+    loop_end = loop_end || c.reason.find("repeat (line 2) done: voltage") != std::string::npos;
   EXPECT_TRUE(loop_end);
   // OCV falls 1.2 V over 2000 mAh from 4.1 V; under 2 A it reads 0.1 V lower,
   // so 3.5 V is reached at OCV 3.6 V, i.e. 833.3 mAh (within one 1 s sample, 0.56 mAh).

@@ -28,17 +28,44 @@ struct UnitCase {
 
 TEST(Units, EveryUnitAndPrefix) {
   const UnitCase cases[] = {
-      {"uA", Dimension::kCurrent, 1e-6},     {"\xC2\xB5" "A", Dimension::kCurrent, 1e-6}, {"\xCE\xBC" "A", Dimension::kCurrent, 1e-6},
-      {"mA", Dimension::kCurrent, 1e-3},     {"A", Dimension::kCurrent, 1.0},             {"kA", Dimension::kCurrent, 1e3},
-      {"uW", Dimension::kPower, 1e-6},       {"mW", Dimension::kPower, 1e-3},             {"W", Dimension::kPower, 1.0},
-      {"kW", Dimension::kPower, 1e3},        {"mOhm", Dimension::kResistance, 1e-3},      {"Ohm", Dimension::kResistance, 1.0},
-      {"kOhm", Dimension::kResistance, 1e3}, {"\xCE\xA9", Dimension::kResistance, 1.0},   {"m\xCE\xA9", Dimension::kResistance, 1e-3},
-      {"uV", Dimension::kVoltage, 1e-6},     {"mV", Dimension::kVoltage, 1e-3},           {"V", Dimension::kVoltage, 1.0},
-      {"ms", Dimension::kTime, 1e-3},        {"s", Dimension::kTime, 1.0},                {"min", Dimension::kTime, 60.0},
-      {"h", Dimension::kTime, 3600.0},       {"uAh", Dimension::kCharge, 1e-3},           {"\xC2\xB5" "Ah", Dimension::kCharge, 1e-3},
-      {"mAh", Dimension::kCharge, 1.0},      {"Ah", Dimension::kCharge, 1000.0},          {"mWh", Dimension::kEnergy, 1e-3},
-      {"Wh", Dimension::kEnergy, 1.0},       {"kWh", Dimension::kEnergy, 1e3},            {"degC", Dimension::kTemperature, 1.0},
-      {"C", Dimension::kCRate, 1.0},         {"%", Dimension::kPercent, 1.0},
+      {"uA", Dimension::kCurrent, 1e-6},
+      {"\xC2\xB5"
+       "A",
+       Dimension::kCurrent, 1e-6},
+      {"\xCE\xBC"
+       "A",
+       Dimension::kCurrent, 1e-6},
+      {"mA", Dimension::kCurrent, 1e-3},
+      {"A", Dimension::kCurrent, 1.0},
+      {"kA", Dimension::kCurrent, 1e3},
+      {"uW", Dimension::kPower, 1e-6},
+      {"mW", Dimension::kPower, 1e-3},
+      {"W", Dimension::kPower, 1.0},
+      {"kW", Dimension::kPower, 1e3},
+      {"mOhm", Dimension::kResistance, 1e-3},
+      {"Ohm", Dimension::kResistance, 1.0},
+      {"kOhm", Dimension::kResistance, 1e3},
+      {"\xCE\xA9", Dimension::kResistance, 1.0},
+      {"m\xCE\xA9", Dimension::kResistance, 1e-3},
+      {"uV", Dimension::kVoltage, 1e-6},
+      {"mV", Dimension::kVoltage, 1e-3},
+      {"V", Dimension::kVoltage, 1.0},
+      {"ms", Dimension::kTime, 1e-3},
+      {"s", Dimension::kTime, 1.0},
+      {"min", Dimension::kTime, 60.0},
+      {"h", Dimension::kTime, 3600.0},
+      {"uAh", Dimension::kCharge, 1e-3},
+      {"\xC2\xB5"
+       "Ah",
+       Dimension::kCharge, 1e-3},
+      {"mAh", Dimension::kCharge, 1.0},
+      {"Ah", Dimension::kCharge, 1000.0},
+      {"mWh", Dimension::kEnergy, 1e-3},
+      {"Wh", Dimension::kEnergy, 1.0},
+      {"kWh", Dimension::kEnergy, 1e3},
+      {"degC", Dimension::kTemperature, 1.0},
+      {"C", Dimension::kCRate, 1.0},
+      {"%", Dimension::kPercent, 1.0},
   };
   for (const UnitCase& c : cases) {
     auto u = ParseUnit(c.unit);
@@ -77,8 +104,8 @@ TEST(Units, QuantitiesInProcedures) {
   EXPECT_DOUBLE_EQ(*plan.steps[1].end.energy_wh, 0.5);
   EXPECT_EQ(plan.steps[2].kind, StepKind::kConstantResistance);
   EXPECT_DOUBLE_EQ(plan.steps[2].resistance_ohm, 3.9);
-  EXPECT_DOUBLE_EQ(plan.steps[3].current_a, 1.0);          // 0.4 x 2500 mAh / 1 h
-  EXPECT_DOUBLE_EQ(*plan.steps[3].end.charge_mah, 250.0);  // 10 % of rated
+  EXPECT_DOUBLE_EQ(plan.steps[3].current_a, 1.0);           // 0.4 x 2500 mAh / 1 h
+  EXPECT_DOUBLE_EQ(*plan.steps[3].end.charge_mah, 250.0);   // 10 % of rated
   EXPECT_DOUBLE_EQ(*plan.steps[4].end.charge_mah, 2000.0);  // the last one written wins
   EXPECT_DOUBLE_EQ(*plan.steps[5].end.time_s, 1.5);
 }
@@ -301,7 +328,9 @@ TEST(Parser, MalformedInputsNameLineAndColumn) {
     bool found = false;
     for (const Diagnostic& d : p.errors)
       found = found || (d.line == c.line && d.col == c.col && d.message.find(c.contains) != std::string::npos);
-    EXPECT_TRUE(found) << "input:\n" << c.text << "\nwanted " << c.line << ":" << c.col << " '" << c.contains << "', got:\n" << Errors(p);
+    EXPECT_TRUE(found) << "input:\n"
+                       << c.text << "\nwanted " << c.line << ":" << c.col << " '" << c.contains << "', got:\n"
+                       << Errors(p);
   }
 }
 
@@ -321,7 +350,9 @@ TEST(Parser, ReportsSeveralErrorsAtOnce) {
 
 // --------------------------------------------------------------- library ---
 
-std::filesystem::path LibraryDir() { return std::filesystem::path(__FILE__).parent_path() / ".." / ".." / "procedures" / "library"; }
+std::filesystem::path LibraryDir() {
+  return std::filesystem::path(__FILE__).parent_path() / ".." / ".." / "procedures" / "library";
+}
 
 TEST(Library, EveryFileChecksAndRoundTrips) {
   int files = 0;
@@ -352,12 +383,13 @@ TEST(Library, EveryFileChecksAndRoundTrips) {
 // Compression is recorded so a run's time maps back to real time: with the
 // 50 s sleep run as 5 s, one 6.5 s run cycle stands for 51.5 s.
 TEST(Parser, CompressedTimeProjectsBack) {
-  auto p = Parse(std::string(kCell) + "profile n\n  phase sleep 10uA/50s\n  phase tx 30mA/1.5s\nend\ncycle n compress=5s until time>=1h\n");
+  auto p = Parse(std::string(kCell) +
+                 "profile n\n  phase sleep 10uA/50s\n  phase tx 30mA/1.5s\nend\ncycle n compress=5s until time>=1h\n");
   ASSERT_TRUE(p.ok()) << Errors(p);
   const Step& s = p.plan.steps[0];
   EXPECT_DOUBLE_EQ(s.CycleSeconds(), 6.5);
   EXPECT_DOUBLE_EQ(s.RealSeconds(6.5), 51.5);
-  EXPECT_DOUBLE_EQ(s.RealSeconds(2.5), 25.0);         // half-way through the compressed sleep
+  EXPECT_DOUBLE_EQ(s.RealSeconds(2.5), 25.0);                   // half-way through the compressed sleep
   EXPECT_DOUBLE_EQ(s.RealSeconds(13.0 + 5.75), 103.0 + 50.75);  // two cycles, sleep, half the tx
   Step plain;
   EXPECT_DOUBLE_EQ(plain.RealSeconds(42.0), 42.0);
@@ -375,7 +407,8 @@ TEST(Estimate, CapacityCheckTakesFiveHours) {
 }
 
 TEST(Estimate, LoopsCountPasses) {
-  auto p = Parse(std::string(kCell) + "repeat until voltage<=2.75V\ndischarge 0.5C until charge>=10% or voltage<=2.75V\nrest 10min\nend\n");
+  auto p = Parse(std::string(kCell) +
+                 "repeat until voltage<=2.75V\ndischarge 0.5C until charge>=10% or voltage<=2.75V\nrest 10min\nend\n");
   ASSERT_TRUE(p.ok()) << Errors(p);
   PlanEstimate e = EstimatePlan(p.plan);
   // 10 % of rated per pass: the tenth pass empties the cell.

@@ -93,8 +93,8 @@ TEST(RunEngine, EachStepKindReachesItsEnd) {
   EXPECT_FALSE(b.rig->bench().load_input_on());
   auto steps = b.Steps(r.run_id);
   ASSERT_EQ(steps.size(), 9u);
-  const char* want[] = {"time 600.0 s", "voltage", "voltage", "time 300.0 s", "voltage", "time 600.0 s", "resistance measured",
-                        "charge 100.0", "energy 0.2"};
+  const char* want[] = {"time 600.0 s",        "voltage",      "voltage",   "time 300.0 s", "voltage", "time 600.0 s",
+                        "resistance measured", "charge 100.0", "energy 0.2"};
   for (size_t i = 0; i < steps.size(); ++i)
     EXPECT_NE(steps[i].end_reason.find(want[i]), std::string::npos) << i << ": " << steps[i].end_reason;
   auto all = b.Samples(r.run_id);
@@ -194,7 +194,9 @@ TEST(RunEngine, LogOnChangeKeepsLongRestsSmall) {
 
 TEST(RunEngine, LoopsRunOnTheSimulator) {
   Bench b({}, 0.5);  // small cell so the sweep is short
-  Plan p = Compile("safety min-voltage=2.5V\nrepeat until voltage<=3.3V\n  dcir 0.2C/10s 1C/1s every=1s\n  discharge 1A until charge>=250mAh\n  rest 5min\nend\n");
+  Plan p = Compile(
+      "safety min-voltage=2.5V\nrepeat until voltage<=3.3V\n  dcir 0.2C/10s 1C/1s every=1s\n  discharge 1A until "
+      "charge>=250mAh\n  rest 5min\nend\n");
   RunResult r = b.Run(p);
   ASSERT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
   int results = 0;
@@ -230,7 +232,8 @@ TEST(RunEngineAborts, OverTemperature) {
 // an alkaline procedure on a charged Li-ion cell stops there.
 TEST(RunEngineAborts, WrongCellStopsBeforeTheLoadIsApplied) {
   Bench b;
-  auto p = ParseProcedure("cell alkaline rated=2500mAh nominal=1.5V max=1.65V cutoff=0.8V\ndischarge 3.9Ohm until voltage<=0.8V\n", "t");
+  auto p = ParseProcedure(
+      "cell alkaline rated=2500mAh nominal=1.5V max=1.65V cutoff=0.8V\ndischarge 3.9Ohm until voltage<=0.8V\n", "t");
   ASSERT_TRUE(p.ok());
   RunResult r = b.Run(p.plan);
   ExpectAbortedWithLoadOff(b, r, "before start: over-voltage");
@@ -287,7 +290,8 @@ TEST(RunEngineAborts, ChargeWithoutSupplyIsRefusedBeforeStart) {
 TEST(RunEngine, HeatPauseResumesWithHysteresis) {
   Bench b;
   // 10 A through 45 mOhm heats the sim cell by about 4.5 W: over 35 degC within minutes.
-  Plan p = Compile("safety max-temp=35degC when-hot=pause resume-temp=30degC max-current=11A\ndischarge 10A until charge>=1000mAh\n");
+  Plan p =
+      Compile("safety max-temp=35degC when-hot=pause resume-temp=30degC max-current=11A\ndischarge 10A until charge>=1000mAh\n");
   RunResult r = b.Run(p);
   ASSERT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
   auto events = b.Events(r.run_id);
