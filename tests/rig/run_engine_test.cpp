@@ -100,9 +100,13 @@ TEST(RunEngine, EachStepKindReachesItsEnd) {
   auto all = b.Samples(r.run_id);
   // Constant power holds V * I at 3 W; constant resistance holds V / I at 10 Ohm.
   for (const Sample& s : OfStep(all, 2))
-    if (s.current_a > 0.5) EXPECT_NEAR(s.voltage_v * s.current_a, 3.0, 0.01) << s.t_s;
+    if (s.current_a > 0.5) {
+      EXPECT_NEAR(s.voltage_v * s.current_a, 3.0, 0.01) << s.t_s;
+    }
   for (const Sample& s : OfStep(all, 3))
-    if (s.current_a > 0.1) EXPECT_NEAR(s.voltage_v / s.current_a, 10.0, 0.05) << s.t_s;
+    if (s.current_a > 0.1) {
+      EXPECT_NEAR(s.voltage_v / s.current_a, 10.0, 0.05) << s.t_s;
+    }
   // Rest ends on time exactly (the engine wakes at the end, not a period late).
   EXPECT_DOUBLE_EQ(*steps[0].ended_s - steps[0].started_s, 600.0);
 }
@@ -165,7 +169,9 @@ TEST(RunEngine, ResistanceResultEqualsLoggedSamples) {
   ASSERT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
   double reported = -1;
   for (const EventRow& e : b.Events(r.run_id))
-    if (e.kind == "result") ASSERT_EQ(std::sscanf(e.message.c_str(), "dc-resistance: R_dc = %lf Ohm", &reported), 1) << e.message;
+    if (e.kind == "result") {
+      ASSERT_EQ(std::sscanf(e.message.c_str(), "dc-resistance: R_dc = %lf Ohm", &reported), 1) << e.message;
+    }
   ASSERT_GT(reported, 0);
   auto s = b.Samples(r.run_id);
   const Sample *u1 = nullptr, *u2 = nullptr;
