@@ -2,6 +2,7 @@
 // Store in a temp dir): each step kind reaches its end, pulse edges and
 // duty-cycle charge follow the program, DC-IR matches the logged samples, and
 // every abort leaves the load off with its reason stored.
+#include <fmt/format.h>
 #include <gtest/gtest.h>
 
 #include <cmath>
@@ -12,6 +13,7 @@
 
 #include "analysis/metrics.h"
 #include "drivers/inproc_transport.h"
+#include "drivers/supply.h"
 #include "procedures/procedure_parser.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
@@ -283,12 +285,13 @@ TEST(RunEngineAborts, InstrumentLoss) {
 
 TEST(RunEngineAborts, ChargeWithoutSupplyIsRefusedBeforeStart) {
   Bench b;
-  RunController rc(*b.store, b.clock, b.rig->roles());
+  RigRoles roles = b.rig->roles();
+  roles.supply = nullptr;  // a rig with a load only
+  RunController rc(*b.store, b.clock, roles);
   auto r = rc.Execute(Compile("charge 0.5C to 4.2V until current<=50mA\n"), {});
-  if (b.rig->roles().supply == nullptr) {
-    ASSERT_FALSE(r.ok());
-    EXPECT_NE(r.status().message().find("no supply"), std::string::npos);
-  }
+  ASSERT_FALSE(r.ok());
+  EXPECT_NE(r.status().message().find("no supply"), std::string::npos);
+  EXPECT_TRUE(b.store->ListRuns()->empty());  // nothing started
 }
 
 // Over-temperature set to pause: load off until the cell cools to the resume
@@ -318,6 +321,69 @@ TEST(RunEngine, HeatPauseResumesWithHysteresis) {
   auto steps = b.Steps(r.run_id);
   EXPECT_NE(steps[0].end_reason.find("charge 1000"), std::string::npos) << steps[0].end_reason;
   EXPECT_NEAR(DeliveredChargeMah(s), 1000.0, 3.0);
+}
+
+// A bench supply stand-in: constant current for 60 s, then a current taper
+// with a 300 s time constant (a cell reaching its CV voltage). It also notes
+// whether the load was ever on while its output was.
+class TaperingSupply final : public LineDevice {
+ public:
+  TaperingSupply(Clock& clock, sim::SimBench& bench) : clock_(clock), bench_(bench) {}
+  std::optional<std::string> HandleLine(std::string_view line) override {
+    std::string l(line);
+    double now = clock_.Now().count();
+    if (l.rfind("VOLT ", 0) == 0)
+      volts = std::stod(l.substr(5));
+    else if (l.rfind("CURR ", 0) == 0)
+      limit_a = std::stod(l.substr(5));
+    else if (l == "OUTP ON")
+      on = true, on_since = now;
+    else if (l == "OUTP OFF")
+      on = false;
+    else if (l == "MEAS:CURR?") {
+      overlap = overlap || (on && bench_.load_input_on());
+      double t = now - on_since;
+      double a = !on ? 0.0 : t < 60 ? limit_a : limit_a * std::exp(-(t - 60) / 300);
+      return fmt::format("{:.6f}", a);
+    } else if (l == "MEAS:VOLT?") {
+      return fmt::format("{:.6f}", volts);
+    }
+    return std::nullopt;
+  }
+  bool on = false, overlap = false;
+  double volts = 0, limit_a = 0, on_since = 0;
+
+ private:
+  Clock& clock_;
+  sim::SimBench& bench_;
+};
+
+TEST(RunEngine, ChargeStepDrivesTheSupplyUntilTaper) {
+  Bench b;
+  TaperingSupply dev(b.clock, b.rig->bench());
+  ScpiSession session(std::make_unique<InProcTransport>(dev, b.clock), b.clock);
+  SupplyDriver supply(session);
+  RigRoles roles = b.rig->roles();
+  roles.supply = &supply;
+  RunController rc(*b.store, b.clock, roles);
+  auto r = rc.Execute(Compile("discharge 1A until time>=1min\ncharge 1A to 4.2V until current<=100mA every=5s\nrest 1min\n"), {});
+  ASSERT_TRUE(r.ok()) << r.status().ToString();
+  ASSERT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+  EXPECT_FALSE(dev.on);
+  EXPECT_FALSE(dev.overlap);  // never loading and charging at once
+  EXPECT_DOUBLE_EQ(dev.volts, 4.2);
+  EXPECT_DOUBLE_EQ(dev.limit_a, 1.0);
+  auto steps = b.Steps(r->run_id);
+  ASSERT_EQ(steps.size(), 3u);
+  EXPECT_NE(steps[1].end_reason.find("current 0.0"), std::string::npos) << steps[1].end_reason;
+  // 1 A tapers to 0.1 A after 60 s + 300 s x ln 10 = 750.8 s; readings every 5 s.
+  double charge_s = *steps[1].ended_s - steps[1].started_s;
+  EXPECT_GE(charge_s, 750.8);
+  EXPECT_LE(charge_s, 750.8 + 5.0);
+  // Charging is logged as negative cell current.
+  auto s = OfStep(b.Samples(r->run_id), 1);
+  ASSERT_GT(s.size(), 100u);
+  EXPECT_NEAR(s[5].current_a, -1.0, 1e-6);
 }
 
 // The ready procedures that need only a load run to completion on the simulator.
