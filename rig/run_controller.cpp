@@ -117,6 +117,7 @@ class RunSession {
   std::optional<Reading> prev_;
   std::optional<Sample> last_logged_;
   int last_logged_step_ = -1;
+  bool after_edge_ = true;  // the first reading after the load is applied
   std::string last_reason_;
 };
 
@@ -261,8 +262,12 @@ Result<RunResult> RunSession::Run() {
       }
 
       out = engine_.OnReading(r);
+      // Readings on both sides of every edge are stored even under log-on-change,
+      // so the stored samples alone count the charge right.
       bool edge = out.setpoint.has_value() || !out.changes.empty();
-      if (Status st = LogSample(r, step_before, edge); !st.ok())
+      bool after_edge = after_edge_;
+      after_edge_ = edge;
+      if (Status st = LogSample(r, step_before, edge || after_edge); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
     }

@@ -200,6 +200,17 @@ TEST(RunEngine, LogOnChangeKeepsLongRestsSmall) {
   for (size_t i = 1; i < rest.size(); ++i) EXPECT_LE(rest[i].t_s - rest[i - 1].t_s, 600.0 + 1e-9);
 }
 
+// Log-on-change never drops the readings around an edge: the stored samples
+// of a pulse train still add up to the train's mean current.
+TEST(RunEngine, LogOnChangeKeepsPulseEdges) {
+  Bench b;
+  RunResult r = b.Run(Compile("pulse 2A/2s 0A/8s until time>=10min every=1s log-change=200mV\n"));
+  ASSERT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
+  auto s = OfStep(b.Samples(r.run_id), 0);
+  double mean_a = DeliveredChargeMah(s) * 3.6 / 600.0;
+  EXPECT_NEAR(mean_a, 2.0 * 2.0 / 10.0, 0.002);
+}
+
 TEST(RunEngine, LoopsRunOnTheSimulator) {
   Bench b({}, 0.5);  // small cell so the sweep is short
   Plan p = Compile(
