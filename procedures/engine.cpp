@@ -1,70 +1,179 @@
 #include "procedures/engine.h"
 
-#include <cmath>
-#include <cstdio>
-
 #include <fmt/format.h>
 
-namespace kp {
+#include <algorithm>
+#include <cmath>
+#include <cstdlib>
+#include <map>
+#include <sstream>
 
-StepEngine::StepEngine(const Plan& plan) : plan_(plan) {}
+namespace kp {
+namespace {
+constexpr double kEps = 1e-9;
+
+bool HasSegments(StepKind k) { return k == StepKind::kPulseTrain || k == StepKind::kDutyCycle || k == StepKind::kResistanceTest; }
+}  // namespace
+
+StepEngine::StepEngine(const Plan& plan) : plan_(plan), loops_(plan.loops.size()) {}
+
+Setpoint StepEngine::SegmentSetpoint(const Segment& g) const {
+  Setpoint sp;
+  sp.load_on = true;
+  sp.mode = g.mode;
+  sp.level = g.level;
+  return sp;
+}
 
 Setpoint StepEngine::SetpointFor(const Step& step) const {
   Setpoint sp;
   switch (step.kind) {
-    case StepKind::kRest: break;
+    case StepKind::kRest:
+      break;
     case StepKind::kConstantCurrent:
       sp.load_on = true;
       sp.mode = LoadMode::kCurrent;
       sp.level = step.current_a;
       break;
+    case StepKind::kConstantPower:
+      sp.load_on = true;
+      sp.mode = LoadMode::kPower;
+      sp.level = step.power_w;
+      break;
+    case StepKind::kConstantResistance:
+      sp.load_on = true;
+      sp.mode = LoadMode::kResistance;
+      sp.level = step.resistance_ohm;
+      break;
+    case StepKind::kPulseTrain:
+    case StepKind::kDutyCycle:
+    case StepKind::kResistanceTest:
+      sp = SegmentSetpoint(step.segments[seg_]);
+      break;
+    case StepKind::kCharge:
+      sp.supply_on = true;
+      sp.supply_v = step.charge_voltage_v;
+      sp.supply_a = step.charge_current_a;
+      break;
   }
   return sp;
 }
 
-void StepEngine::EnterStep(int index, double t_s, EngineOutput& out) {
+void StepEngine::Emit(const Setpoint& sp, EngineOutput& out) {
+  if (!applied_ || !(*applied_ == sp)) out.setpoint = sp;
+  applied_ = sp;
+}
+
+bool StepEngine::Contains(size_t outer, size_t inner) const {
+  const Loop& a = plan_.loops[outer];
+  const Loop& b = plan_.loops[inner];
+  return outer <= inner && a.first_step <= b.first_step && b.last_step <= a.last_step;
+}
+
+void StepEngine::PlaceSegment(double t_s) {
+  const Step& step = plan_.steps[static_cast<size_t>(step_)];
+  seg_ = 0;
+  seg_start_s_ = step_start_s_;
+  if (!HasSegments(step.kind)) return;
+  double cycle = step.CycleSeconds();
+  double pos = t_s - step_start_s_;
+  if (step.kind != StepKind::kResistanceTest && pos >= cycle) {
+    double n = std::floor(pos / cycle);
+    seg_start_s_ += n * cycle;
+    pos -= n * cycle;
+  }
+  while (seg_ + 1 < step.segments.size() && pos >= step.segments[seg_].duration_s - kEps) {
+    pos -= step.segments[seg_].duration_s;
+    seg_start_s_ += step.segments[seg_].duration_s;
+    ++seg_;
+  }
+}
+
+void StepEngine::Schedule(double t_s, bool changed_now) {
+  if (finished()) return;
+  const Step& step = plan_.steps[static_cast<size_t>(step_)];
+  double next = t_s + step.sample_period_s;
+  if (changed_now) next = std::min(next, t_s + plan_.edge_settle_s);
+  if (HasSegments(step.kind)) next = std::min(next, seg_start_s_ + step.segments[seg_].duration_s);
+  if (step.end.time_s) {
+    double end_at = step_start_s_ + *step.end.time_s;
+    if (end_at > t_s + kEps) next = std::min(next, end_at);
+  }
+  next_wakeup_s_ = std::max(next, t_s + 1e-6);
+}
+
+void StepEngine::EnterStep(int index, double t_s, int looped_back, EngineOutput& out) {
   step_ = index;
   step_start_s_ = t_s;
   step_charge_mah_ = 0.0;
   step_energy_wh_ = 0.0;
+  dcir_.reset();
   if (finished()) {
     out.finished = true;
-    Setpoint off;
-    if (!applied_ || !(*applied_ == off)) out.setpoint = off;
-    applied_ = off;
+    Emit(Setpoint{}, out);
     return;
   }
-  const Step& step = plan_.steps[static_cast<size_t>(step_)];
-  Setpoint sp = SetpointFor(step);
-  if (!applied_ || !(*applied_ == sp)) out.setpoint = sp;
-  applied_ = sp;
-  next_wakeup_s_ = t_s + step.sample_period_s;
+  // Loops entered here from outside start afresh.
+  for (size_t li = 0; li < plan_.loops.size(); ++li) {
+    if (plan_.loops[li].first_step != index) continue;
+    if (looped_back >= 0 && Contains(li, static_cast<size_t>(looped_back))) continue;
+    loops_[li] = LoopState{0, t_s, 0.0, 0.0};
+  }
+  PlaceSegment(t_s);
+  std::optional<Setpoint> before = applied_;
+  Emit(SetpointFor(plan_.steps[static_cast<size_t>(step_)]), out);
+  Schedule(t_s, !before || !(*before == *applied_));
 }
 
-EngineOutput StepEngine::Start(double t_s) {
+int StepEngine::NextIndex(int ended, int exited_loop, int& looped_back) {
+  looped_back = -1;
+  for (size_t k = plan_.loops.size(); k-- > 0;) {
+    const Loop& l = plan_.loops[k];
+    if (l.last_step != ended) continue;
+    if (exited_loop >= 0 && Contains(static_cast<size_t>(exited_loop), k)) continue;
+    LoopState& st = loops_[k];
+    ++st.iter;
+    if (l.count == 0 || st.iter < l.count) {
+      // Inner loops run afresh on the next pass.
+      for (size_t inner = k + 1; inner < plan_.loops.size(); ++inner)
+        if (Contains(k, inner)) loops_[inner].iter = 0;
+      looped_back = static_cast<int>(k);
+      return l.first_step;
+    }
+    st.iter = 0;
+  }
+  return ended + 1;
+}
+
+EngineOutput StepEngine::Start(double t_s, const std::optional<Reading>& initial) {
   EngineOutput out;
   out.changes.push_back({-1, 0, "start"});
-  EnterStep(0, t_s, out);
+  last_ = initial;
+  EnterStep(0, t_s, -1, out);
   if (out.finished) out.changes.back().started_step = -1;
   return out;
 }
 
-std::optional<std::string> StepEngine::EndReason(const Step& step, const Reading& r) const {
-  const EndConditions& e = step.end;
-  // Voltage limits only mean something once the load is applied; a rest that
-  // starts below the threshold still ends on time.
+double StepEngine::MinPeriod() const {
+  const Step* s = current_step();
+  return s != nullptr ? s->sample_period_s : 0.0;
+}
+
+std::optional<std::string> StepEngine::EndReason(const EndConditions& e, const Reading& r, double elapsed, double charge_mah,
+                                                 double energy_wh) const {
   if (e.voltage_below_v && r.voltage_v <= *e.voltage_below_v)
     return fmt::format("voltage {:.3f} V <= {:.3f} V", r.voltage_v, *e.voltage_below_v);
   if (e.voltage_above_v && r.voltage_v >= *e.voltage_above_v)
     return fmt::format("voltage {:.3f} V >= {:.3f} V", r.voltage_v, *e.voltage_above_v);
-  if (e.current_below_a && std::abs(r.current_a) <= *e.current_below_a)
+  // A taper is judged only after two sample periods in the step: a supply
+  // that is still ramping up must not end a charge at once.
+  if (e.current_below_a && std::abs(r.current_a) <= *e.current_below_a && elapsed >= 2.0 * MinPeriod())
     return fmt::format("current {:.4f} A <= {:.4f} A", std::abs(r.current_a), *e.current_below_a);
-  double elapsed = r.t_s - step_start_s_;
-  if (e.time_s && elapsed >= *e.time_s - 1e-9) return fmt::format("time {:.1f} s >= {:.1f} s", elapsed, *e.time_s);
-  if (e.charge_mah && step_charge_mah_ >= *e.charge_mah)
-    return fmt::format("charge {:.2f} mAh >= {:.2f} mAh", step_charge_mah_, *e.charge_mah);
-  if (e.energy_wh && step_energy_wh_ >= *e.energy_wh)
-    return fmt::format("energy {:.4f} Wh >= {:.4f} Wh", step_energy_wh_, *e.energy_wh);
+  if (e.time_s && elapsed >= *e.time_s - kEps) return fmt::format("time {:.1f} s >= {:.1f} s", elapsed, *e.time_s);
+  if (e.charge_mah && std::abs(charge_mah) >= *e.charge_mah)
+    return fmt::format("charge {:.2f} mAh >= {:.2f} mAh", std::abs(charge_mah), *e.charge_mah);
+  if (e.energy_wh && std::abs(energy_wh) >= *e.energy_wh)
+    return fmt::format("energy {:.4f} Wh >= {:.4f} Wh", std::abs(energy_wh), *e.energy_wh);
   if (e.temperature_above_c && r.temperature_c >= *e.temperature_above_c)
     return fmt::format("temperature {:.1f} degC >= {:.1f} degC", r.temperature_c, *e.temperature_above_c);
   return std::nullopt;
@@ -76,44 +185,170 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     out.finished = true;
     return out;
   }
-  if (last_ && r.t_s > last_->t_s && r.t_s - last_->t_s > 0) {
-    double dt_h = (r.t_s - last_->t_s) / 3600.0;
-    step_charge_mah_ += 0.5 * (r.current_a + last_->current_a) * dt_h * 1000.0;
-    step_energy_wh_ += 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
-  }
-  last_ = r;
+  Integrate(r);
   const Step& step = plan_.steps[static_cast<size_t>(step_)];
-  if (auto reason = EndReason(step, r)) {
-    int ended = step_;
-    EnterStep(step_ + 1, r.t_s, out);
-    out.changes.push_back({ended, finished() ? -1 : step_, *reason});
-    // The next step's integration starts from this reading.
+
+  auto end_step = [&](int ended, int exited_loop, const std::string& reason) {
+    int looped_back = -1;
+    int next = NextIndex(ended, exited_loop, looped_back);
+    int was = step_;
+    EnterStep(next, r.t_s, looped_back, out);
+    out.changes.push_back({was, finished() ? -1 : step_, reason});
+  };
+
+  // Repeat-until loops, outermost first.
+  for (size_t li = 0; li < plan_.loops.size(); ++li) {
+    const Loop& l = plan_.loops[li];
+    if (l.count != 0 || step_ < l.first_step || step_ > l.last_step) continue;
+    const LoopState& st = loops_[li];
+    if (auto why = EndReason(l.until, r, r.t_s - st.start_s, st.charge_mah, st.energy_wh)) {
+      end_step(l.last_step, static_cast<int>(li), fmt::format("repeat (line {}) done: {}", l.source_line, *why));
+      return out;
+    }
+  }
+
+  if (step.kind == StepKind::kResistanceTest) {
+    double seg_end = seg_start_s_ + step.segments[seg_].duration_s;
+    if (r.t_s >= seg_end - kEps) {
+      if (seg_ == 0) {
+        // U1 at the end of the first current (IEC 61960-3 clause 7.7).
+        StepResult res;
+        res.step = step_;
+        res.name = "dc-resistance";
+        res.u1_v = r.voltage_v;
+        res.i1_a = r.current_a;
+        res.t1_s = r.t_s;
+        dcir_ = res;
+        seg_ = 1;
+        seg_start_s_ = seg_end;
+        Emit(SegmentSetpoint(step.segments[1]), out);
+        Schedule(r.t_s, true);
+        return out;
+      }
+      StepResult res = dcir_.value_or(StepResult{});
+      res.u2_v = r.voltage_v;
+      res.i2_a = r.current_a;
+      res.t2_s = r.t_s;
+      double di = res.i2_a - res.i1_a;
+      std::string reason;
+      if (std::abs(di) > 1e-9) {
+        res.value = (res.u1_v - res.u2_v) / di;
+        res.detail = fmt::format("R_dc = {:.6g} Ohm = ({:.6f} V - {:.6f} V) / ({:.6f} A - {:.6f} A) at t = {:.3f} s and {:.3f} s",
+                                 res.value, res.u1_v, res.u2_v, res.i2_a, res.i1_a, res.t1_s, res.t2_s);
+        out.results.push_back(res);
+        reason = fmt::format("resistance measured: {:.2f} mOhm", res.value * 1000.0);
+      } else {
+        reason = "resistance not measured: the two currents read the same";
+      }
+      end_step(step_, -1, reason);
+      return out;
+    }
+  } else if (auto why = EndReason(step.end, r, r.t_s - step_start_s_, step_charge_mah_, step_energy_wh_)) {
+    end_step(step_, -1, *why);
     return out;
   }
-  next_wakeup_s_ = r.t_s + step.sample_period_s;
+
+  bool changed = false;
+  if (HasSegments(step.kind)) {
+    // Edges due by now: this reading was the one just before the edge.
+    while (r.t_s >= seg_start_s_ + step.segments[seg_].duration_s - kEps) {
+      seg_start_s_ += step.segments[seg_].duration_s;
+      seg_ = (seg_ + 1) % step.segments.size();
+      changed = true;
+    }
+    if (changed) Emit(SegmentSetpoint(step.segments[seg_]), out);
+  }
+  Schedule(r.t_s, changed);
   return out;
 }
 
+void StepEngine::Integrate(const Reading& r) {
+  if (finished()) return;
+  if (last_ && r.t_s > last_->t_s) {
+    double dt_h = (r.t_s - last_->t_s) / 3600.0;
+    double dq = 0.5 * (r.current_a + last_->current_a) * dt_h * 1000.0;
+    double de = 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
+    step_charge_mah_ += dq;
+    step_energy_wh_ += de;
+    for (size_t li = 0; li < loops_.size(); ++li) {
+      const Loop& l = plan_.loops[li];
+      if (l.first_step <= step_ && step_ <= l.last_step) {
+        loops_[li].charge_mah += dq;
+        loops_[li].energy_wh += de;
+      }
+    }
+  }
+  last_ = r;
+}
+
 std::string StepEngine::Snapshot(double t_s) const {
-  return fmt::format("v1 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_, step_charge_mah_,
-                     step_energy_wh_);
+  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_,
+                              step_charge_mah_, step_energy_wh_);
+  if (dcir_) s += fmt::format(" u1={:.17g} i1={:.17g} t1={:.17g}", dcir_->u1_v, dcir_->i1_a, dcir_->t1_s - t_s);
+  for (size_t i = 0; i < loops_.size(); ++i)
+    s += fmt::format(" loop{}={}:{:.17g}:{:.17g}:{:.17g}", i, loops_[i].iter, t_s - loops_[i].start_s, loops_[i].charge_mah,
+                     loops_[i].energy_wh);
+  return s;
 }
 
 Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) {
-  int step = 0;
-  double elapsed = 0, charge = 0, energy = 0;
-  std::string text(snapshot);
-  if (std::sscanf(text.c_str(), "v1 step=%d elapsed=%lf charge=%lf energy=%lf", &step, &elapsed, &charge, &energy) != 4)
-    return InvalidInput(fmt::format("unreadable engine snapshot '{}'", text));
-  if (step < 0 || step > static_cast<int>(plan_.steps.size()))
+  std::istringstream in{std::string(snapshot)};
+  std::string version;
+  in >> version;
+  if (version != "v1" && version != "v2") return InvalidInput(fmt::format("unreadable engine snapshot '{}'", snapshot));
+  std::map<std::string, std::string> kv;
+  for (std::string tok; in >> tok;) {
+    size_t eq = tok.find('=');
+    if (eq == std::string::npos) return InvalidInput(fmt::format("unreadable engine snapshot '{}'", snapshot));
+    kv[tok.substr(0, eq)] = tok.substr(eq + 1);
+  }
+  auto num = [&](const std::string& key, double& v) -> bool {
+    auto it = kv.find(key);
+    if (it == kv.end()) return false;
+    char* end = nullptr;
+    v = std::strtod(it->second.c_str(), &end);
+    return end != it->second.c_str() && *end == '\0' && std::isfinite(v);
+  };
+  double step = 0, elapsed = 0, charge = 0, energy = 0;
+  if (!num("step", step) || !num("elapsed", elapsed) || !num("charge", charge) || !num("energy", energy))
+    return InvalidInput(fmt::format("unreadable engine snapshot '{}'", snapshot));
+  if (step < 0 || step > static_cast<double>(plan_.steps.size()) || step != std::floor(step))
     return InvalidInput(fmt::format("snapshot step {} is outside the procedure ({} steps)", step, plan_.steps.size()));
+  std::vector<LoopState> loops(plan_.loops.size());
+  for (size_t i = 0; i < loops.size(); ++i) {
+    auto it = kv.find(fmt::format("loop{}", i));
+    if (it == kv.end()) continue;
+    double ago = 0;
+    if (std::sscanf(it->second.c_str(), "%d:%lf:%lf:%lf", &loops[i].iter, &ago, &loops[i].charge_mah, &loops[i].energy_wh) != 4)
+      return InvalidInput(fmt::format("unreadable loop state in engine snapshot '{}'", snapshot));
+    loops[i].start_s = t_s - ago;
+  }
   EngineOutput out;
   applied_.reset();
   last_.reset();
-  EnterStep(step, t_s - elapsed, out);
+  int index = static_cast<int>(step);
+  // Enter the step, then put the saved loop state back.
+  EnterStep(index, t_s - elapsed, -1, out);
+  loops_ = loops;
   step_charge_mah_ = charge;
   step_energy_wh_ = energy;
-  if (!finished()) next_wakeup_s_ = t_s + plan_.steps[static_cast<size_t>(step_)].sample_period_s;
+  double u1 = 0, i1 = 0, t1 = 0;
+  if (num("u1", u1) && num("i1", i1) && num("t1", t1)) {
+    StepResult res;
+    res.step = index;
+    res.name = "dc-resistance";
+    res.u1_v = u1;
+    res.i1_a = i1;
+    res.t1_s = t_s + t1;
+    dcir_ = res;
+  }
+  if (!finished()) {
+    PlaceSegment(t_s);
+    applied_.reset();
+    out.setpoint.reset();
+    Emit(SetpointFor(plan_.steps[static_cast<size_t>(step_)]), out);
+    Schedule(t_s, true);
+  }
   return out;
 }
 

@@ -2,14 +2,106 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
+#include <cmath>
+
 namespace kp {
 
 const char* StepKindName(StepKind kind) {
   switch (kind) {
-    case StepKind::kRest: return "rest";
-    case StepKind::kConstantCurrent: return "constant-current discharge";
+    case StepKind::kRest:
+      return "rest";
+    case StepKind::kConstantCurrent:
+      return "constant-current discharge";
+    case StepKind::kConstantPower:
+      return "constant-power discharge";
+    case StepKind::kConstantResistance:
+      return "constant-resistance discharge";
+    case StepKind::kPulseTrain:
+      return "pulse train";
+    case StepKind::kDutyCycle:
+      return "duty cycle";
+    case StepKind::kResistanceTest:
+      return "dc resistance";
+    case StepKind::kCharge:
+      return "charge";
   }
   return "?";
+}
+
+double Step::CycleSeconds() const {
+  double s = 0.0;
+  for (const Segment& g : segments) s += g.duration_s;
+  return s;
+}
+
+double Step::RealSeconds(double elapsed_s) const {
+  double cycle = CycleSeconds();
+  if (cycle <= 0.0 || kind == StepKind::kResistanceTest) return elapsed_s;
+  double real_cycle = 0.0;
+  for (const Segment& g : segments) real_cycle += g.real_duration_s;
+  double n = std::floor(elapsed_s / cycle);
+  double real = n * real_cycle;
+  double rest = elapsed_s - n * cycle;
+  for (const Segment& g : segments) {
+    double part = std::min(rest, g.duration_s);
+    real += part * (g.real_duration_s / g.duration_s);
+    rest -= part;
+    if (rest <= 0.0) break;
+  }
+  return real;
+}
+
+std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig) {
+  std::vector<std::string> problems;
+  SafetyLimits& l = plan.limits;
+  l.max_current_a = std::min(l.max_current_a, rig.max_current_a);
+  l.max_voltage_v = std::min(l.max_voltage_v, rig.max_voltage_v);
+  l.max_temp_c = std::min(l.max_temp_c, rig.max_temp_c);
+  l.hard_temp_c = std::min(l.hard_temp_c, rig.max_temp_c);
+  plan.edge_settle_s = std::max(plan.edge_settle_s, rig.min_sample_period_s);
+  auto where = [](const Step& s) { return fmt::format("line {}: ", s.source_line); };
+  for (Step& s : plan.steps) {
+    if (s.sample_period_s < rig.min_sample_period_s) {
+      problems.push_back(where(s) + fmt::format("sample period {:g} s is faster than the rig can read ({:g} s)",
+                                                s.sample_period_s, rig.min_sample_period_s));
+    }
+    auto check_level = [&](LoadMode mode, double level, const std::string& what) {
+      if (mode == LoadMode::kCurrent && level > rig.max_current_a)
+        problems.push_back(where(s) +
+                           fmt::format("{} asks {:g} A; the rig's load sinks at most {:g} A", what, level, rig.max_current_a));
+      if (mode == LoadMode::kPower && level > rig.max_power_w)
+        problems.push_back(where(s) +
+                           fmt::format("{} asks {:g} W; the rig's load takes at most {:g} W", what, level, rig.max_power_w));
+    };
+    switch (s.kind) {
+      case StepKind::kConstantCurrent:
+        check_level(LoadMode::kCurrent, s.current_a, "the discharge");
+        break;
+      case StepKind::kConstantPower:
+        check_level(LoadMode::kPower, s.power_w, "the discharge");
+        break;
+      case StepKind::kCharge:
+        if (!rig.has_supply) problems.push_back(where(s) + "a charge step needs a supply, and this rig has none");
+        if (s.charge_voltage_v > rig.max_voltage_v)
+          problems.push_back(where(s) +
+                             fmt::format("charge to {:g} V exceeds the rig's {:g} V", s.charge_voltage_v, rig.max_voltage_v));
+        break;
+      default:
+        break;
+    }
+    for (const Segment& g : s.segments) {
+      check_level(g.mode, g.level, "segment '" + g.name + "'");
+      // A reading just after the edge and one just before the next need two
+      // full reading times inside the segment.
+      if (g.duration_s < 2.0 * rig.min_sample_period_s)
+        problems.push_back(where(s) +
+                           fmt::format("segment '{}' lasts {:g} s, shorter than two readings of this rig ({:g} s each); "
+                                       "it could not be sampled",
+                                       g.name, g.duration_s, rig.min_sample_period_s));
+    }
+  }
+  return problems;
 }
 
 Plan RatedCapacityPlan(const CellSpec& cell, double sample_period_s) {
@@ -34,9 +126,9 @@ Plan RatedCapacityPlan(const CellSpec& cell, double sample_period_s) {
   plan.steps.push_back(step);
   plan.source_text = fmt::format(
       "# built-in: rated-capacity check, 0.2 It to end voltage (IEC 61960-3 style)\n"
-      "cell {} rated {:.0f} mAh cutoff {:.3f} V max-temp {:.1f} degC\n"
-      "discharge {:.1f} mA until voltage <= {:.3f} V\n",
-      cell.chemistry, cell.rated_mah, cell.cutoff_v, cell.max_temp_c, current_a * 1000.0, cell.cutoff_v);
+      "cell {} rated={:.0f}mAh nominal={:.3f}V max={:.3f}V cutoff={:.3f}V max-temp={:.1f}degC\n"
+      "discharge 0.2C until voltage<={:.3f}V\n",
+      cell.chemistry, cell.rated_mah, cell.nominal_v, cell.max_v, cell.cutoff_v, cell.max_temp_c, cell.cutoff_v);
   return plan;
 }
 

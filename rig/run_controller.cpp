@@ -1,12 +1,19 @@
 #include "rig/run_controller.h"
 
-#include <exception>
-
 #include <fmt/format.h>
+
+#include <cmath>
+#include <exception>
 
 #include "rig/safety_monitor.h"
 
 namespace kp {
+
+bool PlanNeedsSupply(const Plan& plan) {
+  for (const Step& s : plan.steps)
+    if (s.kind == StepKind::kCharge) return true;
+  return false;
+}
 
 void RunController::SafeOff() {
   // Several attempts: the first may be the one that found the link down.
@@ -18,21 +25,39 @@ void RunController::SafeOff() {
   }
   if (roles_.supply != nullptr) {
     for (int attempt = 0; attempt < 3; ++attempt) {
-      if (roles_.supply->SetOutput(false).ok()) break;
+      if (roles_.supply->SetOutput(false).ok()) {
+        supply_on_ = false;
+        break;
+      }
     }
   }
 }
 
 Status RunController::Apply(const Setpoint& sp) {
-  if (!sp.load_on) {
+  // Never load and charge at once: whatever goes off goes off first.
+  if (!sp.load_on && input_on_) {
     KP_RETURN_IF_ERROR(roles_.load->SetInput(false));
     input_on_ = false;
-    return Status::Ok();
   }
-  KP_RETURN_IF_ERROR(roles_.load->SetLevel(sp.mode, sp.level));
-  if (!input_on_) {
-    KP_RETURN_IF_ERROR(roles_.load->SetInput(true));
-    input_on_ = true;
+  if (!sp.supply_on && supply_on_) {
+    KP_RETURN_IF_ERROR(roles_.supply->SetOutput(false));
+    supply_on_ = false;
+  }
+  if (sp.supply_on) {
+    if (roles_.supply == nullptr) return InvalidInput("a charge step needs a supply in the rig");
+    KP_RETURN_IF_ERROR(roles_.supply->SetVoltage(sp.supply_v));
+    KP_RETURN_IF_ERROR(roles_.supply->SetCurrentLimit(sp.supply_a));
+    if (!supply_on_) {
+      KP_RETURN_IF_ERROR(roles_.supply->SetOutput(true));
+      supply_on_ = true;
+    }
+  }
+  if (sp.load_on) {
+    KP_RETURN_IF_ERROR(roles_.load->SetLevel(sp.mode, sp.level));
+    if (!input_on_) {
+      KP_RETURN_IF_ERROR(roles_.load->SetInput(true));
+      input_on_ = true;
+    }
   }
   return Status::Ok();
 }
@@ -45,108 +70,228 @@ Result<Reading> RunController::Read(double t_s) {
   } else {
     KP_ASSIGN_OR_RETURN(r.voltage_v, roles_.load->MeasureVoltage());
   }
-  KP_ASSIGN_OR_RETURN(r.current_a, roles_.load->MeasureCurrent());
+  if (supply_on_) {
+    KP_ASSIGN_OR_RETURN(double charging_a, roles_.supply->MeasureCurrent());
+    r.current_a = -charging_a;  // charging is negative cell current
+  } else {
+    KP_ASSIGN_OR_RETURN(r.current_a, roles_.load->MeasureCurrent());
+  }
   KP_ASSIGN_OR_RETURN(r.temperature_c, roles_.thermometer->MeasureTemperature());
   return r;
+}
+
+// One execution: the pieces of the run loop, each small enough to reuse (the
+// pause for heat below; control requests can pause the same way).
+class RunSession {
+ public:
+  RunSession(RunController& rc, const Plan& plan, const RunOptions& options, int64_t run_id)
+      : rc_(rc), plan_(plan), options_(options), run_id_(run_id), engine_(plan), monitor_(plan.limits) {
+    result_.run_id = run_id;
+  }
+
+  Result<RunResult> Run();
+
+ private:
+  double Now() const { return (rc_.clock_.Now() - t0_).count(); }
+  bool StopRequested() const { return options_.stop != nullptr && options_.stop->load(); }
+  // Load off first, then the record.
+  RunResult Finish(Outcome outcome, std::string reason, std::string_view kind);
+  // Reads, integrates delivered charge.
+  Result<Reading> TakeReading();
+  Status LogSample(const Reading& r, int step, bool force);
+  Status Handle(const EngineOutput& out);
+  // Everything off until the cell cools; then the step continues. Returns a
+  // finished RunResult if the run ended while paused.
+  std::optional<RunResult> PauseForHeat(const std::string& why);
+
+  RunController& rc_;
+  const Plan& plan_;
+  const RunOptions& options_;
+  int64_t run_id_;
+  StepEngine engine_;
+  SafetyMonitor monitor_;
+  RunResult result_;
+  Seconds t0_{0};
+  double t_s_ = 0.0;
+  double delivered_mah_ = 0.0;
+  std::optional<Reading> prev_;
+  std::optional<Sample> last_logged_;
+  int last_logged_step_ = -1;
+  bool after_edge_ = true;  // the first reading after the load is applied
+  std::string last_reason_;
+};
+
+RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_view kind) {
+  rc_.SafeOff();
+  result_.outcome = outcome;
+  result_.reason = std::move(reason);
+  Store& store = rc_.store_;
+  Status st = store.EndStep(run_id_, t_s_, result_.reason);
+  if (st.ok()) st = store.AddEvent(run_id_, t_s_, kind, result_.reason);
+  if (st.ok()) st = store.FinishRun(run_id_, outcome, result_.reason);
+  if (!st.ok()) {
+    // The disk failed while recording the end; the load is already off.
+    result_.reason += " (could not record the end: " + st.ToString() + ")";
+  }
+  return result_;
+}
+
+Result<Reading> RunSession::TakeReading() {
+  t_s_ = Now();
+  KP_ASSIGN_OR_RETURN(Reading r, rc_.Read(t_s_));
+  if (prev_ && r.t_s > prev_->t_s) delivered_mah_ += 0.5 * (r.current_a + prev_->current_a) * (r.t_s - prev_->t_s) / 3.6;
+  prev_ = r;
+  if (options_.on_sample) options_.on_sample(r, delivered_mah_);
+  return r;
+}
+
+Status RunSession::LogSample(const Reading& r, int step, bool force) {
+  const Step* s = step >= 0 && step < static_cast<int>(plan_.steps.size()) ? &plan_.steps[static_cast<size_t>(step)] : nullptr;
+  bool log = force || s == nullptr || !s->log_change_v || !last_logged_ || last_logged_step_ != step ||
+             std::abs(r.voltage_v - last_logged_->voltage_v) >= *s->log_change_v || r.t_s - last_logged_->t_s >= s->log_max_gap_s;
+  if (!log) return Status::Ok();
+  Sample smp{r.t_s, r.voltage_v, r.current_a, r.temperature_c, std::max(step, 0)};
+  last_logged_ = smp;
+  last_logged_step_ = step;
+  return rc_.store_.AppendSample(run_id_, smp);
+}
+
+Status RunSession::Handle(const EngineOutput& out) {
+  Store& store = rc_.store_;
+  // Setpoint first: an edge is applied as close to its time as possible.
+  if (out.setpoint) KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
+  for (const StepResult& res : out.results)
+    KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "result", res.name + ": " + res.detail));
+  for (const StepChange& c : out.changes) {
+    if (c.ended_step >= 0) KP_RETURN_IF_ERROR(store.EndStep(run_id_, t_s_, c.reason));
+    if (c.ended_step >= 0 || c.started_step < 0) last_reason_ = c.reason;
+    if (c.started_step >= 0) {
+      const Step& s = plan_.steps[static_cast<size_t>(c.started_step)];
+      KP_RETURN_IF_ERROR(store.BeginStep(run_id_, c.started_step, StepKindName(s.kind), s.label, t_s_));
+      std::string msg = c.ended_step < 0 ? fmt::format("step {}: {}", c.started_step + 1, s.label)
+                                         : fmt::format("{}; step {}: {}", c.reason, c.started_step + 1, s.label);
+      KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "step", msg));
+    }
+  }
+  return Status::Ok();
+}
+
+std::optional<RunResult> RunSession::PauseForHeat(const std::string& why) {
+  rc_.SafeOff();
+  // The reading that tripped the limit still counts (the load was on until it).
+  if (prev_) engine_.Integrate(*prev_);
+  std::string snapshot = engine_.Snapshot(t_s_);
+  if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "pause", why); !st.ok())
+    return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+  const Step* step = engine_.current_step();
+  double period = step != nullptr ? std::max(1.0, step->sample_period_s) : 1.0;
+  // First reading just after the load went off, so the log shows the edge.
+  double wait = plan_.edge_settle_s;
+  while (true) {
+    rc_.clock_.SleepUntil(t0_ + Seconds(t_s_ + wait), options_.stop);
+    wait = period;
+    if (StopRequested()) {
+      t_s_ = Now();
+      return Finish(Outcome::kAborted, options_.stop_reason, "abort");
+    }
+    Result<Reading> rr = TakeReading();
+    if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
+    if (Status st = LogSample(*rr, engine_.step_index(), true); !st.ok())
+      return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    SafetyVerdict v = monitor_.Check(*rr, delivered_mah_);
+    if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
+    if (monitor_.CooledDown(*rr)) break;
+  }
+  Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
+  if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
+  engine_.Integrate(*prev_);  // integration restarts from the cooled, load-off reading
+  Status st =
+      rc_.store_.AddEvent(run_id_, t_s_, "resume", fmt::format("cell cooled to {:.1f} degC; continuing", prev_->temperature_c));
+  if (st.ok()) st = Handle(*out);
+  if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
+  return std::nullopt;
+}
+
+Result<RunResult> RunSession::Run() {
+  t0_ = rc_.clock_.Now();
+  try {
+    // Bring the load to a known, inert state before anything else.
+    if (Status st = rc_.roles_.load->SetInput(false); !st.ok())
+      return Finish(Outcome::kAborted, "could not switch the load off before the run: " + st.ToString(), "fault");
+    if (rc_.roles_.supply != nullptr) (void)rc_.roles_.supply->SetOutput(false);
+    (void)rc_.roles_.load->session().Clear();
+    if (plan_.cell.cutoff_v > 0.3) {
+      // Hardware backstop below the cutoff in case the PC dies mid-run;
+      // an instrument without it just reports an error we note here.
+      if (rc_.roles_.load->SetUnderVoltageBackstop(plan_.cell.cutoff_v - 0.1).ok()) {
+        Status q = rc_.roles_.load->session().DrainErrors();
+        if (!q.ok()) (void)rc_.store_.AddEvent(run_id_, 0.0, "note", "load has no under-voltage backstop: " + q.message());
+      }
+    }
+
+    // Open-circuit reading at t = 0, before any load: integration starts here.
+    Result<Reading> ocv = TakeReading();
+    if (!ocv.ok()) return Finish(Outcome::kAborted, "instrument lost: " + ocv.status().ToString(), "fault");
+    if (Status st = LogSample(*ocv, 0, true); !st.ok())
+      return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    if (SafetyVerdict v = monitor_.Check(*ocv, 0.0); !v.ok())
+      return Finish(Outcome::kAborted, "before start: " + v.reason, "abort");
+
+    EngineOutput out = engine_.Start(t_s_, *ocv);
+    if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not start: " + st.ToString(), "fault");
+
+    while (!engine_.finished()) {
+      rc_.clock_.SleepUntil(t0_ + Seconds(engine_.NextWakeup()), options_.stop);
+      if (StopRequested()) {
+        t_s_ = Now();
+        return Finish(Outcome::kAborted, options_.stop_reason, "abort");
+      }
+      Result<Reading> rr = TakeReading();
+      if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
+      const Reading& r = *rr;
+      int step_before = engine_.step_index();
+
+      SafetyVerdict v = monitor_.Check(r, delivered_mah_);
+      if (!v.ok()) {
+        rc_.SafeOff();  // off first; then the reading that tripped the limit is kept
+        if (Status st = LogSample(r, step_before, true); !st.ok())
+          return Finish(Outcome::kAborted, v.reason + "; database write failed: " + st.ToString(), "abort");
+        if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
+        if (auto ended = PauseForHeat(v.reason)) return *ended;
+        continue;
+      }
+
+      out = engine_.OnReading(r);
+      // Readings on both sides of every edge are stored even under log-on-change,
+      // so the stored samples alone count the charge right.
+      bool edge = out.setpoint.has_value() || !out.changes.empty();
+      bool after_edge = after_edge_;
+      after_edge_ = edge;
+      if (Status st = LogSample(r, step_before, edge || after_edge); !st.ok())
+        return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+      if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
+    }
+    rc_.SafeOff();
+    return Finish(Outcome::kCompleted, last_reason_.empty() ? "procedure complete" : "procedure complete: " + last_reason_,
+                  "end");
+  } catch (const std::exception& e) {
+    return Finish(Outcome::kAborted, std::string("internal error: ") + e.what(), "fault");
+  } catch (...) {
+    return Finish(Outcome::kAborted, "internal error (unknown exception)", "fault");
+  }
 }
 
 Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& options) {
   if (roles_.load == nullptr || roles_.thermometer == nullptr)
     return InvalidInput("a run needs a load and a thermometer in the rig");
   if (plan.steps.empty()) return InvalidInput("the procedure has no steps");
+  if (PlanNeedsSupply(plan) && roles_.supply == nullptr)
+    return InvalidInput("the procedure charges the cell, but the rig has no supply");
 
   NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
   KP_ASSIGN_OR_RETURN(int64_t run_id, store_.BeginRun(nr));
-  RunResult result;
-  result.run_id = run_id;
-
-  // Everything below ends in `finish`: load off first, then the record.
-  auto finish = [&](Outcome outcome, std::string reason, double t_s, std::string_view kind) -> Result<RunResult> {
-    SafeOff();
-    result.outcome = outcome;
-    result.reason = std::move(reason);
-    Status st = store_.EndStep(run_id, t_s, result.reason);
-    if (st.ok()) st = store_.AddEvent(run_id, t_s, kind, result.reason);
-    if (st.ok()) st = store_.FinishRun(run_id, outcome, result.reason);
-    if (!st.ok()) {
-      // The disk failed while recording the end; the load is already off.
-      result.reason += " (could not record the end: " + st.ToString() + ")";
-    }
-    return result;
-  };
-
-  const Seconds t0 = clock_.Now();
-  double t_s = 0.0;
-  try {
-    // Bring the load to a known, inert state before anything else.
-    KP_RETURN_IF_ERROR(roles_.load->SetInput(false).WithContext("switching the load off before the run"));
-    (void)roles_.load->session().Clear();
-    if (plan.cell.cutoff_v > 0.3) {
-      // Hardware backstop below the cutoff in case the PC dies mid-run;
-      // an instrument without it just reports an error we ignore here.
-      if (roles_.load->SetUnderVoltageBackstop(plan.cell.cutoff_v - 0.1).ok()) {
-        Status q = roles_.load->session().DrainErrors();
-        if (!q.ok()) (void)store_.AddEvent(run_id, 0.0, "note", "load has no under-voltage backstop: " + q.message());
-      }
-    }
-
-    StepEngine engine(plan);
-    SafetyMonitor monitor(plan.limits);
-    double delivered_mah = 0.0;
-    std::optional<Reading> prev;
-
-    auto handle = [&](const EngineOutput& out) -> Status {
-      for (const StepChange& c : out.changes) {
-        if (c.ended_step >= 0) KP_RETURN_IF_ERROR(store_.EndStep(run_id, t_s, c.reason));
-        if (c.started_step >= 0) {
-          const Step& s = plan.steps[static_cast<size_t>(c.started_step)];
-          KP_RETURN_IF_ERROR(store_.BeginStep(run_id, c.started_step, StepKindName(s.kind), s.label, t_s));
-          std::string msg = c.ended_step < 0 ? fmt::format("step {}: {}", c.started_step + 1, s.label)
-                                             : fmt::format("{}; step {}: {}", c.reason, c.started_step + 1, s.label);
-          KP_RETURN_IF_ERROR(store_.AddEvent(run_id, t_s, "step", msg));
-        }
-      }
-      if (out.setpoint) KP_RETURN_IF_ERROR(Apply(*out.setpoint));
-      return Status::Ok();
-    };
-
-    EngineOutput out = engine.Start(0.0);
-    if (Status st = handle(out); !st.ok()) return finish(Outcome::kAborted, "could not start: " + st.ToString(), 0.0, "abort");
-
-    while (!engine.finished()) {
-      clock_.SleepUntil(t0 + Seconds(engine.NextWakeup()), options.stop);
-      if (options.stop != nullptr && options.stop->load()) {
-        t_s = (clock_.Now() - t0).count();
-        return finish(Outcome::kAborted, options.stop_reason, t_s, "abort");
-      }
-      t_s = (clock_.Now() - t0).count();
-      Result<Reading> rr = Read(t_s);
-      if (!rr.ok()) return finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), t_s, "fault");
-      Reading r = *rr;
-      if (prev) delivered_mah += 0.5 * (r.current_a + prev->current_a) * (r.t_s - prev->t_s) / 3.6;
-      prev = r;
-
-      Sample s{r.t_s, r.voltage_v, r.current_a, r.temperature_c, engine.step_index()};
-      if (Status st = store_.AppendSample(run_id, s); !st.ok()) {
-        return finish(Outcome::kAborted, "database write failed: " + st.ToString(), t_s, "fault");
-      }
-      if (options.on_sample) options.on_sample(r, delivered_mah);
-
-      if (auto why = monitor.Check(r, delivered_mah)) return finish(Outcome::kAborted, *why, t_s, "abort");
-
-      out = engine.OnReading(r);
-      if (Status st = handle(out); !st.ok()) {
-        return finish(Outcome::kAborted, "step change failed: " + st.ToString(), t_s, "fault");
-      }
-    }
-    SafeOff();
-    return finish(Outcome::kCompleted, out.changes.empty() ? "procedure complete" : "procedure complete: " + out.changes.back().reason,
-                  t_s, "end");
-  } catch (const std::exception& e) {
-    return finish(Outcome::kAborted, std::string("internal error: ") + e.what(), t_s, "fault");
-  } catch (...) {
-    return finish(Outcome::kAborted, "internal error (unknown exception)", t_s, "fault");
-  }
+  RunSession session(*this, plan, options, run_id);
+  return session.Run();
 }
 
 }  // namespace kp

@@ -1,8 +1,13 @@
 // RunController: executes a Plan on a rig's role drivers, logging to a Store.
 //
-// The loop: sleep (on the injected Clock) until the engine's next wakeup, read
-// voltage, current and temperature, log the sample, let the safety monitor
-// judge it, then let the engine decide setpoints and step changes. On every
+// The loop: take an open-circuit reading at t = 0 before the load is applied,
+// then sleep (on the injected Clock) until the engine's next wakeup, read
+// voltage, current (the supply's while charging) and temperature, let the
+// safety monitor judge the reading, let the engine decide setpoints and step
+// changes, log the sample (all of them, or on change where a step asks), and
+// apply the setpoint. An over-temperature limit set to pause switches
+// everything off, keeps sampling until the cell has cooled, then resumes the
+// step where it was (paused time is not step time). On every
 // exit path — completion, safety abort, instrument loss, disk failure, stop
 // request, exception — the load input is switched off before anything else is
 // logged.
@@ -24,11 +29,11 @@ namespace kp {
 
 // The instruments a run uses, borrowed from whoever assembled the rig.
 struct RigRoles {
-  LoadDriver* load = nullptr;              // required
-  MeterDriver* meter = nullptr;            // optional: cell voltage by 4-wire sense; else the load's reading
+  LoadDriver* load = nullptr;                // required
+  MeterDriver* meter = nullptr;              // optional: cell voltage by 4-wire sense; else the load's reading
   ThermometerDriver* thermometer = nullptr;  // required for safety
-  SupplyDriver* supply = nullptr;          // optional: needed by charge steps
-  std::string description;                 // "sim", "rig.toml"
+  SupplyDriver* supply = nullptr;            // optional: needed by charge steps
+  std::string description;                   // "sim", "rig.toml"
 };
 
 struct RunOptions {
@@ -46,6 +51,8 @@ struct RunResult {
   std::string reason;
 };
 
+class RunSession;  // one Execute's state (run_controller.cpp)
+
 class RunController {
  public:
   RunController(Store& store, Clock& clock, RigRoles roles) : store_(store), clock_(clock), roles_(roles) {}
@@ -55,6 +62,7 @@ class RunController {
   Result<RunResult> Execute(const Plan& plan, const RunOptions& options);
 
  private:
+  friend class RunSession;
   Result<Reading> Read(double t_s);
   Status Apply(const Setpoint& sp);
   void SafeOff();
@@ -63,6 +71,10 @@ class RunController {
   Clock& clock_;
   RigRoles roles_;
   bool input_on_ = false;
+  bool supply_on_ = false;
 };
+
+// True when some step of `plan` needs a supply role (charge steps).
+bool PlanNeedsSupply(const Plan& plan);
 
 }  // namespace kp

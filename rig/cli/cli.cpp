@@ -85,6 +85,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterPorts(registry);
   RegisterProbe(registry);
   RegisterSim(registry);
+  RegisterCheck(registry);
+  RegisterRun(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

@@ -57,6 +57,8 @@ void RegisterExport(CliRegistry& r);
 void RegisterPorts(CliRegistry& r);
 void RegisterProbe(CliRegistry& r);
 void RegisterSim(CliRegistry& r);
+void RegisterCheck(CliRegistry& r);
+void RegisterRun(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

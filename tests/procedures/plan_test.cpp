@@ -3,6 +3,7 @@
 #include <gtest/gtest.h>
 
 #include "procedures/engine.h"
+#include "procedures/procedure_parser.h"
 
 namespace kp {
 namespace {
@@ -43,7 +44,11 @@ TEST(StepEngine, EndsOnCutoffAndSwitchesOff) {
   ASSERT_TRUE(out.setpoint.has_value());
   EXPECT_TRUE(out.setpoint->load_on);
   EXPECT_DOUBLE_EQ(out.setpoint->level, 0.5);
-  EXPECT_DOUBLE_EQ(e.NextWakeup(), 1.0);
+  // A reading follows the load edge after Plan::edge_settle_s, then one per period.
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s);
+  out = e.OnReading({p.edge_settle_s, 3.9, 0.5, 25});
+  EXPECT_FALSE(out.finished);
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s + 1.0);
   out = e.OnReading({1.0, 3.9, 0.5, 25});
   EXPECT_FALSE(out.finished);
   EXPECT_DOUBLE_EQ(e.NextWakeup(), 2.0);
@@ -105,6 +110,22 @@ TEST(StepEngine, SnapshotRestoreContinuesTheStep) {
   while (!b.finished() && t < 2000) (void)b.OnReading({double(++t), 3.9, 0.5, 25});
   EXPECT_EQ(t, 1060);
   EXPECT_FALSE(b.Restore("garbage", 0).ok());
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+// The built-in plan stores procedure text that compiles back to the same step.
+TEST(RatedCapacityPlan, SourceTextCompiles) {
+  Plan p = RatedCapacityPlan(Cell2500());
+  auto again = CompileProcedure(p.source_text, "built-in");
+  ASSERT_TRUE(again.ok()) << again.status().message();
+  ASSERT_EQ(again->steps.size(), 1u);
+  EXPECT_DOUBLE_EQ(again->steps[0].current_a, p.steps[0].current_a);
+  EXPECT_DOUBLE_EQ(*again->steps[0].end.voltage_below_v, 2.75);
 }
 
 }  // namespace

@@ -1,0 +1,98 @@
+// `run FILE --rig sim|RIG.toml --db DB [--cell NAME] [--speed K]`: executes a
+// procedure on a rig, logging into a database. SIGINT / SIGTERM end the run
+// cleanly: load off, run recorded as aborted by the operator.
+#include <fmt/format.h>
+
+#include <cmath>
+#include <iostream>
+
+#include "procedures/estimate.h"
+#include "rig/cli/cli.h"
+#include "rig/cli/procedure_file.h"
+#include "rig/rig.h"
+#include "rig/run_controller.h"
+#include "rig/run_report.h"
+#include "rig/store.h"
+
+namespace kp::cli {
+namespace {
+
+struct RunCmdOptions {
+  std::string file;
+  std::string rig;
+  std::string db;
+  std::string cell;
+  double speed = 0.0;
+  double progress_s = 600.0;
+};
+
+int RunRun(const RunCmdOptions& opt) {
+  RigOpenOptions ro;
+  ro.sim_speed = opt.speed;
+  auto rig = OpenRig(opt.rig, ro);
+  if (!rig.ok()) return Fail(rig.status());
+  RigRoles roles = (*rig)->roles();
+  // What this rig can do; a rig file may tighten these further.
+  RigLimits limits;
+  limits.has_supply = roles.supply != nullptr;
+  if (opt.rig == "sim") limits.max_current_a = ro.sim_options.load_max_current_a;
+  auto plan = LoadProcedure(opt.file, limits);
+  if (!plan.ok()) {
+    std::cerr << plan.status().message() << "\n";
+    return ExitCodeFor(plan.status());
+  }
+  std::string cell = opt.cell;
+  if (cell.empty()) {
+    if (opt.rig != "sim")
+      return Fail(
+          InvalidInput("give the cell under test a name with --cell (its label or serial), so its runs can be found later"));
+    // The simulator's cell is described by the procedure itself.
+    cell = fmt::format("sim-{}-{:.0f}mAh", plan->cell.chemistry, plan->cell.rated_mah);
+  }
+
+  std::cout << SafetyCautions() << "\n" << DescribePlan(*plan, EstimatePlan(*plan)) << "\n";
+  SteadyClock wall;
+  auto store = Store::Open(opt.db, wall);
+  if (!store.ok()) return Fail(store.status());
+
+  RunController controller(**store, (*rig)->clock(), roles);
+  RunOptions run;
+  run.cell_name = cell;
+  run.stop = InstallStopSignals();
+  run.stop_reason = "stopped by operator (signal)";
+  double next_report = 0.0;
+  run.on_sample = [&](const Reading& r, double mah) {
+    if (r.t_s < next_report) return;
+    next_report = r.t_s + opt.progress_s;
+    std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
+                             r.current_a, r.temperature_c, mah)
+              << std::flush;
+  };
+  std::cout << fmt::format("running '{}' on cell '{}' ({}), logging to {}\n", plan->name, cell, opt.rig, opt.db);
+  auto result = controller.Execute(*plan, run);
+  if (!result.ok()) return Fail(result.status());
+  std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
+  if (auto events = (*store)->LoadEvents(result->run_id); events.ok()) {
+    for (const EventRow& e : *events)
+      if (e.kind == "result" || e.kind == "pause" || e.kind == "resume")
+        std::cout << fmt::format("  {} {}: {}\n", FormatDuration(e.t_s), e.kind, e.message);
+  }
+  if (auto rep = BuildRunReport(**store, result->run_id); rep.ok()) std::cout << RunReportText(*rep);
+  return result->outcome == Outcome::kCompleted ? kExitOk : kExitFailure;
+}
+
+}  // namespace
+
+void RegisterRun(CliRegistry& r) {
+  static RunCmdOptions opt;
+  CLI::App* c = r.Add("run", "Run a procedure file on a rig, logging into a database", [] { return RunRun(opt); });
+  c->add_option("file", opt.file, "Procedure file")->required();
+  c->add_option("--rig", opt.rig, "'sim' for the built-in simulator, or a rig file")->required();
+  c->add_option("--db", opt.db, "Database to log into (created when missing)")->required();
+  c->add_option("--cell", opt.cell, "Name of the cell under test (required on real rigs)");
+  c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")
+      ->capture_default_str();
+  c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
+}
+
+}  // namespace kp::cli

@@ -1,0 +1,32 @@
+#include "rig/cli/procedure_file.h"
+
+#include <fmt/format.h>
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+#include "procedures/procedure_parser.h"
+
+namespace kp::cli {
+
+Result<std::string> ReadProcedureText(const std::string& path) {
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(path, ec)) return NotFound(fmt::format("{}: no such procedure file", path));
+  auto size = std::filesystem::file_size(path, ec);
+  if (ec || size > 4 * 1024 * 1024) return InvalidInput(fmt::format("{}: not a procedure file (too large or unreadable)", path));
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return IoError(fmt::format("{}: cannot open", path));
+  std::ostringstream ss;
+  ss << in.rdbuf();
+  std::string text = ss.str();
+  if (text.find('\0') != std::string::npos) return InvalidInput(fmt::format("{}: not a text file", path));
+  return text;
+}
+
+Result<Plan> LoadProcedure(const std::string& path, const RigLimits& rig) {
+  KP_ASSIGN_OR_RETURN(std::string text, ReadProcedureText(path));
+  return CompileProcedure(text, path, rig);
+}
+
+}  // namespace kp::cli

@@ -1,0 +1,62 @@
+// `kneepoint check` and `kneepoint run` through the real command line.
+#include <gtest/gtest.h>
+
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include "rig/cli/cli.h"
+#include "rig/store.h"
+#include "tests/support/test_support.h"
+
+namespace kp {
+namespace {
+
+int Cli(std::vector<std::string> args) {
+  args.insert(args.begin(), "kneepoint");
+  std::vector<char*> argv;
+  for (std::string& a : args) argv.push_back(a.data());
+  return cli::RunCli(static_cast<int>(argv.size()), argv.data());
+}
+
+std::string Write(const testing::TempDir& dir, const std::string& name, const std::string& text) {
+  std::string path = dir.File(name);
+  std::ofstream(path) << text;
+  return path;
+}
+
+const char* kGood =
+    "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n"
+    "discharge 1A until time>=10min\nrest 5min\n";
+
+TEST(CliProcedure, CheckExitCodes) {
+  testing::TempDir dir;
+  EXPECT_EQ(Cli({"check", Write(dir, "good.kpp", kGood)}), cli::kExitOk);
+  EXPECT_EQ(Cli({"check", Write(dir, "bad.kpp", "cell li-ion rated=2500 cutoff=3V\n")}), cli::kExitBadInput);
+  EXPECT_EQ(Cli({"check", dir.File("missing.kpp")}), cli::kExitBadInput);
+  // A segment the rig cannot sample is an error, not skipped.
+  std::string fast = Write(dir, "fast.kpp", std::string(kGood) + "pulse 1A/80ms 0A/1s until time>=1min\n");
+  EXPECT_EQ(Cli({"check", fast}), cli::kExitBadInput);
+  EXPECT_EQ(Cli({"check", fast, "--min-sample", "0.02"}), cli::kExitOk);
+}
+
+TEST(CliProcedure, RunOnTheSimulatorRecordsTheRun) {
+  testing::TempDir dir;
+  std::string db = dir.File("runs.db");
+  EXPECT_EQ(Cli({"run", Write(dir, "p.kpp", kGood), "--rig", "sim", "--db", db}), cli::kExitOk);
+  SteadyClock wall;
+  auto store = Store::Open(db, wall);
+  ASSERT_TRUE(store.ok());
+  auto runs = (*store)->ListRuns();
+  ASSERT_TRUE(runs.ok());
+  ASSERT_EQ(runs->size(), 1u);
+  EXPECT_EQ((*runs)[0].outcome, Outcome::kCompleted);
+  EXPECT_EQ((*runs)[0].cell, "sim-li-ion-2500mAh");  // derived from the procedure, not random
+  EXPECT_EQ((*runs)[0].procedure_text, kGood);
+  // A procedure with errors never starts a run.
+  EXPECT_EQ(Cli({"run", Write(dir, "bad.kpp", "rest 5s\n"), "--rig", "sim", "--db", db}), cli::kExitBadInput);
+  EXPECT_EQ((*store)->ListRuns()->size(), 1u);
+}
+
+}  // namespace
+}  // namespace kp
