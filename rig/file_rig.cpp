@@ -24,7 +24,7 @@ class FileRig final : public Rig {
   }
   Clock& clock() override { return *clock_; }
   std::string LockKey() const override { return lock_key_; }
-  RigLimits limits() const override { return limits_; }
+  BenchLimits limits() const override { return limits_; }
 
   Status Open(const RigFileSpec& spec, const RigOpenOptions& o) {
     description_ = spec.path;
@@ -115,7 +115,7 @@ class FileRig final : public Rig {
   std::unique_ptr<ThermometerDriver> thermometer_;
   std::unique_ptr<SupplyDriver> supply_;
   std::string description_, lock_key_;
-  RigLimits limits_;
+  BenchLimits limits_;
 };
 
 }  // namespace

@@ -12,14 +12,18 @@ class BuiltInSimRig final : public Rig {
  public:
   explicit BuiltInSimRig(const RigOpenOptions& o)
       : clock_(o.sim_speed > 0 ? std::unique_ptr<Clock>(new SteadyClock(o.sim_speed)) : std::unique_ptr<Clock>(new VirtualClock())),
-        sim_(*clock_, o.sim_cell, o.sim_options) {}
+        sim_(*clock_, o.sim_cell, o.sim_options) {
+    limits_.max_current_a = o.sim_options.load_max_current_a;
+  }
   RigRoles roles() override { return sim_.roles(); }
+  BenchLimits limits() const override { return limits_; }
   Clock& clock() override { return *clock_; }
   std::string LockKey() const override { return "sim"; }
 
  private:
   std::unique_ptr<Clock> clock_;
   SimRig sim_;
+  BenchLimits limits_;
 };
 
 }  // namespace
@@ -31,6 +35,16 @@ Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptio
     return OpenFileRig(file, options);
   }
   return InvalidInput(fmt::format("unknown rig '{}': use 'sim' or a rig file (.toml)", spec));
+}
+
+RigLimits PlanLimitsFor(Rig& rig) {
+  RigLimits out;
+  BenchLimits b = rig.limits();
+  if (b.max_current_a > 0) out.max_current_a = b.max_current_a;
+  if (b.max_voltage_v > 0) out.max_voltage_v = b.max_voltage_v;
+  if (b.load_rating_w > 0) out.max_power_w = b.load_rating_w;
+  out.has_supply = rig.roles().supply != nullptr;
+  return out;
 }
 
 }  // namespace kp

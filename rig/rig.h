@@ -12,6 +12,7 @@
 #include "drivers/clock.h"
 #include "drivers/sim/cell_model.h"
 #include "drivers/sim/sim_bench.h"
+#include "procedures/plan.h"
 #include "rig/run_controller.h"
 
 namespace kp {
@@ -19,7 +20,7 @@ namespace kp {
 // Absolute limits of the bench itself (wiring, load rating), whatever the
 // procedure asks; 0 means no limit declared. Runs should use the tighter of
 // these and the procedure's limits.
-struct RigLimits {
+struct BenchLimits {
   double max_current_a = 0.0;
   double max_voltage_v = 0.0;
   double load_rating_w = 0.0;
@@ -34,7 +35,7 @@ class Rig {
   virtual Clock& clock() = 0;
   // Identifies the instruments for the one-runner-per-rig lock (addresses).
   virtual std::string LockKey() const = 0;
-  virtual RigLimits limits() const { return {}; }
+  virtual BenchLimits limits() const { return {}; }
 };
 
 struct RigOpenOptions {
@@ -50,6 +51,10 @@ struct RigOpenOptions {
   // Receives notes for the log (termios fallback, refused optional settings).
   std::function<void(std::string_view)> note;
 };
+
+// The rig's limits in the form the procedure compiler applies to a plan
+// (procedures/plan.h RigLimits): unset bench limits stay unlimited.
+RigLimits PlanLimitsFor(Rig& rig);
 
 Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptions& options);
 

@@ -58,7 +58,7 @@ struct RigFileSpec {
   std::string name;
   double clock_speed = 1.0;
   std::string trace;  // resolved path, empty for none
-  RigLimits limits;
+  BenchLimits limits;
   std::vector<InstrumentSpec> instruments;
 };
 

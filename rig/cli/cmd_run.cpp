@@ -33,10 +33,7 @@ int RunRun(const RunCmdOptions& opt) {
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
   // What this rig can do; a rig file may tighten these further.
-  RigLimits limits;
-  limits.has_supply = roles.supply != nullptr;
-  if (opt.rig == "sim") limits.max_current_a = ro.sim_options.load_max_current_a;
-  auto plan = LoadProcedure(opt.file, limits);
+  auto plan = LoadProcedure(opt.file, PlanLimitsFor(**rig));
   if (!plan.ok()) {
     std::cerr << plan.status().message() << "\n";
     return ExitCodeFor(plan.status());
