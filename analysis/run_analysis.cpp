@@ -44,12 +44,41 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
     return a;
   }
 
-  // Charge per discharge.
+  // The discharge span (see the header).
   a.method = ChooseIntegrationMethod(s, ctx.segments);
-  const StepFigures* main = nullptr;
-  for (const StepFigures& f : a.steps) {
-    if (!f.discharging()) continue;
-    if (!main || f.charge_mah > main->charge_mah) main = &f;
+  size_t best_first = 0, best_last = 0;
+  double best_mah = 0.0;
+  for (size_t i = 0; i < a.steps.size();) {
+    if (a.steps[i].charge_mah < -1e-9) {
+      ++i;
+      continue;
+    }
+    size_t j = i;
+    while (j < a.steps.size() && a.steps[j].charge_mah >= -1e-9) ++j;
+    size_t first = i, last = j;  // [first, last)
+    while (first < last && !a.steps[first].discharging()) ++first;
+    while (last > first && !a.steps[last - 1].discharging()) --last;
+    double mah = 0;
+    for (size_t k = first; k < last; ++k) mah += a.steps[k].charge_mah;
+    if (last > first && mah > best_mah) best_mah = mah, best_first = first, best_last = last - 1;
+    i = j;
+  }
+  SampleSpan d;
+  if (best_mah > 0) {
+    const StepFigures& f0 = a.steps[best_first];
+    const StepFigures& f1 = a.steps[best_last];
+    StepFigures span;
+    span.t_start_s = f0.t_start_s;
+    span.t_end_s = f1.t_end_s;
+    d = StepSamples(s, span);
+    a.main_discharge_step = f0.step;
+    a.last_discharge_step = f1.step;
+    a.discharge_start_s = f0.t_start_s;
+    a.discharge_duration_s = f1.t_end_s - f0.t_start_s;
+    for (size_t k = best_first; k <= best_last; ++k) {
+      a.discharge_charge_mah += a.steps[k].charge_mah;
+      a.discharge_energy_wh += a.steps[k].energy_wh;
+    }
   }
   if (a.method == IntegrationMethod::kPerSegment) {
     std::vector<CommandedSegment> discharging;
@@ -58,15 +87,8 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
     SegmentIntegration si = IntegrateBySegments(s, discharging);
     a.discharge_charge_mah = si.charge_mah;
     a.discharge_energy_wh = si.energy_wh;
-  } else {
-    for (const StepFigures& f : a.steps)
-      if (f.discharging()) {
-        a.discharge_charge_mah += f.charge_mah;
-        a.discharge_energy_wh += f.energy_wh;
-      }
   }
 
-  SampleSpan d = main ? StepSamples(s, *main) : SampleSpan{};
   a.start_temperature_c = s.front().temperature_c;
   a.max_temperature_c = a.totals.max_temperature_c;
   a.temperature_rise_c = a.max_temperature_c - a.start_temperature_c;
@@ -75,11 +97,9 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   dc.rated_mah = ctx.rated_mah;
   dc.delivered_mah = a.discharge_charge_mah;
   if (!d.empty()) {
-    a.main_discharge_step = main->step;
-    a.discharge_duration_s = main->t_end_s - main->t_start_s;
-    a.mean_voltage_v = main->mean_voltage_v;
-    a.mid_voltage_v = VoltageAt(d, main->t_start_s + 0.5 * a.discharge_duration_s);
-    a.average_current_a = main->mean_current_a;
+    a.mean_voltage_v = MeanVoltage(d);
+    a.mid_voltage_v = VoltageAt(d, a.discharge_start_s + 0.5 * a.discharge_duration_s);
+    a.average_current_a = a.discharge_duration_s > 0 ? a.discharge_charge_mah * 3.6 / a.discharge_duration_s : 0.0;
     double lo_t = d.front().temperature_c, hi_t = lo_t, dev = 0.0;
     for (const Sample& x : d) {
       a.peak_current_a = std::max(a.peak_current_a, x.current_a);
@@ -100,12 +120,11 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
     dc.min_temperature_c = lo_t;
     dc.max_temperature_c = hi_t;
     dc.end_voltage_v = d.back().voltage_v;
-    // Rest right before the main discharge, from the recorded steps.
-    for (size_t i = 0; i < ctx.steps.size(); ++i) {
-      const StepBoundary& b = ctx.steps[i];
-      if (b.index == main->step && i > 0 && ctx.steps[i - 1].kind == "rest" && ctx.steps[i - 1].ended_s) {
-        dc.rest_before_s = *ctx.steps[i - 1].ended_s - ctx.steps[i - 1].started_s;
-      }
+    // Rest right before the discharge, from the recorded steps.
+    for (size_t i = 1; i < ctx.steps.size(); ++i) {
+      const StepBoundary& prev = ctx.steps[i - 1];
+      if (ctx.steps[i].index == a.main_discharge_step && prev.kind == "rest" && prev.ended_s)
+        dc.rest_before_s = *prev.ended_s - prev.started_s;
     }
   }
   a.verdict = JudgeCapacityByMethod(MethodForChemistry(ctx.chemistry), dc);
@@ -115,6 +134,7 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   if (segs.empty() && !d.empty()) segs = SegmentsFromSamples(d, ctx.segment_tolerance_a);
   a.pulses = AnalysePulses(s, segs);
   a.pulsed = a.pulses.size() >= 2;
+  if (!a.pulsed) a.pulses.clear();  // one high segment is a plain discharge
   if (ctx.brownout_v) a.brownout = FirstBrownout(a.pulses, *ctx.brownout_v);
   std::vector<double> edges = ctx.segments.empty() ? EdgesFromSamples(s, ctx.dcir.min_step_a)
                                                    : EdgesFromSegments(ctx.segments, ctx.dcir.min_step_a);

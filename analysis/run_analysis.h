@@ -42,14 +42,19 @@ struct RunAnalysis {
   std::vector<StepFigures> steps;
   std::vector<Gap> gaps;            // found in the samples plus those recorded
   IntegrationMethod method = IntegrationMethod::kSampleTrapezoid;
-  double discharge_charge_mah = 0.0;  // discharging steps, by `method`
+  // The discharge: the run of consecutive non-charging steps, starting and
+  // ending with a discharging step, that delivered the most charge (a plain
+  // discharge step, or a pulse train / duty cycle written as several steps).
+  double discharge_charge_mah = 0.0;  // by `method`
   double discharge_energy_wh = 0.0;
-  int main_discharge_step = -1;       // the discharging step with the most charge
+  int main_discharge_step = -1;       // first step of the discharge
+  int last_discharge_step = -1;
+  double discharge_start_s = 0.0;
   double discharge_duration_s = 0.0;
-  double mean_voltage_v = 0.0;        // of the main discharge
-  double mid_voltage_v = 0.0;         // at half the main discharge's duration
-  std::optional<double> time_to_cutoff_s;  // from the main discharge's start
-  double average_current_a = 0.0;     // of the main discharge
+  double mean_voltage_v = 0.0;        // time-weighted over the discharge
+  double mid_voltage_v = 0.0;         // at half the discharge's duration
+  std::optional<double> time_to_cutoff_s;  // from the discharge's start to the first sample <= cutoff
+  double average_current_a = 0.0;     // charge / duration of the discharge
   double peak_current_a = 0.0;
   bool pulsed = false;
   std::vector<DcirPoint> dcir;
