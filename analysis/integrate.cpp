@@ -59,28 +59,42 @@ std::vector<StepFigures> FiguresPerStep(SampleSpan s) {
   return out;
 }
 
+namespace {
+
+// Median spacing of the intervals closing at samples [first, end): exact up
+// to kMaxProbe intervals, else over kMaxProbe evenly strided ones (enough
+// for a gap threshold, and keeps a million-sample run cheap).
+constexpr size_t kMaxProbe = 4096;
+
+double MedianSpacing(SampleSpan s, size_t first, size_t end, std::vector<double>& scratch) {
+  scratch.clear();
+  if (end <= first) return 0.0;
+  size_t n = end - first;
+  size_t stride = n > kMaxProbe ? n / kMaxProbe : 1;
+  for (size_t i = first; i < end; i += stride) scratch.push_back(s[i].t_s - s[i - 1].t_s);
+  return Median(scratch);
+}
+
+}  // namespace
+
 double MedianSpacingS(SampleSpan s) {
   if (s.size() < 2) return 0.0;
-  std::vector<double> dt;
-  dt.reserve(s.size() - 1);
-  for (size_t i = 1; i < s.size(); ++i) dt.push_back(s[i].t_s - s[i - 1].t_s);
-  return Median(dt);
+  std::vector<double> scratch;
+  return MedianSpacing(s, 1, s.size(), scratch);
 }
 
 std::vector<Gap> FindGaps(SampleSpan s, const GapOptions& o) {
   std::vector<Gap> gaps;
   size_t begin = 0;
-  std::vector<double> dt;
+  std::vector<double> scratch;
+  scratch.reserve(kMaxProbe + 1);
   while (begin < s.size()) {
     size_t end = begin + 1;
     while (end < s.size() && s[end].step == s[begin].step) ++end;
     // Intervals closing at samples begin+1 .. end-1 (inside the step) plus the
     // one closing at `begin` (bridging from the previous step).
     size_t first = begin == 0 ? 1 : begin;
-    dt.clear();
-    for (size_t i = first; i < end; ++i) dt.push_back(s[i].t_s - s[i - 1].t_s);
-    std::vector<double> sorted = dt;
-    double med = Median(sorted);
+    double med = MedianSpacing(s, first, end, scratch);
     double limit = std::max(o.factor * med, o.min_gap_s);
     for (size_t i = first; i < end; ++i) {
       double d = s[i].t_s - s[i - 1].t_s;

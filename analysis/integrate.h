@@ -82,7 +82,8 @@ SegmentIntegration IntegrateBySegments(SampleSpan samples, std::span<const Comma
 // segment may hold no sample or a single sample at an arbitrary phase).
 IntegrationMethod ChooseIntegrationMethod(SampleSpan samples, std::span<const CommandedSegment> segments);
 
-// Median spacing between consecutive samples (0 for fewer than 2 samples).
+// Median spacing between consecutive samples (0 for fewer than 2 samples);
+// over at most 4,096 evenly strided intervals on long records.
 double MedianSpacingS(SampleSpan samples);
 
 }  // namespace kp
