@@ -57,7 +57,7 @@ std::string XmlEscape(std::string_view t) {
 std::vector<double> NiceTicks(double lo, double hi, int target) {
   std::vector<double> t;
   if (!(hi > lo)) return {lo};
-  double raw = (hi - lo) / std::max(1, target - 1);
+  double raw = (hi - lo) / std::max(1, target);
   double mag = std::pow(10.0, std::floor(std::log10(raw)));
   double step = mag;
   for (double m : {1.0, 2.0, 2.5, 5.0, 10.0})
@@ -118,8 +118,10 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
       r.hi = std::max(r.hi, t.back() + (t.back() < r.hi ? step : 0));
     }
   };
+  widen(xr, xt);
   widen(yr, yt);
   widen(y2r, y2t);
+  xt = NiceTicks(xr.lo, xr.hi);
   yt = NiceTicks(yr.lo, yr.hi);
   y2t = NiceTicks(y2r.lo, y2r.hi);
   auto X = [&](double v) { return ml + (v - xr.lo) / (xr.hi - xr.lo) * pw; };

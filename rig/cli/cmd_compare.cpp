@@ -22,6 +22,8 @@ void RegisterCompare(CliRegistry& r) {
   static std::string html_path, at_text;
   static ReportOptions options;
   static double brownout_v = 0.0;
+  db_path = "kneepoint.db", run_ids.clear(), json = false, html_path.clear(), at_text.clear();
+  options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* cmd = r.Add("compare", "Compare runs: table, overlays, pulsed vs continuous, Peukert fit", [] {
     std::optional<double> at_a;
     if (!at_text.empty()) {

@@ -102,6 +102,7 @@ int RunLife(const LifeOptions& o) {
 
 void RegisterLife(CliRegistry& r) {
   static LifeOptions opt;
+  opt = LifeOptions{};  // fresh defaults on every registration (RunCli may run more than once)
   CLI::App* cmd = r.Add("life", "Project product life from capacity and a duty cycle (pure calculation)", [] { return RunLife(opt); });
   cmd->add_option("--capacity", opt.capacity, "Usable capacity, e.g. 2000mAh or 2.4Ah");
   cmd->add_option("--average", opt.average, "Average load current, e.g. 40uA");

@@ -40,6 +40,8 @@ void RegisterReport(CliRegistry& r) {
   static std::string html_path, csv_path;
   static ReportOptions options;
   static double brownout_v = 0.0;
+  db_path = "kneepoint.db", json = false, run_id = 0, html_path.clear(), csv_path.clear();
+  options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     SteadyClock wall;
     auto store = OpenExistingDb(db_path, wall);

@@ -52,7 +52,7 @@ TEST(SvgPlot, NiceTicks) {
   ASSERT_GE(t.size(), 3u);
   EXPECT_GE(t.front(), 2.71);
   EXPECT_LE(t.back(), 4.19 + 1e-12);
-  for (size_t k = 1; k < t.size(); ++k) EXPECT_NEAR(t[k] - t[k - 1], 0.5, 1e-12);  // 1.48 / 5 = 0.296 rounds up to 0.5
+  for (size_t k = 1; k < t.size(); ++k) EXPECT_NEAR(t[k] - t[k - 1], 0.25, 1e-12);  // 1.48 / 6 = 0.247 rounds up to 0.25
 }
 
 TEST(HtmlPage, WellFormedAndCarriesExactValues) {
