@@ -1,4 +1,5 @@
 // `life`: product-life projection, a pure calculation (no run needed).
+#include <cmath>
 #include <fstream>
 #include <iostream>
 #include <sstream>
@@ -14,7 +15,8 @@ namespace kp::cli {
 namespace {
 
 struct LifeOptions {
-  std::string capacity, average, self_discharge, profile_path, quiescent, efficiency;
+  std::string capacity, average, self_discharge, profile_path, quiescent, efficiency, measured_at;
+  double peukert_k = 0.0;
   bool json = false;
 };
 
@@ -23,6 +25,8 @@ Result<double> Quantity(const std::string& option, const std::string& text, Quan
   if (!q.value) return InvalidInput(fmt::format("{} '{}': {} (column {})", option, text, q.error, q.error_column));
   return *q.value;
 }
+
+bool opt_peukert(const LifeOptions& o) { return o.peukert_k > 0; }
 
 int RunLife(const LifeOptions& o) {
   LifeInputs in;
@@ -64,6 +68,18 @@ int RunLife(const LifeOptions& o) {
     auto v = Quantity("--efficiency", o.efficiency, QuantityKind::kFraction);
     if (!v.ok()) return Fail(v.status());
     in.efficiency = *v;
+  }
+  if (opt_peukert(o)) {
+    // The capacity was measured at --measured-at; Peukert (1897) C_p = I^k t
+    // gives C_p = Q_ref · I_ref^(k-1) with Q in Ah.
+    if (o.measured_at.empty()) return Fail(InvalidInput("--peukert needs --measured-at (the current the capacity was measured at)"));
+    auto ref = Quantity("--measured-at", o.measured_at, QuantityKind::kCurrent);
+    if (!ref.ok()) return Fail(ref.status());
+    if (!(*ref > 0)) return Fail(InvalidInput("--measured-at must be > 0"));
+    PeukertFit f;
+    f.exponent_k = o.peukert_k;
+    f.capacity_constant = in.capacity_mah / 1000.0 * std::pow(*ref, o.peukert_k - 1.0);
+    in.peukert = f;
   }
   LifeOutcome r = ProjectLife(in);
   if (!r.projection) return Fail(InvalidInput(r.error));
@@ -111,6 +127,9 @@ void RegisterLife(CliRegistry& r) {
   cmd->add_option("--self-discharge", opt.self_discharge, "Self-discharge allowance, e.g. 2%/month or 10%/year");
   cmd->add_option("--quiescent", opt.quiescent, "Regulator quiescent current, e.g. 1uA");
   cmd->add_option("--efficiency", opt.efficiency, "Regulator efficiency, e.g. 85%");
+  cmd->add_option("--peukert", opt.peukert_k, "Derate the capacity to the average current with this Peukert exponent k")
+      ->check(CLI::Range(1.0, 2.0));
+  cmd->add_option("--measured-at", opt.measured_at, "Current at which --capacity was measured (with --peukert), e.g. 500mA");
   cmd->add_flag("--json", opt.json, "Machine-readable output");
 }
 

@@ -2,6 +2,9 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
+#include <sstream>
+
 #include "analysis/compare.h"
 #include "analysis/svg_plot.h"
 #include "tests/analysis/xml_check.h"
@@ -32,6 +35,28 @@ TEST(SvgPlot, WellFormedWithLabelledAxes) {
   }
   EXPECT_EQ(labels, 3);
   EXPECT_EQ(lines, 2);
+  // Every plotted point lies inside the plot frame (the first <rect>).
+  const testing::XmlElement* frame = nullptr;
+  for (const auto& e : els)
+    if (e.name == "rect" && !frame) frame = &e;
+  ASSERT_NE(frame, nullptr);
+  double fx = std::stod(frame->attributes.at("x")), fy = std::stod(frame->attributes.at("y"));
+  double fw = std::stod(frame->attributes.at("width")), fh = std::stod(frame->attributes.at("height"));
+  int points = 0;
+  for (const auto& e : els) {
+    if (e.name != "polyline") continue;
+    std::istringstream in(e.attributes.at("points"));
+    double x, y;
+    char comma;
+    while (in >> x >> comma >> y) {
+      ++points;
+      EXPECT_GE(x, fx - 0.05);
+      EXPECT_LE(x, fx + fw + 0.05);
+      EXPECT_GE(y, fy - 0.05);
+      EXPECT_LE(y, fy + fh + 0.05);
+    }
+  }
+  EXPECT_GT(points, 100);
   EXPECT_NE(svg.find("Voltage &amp; current &lt;vs&gt; time"), std::string::npos);
 }
 

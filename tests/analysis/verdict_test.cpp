@@ -106,5 +106,21 @@ TEST(RunAnalysis, ConstantCurrentRunWithRestStep) {
   EXPECT_NEAR(a.dcir[0].resistance_ohm, (4.15 - (4.1 - 1.4 * 2.0 / dur)) / 0.5, 1e-12);
 }
 
+// A gap the runner logged is reported once, even when the spacing shows it too.
+TEST(RunAnalysis, RecordedAndDetectedGapsMerge) {
+  std::vector<Sample> s;
+  for (int k = 0; k < 50; ++k) s.push_back({k * 1.0, 3.8, 0.5, 22, 0});
+  for (int k = 0; k < 50; ++k) s.push_back({1000.0 + k, 3.8, 0.5, 22, 0});
+  for (int k = 0; k < 50; ++k) s.push_back({1051.0 + 3.0 * k, 3.8, 0.5, 22, 0});
+  RunContext ctx;
+  ctx.recorded_gaps = {{49.0, 1000.0, 0}, {1048.0, 1049.0, 0}};
+  RunAnalysis a = AnalyseRun(s, ctx);
+  ASSERT_EQ(a.gaps.size(), 2u);
+  EXPECT_DOUBLE_EQ(a.gaps[0].t_start_s, 49.0);
+  EXPECT_DOUBLE_EQ(a.gaps[1].t_start_s, 1048.0);
+  // Charge still bridges the gap (trapezoid over actual times).
+  EXPECT_NEAR(a.totals.charge_mah, 0.5 * (s.back().t_s - s.front().t_s) / 3.6, 1e-9);
+}
+
 }  // namespace
 }  // namespace kp

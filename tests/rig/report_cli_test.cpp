@@ -1,6 +1,7 @@
 // The report, compare and life commands end to end through the command line.
 #include <gtest/gtest.h>
 
+#include <cmath>
 #include <fstream>
 #include <sstream>
 
@@ -77,6 +78,20 @@ TEST(LifeCli, ProfileFileAndAllowances) {
   EXPECT_NE(unit.err.find("--capacity"), std::string::npos);
 }
 
+// Peukert derating (Peukert 1897, C_p = I^k t): a capacity Q measured at I_ref
+// becomes Q (I_ref / I)^(k-1) at current I.
+TEST(LifeCli, PeukertDerating) {
+  CliResult r = Cli({"life", "--capacity", "2000mAh", "--average", "100mA", "--peukert", "1.2", "--measured-at", "400mA", "--json"});
+  ASSERT_EQ(r.code, 0) << r.err;
+  auto j = nlohmann::json::parse(r.out);
+  double q = 2000.0 * std::pow(0.4 / 0.1, 0.2);
+  EXPECT_NEAR(j["capacity_mAh"].get<double>(), q, 1e-9);
+  EXPECT_NEAR(j["hours"].get<double>(), q / 100.0, 1e-9);
+  ASSERT_EQ(j["allowances"].size(), 1u);
+  EXPECT_EQ(j["allowances"][0], "peukert-derating");
+  EXPECT_EQ(Cli({"life", "--capacity", "2000mAh", "--average", "1mA", "--peukert", "1.2"}).code, cli::kExitBadInput);
+}
+
 CellSpec Cell2500() {
   CellSpec c;
   c.rated_mah = 2500;
@@ -109,6 +124,25 @@ TEST(CompareCli, PeukertOverThreeRatesAndHtml) {
       ASSERT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
     }
   }
+  // A record with a hole the runner logged: the report flags it.
+  {
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);
+    ASSERT_TRUE(store.ok());
+    auto run = (*store)->BeginRun({"gap-cell", "li-ion", 2500, "manual", "", "test"});
+    ASSERT_TRUE(run.ok());
+    for (int k = 0; k < 100; ++k) ASSERT_OK((*store)->AppendSample(*run, {k * 1.0, 3.8, 0.5, 22.0, 0}));
+    ASSERT_OK((*store)->AddEvent(*run, 101.0, "gap", "resumed after an interruption"));
+    for (int k = 101; k < 200; ++k) ASSERT_OK((*store)->AppendSample(*run, {k * 1.0, 3.8, 0.5, 22.0, 0}));
+    ASSERT_OK((*store)->FinishRun(*run, Outcome::kCompleted, "test"));
+  }
+  CliResult gap = Cli({"report", "4", "--db", db, "--json"});
+  ASSERT_EQ(gap.code, 0) << gap.err;
+  auto gj = nlohmann::json::parse(gap.out);
+  ASSERT_EQ(gj["gaps"].size(), 1u);
+  EXPECT_EQ(gj["gaps"][0]["start_s"].get<double>(), 99.0);
+  EXPECT_EQ(gj["gaps"][0]["end_s"].get<double>(), 101.0);
+
   std::string html = dir.File("cmp.html");
   CliResult r = Cli({"compare", "1", "2", "3", "--db", db, "--json", "--html", html, "--at", "750mA"});
   ASSERT_EQ(r.code, 0) << r.err;
