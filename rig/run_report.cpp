@@ -468,6 +468,15 @@ std::string CompareReportText(const CompareReport& c) {
   return o;
 }
 
+std::string CompareReportCsv(const CompareReport& c) {
+  std::string o = "run,charge_mAh,energy_Wh,mean_voltage_V,average_current_A,peak_current_A,duration_s,pulsed,resistance_ohm\n";
+  for (const RunSummary& s : c.summaries)
+    o += fmt::format("\"{}\",{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{:.3f},{},{}\n", s.label, s.charge_mah, s.energy_wh, s.mean_voltage_v,
+                     s.average_current_a, s.peak_current_a, s.duration_s, s.pulsed ? 1 : 0,
+                     s.resistance_ohm ? fmt::format("{:.6f}", *s.resistance_ohm) : "");
+  return o;
+}
+
 std::string CompareReportHtml(const CompareReport& c) {
   std::vector<HtmlSection> sections;
   HtmlSection t;

@@ -62,6 +62,8 @@ Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t
 RunSummary SummariseRun(const RunReport& report);
 nlohmann::json CompareReportJson(const CompareReport& report);
 std::string CompareReportText(const CompareReport& report);
+// The side-by-side table as CSV (one row per run).
+std::string CompareReportCsv(const CompareReport& report);
 std::string CompareReportHtml(const CompareReport& report);
 
 }  // namespace kp

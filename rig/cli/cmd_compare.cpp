@@ -19,10 +19,10 @@ void RegisterCompare(CliRegistry& r) {
   static std::string db_path = "kneepoint.db";
   static std::vector<int64_t> run_ids;
   static bool json = false;
-  static std::string html_path, at_text;
+  static std::string html_path, at_text, csv_path;
   static ReportOptions options;
   static double brownout_v = 0.0;
-  db_path = "kneepoint.db", run_ids.clear(), json = false, html_path.clear(), at_text.clear();
+  db_path = "kneepoint.db", run_ids.clear(), json = false, html_path.clear(), at_text.clear(), csv_path.clear();
   options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* cmd = r.Add("compare", "Compare runs: table, overlays, pulsed vs continuous, Peukert fit", [] {
     std::optional<double> at_a;
@@ -40,6 +40,9 @@ void RegisterCompare(CliRegistry& r) {
     if (!html_path.empty()) {
       if (Status st = WriteTextFile(html_path, CompareReportHtml(*rep)); !st.ok()) return Fail(st);
     }
+    if (!csv_path.empty()) {
+      if (Status st = WriteTextFile(csv_path, CompareReportCsv(*rep)); !st.ok()) return Fail(st);
+    }
     if (json) {
       std::cout << CompareReportJson(*rep).dump(2) << "\n";
     } else {
@@ -52,6 +55,7 @@ void RegisterCompare(CliRegistry& r) {
   cmd->add_option("--db", db_path, "Database file")->capture_default_str();
   cmd->add_flag("--json", json, "Machine-readable output");
   cmd->add_option("--html", html_path, "Also write a self-contained HTML comparison to this file");
+  cmd->add_option("--csv", csv_path, "Also write the side-by-side table as CSV to this file");
   cmd->add_option("--at", at_text, "Predict run time and capacity at this constant current from the Peukert fit (e.g. 750mA)");
   AddReportOptions(cmd, options, brownout_v);
 }

@@ -26,6 +26,13 @@ Result<double> Quantity(const std::string& option, const std::string& text, Quan
   return *q.value;
 }
 
+// "40 uA", "25 mA", "1.2 A".
+std::string FormatCurrent(double a) {
+  if (a >= 1.0) return fmt::format("{:.4g} A", a);
+  if (a >= 1e-3) return fmt::format("{:.4g} mA", a * 1e3);
+  return fmt::format("{:.4g} uA", a * 1e6);
+}
+
 bool opt_peukert(const LifeOptions& o) { return o.peukert_k > 0; }
 
 int RunLife(const LifeOptions& o) {
@@ -104,11 +111,11 @@ int RunLife(const LifeOptions& o) {
     return kExitOk;
   }
   std::cout << fmt::format("capacity         {:.1f} mAh\n", p.capacity_mah);
-  std::cout << fmt::format("average current  {:.4g} uA{}\n", p.average_current_a * 1e6,
+  std::cout << fmt::format("average current  {}{}\n", FormatCurrent(p.average_current_a),
                            profile ? fmt::format(" (profile {}, cycle {:.4g} s)", o.profile_path, ProfileCycleS(*profile)) : "");
   if (p.battery_current_a != p.average_current_a)
-    std::cout << fmt::format("battery current  {:.4g} uA\n", p.battery_current_a * 1e6);
-  std::cout << fmt::format("life             {:.0f} h = {:.2f} years\n", p.hours, p.years);
+    std::cout << fmt::format("battery current  {}\n", FormatCurrent(p.battery_current_a));
+  std::cout << fmt::format("life             {:.0f} h = {:.1f} days = {:.3g} years\n", p.hours, p.hours / 24.0, p.years);
   std::cout << "assumptions:\n";
   for (const std::string& a : p.assumptions) std::cout << "  - " << a << "\n";
   return kExitOk;

@@ -1,6 +1,7 @@
 // The report, compare and life commands end to end through the command line.
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <sstream>
@@ -144,7 +145,8 @@ TEST(CompareCli, PeukertOverThreeRatesAndHtml) {
   EXPECT_EQ(gj["gaps"][0]["end_s"].get<double>(), 101.0);
 
   std::string html = dir.File("cmp.html");
-  CliResult r = Cli({"compare", "1", "2", "3", "--db", db, "--json", "--html", html, "--at", "750mA"});
+  std::string csv = dir.File("cmp.csv");
+  CliResult r = Cli({"compare", "1", "2", "3", "--db", db, "--json", "--html", html, "--csv", csv, "--at", "750mA"});
   ASSERT_EQ(r.code, 0) << r.err;
   auto j = nlohmann::json::parse(r.out);
   ASSERT_TRUE(j["peukert"].contains("exponent_k")) << j.dump();
@@ -157,6 +159,9 @@ TEST(CompareCli, PeukertOverThreeRatesAndHtml) {
   EXPECT_LE(at, j["runs"][1]["charge_mAh"].get<double>() + 1.0);
   EXPECT_GE(at, j["runs"][2]["charge_mAh"].get<double>() - 1.0);
   EXPECT_EQ(testing::CheckXml(ReadFile(html)), "");
+  std::string table = ReadFile(csv);
+  EXPECT_EQ(std::count(table.begin(), table.end(), '\n'), 4);
+  EXPECT_EQ(table.rfind("run,charge_mAh,", 0), 0u);
 
   std::string page = dir.File("run1.html");
   CliResult rep = Cli({"report", "1", "--db", db, "--html", page});
