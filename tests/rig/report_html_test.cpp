@@ -144,6 +144,9 @@ TEST(ReportHtml, SteppedRunHasResistanceVersusDepthOfDischarge) {
     // Each point is exactly the two-current formula on its samples (IEC 61960-3 7.7, secondary).
     EXPECT_DOUBLE_EQ(p.resistance_ohm, (p.u1_v - p.u2_v) / (p.i2_a - p.i1_a));
   }
+  RecordProperty("dcir_first_mohm", std::to_string(a.dcir.front().resistance_ohm * 1000));
+  RecordProperty("dcir_last_mohm", std::to_string(a.dcir.back().resistance_ohm * 1000));
+  RecordProperty("dcir_last_dod", std::to_string(a.dcir.back().depth_of_discharge));
   for (size_t k = 1; k < a.dcir.size(); ++k) EXPECT_GE(a.dcir[k].depth_of_discharge, a.dcir[k - 1].depth_of_discharge);
   // The 1 It steps are pulses over the 0.2 It base.
   EXPECT_TRUE(a.pulsed);
