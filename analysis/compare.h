@@ -19,7 +19,7 @@ struct RunSummary {
   double mean_voltage_v = 0.0;
   double average_current_a = 0.0;  // of the main discharge
   double peak_current_a = 0.0;
-  double duration_s = 0.0;         // of the main discharge (time to end voltage)
+  double duration_s = 0.0;  // of the main discharge (time to end voltage)
   bool pulsed = false;
   std::optional<double> resistance_ohm;  // median DC-IR, when measured
   std::string verdict;
@@ -27,7 +27,7 @@ struct RunSummary {
 
 struct RatioFigures {
   std::string pulsed_label, continuous_label;
-  std::string basis;  // "equal average current" or "equal peak current"
+  std::string basis;            // "equal average current" or "equal peak current"
   double capacity_ratio = 0.0;  // pulsed / continuous
   double energy_ratio = 0.0;
 };

@@ -19,8 +19,7 @@ std::vector<double> EdgesFromSamples(SampleSpan s, double min_step_a) {
   return edges;
 }
 
-std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, const DcirOptions& o,
-                                   double capacity_mah) {
+std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, const DcirOptions& o, double capacity_mah) {
   std::vector<DcirPoint> out;
   if (s.size() < 2) return out;
   // Running charge up to sample k (trapezoid), advanced as edges move forward.

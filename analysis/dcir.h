@@ -16,8 +16,8 @@
 namespace kp {
 
 struct DcirOptions {
-  double delay_s = 1.0;        // time after the edge at which U2 is read
-  double min_step_a = 0.05;    // smaller current changes are not treated as edges
+  double delay_s = 1.0;      // time after the edge at which U2 is read
+  double min_step_a = 0.05;  // smaller current changes are not treated as edges
 };
 
 struct DcirPoint {
@@ -25,7 +25,7 @@ struct DcirPoint {
   double u1_v = 0.0, i1_a = 0.0;  // before the edge
   double u2_v = 0.0, i2_a = 0.0;  // delay after the edge
   double resistance_ohm = 0.0;
-  double delivered_mah = 0.0;      // charge delivered before the edge
+  double delivered_mah = 0.0;       // charge delivered before the edge
   double depth_of_discharge = 0.0;  // delivered / capacity (0..1); 0 when capacity unknown
 };
 

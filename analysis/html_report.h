@@ -13,9 +13,9 @@
 namespace kp {
 
 struct HtmlCell {
-  std::string text;                 // as shown
-  std::string figure;               // data-figure key, empty for plain cells
-  std::optional<double> value;      // exact value behind `text`
+  std::string text;             // as shown
+  std::string figure;           // data-figure key, empty for plain cells
+  std::optional<double> value;  // exact value behind `text`
 };
 
 struct HtmlTable {

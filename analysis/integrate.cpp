@@ -107,8 +107,10 @@ std::vector<Gap> FindGaps(SampleSpan s, const GapOptions& o) {
 
 const char* IntegrationMethodName(IntegrationMethod m) {
   switch (m) {
-    case IntegrationMethod::kSampleTrapezoid: return "sample-trapezoid";
-    case IntegrationMethod::kPerSegment: return "per-commanded-segment";
+    case IntegrationMethod::kSampleTrapezoid:
+      return "sample-trapezoid";
+    case IntegrationMethod::kPerSegment:
+      return "per-commanded-segment";
   }
   return "?";
 }

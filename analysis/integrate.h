@@ -43,8 +43,8 @@ struct Gap {
 };
 
 struct GapOptions {
-  double factor = 10.0;     // spacing > factor × the step's median spacing
-  double min_gap_s = 5.0;   // and longer than this
+  double factor = 10.0;    // spacing > factor × the step's median spacing
+  double min_gap_s = 5.0;  // and longer than this
 };
 std::vector<Gap> FindGaps(SampleSpan samples, const GapOptions& options = {});
 

@@ -1,9 +1,9 @@
 #include "analysis/life.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <charconv>
-
-#include <fmt/format.h>
 
 #include "analysis/quantity.h"
 
@@ -134,9 +134,9 @@ LifeOutcome ProjectLife(const LifeInputs& in) {
   if (in.efficiency) {
     p.battery_current_a /= *in.efficiency;
     p.allowances.push_back("regulator-efficiency");
-    p.assumptions.push_back(fmt::format(
-        "regulator efficiency {:.0f} %: battery current = load current / efficiency (voltage ratio ignored)",
-        *in.efficiency * 100.0));
+    p.assumptions.push_back(
+        fmt::format("regulator efficiency {:.0f} %: battery current = load current / efficiency (voltage ratio ignored)",
+                    *in.efficiency * 100.0));
   }
   if (in.quiescent_a) {
     p.battery_current_a += *in.quiescent_a;
@@ -146,17 +146,17 @@ LifeOutcome ProjectLife(const LifeInputs& in) {
   if (in.peukert) {
     p.capacity_mah = in.peukert->CapacityMahAt(p.battery_current_a);
     p.allowances.push_back("peukert-derating");
-    p.assumptions.push_back(fmt::format(
-        "capacity derated with Peukert k = {:.3f} to {:.0f} mAh at the average current (an extrapolation when the "
-        "fitted runs used far larger currents)",
-        in.peukert->exponent_k, p.capacity_mah));
+    p.assumptions.push_back(
+        fmt::format("capacity derated with Peukert k = {:.3f} to {:.0f} mAh at the average current (an extrapolation when the "
+                    "fitted runs used far larger currents)",
+                    in.peukert->exponent_k, p.capacity_mah));
   }
   if (in.self_discharge_per_month) {
     p.self_discharge_a = *in.self_discharge_per_month * p.capacity_mah / 1000.0 / kHoursPerMonth;
     p.allowances.push_back("self-discharge");
-    p.assumptions.push_back(fmt::format(
-        "self-discharge {:.3g} %/month of the starting capacity, as a constant extra drain of {:.3g} uA",
-        *in.self_discharge_per_month * 100.0, p.self_discharge_a * 1e6));
+    p.assumptions.push_back(
+        fmt::format("self-discharge {:.3g} %/month of the starting capacity, as a constant extra drain of {:.3g} uA",
+                    *in.self_discharge_per_month * 100.0, p.self_discharge_a * 1e6));
   }
   double drain_a = p.battery_current_a + p.self_discharge_a;
   p.hours = p.capacity_mah / 1000.0 / drain_a;

@@ -54,20 +54,20 @@ ProfileParse ParseDutyProfile(std::string_view text);
 
 struct LifeInputs {
   double capacity_mah = 0.0;
-  double average_current_a = 0.0;                      // load current
-  std::optional<double> self_discharge_per_month;      // fraction, e.g. 0.02
-  std::optional<double> quiescent_a;                   // regulator quiescent current
-  std::optional<double> efficiency;                    // regulator efficiency (0, 1]
-  std::optional<PeukertFit> peukert;                   // derate the capacity at the average current
+  double average_current_a = 0.0;                  // load current
+  std::optional<double> self_discharge_per_month;  // fraction, e.g. 0.02
+  std::optional<double> quiescent_a;               // regulator quiescent current
+  std::optional<double> efficiency;                // regulator efficiency (0, 1]
+  std::optional<PeukertFit> peukert;               // derate the capacity at the average current
 };
 
 struct LifeProjection {
-  double average_current_a = 0.0;   // load average
-  double battery_current_a = 0.0;   // after regulator allowances
-  double self_discharge_a = 0.0;    // equivalent drain
-  double capacity_mah = 0.0;        // after Peukert derating
+  double average_current_a = 0.0;  // load average
+  double battery_current_a = 0.0;  // after regulator allowances
+  double self_discharge_a = 0.0;   // equivalent drain
+  double capacity_mah = 0.0;       // after Peukert derating
   double hours = 0.0;
-  double years = 0.0;               // hours / 8766 (365.25 days)
+  double years = 0.0;                    // hours / 8766 (365.25 days)
   std::vector<std::string> allowances;   // names of the allowances applied
   std::vector<std::string> assumptions;  // sentences printed beside the result
 };

@@ -1,9 +1,9 @@
 #include "analysis/peukert.h"
 
+#include <fmt/format.h>
+
 #include <cmath>
 #include <vector>
-
-#include <fmt/format.h>
 
 namespace kp {
 

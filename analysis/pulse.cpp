@@ -5,16 +5,15 @@
 
 namespace kp {
 
-std::vector<PulseFigures> AnalysePulses(SampleSpan s, std::span<const CommandedSegment> segs,
-                                        std::optional<double> threshold_a) {
+std::vector<PulseFigures> AnalysePulses(SampleSpan s, std::span<const CommandedSegment> segs, std::optional<double> threshold_a) {
   std::vector<PulseFigures> out;
   if (segs.empty() || s.empty()) return out;
   double thr;
   if (threshold_a) {
     thr = *threshold_a;
   } else {
-    auto [lo, hi] = std::minmax_element(segs.begin(), segs.end(),
-                                        [](const CommandedSegment& a, const CommandedSegment& b) { return a.current_a < b.current_a; });
+    auto [lo, hi] = std::minmax_element(
+        segs.begin(), segs.end(), [](const CommandedSegment& a, const CommandedSegment& b) { return a.current_a < b.current_a; });
     if (hi->current_a <= lo->current_a) return out;  // constant current: no pulses
     thr = 0.5 * (lo->current_a + hi->current_a);
   }
@@ -22,7 +21,7 @@ std::vector<PulseFigures> AnalysePulses(SampleSpan s, std::span<const CommandedS
   for (size_t i = 0; i < segs.size(); ++i)
     if (segs[i].current_a > thr) pulse_idx.push_back(i);
 
-  size_t k = 0;      // integration cursor
+  size_t k = 0;  // integration cursor
   double as = 0.0;
   size_t cursor = 0;  // first sample not before the current pulse
   for (size_t n = 0; n < pulse_idx.size(); ++n) {

@@ -15,13 +15,13 @@ namespace kp {
 struct PulseFigures {
   int index = 0;  // 0-based pulse number
   double t_start_s = 0.0, t_end_s = 0.0;
-  double current_a = 0.0;            // commanded pulse current
+  double current_a = 0.0;              // commanded pulse current
   double rest_voltage_before_v = 0.0;  // last sample before the pulse
-  double min_voltage_v = 0.0;        // lowest sample inside the pulse
-  double recovered_voltage_v = 0.0;  // last sample before the next pulse (or end of record)
-  double recovery_v = 0.0;           // recovered - min
+  double min_voltage_v = 0.0;          // lowest sample inside the pulse
+  double recovered_voltage_v = 0.0;    // last sample before the next pulse (or end of record)
+  double recovery_v = 0.0;             // recovered - min
   double delivered_mah_at_start = 0.0;
-  size_t samples = 0;                // samples inside the pulse
+  size_t samples = 0;  // samples inside the pulse
 };
 
 // A sample belongs to a pulse when t_start <= t < t_end.

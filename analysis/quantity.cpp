@@ -1,8 +1,9 @@
 #include "analysis/quantity.h"
 
+#include <fmt/format.h>
+
 #include <cctype>
 #include <charconv>
-#include <fmt/format.h>
 
 namespace kp {
 namespace {
@@ -12,8 +13,20 @@ struct UnitScale {
   double scale;
 };
 
-constexpr UnitScale kCurrent[] = {{"A", 1.0}, {"mA", 1e-3}, {"uA", 1e-6}, {"\xC2\xB5" "A", 1e-6}, {"nA", 1e-9}};
-constexpr UnitScale kCharge[] = {{"Ah", 1000.0}, {"mAh", 1.0}, {"uAh", 1e-3}, {"\xC2\xB5" "Ah", 1e-3}, {"C", 1.0 / 3.6}};
+constexpr UnitScale kCurrent[] = {{"A", 1.0},
+                                  {"mA", 1e-3},
+                                  {"uA", 1e-6},
+                                  {"\xC2\xB5"
+                                   "A",
+                                   1e-6},
+                                  {"nA", 1e-9}};
+constexpr UnitScale kCharge[] = {{"Ah", 1000.0},
+                                 {"mAh", 1.0},
+                                 {"uAh", 1e-3},
+                                 {"\xC2\xB5"
+                                  "Ah",
+                                  1e-3},
+                                 {"C", 1.0 / 3.6}};
 constexpr UnitScale kDuration[] = {{"s", 1.0}, {"ms", 1e-3}, {"min", 60.0}, {"h", 3600.0}, {"d", 86400.0}};
 constexpr double kDaysPerMonth = 365.25 / 12.0;
 constexpr UnitScale kRate[] = {{"%/month", 0.01}, {"%/year", 0.01 / 12.0}, {"%/day", 0.01 * kDaysPerMonth}};
@@ -59,11 +72,21 @@ ParsedQuantity ParseQuantity(std::string_view text, QuantityKind kind) {
   const UnitScale* u = nullptr;
   std::string expected;
   switch (kind) {
-    case QuantityKind::kCurrent: u = Find(kCurrent, unit), expected = Units(kCurrent); break;
-    case QuantityKind::kCharge: u = Find(kCharge, unit), expected = Units(kCharge); break;
-    case QuantityKind::kDuration: u = Find(kDuration, unit), expected = Units(kDuration); break;
-    case QuantityKind::kFraction: u = Find(kFraction, unit), expected = "%, or none for a fraction"; break;
-    case QuantityKind::kRatePerMonth: u = Find(kRate, unit), expected = Units(kRate); break;
+    case QuantityKind::kCurrent:
+      u = Find(kCurrent, unit), expected = Units(kCurrent);
+      break;
+    case QuantityKind::kCharge:
+      u = Find(kCharge, unit), expected = Units(kCharge);
+      break;
+    case QuantityKind::kDuration:
+      u = Find(kDuration, unit), expected = Units(kDuration);
+      break;
+    case QuantityKind::kFraction:
+      u = Find(kFraction, unit), expected = "%, or none for a fraction";
+      break;
+    case QuantityKind::kRatePerMonth:
+      u = Find(kRate, unit), expected = Units(kRate);
+      break;
   }
   if (!u) {
     r.error = fmt::format("unknown unit '{}' in '{}' (expected {})", unit, t, expected);

@@ -9,11 +9,11 @@
 namespace kp {
 
 enum class QuantityKind {
-  kCurrent,        // A, mA, uA (µA), nA     -> amperes
-  kCharge,         // Ah, mAh, uAh, C        -> mAh
-  kDuration,       // s, ms, min, h, d       -> seconds
-  kFraction,       // %, or a plain number 0..1 -> fraction
-  kRatePerMonth,   // %/month, %/year, %/day -> fraction per month (30.4375 days)
+  kCurrent,       // A, mA, uA (µA), nA     -> amperes
+  kCharge,        // Ah, mAh, uAh, C        -> mAh
+  kDuration,      // s, ms, min, h, d       -> seconds
+  kFraction,      // %, or a plain number 0..1 -> fraction
+  kRatePerMonth,  // %/month, %/year, %/day -> fraction per month (30.4375 days)
 };
 
 struct ParsedQuantity {

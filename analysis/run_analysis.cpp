@@ -136,8 +136,8 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   a.pulsed = a.pulses.size() >= 2;
   if (!a.pulsed) a.pulses.clear();  // one high segment is a plain discharge
   if (ctx.brownout_v) a.brownout = FirstBrownout(a.pulses, *ctx.brownout_v);
-  std::vector<double> edges = ctx.segments.empty() ? EdgesFromSamples(s, ctx.dcir.min_step_a)
-                                                   : EdgesFromSegments(ctx.segments, ctx.dcir.min_step_a);
+  std::vector<double> edges =
+      ctx.segments.empty() ? EdgesFromSamples(s, ctx.dcir.min_step_a) : EdgesFromSegments(ctx.segments, ctx.dcir.min_step_a);
   double capacity = ctx.rated_mah > 0 ? ctx.rated_mah : a.discharge_charge_mah;
   a.dcir = MeasureDcir(s, edges, ctx.dcir, capacity);
   return a;

@@ -1,10 +1,10 @@
 #include "analysis/svg_plot.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
-
-#include <fmt/format.h>
 
 namespace kp {
 namespace {
@@ -43,12 +43,23 @@ std::string XmlEscape(std::string_view t) {
   o.reserve(t.size());
   for (char c : t) {
     switch (c) {
-      case '&': o += "&amp;"; break;
-      case '<': o += "&lt;"; break;
-      case '>': o += "&gt;"; break;
-      case '"': o += "&quot;"; break;
-      case '\'': o += "&#39;"; break;
-      default: o += c;
+      case '&':
+        o += "&amp;";
+        break;
+      case '<':
+        o += "&lt;";
+        break;
+      case '>':
+        o += "&gt;";
+        break;
+      case '"':
+        o += "&quot;";
+        break;
+      case '\'':
+        o += "&#39;";
+        break;
+      default:
+        o += c;
     }
   }
   return o;
@@ -95,7 +106,23 @@ std::vector<size_t> ReducePoints(std::span<const double> y, size_t max_points) {
 }
 
 std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_points) {
-  const double ml = 64, mr = 64, mt = 30, mb = 46;
+  // Legend above the frame, in rows of entries laid out left to right.
+  const double ml = 64, mr = 64, mb = 46;
+  struct LegendSlot {
+    double x, y;
+  };
+  std::vector<LegendSlot> slots;
+  {
+    double x = ml, y = 36;
+    for (const PlotSeries& s : p.series) {
+      double w = 34 + 6.5 * static_cast<double>(s.name.size() + (s.right_axis ? 14 : 0)) + 16;
+      if (x + w > width - mr && x > ml) x = ml, y += 15;
+      slots.push_back({x, y});
+      x += w;
+    }
+  }
+  const double mt = (slots.empty() ? 30.0 : slots.back().y + 10.0);
+  height = std::max(height, static_cast<int>(mt + mb + 120));
   const double pw = width - ml - mr, ph = height - mt - mb;
   Range xr, yr, y2r;
   bool has_right = false;
@@ -149,8 +176,8 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
   }
   double ystep = yt.size() >= 2 ? yt[1] - yt[0] : 1.0;
   for (double v : yt) {
-    o += fmt::format("<line x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"#ddd\"/>\n", ml, Y(v, false), ml + pw,
-                     Y(v, false));
+    o += fmt::format("<line x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"#ddd\"/>\n", ml, Y(v, false),
+                     ml + pw, Y(v, false));
     o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\" text-anchor=\"end\">{}</text>\n", ml - 5, Y(v, false) + 4,
                      Tick(v, ystep));
   }
@@ -160,18 +187,21 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
       o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\" text-anchor=\"start\">{}</text>\n", ml + pw + 5,
                        Y(v, true) + 4, Tick(v, s2));
     o += fmt::format(
-        "<text x=\"{0:.1f}\" y=\"{1:.1f}\" font-size=\"12\" text-anchor=\"middle\" transform=\"rotate(90 {0:.1f} {1:.1f})\">{2}</text>\n",
+        "<text x=\"{0:.1f}\" y=\"{1:.1f}\" font-size=\"12\" text-anchor=\"middle\" transform=\"rotate(90 {0:.1f} "
+        "{1:.1f})\">{2}</text>\n",
         width - 14.0, mt + ph / 2, XmlEscape(p.y2_label));
   }
   o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"12\" text-anchor=\"middle\">{}</text>\n", ml + pw / 2,
                    height - 8.0, XmlEscape(p.x_label));
   o += fmt::format(
-      "<text x=\"{0:.1f}\" y=\"{1:.1f}\" font-size=\"12\" text-anchor=\"middle\" transform=\"rotate(-90 {0:.1f} {1:.1f})\">{2}</text>\n",
+      "<text x=\"{0:.1f}\" y=\"{1:.1f}\" font-size=\"12\" text-anchor=\"middle\" transform=\"rotate(-90 {0:.1f} "
+      "{1:.1f})\">{2}</text>\n",
       16.0, mt + ph / 2, XmlEscape(p.y_label));
 
   size_t colour = 0;
-  double legend_y = mt + 14;
+  size_t slot = 0;
   for (const PlotSeries& s : p.series) {
+    const LegendSlot& at = slots[slot++];
     const char* c = kPalette[colour++ % std::size(kPalette)];
     size_t n = std::min(s.x.size(), s.y.size());
     auto idx = ReducePoints(std::span<const double>(s.y.data(), n), max_points);
@@ -185,11 +215,10 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
       for (size_t i : idx) o += fmt::format("{:.1f},{:.1f} ", X(s.x[i]), Y(s.y[i], s.right_axis));
       o += "\"/>\n";
     }
-    o += fmt::format("<line x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"{}\" stroke-width=\"3\"/>", ml + 10,
-                     legend_y - 4, ml + 28, legend_y - 4, c);
-    o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\">{}{}</text>\n", ml + 32, legend_y, XmlEscape(s.name),
+    o += fmt::format("<line x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"{}\" stroke-width=\"3\"{}/>", at.x,
+                     at.y - 4, at.x + 24, at.y - 4, c, s.right_axis ? " stroke-dasharray=\"5 3\"" : "");
+    o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\">{}{}</text>\n", at.x + 28, at.y, XmlEscape(s.name),
                      s.right_axis ? " (right axis)" : "");
-    legend_y += 14;
   }
   o += "</svg>\n";
   return o;

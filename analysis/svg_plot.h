@@ -19,11 +19,11 @@ struct PlotSeries {
 };
 
 struct PlotSpec {
-  std::string id;       // element id, unique in the page ("plot-voltage-time")
+  std::string id;  // element id, unique in the page ("plot-voltage-time")
   std::string title;
-  std::string x_label;  // with unit: "time (h)"
-  std::string y_label;  // with unit: "voltage (V)"
-  std::string y2_label; // right axis, when a series uses it
+  std::string x_label;   // with unit: "time (h)"
+  std::string y_label;   // with unit: "voltage (V)"
+  std::string y2_label;  // right axis, when a series uses it
   std::vector<PlotSeries> series;
 };
 

@@ -1,10 +1,10 @@
 #include "analysis/verdict.h"
 
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cctype>
 #include <cmath>
-
-#include <fmt/format.h>
 
 namespace kp {
 
@@ -47,8 +47,7 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
        r.rest_before_s && *r.rest_before_s >= m.rest_min_s && *r.rest_before_s <= m.rest_max_s});
   if (m.end_voltage_v) {
     // End voltage reached within 2 % (the discharge ran to it, not stopped early).
-    j.conditions.push_back({"end voltage", fmt::format("{:.2f} V", *m.end_voltage_v),
-                            fmt::format("{:.3f} V", r.end_voltage_v),
+    j.conditions.push_back({"end voltage", fmt::format("{:.2f} V", *m.end_voltage_v), fmt::format("{:.3f} V", r.end_voltage_v),
                             r.end_voltage_v <= *m.end_voltage_v * 1.02});
   }
   j.conditions_met = std::all_of(j.conditions.begin(), j.conditions.end(), [](const ConditionCheck& c) { return c.met; });
@@ -60,9 +59,8 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
     j.text = fmt::format("no verdict: no rated capacity given ({})", m.name);
   } else {
     j.text = fmt::format("{}: {:.0f} mAh is {:.1f} % of rated {:.0f} mAh (criterion >= {:.0f} %, {}); {}",
-                         j.capacity_pass ? "PASS" : "FAIL", r.delivered_mah, j.percent_of_rated, r.rated_mah,
-                         m.required_percent, m.name,
-                         j.conditions_met ? "all test conditions met" : "conditions not met: " + unmet);
+                         j.capacity_pass ? "PASS" : "FAIL", r.delivered_mah, j.percent_of_rated, r.rated_mah, m.required_percent,
+                         m.name, j.conditions_met ? "all test conditions met" : "conditions not met: " + unmet);
   }
   return j;
 }

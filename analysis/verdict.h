@@ -18,9 +18,9 @@
 namespace kp {
 
 struct CapacityMethod {
-  std::string name;              // "IEC 61960-3 7.3.1 rated capacity"
+  std::string name;  // "IEC 61960-3 7.3.1 rated capacity"
   double required_percent = 100.0;
-  double rate_it = 0.2;          // discharge current in It (rated mAh / 1 h)
+  double rate_it = 0.2;             // discharge current in It (rated mAh / 1 h)
   double current_tolerance = 0.01;  // relative
   double temp_min_c = 15.0, temp_max_c = 25.0;
   double rest_min_s = 3600.0, rest_max_s = 4.0 * 3600.0;
@@ -39,8 +39,8 @@ struct DischargeConditions {
   double max_current_deviation_a = 0.0;  // largest |I - mean| among its samples
   double start_temperature_c = 0.0;
   double min_temperature_c = 0.0, max_temperature_c = 0.0;
-  std::optional<double> rest_before_s;   // rest step right before the discharge
-  double end_voltage_v = 0.0;            // last sample of the discharge
+  std::optional<double> rest_before_s;  // rest step right before the discharge
+  double end_voltage_v = 0.0;           // last sample of the discharge
 };
 
 struct ConditionCheck {

@@ -1,10 +1,9 @@
 #include "rig/run_report.h"
 
-#include <algorithm>
-#include <cstdlib>
-
 #include <fmt/format.h>
 
+#include <algorithm>
+#include <cstdlib>
 #include <nlohmann/json.hpp>
 
 #include "analysis/html_report.h"
@@ -270,9 +269,10 @@ std::string RunReportHtml(const RunReport& rep) {
 
   HtmlSection sum;
   sum.title = "Summary";
-  sum.paragraphs.push_back(fmt::format("Cell {} ({}, rated {:.0f} mAh), procedure {}, rig {}. Outcome: {} ({}). Started {}, ended {}.",
-                                       rep.run.cell, rep.run.chemistry, rep.run.rated_mah, rep.run.procedure_name, rep.run.rig,
-                                       OutcomeName(rep.run.outcome), rep.run.reason, rep.run.started_at, rep.run.ended_at));
+  sum.paragraphs.push_back(
+      fmt::format("Cell {} ({}, rated {:.0f} mAh), procedure {}, rig {}. Outcome: {} ({}). Started {}, ended {}.", rep.run.cell,
+                  rep.run.chemistry, rep.run.rated_mah, rep.run.procedure_name, rep.run.rig, OutcomeName(rep.run.outcome),
+                  rep.run.reason, rep.run.started_at, rep.run.ended_at));
   sum.paragraphs.push_back("Integration: " + IntegrationMethodText(a.method) + ".");
   if (a.gaps.empty()) {
     sum.paragraphs.push_back("No gaps in the record.");
@@ -316,17 +316,33 @@ std::string RunReportHtml(const RunReport& rep) {
   std::vector<double> th = Hours(rep.samples), v, i, temp, q, vq;
   for (const Sample& s : rep.samples) v.push_back(s.voltage_v), i.push_back(s.current_a), temp.push_back(s.temperature_c);
   VoltageVersusCharge(rep.samples, q, vq);
-  plots.plots.push_back({"plot-voltage-current-time", "Voltage and current versus time", "time (h)", "voltage (V)", "current (A)",
+  plots.plots.push_back({"plot-voltage-current-time",
+                         "Voltage and current versus time",
+                         "time (h)",
+                         "voltage (V)",
+                         "current (A)",
                          {{"voltage", th, v, false, false}, {"current", th, i, true, false}}});
-  plots.plots.push_back({"plot-voltage-charge", "Voltage versus delivered charge", "delivered charge (mAh)", "voltage (V)", "",
+  plots.plots.push_back({"plot-voltage-charge",
+                         "Voltage versus delivered charge",
+                         "delivered charge (mAh)",
+                         "voltage (V)",
+                         "",
                          {{"voltage", q, vq, false, false}}});
-  plots.plots.push_back({"plot-temperature", "Cell temperature versus time", "time (h)", "temperature (degC)", "",
+  plots.plots.push_back({"plot-temperature",
+                         "Cell temperature versus time",
+                         "time (h)",
+                         "temperature (degC)",
+                         "",
                          {{"temperature", th, temp, false, false}}});
   if (!a.dcir.empty()) {
     PlotSeries r{"DC-IR", {}, {}, false, true};
     for (const DcirPoint& p : a.dcir) r.x.push_back(p.depth_of_discharge * 100.0), r.y.push_back(p.resistance_ohm * 1000.0);
-    plots.plots.push_back({"plot-resistance-dod", "DC internal resistance versus depth of discharge", "depth of discharge (%)",
-                           "resistance (mOhm)", "", {r}});
+    plots.plots.push_back({"plot-resistance-dod",
+                           "DC internal resistance versus depth of discharge",
+                           "depth of discharge (%)",
+                           "resistance (mOhm)",
+                           "",
+                           {r}});
   }
   if (a.pulsed) {
     PlotSeries mn{"minimum under load", {}, {}, false, true}, rc{"recovered", {}, {}, false, true};
@@ -334,7 +350,8 @@ std::string RunReportHtml(const RunReport& rep) {
       mn.x.push_back(p.delivered_mah_at_start), mn.y.push_back(p.min_voltage_v);
       rc.x.push_back(p.delivered_mah_at_start), rc.y.push_back(p.recovered_voltage_v);
     }
-    plots.plots.push_back({"plot-pulses", "Pulse minimum and recovered voltage", "delivered charge (mAh)", "voltage (V)", "", {mn, rc}});
+    plots.plots.push_back(
+        {"plot-pulses", "Pulse minimum and recovered voltage", "delivered charge (mAh)", "voltage (V)", "", {mn, rc}});
   }
   sections.push_back(plots);
 
@@ -361,9 +378,10 @@ std::string RunReportHtml(const RunReport& rep) {
   if (a.brownout) {
     HtmlSection b;
     b.title = "Brown-out";
-    b.paragraphs.push_back(fmt::format("Pulse {} is the first whose minimum voltage ({:.3f} V) breaches the brown-out level; "
-                                       "{:.1f} mAh had been delivered by then.",
-                                       a.brownout->pulse_index + 1, a.brownout->min_voltage_v, a.brownout->delivered_mah));
+    b.paragraphs.push_back(
+        fmt::format("Pulse {} is the first whose minimum voltage ({:.3f} V) breaches the brown-out level; "
+                    "{:.1f} mAh had been delivered by then.",
+                    a.brownout->pulse_index + 1, a.brownout->min_voltage_v, a.brownout->delivered_mah));
     sections.push_back(b);
   }
   return RenderHtmlPage(fmt::format("Kneepoint run {}: {}", rep.run.id, rep.run.cell), sections);
@@ -471,8 +489,8 @@ std::string CompareReportText(const CompareReport& c) {
 std::string CompareReportCsv(const CompareReport& c) {
   std::string o = "run,charge_mAh,energy_Wh,mean_voltage_V,average_current_A,peak_current_A,duration_s,pulsed,resistance_ohm\n";
   for (const RunSummary& s : c.summaries)
-    o += fmt::format("\"{}\",{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{:.3f},{},{}\n", s.label, s.charge_mah, s.energy_wh, s.mean_voltage_v,
-                     s.average_current_a, s.peak_current_a, s.duration_s, s.pulsed ? 1 : 0,
+    o += fmt::format("\"{}\",{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{:.3f},{},{}\n", s.label, s.charge_mah, s.energy_wh,
+                     s.mean_voltage_v, s.average_current_a, s.peak_current_a, s.duration_s, s.pulsed ? 1 : 0,
                      s.resistance_ohm ? fmt::format("{:.6f}", *s.resistance_ohm) : "");
   return o;
 }
@@ -482,17 +500,16 @@ std::string CompareReportHtml(const CompareReport& c) {
   HtmlSection t;
   t.title = "Runs side by side";
   HtmlTable tab;
-  tab.header = {"run", "charge (mAh)", "energy (Wh)", "mean voltage (V)", "average current (A)", "peak current (A)",
+  tab.header = {"run",         "charge (mAh)", "energy (Wh)", "mean voltage (V)", "average current (A)", "peak current (A)",
                 "DC-IR (Ohm)", "verdict"};
   for (size_t i = 0; i < c.summaries.size(); ++i) {
     const RunSummary& s = c.summaries[i];
     std::string p = fmt::format("/runs/{}/", i);
-    tab.rows.push_back({TextCell(s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
-                        FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3),
-                        FigureCell(p + "average_current_A", s.average_current_a, 4),
-                        FigureCell(p + "peak_current_A", s.peak_current_a, 4),
-                        s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"),
-                        TextCell(s.verdict)});
+    tab.rows.push_back(
+        {TextCell(s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
+         FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), FigureCell(p + "average_current_A", s.average_current_a, 4),
+         FigureCell(p + "peak_current_A", s.peak_current_a, 4),
+         s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"), TextCell(s.verdict)});
   }
   t.tables.push_back(tab);
   sections.push_back(t);
@@ -510,7 +527,8 @@ std::string CompareReportHtml(const CompareReport& c) {
     for (size_t i = 0; i < r.samples.size(); ++i) {
       const Sample& s = r.samples[i];
       if (s.t_s < t0) continue;
-      if (i && r.samples[i - 1].t_s >= t0) as += 0.5 * (s.current_a + r.samples[i - 1].current_a) * (s.t_s - r.samples[i - 1].t_s);
+      if (i && r.samples[i - 1].t_s >= t0)
+        as += 0.5 * (s.current_a + r.samples[i - 1].current_a) * (s.t_s - r.samples[i - 1].t_s);
       q.x.push_back(as / 3.6), q.y.push_back(s.voltage_v);
       tt.x.push_back((s.t_s - t0) / 3600.0), tt.y.push_back(s.voltage_v);
     }
@@ -522,7 +540,8 @@ std::string CompareReportHtml(const CompareReport& c) {
 
   HtmlSection pr;
   pr.title = "Pulsed versus continuous";
-  if (c.ratios.empty()) pr.paragraphs.push_back("No pulsed run matched a continuous run at equal average or peak current (within 5 %).");
+  if (c.ratios.empty())
+    pr.paragraphs.push_back("No pulsed run matched a continuous run at equal average or peak current (within 5 %).");
   HtmlTable rt;
   rt.header = {"pulsed", "continuous", "basis", "capacity ratio", "energy ratio"};
   for (size_t i = 0; i < c.ratios.size(); ++i) {
@@ -538,7 +557,8 @@ std::string CompareReportHtml(const CompareReport& c) {
   pk.title = "Peukert fit";
   if (c.peukert.fit) {
     const PeukertFit& f = *c.peukert.fit;
-    pk.paragraphs.push_back("C_p = I^k · t (Peukert, 1897), fitted by least squares on ln t = ln C_p − k ln I over the constant-current runs.");
+    pk.paragraphs.push_back(
+        "C_p = I^k · t (Peukert, 1897), fitted by least squares on ln t = ln C_p − k ln I over the constant-current runs.");
     HtmlTable ft;
     ft.header = {"figure", "value"};
     ft.rows = {{TextCell("exponent k"), FigureCell("/peukert/exponent_k", f.exponent_k, 4)},

@@ -5,11 +5,10 @@
 #pragma once
 
 #include <cstdint>
+#include <nlohmann/json_fwd.hpp>
 #include <optional>
 #include <string>
 #include <vector>
-
-#include <nlohmann/json_fwd.hpp>
 
 #include "analysis/compare.h"
 #include "analysis/metrics.h"
@@ -20,15 +19,15 @@
 namespace kp {
 
 struct ReportOptions {
-  DcirOptions dcir;                   // delay after each current edge
-  std::optional<double> brownout_v;   // report the first pulse below this voltage
+  DcirOptions dcir;                  // delay after each current edge
+  std::optional<double> brownout_v;  // report the first pulse below this voltage
 };
 
 struct RunReport {
   RunRow run;
-  RunFigures figures;        // whole record (sample trapezoid)
-  CapacityVerdict verdict;   // plain >= 100 % of rated on the delivered charge
-  RunAnalysis analysis;      // per step, per discharge, method verdict, DC-IR, pulses
+  RunFigures figures;       // whole record (sample trapezoid)
+  CapacityVerdict verdict;  // plain >= 100 % of rated on the delivered charge
+  RunAnalysis analysis;     // per step, per discharge, method verdict, DC-IR, pulses
   std::vector<StepRow> steps;
   std::vector<Sample> samples;  // kept for the plots
   ReportOptions options;
@@ -53,12 +52,12 @@ struct CompareReport {
   std::vector<RunReport> runs;
   std::vector<RunSummary> summaries;
   std::vector<RatioFigures> ratios;
-  PeukertOutcome peukert;             // over the continuous runs
+  PeukertOutcome peukert;              // over the continuous runs
   std::optional<double> predict_at_a;  // user-given current for a prediction
 };
 
-Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t>& run_ids,
-                                         std::optional<double> predict_at_a, const ReportOptions& options = {});
+Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t>& run_ids, std::optional<double> predict_at_a,
+                                         const ReportOptions& options = {});
 RunSummary SummariseRun(const RunReport& report);
 nlohmann::json CompareReportJson(const CompareReport& report);
 std::string CompareReportText(const CompareReport& report);

@@ -1,8 +1,8 @@
 // `compare`: several runs side by side — overlays, pulsed versus continuous
 // ratios and a Peukert fit over the constant-current runs.
-#include <iostream>
-
 #include <fmt/format.h>
+
+#include <iostream>
 #include <nlohmann/json.hpp>
 
 #include "analysis/quantity.h"

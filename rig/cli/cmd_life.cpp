@@ -1,11 +1,11 @@
 // `life`: product-life projection, a pure calculation (no run needed).
+#include <fmt/format.h>
+
 #include <cmath>
 #include <fstream>
 #include <iostream>
-#include <sstream>
-
-#include <fmt/format.h>
 #include <nlohmann/json.hpp>
+#include <sstream>
 
 #include "analysis/life.h"
 #include "analysis/quantity.h"
@@ -79,7 +79,8 @@ int RunLife(const LifeOptions& o) {
   if (opt_peukert(o)) {
     // The capacity was measured at --measured-at; Peukert (1897) C_p = I^k t
     // gives C_p = Q_ref · I_ref^(k-1) with Q in Ah.
-    if (o.measured_at.empty()) return Fail(InvalidInput("--peukert needs --measured-at (the current the capacity was measured at)"));
+    if (o.measured_at.empty())
+      return Fail(InvalidInput("--peukert needs --measured-at (the current the capacity was measured at)"));
     auto ref = Quantity("--measured-at", o.measured_at, QuantityKind::kCurrent);
     if (!ref.ok()) return Fail(ref.status());
     if (!(*ref > 0)) return Fail(InvalidInput("--measured-at must be > 0"));
@@ -126,7 +127,8 @@ int RunLife(const LifeOptions& o) {
 void RegisterLife(CliRegistry& r) {
   static LifeOptions opt;
   opt = LifeOptions{};  // fresh defaults on every registration (RunCli may run more than once)
-  CLI::App* cmd = r.Add("life", "Project product life from capacity and a duty cycle (pure calculation)", [] { return RunLife(opt); });
+  CLI::App* cmd =
+      r.Add("life", "Project product life from capacity and a duty cycle (pure calculation)", [] { return RunLife(opt); });
   cmd->add_option("--capacity", opt.capacity, "Usable capacity, e.g. 2000mAh or 2.4Ah");
   cmd->add_option("--average", opt.average, "Average load current, e.g. 40uA");
   cmd->add_option("--profile", opt.profile_path,

@@ -1,8 +1,8 @@
 // `report`: the figures of one run, computed from its logged samples.
+#include <fmt/format.h>
+
 #include <fstream>
 #include <iostream>
-
-#include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
 #include "rig/cli/cli.h"

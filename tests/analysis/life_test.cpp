@@ -111,7 +111,11 @@ TEST(Life, ProfileErrorsNameLineAndColumn) {
 
 TEST(Quantity, UnitsAndErrors) {
   EXPECT_DOUBLE_EQ(*ParseQuantity("40uA", QuantityKind::kCurrent).value, 40e-6);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("40\xC2\xB5" "A", QuantityKind::kCurrent).value, 40e-6);
+  EXPECT_DOUBLE_EQ(*ParseQuantity("40\xC2\xB5"
+                                  "A",
+                                  QuantityKind::kCurrent)
+                        .value,
+                   40e-6);
   EXPECT_DOUBLE_EQ(*ParseQuantity("2000mAh", QuantityKind::kCharge).value, 2000.0);
   EXPECT_DOUBLE_EQ(*ParseQuantity("2.5Ah", QuantityKind::kCharge).value, 2500.0);
   EXPECT_DOUBLE_EQ(*ParseQuantity("2%/month", QuantityKind::kRatePerMonth).value, 0.02);

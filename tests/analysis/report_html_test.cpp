@@ -1,11 +1,10 @@
-#include "analysis/html_report.h"
-
 #include <gtest/gtest.h>
 
 #include <algorithm>
 #include <sstream>
 
 #include "analysis/compare.h"
+#include "analysis/html_report.h"
 #include "analysis/svg_plot.h"
 #include "tests/analysis/xml_check.h"
 

@@ -38,7 +38,7 @@ TEST(Verdict, LithiumRatedCapacityWithConditions) {
   DischargeConditions warm = GoodLiIon();
   warm.start_temperature_c = 26.0;  // outside 20 ± 5 °C
   warm.rest_before_s.reset();
-  warm.mean_current_a = 0.506;      // 1.2 % high
+  warm.mean_current_a = 0.506;  // 1.2 % high
   CapacityJudgement w = JudgeCapacityByMethod(m, warm);
   EXPECT_TRUE(w.capacity_pass);
   EXPECT_FALSE(w.conditions_met);

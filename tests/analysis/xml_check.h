@@ -23,7 +23,9 @@ inline std::string CheckXml(std::string_view s, std::vector<XmlElement>* element
   std::vector<size_t> open_index;
   size_t i = 0;
   auto err = [&](const std::string& m) { return "offset " + std::to_string(i) + ": " + m; };
-  auto is_name = [](char c) { return std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == ':' || c == '.'; };
+  auto is_name = [](char c) {
+    return std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == ':' || c == '.';
+  };
   bool root_seen = false;
   while (i < s.size()) {
     char c = s[i];
@@ -104,12 +106,13 @@ inline std::string CheckXml(std::string_view s, std::vector<XmlElement>* element
       size_t e = s.find(';', i);
       if (e == std::string_view::npos || e - i > 8) return err("stray '&'");
       std::string_view ent = s.substr(i + 1, e - i - 1);
-      bool ok = ent == "amp" || ent == "lt" || ent == "gt" || ent == "quot" || ent == "apos" ||
-                (ent.size() > 1 && ent[0] == '#');
+      bool ok = ent == "amp" || ent == "lt" || ent == "gt" || ent == "quot" || ent == "apos" || (ent.size() > 1 && ent[0] == '#');
       if (!ok) return err("unknown entity &" + std::string(ent) + ";");
     }
-    if (!stack.empty() && elements && !open_index.empty()) (*elements)[open_index.back()].text += c;
-    else if (stack.empty() && !std::isspace(static_cast<unsigned char>(c))) return err("text outside the root element");
+    if (!stack.empty() && elements && !open_index.empty())
+      (*elements)[open_index.back()].text += c;
+    else if (stack.empty() && !std::isspace(static_cast<unsigned char>(c)))
+      return err("text outside the root element");
     ++i;
   }
   if (!stack.empty()) return "unclosed <" + stack.back() + ">";

@@ -4,9 +4,8 @@
 #include <algorithm>
 #include <cmath>
 #include <fstream>
-#include <sstream>
-
 #include <nlohmann/json.hpp>
+#include <sstream>
 
 #include "drivers/sim/cell_model.h"
 #include "procedures/plan.h"
@@ -82,7 +81,8 @@ TEST(LifeCli, ProfileFileAndAllowances) {
 // Peukert derating (Peukert 1897, C_p = I^k t): a capacity Q measured at I_ref
 // becomes Q (I_ref / I)^(k-1) at current I.
 TEST(LifeCli, PeukertDerating) {
-  CliResult r = Cli({"life", "--capacity", "2000mAh", "--average", "100mA", "--peukert", "1.2", "--measured-at", "400mA", "--json"});
+  CliResult r =
+      Cli({"life", "--capacity", "2000mAh", "--average", "100mA", "--peukert", "1.2", "--measured-at", "400mA", "--json"});
   ASSERT_EQ(r.code, 0) << r.err;
   auto j = nlohmann::json::parse(r.out);
   double q = 2000.0 * std::pow(0.4 / 0.1, 0.2);

@@ -108,8 +108,8 @@ TEST(ReportHtml, RatedCapacityRunPageIsWellFormedAndMatchesJson) {
   ASSERT_TRUE(rep.ok()) << rep.status().ToString();
   nlohmann::json j = RunReportJson(*rep);
   // The fields `report --json` has always had.
-  for (const char* k : {"run", "outcome", "reason", "charge_mAh", "energy_Wh", "mean_voltage_V", "duration_s", "rated_mAh",
-                        "percent_of_rated"})
+  for (const char* k :
+       {"run", "outcome", "reason", "charge_mAh", "energy_Wh", "mean_voltage_V", "duration_s", "rated_mAh", "percent_of_rated"})
     EXPECT_TRUE(j.contains(k)) << k;
   // The sim cell holds 2.56 Ah; at 0.5 A it delivers close to that.
   EXPECT_NEAR(j["charge_mAh"].get<double>(), 2560.0, 60.0);
