@@ -1,8 +1,8 @@
 #include "analysis/metrics.h"
 
-#include <algorithm>
-
 #include <fmt/format.h>
+
+#include <algorithm>
 
 namespace kp {
 
@@ -44,9 +44,7 @@ std::optional<double> MaxTemperatureC(SampleSpan s) {
   return m;
 }
 
-double PercentOfRated(double delivered_mah, double rated_mah) {
-  return rated_mah > 0 ? 100.0 * delivered_mah / rated_mah : 0.0;
-}
+double PercentOfRated(double delivered_mah, double rated_mah) { return rated_mah > 0 ? 100.0 * delivered_mah / rated_mah : 0.0; }
 
 RunFigures ComputeRunFigures(SampleSpan s) {
   RunFigures f;

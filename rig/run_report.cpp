@@ -2,66 +2,580 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
+#include <cstdlib>
 #include <nlohmann/json.hpp>
 
+#include "analysis/html_report.h"
+#include "analysis/svg_plot.h"
 #include "rig/cli/cli.h"
 
 namespace kp {
+namespace {
 
-Result<RunReport> BuildRunReport(Store& store, int64_t run_id) {
+using nlohmann::json;
+
+// The end voltage a step stopped at, from the engine's reason text
+// "voltage 2.749 V <= 2.750 V".
+std::optional<double> CutoffFromReason(const std::string& reason) {
+  size_t v = reason.find("voltage ");
+  if (v == std::string::npos) return std::nullopt;
+  size_t p = reason.find("<= ", v);
+  if (p == std::string::npos) return std::nullopt;
+  const char* b = reason.c_str() + p + 3;
+  char* e = nullptr;
+  double volts = std::strtod(b, &e);
+  if (e == b) return std::nullopt;
+  return volts;
+}
+
+json Optional(const std::optional<double>& v) { return v ? json(*v) : json(nullptr); }
+
+}  // namespace
+
+Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptions& options) {
   RunReport rep;
+  rep.options = options;
   KP_ASSIGN_OR_RETURN(rep.run, store.GetRun(run_id));
-  KP_ASSIGN_OR_RETURN(std::vector<Sample> samples, store.LoadSamples(run_id));
-  rep.figures = ComputeRunFigures(samples);
-  rep.verdict = JudgeCapacity(rep.figures.charge_mah, rep.run.rated_mah);
+  KP_ASSIGN_OR_RETURN(rep.samples, store.LoadSamples(run_id));
+  KP_ASSIGN_OR_RETURN(rep.steps, store.LoadSteps(run_id));
+  KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run_id));
+  rep.figures = ComputeRunFigures(rep.samples);
+
+  RunContext ctx;
+  ctx.rated_mah = rep.run.rated_mah;
+  ctx.chemistry = rep.run.chemistry;
+  ctx.dcir = options.dcir;
+  ctx.brownout_v = options.brownout_v;
+  for (const StepRow& s : rep.steps) {
+    ctx.steps.push_back({s.index, s.kind, s.started_s, s.ended_s});
+    if (!ctx.cutoff_v) ctx.cutoff_v = CutoffFromReason(s.end_reason);
+  }
+  // Gaps the runner logged (e.g. on resume): the sample interval holding the event.
+  const auto& smp = rep.samples;
+  for (const EventRow& e : events) {
+    if (e.kind != "gap") continue;
+    auto it = std::lower_bound(smp.begin(), smp.end(), e.t_s, [](const Sample& a, double t) { return a.t_s < t; });
+    if (it == smp.begin() || it == smp.end()) continue;
+    ctx.recorded_gaps.push_back({(it - 1)->t_s, it->t_s, it->step});
+  }
+  rep.analysis = AnalyseRun(rep.samples, ctx);
+  rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
   return rep;
 }
 
 nlohmann::json RunRowJson(const RunRow& r) {
-  return nlohmann::json{{"id", r.id},
-                        {"cell", r.cell},
-                        {"chemistry", r.chemistry},
-                        {"procedure", r.procedure_name},
-                        {"rig", r.rig},
-                        {"outcome", OutcomeName(r.outcome)},
-                        {"reason", r.reason},
-                        {"started_at", r.started_at},
-                        {"ended_at", r.ended_at},
-                        {"rated_mAh", r.rated_mah},
-                        {"samples", r.sample_count}};
+  return json{{"id", r.id},
+              {"cell", r.cell},
+              {"chemistry", r.chemistry},
+              {"procedure", r.procedure_name},
+              {"rig", r.rig},
+              {"outcome", OutcomeName(r.outcome)},
+              {"reason", r.reason},
+              {"started_at", r.started_at},
+              {"ended_at", r.ended_at},
+              {"rated_mAh", r.rated_mah},
+              {"samples", r.sample_count}};
 }
 
 nlohmann::json RunReportJson(const RunReport& rep) {
   const RunFigures& f = rep.figures;
-  return nlohmann::json{{"run", rep.run.id},
-                        {"cell", rep.run.cell},
-                        {"procedure", rep.run.procedure_name},
-                        {"outcome", OutcomeName(rep.run.outcome)},
-                        {"reason", rep.run.reason},
-                        {"charge_mAh", f.charge_mah},
-                        {"energy_Wh", f.energy_wh},
-                        {"mean_voltage_V", f.mean_voltage_v},
-                        {"min_voltage_V", f.min_voltage_v},
-                        {"max_temperature_C", f.max_temperature_c},
-                        {"duration_s", f.duration_s},
-                        {"samples", f.sample_count},
-                        {"rated_mAh", rep.run.rated_mah},
-                        {"percent_of_rated", rep.verdict.percent_of_rated},
-                        {"pass", rep.verdict.pass},
-                        {"verdict", rep.verdict.text}};
+  const RunAnalysis& a = rep.analysis;
+  json j{{"run", rep.run.id},
+         {"cell", rep.run.cell},
+         {"chemistry", rep.run.chemistry},
+         {"procedure", rep.run.procedure_name},
+         {"outcome", OutcomeName(rep.run.outcome)},
+         {"reason", rep.run.reason},
+         {"charge_mAh", a.discharge_charge_mah},
+         {"energy_Wh", a.discharge_energy_wh},
+         {"record_charge_mAh", f.charge_mah},
+         {"record_energy_Wh", f.energy_wh},
+         {"integration_method", IntegrationMethodName(a.method)},
+         {"integration", IntegrationMethodText(a.method)},
+         {"mean_voltage_V", a.main_discharge_step >= 0 ? a.mean_voltage_v : f.mean_voltage_v},
+         {"mid_voltage_V", a.mid_voltage_v},
+         {"min_voltage_V", f.min_voltage_v},
+         {"duration_s", f.duration_s},
+         {"discharge_duration_s", a.discharge_duration_s},
+         {"time_to_cutoff_s", Optional(a.time_to_cutoff_s)},
+         {"average_current_A", a.average_current_a},
+         {"peak_current_A", a.peak_current_a},
+         {"pulsed", a.pulsed},
+         {"start_temperature_C", a.start_temperature_c},
+         {"max_temperature_C", a.max_temperature_c},
+         {"temperature_rise_C", a.temperature_rise_c},
+         {"samples", f.sample_count},
+         {"rated_mAh", rep.run.rated_mah},
+         {"percent_of_rated", a.verdict.percent_of_rated},
+         {"pass", a.verdict.capacity_pass},
+         {"conditions_met", a.verdict.conditions_met},
+         {"verdict", a.verdict.text},
+         {"method", a.verdict.method}};
+  json conds = json::array();
+  for (const ConditionCheck& c : a.verdict.conditions)
+    conds.push_back({{"name", c.name}, {"required", c.required}, {"observed", c.observed}, {"met", c.met}});
+  j["conditions"] = conds;
+  json steps = json::array();
+  for (const StepFigures& s : a.steps) {
+    std::string kind;
+    for (const StepRow& r : rep.steps)
+      if (r.index == s.step) kind = r.kind;
+    steps.push_back({{"step", s.step},
+                     {"kind", kind},
+                     {"start_s", s.t_start_s},
+                     {"end_s", s.t_end_s},
+                     {"charge_mAh", s.charge_mah},
+                     {"energy_Wh", s.energy_wh},
+                     {"mean_current_A", s.mean_current_a},
+                     {"mean_voltage_V", s.mean_voltage_v},
+                     {"min_voltage_V", s.min_voltage_v},
+                     {"samples", s.samples}});
+  }
+  j["steps"] = steps;
+  json gaps = json::array();
+  for (const Gap& g : a.gaps) gaps.push_back({{"start_s", g.t_start_s}, {"end_s", g.t_end_s}, {"step", g.step}});
+  j["gaps"] = gaps;
+  json dcir = json::array();
+  for (const DcirPoint& p : a.dcir)
+    dcir.push_back({{"t_s", p.t_edge_s},
+                    {"U1_V", p.u1_v},
+                    {"I1_A", p.i1_a},
+                    {"U2_V", p.u2_v},
+                    {"I2_A", p.i2_a},
+                    {"resistance_ohm", p.resistance_ohm},
+                    {"delivered_mAh", p.delivered_mah},
+                    {"depth_of_discharge", p.depth_of_discharge}});
+  j["dcir"] = dcir;
+  json pulses = json::array();
+  for (const PulseFigures& p : a.pulses)
+    pulses.push_back({{"index", p.index},
+                      {"start_s", p.t_start_s},
+                      {"end_s", p.t_end_s},
+                      {"current_A", p.current_a},
+                      {"min_voltage_V", p.min_voltage_v},
+                      {"rest_voltage_before_V", p.rest_voltage_before_v},
+                      {"recovered_voltage_V", p.recovered_voltage_v},
+                      {"recovery_V", p.recovery_v},
+                      {"delivered_mAh", p.delivered_mah_at_start}});
+  j["pulses"] = pulses;
+  if (a.brownout)
+    j["brownout"] = {{"pulse", a.brownout->pulse_index},
+                     {"t_s", a.brownout->t_s},
+                     {"min_voltage_V", a.brownout->min_voltage_v},
+                     {"delivered_mAh", a.brownout->delivered_mah}};
+  else
+    j["brownout"] = nullptr;
+  return j;
 }
 
 std::string RunReportText(const RunReport& rep) {
   const RunFigures& f = rep.figures;
+  const RunAnalysis& a = rep.analysis;
   std::string out;
   out += fmt::format("run {}  cell {}  procedure {}\n", rep.run.id, rep.run.cell, rep.run.procedure_name);
   out += fmt::format("  outcome          {} ({})\n", OutcomeName(rep.run.outcome), rep.run.reason);
-  out += fmt::format("  delivered        {:.1f} mAh   {:.3f} Wh\n", f.charge_mah, f.energy_wh);
-  out += fmt::format("  mean voltage     {:.3f} V (min {:.3f} V)\n", f.mean_voltage_v, f.min_voltage_v);
-  out += fmt::format("  duration         {} ({} samples)\n", cli::FormatDuration(f.duration_s), f.sample_count);
-  out += fmt::format("  max temperature  {:.1f} degC\n", f.max_temperature_c);
-  out += fmt::format("  verdict          {}\n", rep.verdict.text);
+  out += fmt::format("  delivered        {:.1f} mAh   {:.3f} Wh   ({})\n", a.discharge_charge_mah, a.discharge_energy_wh,
+                     IntegrationMethodName(a.method));
+  out += fmt::format("  voltage          mean {:.3f} V, mid-point {:.3f} V, min {:.3f} V\n",
+                     a.main_discharge_step >= 0 ? a.mean_voltage_v : f.mean_voltage_v, a.mid_voltage_v, f.min_voltage_v);
+  out += fmt::format("  duration         {} ({} samples)", cli::FormatDuration(f.duration_s), f.sample_count);
+  if (a.time_to_cutoff_s) out += fmt::format(", {} to cutoff", cli::FormatDuration(*a.time_to_cutoff_s));
+  out += "\n";
+  out += fmt::format("  temperature      max {:.1f} degC, rise {:.1f} degC\n", a.max_temperature_c, a.temperature_rise_c);
+  if (!a.gaps.empty()) {
+    out += fmt::format("  gaps             {} (", a.gaps.size());
+    for (size_t i = 0; i < a.gaps.size() && i < 3; ++i)
+      out += fmt::format("{}{:.0f} s at t = {:.0f} s", i ? "; " : "", a.gaps[i].duration_s(), a.gaps[i].t_start_s);
+    out += a.gaps.size() > 3 ? "; ...)\n" : ")\n";
+  }
+  if (!a.dcir.empty()) {
+    double lo = a.dcir.front().resistance_ohm, hi = lo;
+    for (const DcirPoint& p : a.dcir) lo = std::min(lo, p.resistance_ohm), hi = std::max(hi, p.resistance_ohm);
+    out += fmt::format("  DC-IR            {} points, {:.1f} to {:.1f} mOhm\n", a.dcir.size(), lo * 1000, hi * 1000);
+  }
+  if (a.pulsed) out += fmt::format("  pulses           {}\n", a.pulses.size());
+  if (a.brownout)
+    out += fmt::format("  brown-out        pulse {} at {:.1f} mAh (min {:.3f} V)\n", a.brownout->pulse_index + 1,
+                       a.brownout->delivered_mah, a.brownout->min_voltage_v);
+  out += fmt::format("  verdict          {}\n", a.verdict.text);
   return out;
+}
+
+std::string RunReportStepsCsv(const RunReport& rep) {
+  std::string out = "step,kind,start_s,end_s,charge_mAh,energy_Wh,mean_current_A,mean_voltage_V,min_voltage_V,samples\n";
+  for (const StepFigures& s : rep.analysis.steps) {
+    std::string kind;
+    for (const StepRow& r : rep.steps)
+      if (r.index == s.step) kind = r.kind;
+    out += fmt::format("{},\"{}\",{:.3f},{:.3f},{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{}\n", s.step, kind, s.t_start_s, s.t_end_s,
+                       s.charge_mah, s.energy_wh, s.mean_current_a, s.mean_voltage_v, s.min_voltage_v, s.samples);
+  }
+  return out;
+}
+
+namespace {
+
+HtmlTable SummaryTable(const RunReport& rep) {
+  json j = RunReportJson(rep);
+  HtmlTable t;
+  t.header = {"figure", "value"};
+  auto row = [&](const std::string& name, const std::string& key, int decimals, const std::string& unit) {
+    const json& v = j.at(json::json_pointer(key));
+    if (v.is_null()) {
+      t.rows.push_back({TextCell(name), TextCell("not reached")});
+      return;
+    }
+    t.rows.push_back({TextCell(name), FigureCell(key, v.get<double>(), decimals, unit)});
+  };
+  row("delivered charge", "/charge_mAh", 1, "mAh");
+  row("delivered energy", "/energy_Wh", 3, "Wh");
+  row("percent of rated", "/percent_of_rated", 1, "%");
+  row("mean voltage (discharge)", "/mean_voltage_V", 3, "V");
+  row("mid-point voltage", "/mid_voltage_V", 3, "V");
+  row("minimum voltage", "/min_voltage_V", 3, "V");
+  row("average discharge current", "/average_current_A", 4, "A");
+  row("peak current", "/peak_current_A", 4, "A");
+  row("record duration", "/duration_s", 0, "s");
+  row("time to cutoff", "/time_to_cutoff_s", 0, "s");
+  row("maximum temperature", "/max_temperature_C", 1, "degC");
+  row("temperature rise", "/temperature_rise_C", 1, "degC");
+  return t;
+}
+
+std::vector<double> Hours(const std::vector<Sample>& s) {
+  std::vector<double> x;
+  x.reserve(s.size());
+  for (const Sample& v : s) x.push_back(v.t_s / 3600.0);
+  return x;
+}
+
+// Voltage against cumulative delivered charge (trapezoid), in mAh.
+void VoltageVersusCharge(const std::vector<Sample>& s, std::vector<double>& q_mah, std::vector<double>& v) {
+  double as = 0;
+  for (size_t i = 0; i < s.size(); ++i) {
+    if (i) as += 0.5 * (s[i].current_a + s[i - 1].current_a) * (s[i].t_s - s[i - 1].t_s);
+    q_mah.push_back(as / 3.6);
+    v.push_back(s[i].voltage_v);
+  }
+}
+
+}  // namespace
+
+std::string RunReportHtml(const RunReport& rep) {
+  const RunAnalysis& a = rep.analysis;
+  json j = RunReportJson(rep);
+  std::vector<HtmlSection> sections;
+
+  HtmlSection sum;
+  sum.title = "Summary";
+  sum.paragraphs.push_back(
+      fmt::format("Cell {} ({}, rated {:.0f} mAh), procedure {}, rig {}. Outcome: {} ({}). Started {}, ended {}.", rep.run.cell,
+                  rep.run.chemistry, rep.run.rated_mah, rep.run.procedure_name, rep.run.rig, OutcomeName(rep.run.outcome),
+                  rep.run.reason, rep.run.started_at, rep.run.ended_at));
+  sum.paragraphs.push_back("Integration: " + IntegrationMethodText(a.method) + ".");
+  if (a.gaps.empty()) {
+    sum.paragraphs.push_back("No gaps in the record.");
+  } else {
+    std::string g = fmt::format("{} gap(s) in the record, bridged by the trapezoid and flagged:", a.gaps.size());
+    for (const Gap& x : a.gaps) g += fmt::format(" {:.0f} s to {:.0f} s (step {});", x.t_start_s, x.t_end_s, x.step);
+    sum.paragraphs.push_back(g);
+  }
+  sum.tables.push_back(SummaryTable(rep));
+  sections.push_back(sum);
+
+  HtmlSection ver;
+  ver.title = "Verdict";
+  ver.paragraphs.push_back(a.verdict.text);
+  HtmlTable ct;
+  ct.caption = "Conditions of " + a.verdict.method;
+  ct.header = {"condition", "required", "observed", "met"};
+  for (const ConditionCheck& c : a.verdict.conditions)
+    ct.rows.push_back({TextCell(c.name), TextCell(c.required), TextCell(c.observed), TextCell(c.met ? "yes" : "NO")});
+  ver.tables.push_back(ct);
+  sections.push_back(ver);
+
+  HtmlSection st;
+  st.title = "Steps";
+  HtmlTable stt;
+  stt.header = {"step", "kind", "start (s)", "end (s)", "charge (mAh)", "energy (Wh)", "mean current (A)", "mean voltage (V)"};
+  for (size_t i = 0; i < a.steps.size(); ++i) {
+    const StepFigures& s = a.steps[i];
+    std::string p = fmt::format("/steps/{}/", i);
+    stt.rows.push_back({TextCell(std::to_string(s.step + 1)), TextCell(j["steps"][i]["kind"].get<std::string>()),
+                        FigureCell(p + "start_s", s.t_start_s, 0), FigureCell(p + "end_s", s.t_end_s, 0),
+                        FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
+                        FigureCell(p + "mean_current_A", s.mean_current_a, 4),
+                        FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3)});
+  }
+  st.tables.push_back(stt);
+  sections.push_back(st);
+
+  HtmlSection plots;
+  plots.title = "Plots";
+  std::vector<double> th = Hours(rep.samples), v, i, temp, q, vq;
+  for (const Sample& s : rep.samples) v.push_back(s.voltage_v), i.push_back(s.current_a), temp.push_back(s.temperature_c);
+  VoltageVersusCharge(rep.samples, q, vq);
+  plots.plots.push_back({"plot-voltage-current-time",
+                         "Voltage and current versus time",
+                         "time (h)",
+                         "voltage (V)",
+                         "current (A)",
+                         {{"voltage", th, v, false, false}, {"current", th, i, true, false}}});
+  plots.plots.push_back({"plot-voltage-charge",
+                         "Voltage versus delivered charge",
+                         "delivered charge (mAh)",
+                         "voltage (V)",
+                         "",
+                         {{"voltage", q, vq, false, false}}});
+  plots.plots.push_back({"plot-temperature",
+                         "Cell temperature versus time",
+                         "time (h)",
+                         "temperature (degC)",
+                         "",
+                         {{"temperature", th, temp, false, false}}});
+  if (!a.dcir.empty()) {
+    PlotSeries r{"DC-IR", {}, {}, false, true};
+    for (const DcirPoint& p : a.dcir) r.x.push_back(p.depth_of_discharge * 100.0), r.y.push_back(p.resistance_ohm * 1000.0);
+    plots.plots.push_back({"plot-resistance-dod",
+                           "DC internal resistance versus depth of discharge",
+                           "depth of discharge (%)",
+                           "resistance (mOhm)",
+                           "",
+                           {r}});
+  }
+  if (a.pulsed) {
+    PlotSeries mn{"minimum under load", {}, {}, false, true}, rc{"recovered", {}, {}, false, true};
+    for (const PulseFigures& p : a.pulses) {
+      mn.x.push_back(p.delivered_mah_at_start), mn.y.push_back(p.min_voltage_v);
+      rc.x.push_back(p.delivered_mah_at_start), rc.y.push_back(p.recovered_voltage_v);
+    }
+    plots.plots.push_back(
+        {"plot-pulses", "Pulse minimum and recovered voltage", "delivered charge (mAh)", "voltage (V)", "", {mn, rc}});
+  }
+  sections.push_back(plots);
+
+  if (!a.dcir.empty()) {
+    HtmlSection dc;
+    dc.title = "DC internal resistance";
+    dc.paragraphs.push_back(fmt::format(
+        "Two-current method (IEC 61960-3 clause 7.7): R = (U1 - U2) / (I2 - I1), U1 and I1 from the last sample before each "
+        "current edge, U2 and I2 from the first sample {:.2f} s after it.",
+        rep.options.dcir.delay_s));
+    HtmlTable t;
+    t.header = {"edge (s)", "U1 (V)", "I1 (A)", "U2 (V)", "I2 (A)", "R (mOhm)", "DoD (%)"};
+    for (size_t k = 0; k < a.dcir.size() && k < 200; ++k) {
+      const DcirPoint& p = a.dcir[k];
+      std::string ptr = fmt::format("/dcir/{}/", k);
+      t.rows.push_back({FigureCell(ptr + "t_s", p.t_edge_s, 1), FigureCell(ptr + "U1_V", p.u1_v, 4),
+                        FigureCell(ptr + "I1_A", p.i1_a, 4), FigureCell(ptr + "U2_V", p.u2_v, 4),
+                        FigureCell(ptr + "I2_A", p.i2_a, 4), FigureCell(ptr + "resistance_ohm", p.resistance_ohm, 4, "Ohm"),
+                        FigureCell(ptr + "depth_of_discharge", p.depth_of_discharge, 3)});
+    }
+    dc.tables.push_back(t);
+    sections.push_back(dc);
+  }
+  if (a.brownout) {
+    HtmlSection b;
+    b.title = "Brown-out";
+    b.paragraphs.push_back(
+        fmt::format("Pulse {} is the first whose minimum voltage ({:.3f} V) breaches the brown-out level; "
+                    "{:.1f} mAh had been delivered by then.",
+                    a.brownout->pulse_index + 1, a.brownout->min_voltage_v, a.brownout->delivered_mah));
+    sections.push_back(b);
+  }
+  return RenderHtmlPage(fmt::format("Kneepoint run {}: {}", rep.run.id, rep.run.cell), sections);
+}
+
+// --- across runs ---
+
+RunSummary SummariseRun(const RunReport& rep) {
+  const RunAnalysis& a = rep.analysis;
+  RunSummary s;
+  s.label = fmt::format("run {}", rep.run.id);
+  s.charge_mah = a.discharge_charge_mah;
+  s.energy_wh = a.discharge_energy_wh;
+  s.mean_voltage_v = a.mean_voltage_v;
+  s.average_current_a = a.average_current_a;
+  s.peak_current_a = a.peak_current_a;
+  s.duration_s = a.time_to_cutoff_s.value_or(a.discharge_duration_s);
+  s.pulsed = a.pulsed;
+  if (!a.dcir.empty()) {
+    std::vector<double> r;
+    for (const DcirPoint& p : a.dcir) r.push_back(p.resistance_ohm);
+    std::nth_element(r.begin(), r.begin() + static_cast<std::ptrdiff_t>(r.size() / 2), r.end());
+    s.resistance_ohm = r[r.size() / 2];
+  }
+  s.verdict = a.verdict.text;
+  return s;
+}
+
+Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t>& ids, std::optional<double> predict_at_a,
+                                         const ReportOptions& options) {
+  CompareReport c;
+  c.predict_at_a = predict_at_a;
+  for (int64_t id : ids) {
+    KP_ASSIGN_OR_RETURN(RunReport r, BuildRunReport(store, id, options));
+    c.summaries.push_back(SummariseRun(r));
+    c.runs.push_back(std::move(r));
+  }
+  c.ratios = PulsedVersusContinuous(c.summaries);
+  std::vector<RatePoint> pts = RatePointsFromRuns(c.summaries);
+  c.peukert = FitPeukert(pts);
+  return c;
+}
+
+nlohmann::json CompareReportJson(const CompareReport& c) {
+  json runs = json::array();
+  for (const RunSummary& s : c.summaries)
+    runs.push_back({{"label", s.label},
+                    {"charge_mAh", s.charge_mah},
+                    {"energy_Wh", s.energy_wh},
+                    {"mean_voltage_V", s.mean_voltage_v},
+                    {"average_current_A", s.average_current_a},
+                    {"peak_current_A", s.peak_current_a},
+                    {"duration_s", s.duration_s},
+                    {"pulsed", s.pulsed},
+                    {"resistance_ohm", Optional(s.resistance_ohm)},
+                    {"verdict", s.verdict}});
+  json ratios = json::array();
+  for (const RatioFigures& r : c.ratios)
+    ratios.push_back({{"pulsed", r.pulsed_label},
+                      {"continuous", r.continuous_label},
+                      {"basis", r.basis},
+                      {"capacity_ratio", r.capacity_ratio},
+                      {"energy_ratio", r.energy_ratio}});
+  json j{{"runs", runs}, {"pulsed_vs_continuous", ratios}};
+  if (c.peukert.fit) {
+    const PeukertFit& f = *c.peukert.fit;
+    j["peukert"] = {{"exponent_k", f.exponent_k},
+                    {"capacity_constant_Ak_h", f.capacity_constant},
+                    {"r_squared", f.r_squared},
+                    {"points", f.points}};
+    if (c.predict_at_a)
+      j["peukert"]["prediction"] = {{"current_A", *c.predict_at_a},
+                                    {"hours", f.HoursAt(*c.predict_at_a)},
+                                    {"capacity_mAh", f.CapacityMahAt(*c.predict_at_a)}};
+  } else {
+    j["peukert"] = {{"error", c.peukert.error}};
+  }
+  return j;
+}
+
+std::string CompareReportText(const CompareReport& c) {
+  std::string o = fmt::format("{:<8} {:>10} {:>9} {:>8} {:>9} {:>9} {:>9} {:>7}  {}\n", "run", "mAh", "Wh", "mean V", "avg A",
+                              "peak A", "R mOhm", "pulsed", "verdict");
+  for (const RunSummary& s : c.summaries)
+    o += fmt::format("{:<8} {:>10.1f} {:>9.3f} {:>8.3f} {:>9.4f} {:>9.4f} {:>9} {:>7}  {}\n", s.label, s.charge_mah, s.energy_wh,
+                     s.mean_voltage_v, s.average_current_a, s.peak_current_a,
+                     s.resistance_ohm ? fmt::format("{:.1f}", *s.resistance_ohm * 1000) : "-", s.pulsed ? "yes" : "no",
+                     s.verdict.substr(0, s.verdict.find(':')));
+  for (const RatioFigures& r : c.ratios)
+    o += fmt::format("pulsed {} vs continuous {} at {}: capacity ratio {:.3f}, energy ratio {:.3f}\n", r.pulsed_label,
+                     r.continuous_label, r.basis, r.capacity_ratio, r.energy_ratio);
+  if (c.peukert.fit) {
+    const PeukertFit& f = *c.peukert.fit;
+    o += fmt::format("Peukert fit (C_p = I^k t, Peukert 1897) over {} runs: k = {:.4f}, C_p = {:.4f} A^k h, R^2 = {:.4f}\n",
+                     f.points, f.exponent_k, f.capacity_constant, f.r_squared);
+    if (c.predict_at_a)
+      o += fmt::format("  predicted at {:.4g} A: {:.2f} h, {:.0f} mAh\n", *c.predict_at_a, f.HoursAt(*c.predict_at_a),
+                       f.CapacityMahAt(*c.predict_at_a));
+  } else {
+    o += "Peukert fit: " + c.peukert.error + "\n";
+  }
+  return o;
+}
+
+std::string CompareReportCsv(const CompareReport& c) {
+  std::string o = "run,charge_mAh,energy_Wh,mean_voltage_V,average_current_A,peak_current_A,duration_s,pulsed,resistance_ohm\n";
+  for (const RunSummary& s : c.summaries)
+    o += fmt::format("\"{}\",{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{:.3f},{},{}\n", s.label, s.charge_mah, s.energy_wh,
+                     s.mean_voltage_v, s.average_current_a, s.peak_current_a, s.duration_s, s.pulsed ? 1 : 0,
+                     s.resistance_ohm ? fmt::format("{:.6f}", *s.resistance_ohm) : "");
+  return o;
+}
+
+std::string CompareReportHtml(const CompareReport& c) {
+  std::vector<HtmlSection> sections;
+  HtmlSection t;
+  t.title = "Runs side by side";
+  HtmlTable tab;
+  tab.header = {"run",         "charge (mAh)", "energy (Wh)", "mean voltage (V)", "average current (A)", "peak current (A)",
+                "DC-IR (Ohm)", "verdict"};
+  for (size_t i = 0; i < c.summaries.size(); ++i) {
+    const RunSummary& s = c.summaries[i];
+    std::string p = fmt::format("/runs/{}/", i);
+    tab.rows.push_back(
+        {TextCell(s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
+         FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), FigureCell(p + "average_current_A", s.average_current_a, 4),
+         FigureCell(p + "peak_current_A", s.peak_current_a, 4),
+         s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"), TextCell(s.verdict)});
+  }
+  t.tables.push_back(tab);
+  sections.push_back(t);
+
+  HtmlSection ov;
+  ov.title = "Overlays";
+  PlotSpec vq{"plot-overlay-voltage-charge", "Voltage versus delivered charge", "delivered charge (mAh)", "voltage (V)", "", {}};
+  PlotSpec vt{"plot-overlay-voltage-time", "Voltage versus time from discharge start", "time (h)", "voltage (V)", "", {}};
+  for (const RunReport& r : c.runs) {
+    // Aligned at the start of each run's main discharge.
+    const RunAnalysis& a = r.analysis;
+    double t0 = a.discharge_start_s;
+    PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false}, tt = q;
+    double as = 0;
+    for (size_t i = 0; i < r.samples.size(); ++i) {
+      const Sample& s = r.samples[i];
+      if (s.t_s < t0) continue;
+      if (i && r.samples[i - 1].t_s >= t0)
+        as += 0.5 * (s.current_a + r.samples[i - 1].current_a) * (s.t_s - r.samples[i - 1].t_s);
+      q.x.push_back(as / 3.6), q.y.push_back(s.voltage_v);
+      tt.x.push_back((s.t_s - t0) / 3600.0), tt.y.push_back(s.voltage_v);
+    }
+    vq.series.push_back(std::move(q));
+    vt.series.push_back(std::move(tt));
+  }
+  ov.plots = {vq, vt};
+  sections.push_back(ov);
+
+  HtmlSection pr;
+  pr.title = "Pulsed versus continuous";
+  if (c.ratios.empty())
+    pr.paragraphs.push_back("No pulsed run matched a continuous run at equal average or peak current (within 5 %).");
+  HtmlTable rt;
+  rt.header = {"pulsed", "continuous", "basis", "capacity ratio", "energy ratio"};
+  for (size_t i = 0; i < c.ratios.size(); ++i) {
+    const RatioFigures& r = c.ratios[i];
+    std::string p = fmt::format("/pulsed_vs_continuous/{}/", i);
+    rt.rows.push_back({TextCell(r.pulsed_label), TextCell(r.continuous_label), TextCell(r.basis),
+                       FigureCell(p + "capacity_ratio", r.capacity_ratio, 3), FigureCell(p + "energy_ratio", r.energy_ratio, 3)});
+  }
+  if (!c.ratios.empty()) pr.tables.push_back(rt);
+  sections.push_back(pr);
+
+  HtmlSection pk;
+  pk.title = "Peukert fit";
+  if (c.peukert.fit) {
+    const PeukertFit& f = *c.peukert.fit;
+    pk.paragraphs.push_back(
+        "C_p = I^k · t (Peukert, 1897), fitted by least squares on ln t = ln C_p − k ln I over the constant-current runs.");
+    HtmlTable ft;
+    ft.header = {"figure", "value"};
+    ft.rows = {{TextCell("exponent k"), FigureCell("/peukert/exponent_k", f.exponent_k, 4)},
+               {TextCell("capacity constant C_p (A^k h)"), FigureCell("/peukert/capacity_constant_Ak_h", f.capacity_constant, 4)},
+               {TextCell("R² (log-log)"), FigureCell("/peukert/r_squared", f.r_squared, 4)}};
+    if (c.predict_at_a) {
+      ft.rows.push_back({TextCell(fmt::format("predicted time at {:.4g} A", *c.predict_at_a)),
+                         FigureCell("/peukert/prediction/hours", f.HoursAt(*c.predict_at_a), 2, "h")});
+      ft.rows.push_back({TextCell(fmt::format("predicted capacity at {:.4g} A", *c.predict_at_a)),
+                         FigureCell("/peukert/prediction/capacity_mAh", f.CapacityMahAt(*c.predict_at_a), 0, "mAh")});
+    }
+    pk.tables.push_back(ft);
+  } else {
+    pk.paragraphs.push_back("No fit: " + c.peukert.error + ".");
+  }
+  sections.push_back(pk);
+  return RenderHtmlPage("Kneepoint comparison", sections);
 }
 
 }  // namespace kp

@@ -1,30 +1,68 @@
-// RunReport: a stored run's record plus the figures analysis computes from its
-// logged samples. Shared by `report`, `demo` and the panel.
+// RunReport: a stored run's record plus every figure analysis computes from
+// its logged samples, steps and events; and the comparison of several runs.
+// Shared by `report`, `compare`, `demo` and the panel. Building reads the
+// Store; rendering (JSON, text, CSV, XHTML) is pure string building.
 #pragma once
 
 #include <cstdint>
-#include <string>
-
 #include <nlohmann/json_fwd.hpp>
+#include <optional>
+#include <string>
+#include <vector>
 
+#include "analysis/compare.h"
 #include "analysis/metrics.h"
+#include "analysis/peukert.h"
+#include "analysis/run_analysis.h"
 #include "rig/store.h"
 
 namespace kp {
 
-struct RunReport {
-  RunRow run;
-  RunFigures figures;
-  CapacityVerdict verdict;
+struct ReportOptions {
+  DcirOptions dcir;                  // delay after each current edge
+  std::optional<double> brownout_v;  // report the first pulse below this voltage
 };
 
-Result<RunReport> BuildRunReport(Store& store, int64_t run_id);
+struct RunReport {
+  RunRow run;
+  RunFigures figures;       // whole record (sample trapezoid)
+  CapacityVerdict verdict;  // plain >= 100 % of rated on the delivered charge
+  RunAnalysis analysis;     // per step, per discharge, method verdict, DC-IR, pulses
+  std::vector<StepRow> steps;
+  std::vector<Sample> samples;  // kept for the plots
+  ReportOptions options;
+};
 
-// The machine-readable form printed by `report --json`.
+Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptions& options = {});
+
+// The machine-readable form printed by `report --json`. Every figure shown in
+// the HTML page is also here, at the JSON pointer named by its cell.
 nlohmann::json RunReportJson(const RunReport& report);
 nlohmann::json RunRowJson(const RunRow& run);
 
 // Human-readable block printed by `report` and `demo`.
 std::string RunReportText(const RunReport& report);
+// Per-step figures as CSV (one header row, one row per step).
+std::string RunReportStepsCsv(const RunReport& report);
+// Self-contained XHTML page with inline SVG plots.
+std::string RunReportHtml(const RunReport& report);
+
+// --- across runs ---
+struct CompareReport {
+  std::vector<RunReport> runs;
+  std::vector<RunSummary> summaries;
+  std::vector<RatioFigures> ratios;
+  PeukertOutcome peukert;              // over the continuous runs
+  std::optional<double> predict_at_a;  // user-given current for a prediction
+};
+
+Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t>& run_ids, std::optional<double> predict_at_a,
+                                         const ReportOptions& options = {});
+RunSummary SummariseRun(const RunReport& report);
+nlohmann::json CompareReportJson(const CompareReport& report);
+std::string CompareReportText(const CompareReport& report);
+// The side-by-side table as CSV (one row per run).
+std::string CompareReportCsv(const CompareReport& report);
+std::string CompareReportHtml(const CompareReport& report);
 
 }  // namespace kp

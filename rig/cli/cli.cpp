@@ -87,6 +87,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterSim(registry);
   RegisterCheck(registry);
   RegisterRun(registry);
+  RegisterCompare(registry);
+  RegisterLife(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

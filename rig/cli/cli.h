@@ -59,6 +59,8 @@ void RegisterProbe(CliRegistry& r);
 void RegisterSim(CliRegistry& r);
 void RegisterCheck(CliRegistry& r);
 void RegisterRun(CliRegistry& r);
+void RegisterCompare(CliRegistry& r);
+void RegisterLife(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

@@ -1,35 +1,75 @@
 // `report`: the figures of one run, computed from its logged samples.
-#include <iostream>
+#include <fmt/format.h>
 
+#include <fstream>
+#include <iostream>
 #include <nlohmann/json.hpp>
 
-#include "rig/run_report.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
+#include "rig/run_report.h"
 
 namespace kp::cli {
+
+// Writes `text` to `path` (replacing it); an error names the file.
+Status WriteTextFile(const std::string& path, const std::string& text) {
+  std::ofstream out(path, std::ios::trunc | std::ios::binary);
+  if (!out) return IoError(fmt::format("cannot write '{}'", path));
+  out << text;
+  out.flush();
+  if (!out) return IoError(fmt::format("writing '{}' failed (disk full?)", path));
+  return Status::Ok();
+}
+
+// Options shared by `report` and `compare`.
+void AddReportOptions(CLI::App* cmd, ReportOptions& o, double& brownout_v) {
+  cmd->add_option("--dcir-delay", o.dcir.delay_s, "Seconds after a current edge at which U2 is read (DC-IR)")
+      ->capture_default_str()
+      ->check(CLI::PositiveNumber);
+  cmd->add_option("--dcir-min-step", o.dcir.min_step_a, "Smallest current change (A) treated as an edge")
+      ->capture_default_str()
+      ->check(CLI::PositiveNumber);
+  cmd->add_option("--brownout", brownout_v, "Brown-out voltage (V): report the first pulse whose minimum breaches it")
+      ->check(CLI::PositiveNumber);
+}
 
 void RegisterReport(CliRegistry& r) {
   static std::string db_path = "kneepoint.db";
   static bool json = false;
   static int64_t run_id = 0;
+  static std::string html_path, csv_path;
+  static ReportOptions options;
+  static double brownout_v = 0.0;
+  db_path = "kneepoint.db", json = false, run_id = 0, html_path.clear(), csv_path.clear();
+  options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     SteadyClock wall;
     auto store = OpenExistingDb(db_path, wall);
     if (!store.ok()) return Fail(store.status());
-    auto rep = BuildRunReport(**store, run_id);
+    if (brownout_v > 0) options.brownout_v = brownout_v;
+    auto rep = BuildRunReport(**store, run_id, options);
     if (!rep.ok()) return Fail(rep.status());
+    if (!html_path.empty()) {
+      if (Status st = WriteTextFile(html_path, RunReportHtml(*rep)); !st.ok()) return Fail(st);
+    }
+    if (!csv_path.empty()) {
+      if (Status st = WriteTextFile(csv_path, RunReportStepsCsv(*rep)); !st.ok()) return Fail(st);
+    }
     if (json) {
       std::cout << RunReportJson(*rep).dump(2) << "\n";
     } else {
       std::cout << RunReportText(*rep);
+      if (!html_path.empty()) std::cout << fmt::format("HTML report written to {}\n", html_path);
+      if (!csv_path.empty()) std::cout << fmt::format("per-step CSV written to {}\n", csv_path);
     }
     return kExitOk;
   });
   report->add_option("RUN", run_id, "Run id (see `kneepoint runs`)")->required();
   report->add_option("--db", db_path, "Database file")->capture_default_str();
   report->add_flag("--json", json, "Machine-readable output");
-
+  report->add_option("--html", html_path, "Also write a self-contained HTML report (inline SVG plots) to this file");
+  report->add_option("--csv", csv_path, "Also write the per-step figures as CSV to this file");
+  AddReportOptions(report, options, brownout_v);
 }
 
 }  // namespace kp::cli

@@ -1,0 +1,68 @@
+#include "analysis/verdict.h"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cctype>
+#include <cmath>
+
+namespace kp {
+
+CapacityMethod MethodForChemistry(std::string_view chemistry) {
+  std::string c;
+  for (char ch : chemistry) c += static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+  CapacityMethod m;
+  if (c == "nimh" || c == "ni-mh") {
+    m.name = "IEC 61951-2 rated capacity (0.2 It to 1.0 V)";
+    m.end_voltage_v = 1.0;
+  } else if (c.find("li") != std::string::npos) {
+    m.name = "IEC 61960-3 7.3.1 rated capacity (0.2 It to end voltage)";
+  } else {
+    m.name = "delivered >= rated at 0.2 It";
+  }
+  return m;
+}
+
+CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const DischargeConditions& r) {
+  CapacityJudgement j;
+  j.method = m.name;
+  j.percent_of_rated = r.rated_mah > 0 ? 100.0 * r.delivered_mah / r.rated_mah : 0.0;
+  j.capacity_pass = r.rated_mah > 0 && j.percent_of_rated >= m.required_percent;
+
+  double it_a = r.rated_mah / 1000.0;  // It = Cn / 1 h
+  double want_a = m.rate_it * it_a;
+  double tol_a = m.current_tolerance * want_a;
+  bool mean_ok = want_a > 0 && std::abs(r.mean_current_a - want_a) <= tol_a;
+  j.conditions.push_back({"discharge current",
+                          fmt::format("{:.3f} A ({} It) ± {:.0f} %", want_a, m.rate_it, m.current_tolerance * 100.0),
+                          fmt::format("mean {:.4f} A, largest deviation {:.4f} A", r.mean_current_a, r.max_current_deviation_a),
+                          mean_ok && r.max_current_deviation_a <= tol_a});
+  j.conditions.push_back({"temperature", fmt::format("{:.0f} to {:.0f} degC at the start", m.temp_min_c, m.temp_max_c),
+                          fmt::format("{:.1f} degC at the start, {:.1f} to {:.1f} degC during the discharge",
+                                      r.start_temperature_c, r.min_temperature_c, r.max_temperature_c),
+                          r.start_temperature_c >= m.temp_min_c && r.start_temperature_c <= m.temp_max_c});
+  j.conditions.push_back(
+      {"rest before discharge", fmt::format("{:.0f} to {:.0f} h", m.rest_min_s / 3600.0, m.rest_max_s / 3600.0),
+       r.rest_before_s ? fmt::format("{:.2f} h", *r.rest_before_s / 3600.0) : std::string("no rest step recorded"),
+       r.rest_before_s && *r.rest_before_s >= m.rest_min_s && *r.rest_before_s <= m.rest_max_s});
+  if (m.end_voltage_v) {
+    // End voltage reached within 2 % (the discharge ran to it, not stopped early).
+    j.conditions.push_back({"end voltage", fmt::format("{:.2f} V", *m.end_voltage_v), fmt::format("{:.3f} V", r.end_voltage_v),
+                            r.end_voltage_v <= *m.end_voltage_v * 1.02});
+  }
+  j.conditions_met = std::all_of(j.conditions.begin(), j.conditions.end(), [](const ConditionCheck& c) { return c.met; });
+
+  std::string unmet;
+  for (const ConditionCheck& c : j.conditions)
+    if (!c.met) unmet += (unmet.empty() ? "" : ", ") + c.name;
+  if (r.rated_mah <= 0) {
+    j.text = fmt::format("no verdict: no rated capacity given ({})", m.name);
+  } else {
+    j.text = fmt::format("{}: {:.0f} mAh is {:.1f} % of rated {:.0f} mAh (criterion >= {:.0f} %, {}); {}",
+                         j.capacity_pass ? "PASS" : "FAIL", r.delivered_mah, j.percent_of_rated, r.rated_mah, m.required_percent,
+                         m.name, j.conditions_met ? "all test conditions met" : "conditions not met: " + unmet);
+  }
+  return j;
+}
+
+}  // namespace kp

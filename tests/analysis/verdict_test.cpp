@@ -1,0 +1,126 @@
+#include "analysis/verdict.h"
+
+#include <gtest/gtest.h>
+
+#include <vector>
+
+#include "analysis/run_analysis.h"
+
+namespace kp {
+namespace {
+
+DischargeConditions GoodLiIon() {
+  DischargeConditions d;
+  d.rated_mah = 2500;
+  d.delivered_mah = 2561;
+  d.mean_current_a = 0.5;  // 0.2 It of 2,500 mAh
+  d.max_current_deviation_a = 0.001;
+  d.start_temperature_c = 21.0;
+  d.min_temperature_c = 21.0;
+  d.max_temperature_c = 24.0;
+  d.rest_before_s = 2 * 3600.0;
+  d.end_voltage_v = 2.75;
+  return d;
+}
+
+// IEC 61960-3 7.3.1: 0.2 It at 20 ± 5 °C after a 1-4 h rest, pass at
+// >= 100 % of rated (temperature and It from the text; rest and criterion
+// from memory). Current tolerance ±1 % (from memory).
+TEST(Verdict, LithiumRatedCapacityWithConditions) {
+  CapacityMethod m = MethodForChemistry("li-ion");
+  EXPECT_NE(m.name.find("61960-3"), std::string::npos);
+  CapacityJudgement j = JudgeCapacityByMethod(m, GoodLiIon());
+  EXPECT_TRUE(j.capacity_pass);
+  EXPECT_TRUE(j.conditions_met);
+  EXPECT_NEAR(j.percent_of_rated, 102.44, 1e-9);
+  EXPECT_NE(j.text.find("all test conditions met"), std::string::npos);
+
+  DischargeConditions warm = GoodLiIon();
+  warm.start_temperature_c = 26.0;  // outside 20 ± 5 °C
+  warm.rest_before_s.reset();
+  warm.mean_current_a = 0.506;  // 1.2 % high
+  CapacityJudgement w = JudgeCapacityByMethod(m, warm);
+  EXPECT_TRUE(w.capacity_pass);
+  EXPECT_FALSE(w.conditions_met);
+  int unmet = 0;
+  for (const ConditionCheck& c : w.conditions) unmet += c.met ? 0 : 1;
+  EXPECT_EQ(unmet, 3);
+  EXPECT_NE(w.text.find("temperature"), std::string::npos);
+  EXPECT_NE(w.text.find("rest before discharge"), std::string::npos);
+  EXPECT_NE(w.text.find("discharge current"), std::string::npos);
+
+  DischargeConditions low = GoodLiIon();
+  low.delivered_mah = 2499;
+  EXPECT_FALSE(JudgeCapacityByMethod(m, low).capacity_pass);
+}
+
+// IEC 61951-2 (NiMH): 0.2 It to 1.0 V; rated means >= 5 h at 0.2 It
+// (secondary / from memory).
+TEST(Verdict, NickelMetalHydrideChecksEndVoltage) {
+  CapacityMethod m = MethodForChemistry("NiMH");
+  EXPECT_NE(m.name.find("61951-2"), std::string::npos);
+  ASSERT_TRUE(m.end_voltage_v.has_value());
+  DischargeConditions d = GoodLiIon();
+  d.rated_mah = 2000;
+  d.delivered_mah = 2050;
+  d.mean_current_a = 0.4;
+  d.end_voltage_v = 1.0;
+  EXPECT_TRUE(JudgeCapacityByMethod(m, d).conditions_met);
+  d.end_voltage_v = 1.15;  // stopped early
+  EXPECT_FALSE(JudgeCapacityByMethod(m, d).conditions_met);
+}
+
+// The whole-run analysis: rest 2 h, then 0.2 It to the cutoff.
+TEST(RunAnalysis, ConstantCurrentRunWithRestStep) {
+  std::vector<Sample> s;
+  for (int k = 0; k <= 120; ++k) s.push_back({k * 60.0, 4.15, 0.0, 20.0, 0});
+  double t0 = 7200.0;
+  // 0.5 A for 5 h 7 min, voltage falling linearly from 4.1 V to 2.7 V.
+  const double dur = 5 * 3600.0 + 420.0;
+  for (int k = 1; k <= static_cast<int>(dur); ++k) {
+    double f = k / dur;
+    s.push_back({t0 + k, 4.1 - 1.4 * f, 0.5, 20.0 + 4.0 * f, 1});
+  }
+  RunContext ctx;
+  ctx.rated_mah = 2500;
+  ctx.chemistry = "li-ion";
+  ctx.cutoff_v = 2.75;
+  ctx.steps = {{0, "rest", 0.0, 7200.0}, {1, "constant-current discharge", 7200.0, t0 + dur}};
+  RunAnalysis a = AnalyseRun(s, ctx);
+  ASSERT_EQ(a.main_discharge_step, 1);
+  // 0.5 A × (dur - 0.5 s of ramp from the rest sample) (Q = I·t).
+  EXPECT_NEAR(a.discharge_charge_mah, 0.5 * (dur - 0.5) / 3.6, 1e-6);
+  EXPECT_NEAR(a.mid_voltage_v, 4.1 - 1.4 * 0.5, 1.4 / dur);
+  ASSERT_TRUE(a.time_to_cutoff_s.has_value());
+  EXPECT_NEAR(*a.time_to_cutoff_s, dur * (4.1 - 2.75) / 1.4 - 1.0, 1.0);
+  EXPECT_NEAR(a.temperature_rise_c, 4.0, 1e-9);
+  EXPECT_NEAR(a.max_temperature_c, 24.0, 1e-9);
+  EXPECT_TRUE(a.verdict.capacity_pass);
+  EXPECT_TRUE(a.verdict.conditions_met) << a.verdict.text;
+  EXPECT_FALSE(a.pulsed);
+  EXPECT_TRUE(a.gaps.empty());
+  EXPECT_EQ(a.method, IntegrationMethod::kSampleTrapezoid);
+  // The rest-to-discharge edge gives one DC-IR point: the edge is the first
+  // sample at 0.5 A (t0 + 1 s), U2 is read 1 s later (t0 + 2 s).
+  ASSERT_EQ(a.dcir.size(), 1u);
+  EXPECT_NEAR(a.dcir[0].resistance_ohm, (4.15 - (4.1 - 1.4 * 2.0 / dur)) / 0.5, 1e-12);
+}
+
+// A gap the runner logged is reported once, even when the spacing shows it too.
+TEST(RunAnalysis, RecordedAndDetectedGapsMerge) {
+  std::vector<Sample> s;
+  for (int k = 0; k < 50; ++k) s.push_back({k * 1.0, 3.8, 0.5, 22, 0});
+  for (int k = 0; k < 50; ++k) s.push_back({1000.0 + k, 3.8, 0.5, 22, 0});
+  for (int k = 0; k < 50; ++k) s.push_back({1051.0 + 3.0 * k, 3.8, 0.5, 22, 0});
+  RunContext ctx;
+  ctx.recorded_gaps = {{49.0, 1000.0, 0}, {1048.0, 1049.0, 0}};
+  RunAnalysis a = AnalyseRun(s, ctx);
+  ASSERT_EQ(a.gaps.size(), 2u);
+  EXPECT_DOUBLE_EQ(a.gaps[0].t_start_s, 49.0);
+  EXPECT_DOUBLE_EQ(a.gaps[1].t_start_s, 1048.0);
+  // Charge still bridges the gap (trapezoid over actual times).
+  EXPECT_NEAR(a.totals.charge_mah, 0.5 * (s.back().t_s - s.front().t_s) / 3.6, 1e-9);
+}
+
+}  // namespace
+}  // namespace kp

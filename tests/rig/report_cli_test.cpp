@@ -1,0 +1,181 @@
+// The report, compare and life commands end to end through the command line.
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "drivers/sim/cell_model.h"
+#include "procedures/plan.h"
+#include "rig/cli/cli.h"
+#include "rig/run_controller.h"
+#include "rig/sim_rig.h"
+#include "tests/analysis/xml_check.h"
+#include "tests/support/test_support.h"
+
+namespace kp {
+namespace {
+
+struct CliResult {
+  int code = 0;
+  std::string out, err;
+};
+
+CliResult Cli(std::vector<std::string> args) {
+  args.insert(args.begin(), "kneepoint");
+  std::vector<char*> argv;
+  for (std::string& a : args) argv.push_back(a.data());
+  ::testing::internal::CaptureStdout();
+  ::testing::internal::CaptureStderr();
+  CliResult r;
+  r.code = cli::RunCli(static_cast<int>(argv.size()), argv.data());
+  r.out = ::testing::internal::GetCapturedStdout();
+  r.err = ::testing::internal::GetCapturedStderr();
+  return r;
+}
+
+std::string ReadFile(const std::string& path) {
+  std::ifstream f(path);
+  std::stringstream ss;
+  ss << f.rdbuf();
+  return ss.str();
+}
+
+// 2,000 mAh at 40 µA: 50,000 h ≈ 5.7 years (Q = I·t, common practice, no source).
+TEST(LifeCli, WorkedExampleAsJson) {
+  CliResult r = Cli({"life", "--capacity", "2000mAh", "--average", "40uA", "--json"});
+  ASSERT_EQ(r.code, 0) << r.err;
+  auto j = nlohmann::json::parse(r.out);
+  EXPECT_NEAR(j["average_current_A"].get<double>(), 40e-6, 1e-15);
+  EXPECT_NEAR(j["hours"].get<double>(), 50000.0, 1e-6);
+  EXPECT_NEAR(j["years"].get<double>(), 5.7, 0.01);
+  EXPECT_TRUE(j["allowances"].empty());
+}
+
+// Duty-cycle average (time-weighted mean, common practice, no source):
+// 8 µA for 599.5 s + 25 mA for 0.5 s ≈ 28.8 µA.
+TEST(LifeCli, ProfileFileAndAllowances) {
+  testing::TempDir dir;
+  std::string path = dir.File("node.profile");
+  std::ofstream(path) << "# sensor node\ncompress 100\n8uA for 599.5s compressed\n25mA for 0.5s\n";
+  CliResult r = Cli({"life", "--capacity", "2000mAh", "--profile", path, "--self-discharge", "2%/month", "--json"});
+  ASSERT_EQ(r.code, 0) << r.err;
+  auto j = nlohmann::json::parse(r.out);
+  EXPECT_NEAR(j["average_current_A"].get<double>(), (8e-6 * 599.5 + 0.025 * 0.5) / 600.0, 1e-15);
+  ASSERT_EQ(j["allowances"].size(), 1u);
+  EXPECT_EQ(j["allowances"][0], "self-discharge");
+  EXPECT_LT(j["hours"].get<double>(), 2.0 / j["average_current_A"].get<double>());
+
+  std::ofstream(path) << "8uA for 599.5s\n25 mA for half a second\n";
+  CliResult bad = Cli({"life", "--capacity", "2000mAh", "--profile", path});
+  EXPECT_EQ(bad.code, cli::kExitBadInput);
+  EXPECT_NE(bad.err.find("node.profile:2:"), std::string::npos) << bad.err;
+
+  CliResult unit = Cli({"life", "--capacity", "2000mV", "--average", "40uA"});
+  EXPECT_EQ(unit.code, cli::kExitBadInput);
+  EXPECT_NE(unit.err.find("--capacity"), std::string::npos);
+}
+
+// Peukert derating (Peukert 1897, C_p = I^k t): a capacity Q measured at I_ref
+// becomes Q (I_ref / I)^(k-1) at current I.
+TEST(LifeCli, PeukertDerating) {
+  CliResult r =
+      Cli({"life", "--capacity", "2000mAh", "--average", "100mA", "--peukert", "1.2", "--measured-at", "400mA", "--json"});
+  ASSERT_EQ(r.code, 0) << r.err;
+  auto j = nlohmann::json::parse(r.out);
+  double q = 2000.0 * std::pow(0.4 / 0.1, 0.2);
+  EXPECT_NEAR(j["capacity_mAh"].get<double>(), q, 1e-9);
+  EXPECT_NEAR(j["hours"].get<double>(), q / 100.0, 1e-9);
+  ASSERT_EQ(j["allowances"].size(), 1u);
+  EXPECT_EQ(j["allowances"][0], "peukert-derating");
+  EXPECT_EQ(Cli({"life", "--capacity", "2000mAh", "--average", "1mA", "--peukert", "1.2"}).code, cli::kExitBadInput);
+}
+
+CellSpec Cell2500() {
+  CellSpec c;
+  c.rated_mah = 2500;
+  c.nominal_v = 3.6;
+  c.max_v = 4.2;
+  c.cutoff_v = 2.75;
+  c.max_temp_c = 60;
+  return c;
+}
+
+// Constant-current runs at three rates: the compare command fits Peukert's
+// law over them and writes the HTML comparison; `report --html` writes a
+// well-formed page.
+TEST(CompareCli, PeukertOverThreeRatesAndHtml) {
+  testing::TempDir dir;
+  std::string db = dir.File("runs.db");
+  {
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);
+    ASSERT_TRUE(store.ok());
+    for (double c_rate : {0.2, 0.5, 1.0}) {
+      VirtualClock clock;
+      SimRig rig(clock, sim::DemoLiIonCell(2.56));
+      RunController rc(**store, clock, rig.roles());
+      Plan p = RatedCapacityPlan(Cell2500(), 2.0);
+      p.steps[0].current_a = Cell2500().CRateToAmps(c_rate);
+      p.limits.max_current_a = p.steps[0].current_a * 1.5;
+      auto r = rc.Execute(p, {});
+      ASSERT_TRUE(r.ok());
+      ASSERT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+    }
+  }
+  // A record with a hole the runner logged: the report flags it.
+  {
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);
+    ASSERT_TRUE(store.ok());
+    auto run = (*store)->BeginRun({"gap-cell", "li-ion", 2500, "manual", "", "test"});
+    ASSERT_TRUE(run.ok());
+    for (int k = 0; k < 100; ++k) ASSERT_OK((*store)->AppendSample(*run, {k * 1.0, 3.8, 0.5, 22.0, 0}));
+    ASSERT_OK((*store)->AddEvent(*run, 101.0, "gap", "resumed after an interruption"));
+    for (int k = 101; k < 200; ++k) ASSERT_OK((*store)->AppendSample(*run, {k * 1.0, 3.8, 0.5, 22.0, 0}));
+    ASSERT_OK((*store)->FinishRun(*run, Outcome::kCompleted, "test"));
+  }
+  CliResult gap = Cli({"report", "4", "--db", db, "--json"});
+  ASSERT_EQ(gap.code, 0) << gap.err;
+  auto gj = nlohmann::json::parse(gap.out);
+  ASSERT_EQ(gj["gaps"].size(), 1u);
+  EXPECT_EQ(gj["gaps"][0]["start_s"].get<double>(), 99.0);
+  EXPECT_EQ(gj["gaps"][0]["end_s"].get<double>(), 101.0);
+
+  std::string html = dir.File("cmp.html");
+  std::string csv = dir.File("cmp.csv");
+  CliResult r = Cli({"compare", "1", "2", "3", "--db", db, "--json", "--html", html, "--csv", csv, "--at", "750mA"});
+  ASSERT_EQ(r.code, 0) << r.err;
+  auto j = nlohmann::json::parse(r.out);
+  ASSERT_TRUE(j["peukert"].contains("exponent_k")) << j.dump();
+  double k = j["peukert"]["exponent_k"].get<double>();
+  RecordProperty("peukert_k", std::to_string(k));
+  RecordProperty("peukert_r2", std::to_string(j["peukert"]["r_squared"].get<double>()));
+  RecordProperty("capacity_at_750mA_mAh", std::to_string(j["peukert"]["prediction"]["capacity_mAh"].get<double>()));
+  EXPECT_GT(k, 0.95);  // about 1 or above: a cell delivers no more at higher current
+  EXPECT_LT(k, 1.5);
+  EXPECT_GT(j["peukert"]["r_squared"].get<double>(), 0.9);
+  // The prediction at 0.75 A lies between the 0.5 A and 1 A runs' capacities.
+  double at = j["peukert"]["prediction"]["capacity_mAh"].get<double>();
+  EXPECT_LE(at, j["runs"][1]["charge_mAh"].get<double>() + 1.0);
+  EXPECT_GE(at, j["runs"][2]["charge_mAh"].get<double>() - 1.0);
+  EXPECT_EQ(testing::CheckXml(ReadFile(html)), "");
+  std::string table = ReadFile(csv);
+  EXPECT_EQ(std::count(table.begin(), table.end(), '\n'), 4);
+  EXPECT_EQ(table.rfind("run,charge_mAh,", 0), 0u);
+
+  std::string page = dir.File("run1.html");
+  CliResult rep = Cli({"report", "1", "--db", db, "--html", page});
+  ASSERT_EQ(rep.code, 0) << rep.err;
+  std::string text = ReadFile(page);
+  EXPECT_EQ(testing::CheckXml(text), "");
+  EXPECT_NE(text.find("plot-voltage-charge"), std::string::npos);
+  // Options do not leak from one invocation to the next.
+  CliResult plain = Cli({"report", "1", "--db", db});
+  EXPECT_EQ(plain.out.find("HTML report written"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace kp
