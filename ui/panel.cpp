@@ -176,7 +176,7 @@ void Panel::RunsList() {
   ImGui::TableSetupColumn("procedure", 0, 1.8f);
   ImGui::TableSetupColumn("elapsed", 0, 1.1f);
   ImGui::TableSetupColumn("mAh", 0, 0.9f);
-  ImGui::TableSetupColumn("verdict", 0, 1.2f);
+  ImGui::TableSetupColumn("verdict", 0, 1.5f);
   ImGui::TableHeadersRow();
   for (const RunListRow& r : state_.runs) {
     if (!MatchesFilter(r, filter_)) continue;
@@ -253,15 +253,23 @@ void Panel::Headline(const RunData& d) {
   Figure(fonts_, "temperature", fmt::format("{:.1f} °C", s.temperature_c), tcol);
   ImGui::SameLine(0, gap);
   Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.charge_mah()), theme_.tick_text);
-  ImGui::SameLine(0, gap * 0.5f);
-  Figure(fonts_, "energy", fmt::format("{:.2f} Wh", f.energy_wh()), theme_.tick_text);
-  ImGui::SameLine(0, gap);
   std::string remaining = "—";
   if (live) {
     if (auto r = EstimateRemainingS(d.samples, f.charge_mah(), d.row.rated_mah, d.limits.cutoff_v)) remaining = "~" + Hms(*r);
   }
-  Figure(fonts_, live ? "elapsed  /  est. remaining" : "elapsed", Hms(s.t_s - f.first_t_s()) + (live ? "  /  " + remaining : ""),
-         theme_.tick_text);
+  ImGui::PushFont(fonts_.medium);
+  ImGui::Text("%.2f Wh", f.energy_wh());
+  ImGui::SameLine(0, gap);
+  ImGui::TextDisabled("elapsed");
+  ImGui::SameLine();
+  ImGui::TextUnformatted(Hms(s.t_s - f.first_t_s()).c_str());
+  if (live) {
+    ImGui::SameLine(0, gap);
+    ImGui::TextDisabled("est. remaining");
+    ImGui::SameLine();
+    ImGui::TextUnformatted(remaining.c_str());
+  }
+  ImGui::PopFont();
 
   StepNow step = CurrentStep(d.steps);
   if (step.index >= 0) {
@@ -278,8 +286,7 @@ void Panel::Headline(const RunData& d) {
   if (d.limits.max_voltage_v) lim += fmt::format("max {:.2f} V   ", *d.limits.max_voltage_v);
   if (d.limits.max_temp_c) lim += fmt::format("max temp {:.0f} °C", *d.limits.max_temp_c);
   if (!lim.empty()) {
-    ImGui::SameLine();
-    ImGui::TextDisabled("   limits: %s", lim.c_str());
+    ImGui::TextDisabled("limits drawn: %s", lim.c_str());
   }
 }
 
@@ -334,6 +341,10 @@ void Panel::LiveView() {
     return;
   }
   const RunData& d = it->second;
+  if (d.BacklogSize() > 0) {
+    ImGui::TextColored(ImColor(theme_.caution), "loading run %lld: %zu samples shown, %zu to go…",
+                       static_cast<long long>(d.row.id), d.samples.size(), d.BacklogSize());
+  }
   Headline(d);
   ControlButtons(d);
 
@@ -346,7 +357,6 @@ void Panel::LiveView() {
   PlotSpec vspec;
   vspec.data_x = data_x;
   vspec.x_label = "time (h:mm)";
-  vspec.y_label[0] = "voltage (V)";
   vspec.traces.push_back({&d.t_s, &d.voltage, theme_.voltage, "voltage", "V", 0});
   if (d.limits.cutoff_v) vspec.lines.push_back({*d.limits.cutoff_v, theme_.cutoff, "cutoff", 0, false, true});
   if (d.limits.min_voltage_v) vspec.lines.push_back({*d.limits.min_voltage_v, theme_.limit, "safety min", 0, true, true});
@@ -356,8 +366,8 @@ void Panel::LiveView() {
   PlotSpec ispec;
   ispec.data_x = data_x;
   ispec.x_label = "time (h:mm)";
-  ispec.y_label[0] = "current (A)";
-  ispec.y_label[1] = "temperature (°C)";
+  ispec.y_label[0] = "A";
+  ispec.y_label[1] = "°C";
   ispec.traces.push_back({&d.t_s, &d.current, theme_.current, "current", "A", 0});
   ispec.traces.push_back({&d.t_s, &d.temperature, theme_.temperature, "temperature", "°C", 1});
   if (d.limits.max_temp_c) ispec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 1, true, true});

@@ -86,7 +86,7 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
   ImVec2 outer1 = {outer0.x + size.x, outer0.y + size.y};
   float fh = ImGui::GetFontSize();
   bool has_right = !spec.y_label[1].empty();
-  float left_w = fh * 4.2f, right_w = has_right ? fh * 4.2f : fh * 0.8f;
+  float left_w = fh * 4.2f, right_w = fh * 3.2f;  // same margins on every plot keep stacked x axes aligned
   ImVec2 p0 = {std::floor(outer0.x + left_w), std::floor(outer0.y + fh * 0.6f)};
   ImVec2 p1 = {std::floor(outer1.x - right_w), std::floor(outer1.y - fh * 2.4f)};
   res.rect_min = p0;
@@ -138,6 +138,10 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
     ImVec2 ts = ImGui::CalcTextSize(label.c_str());
     dl->AddText({px - ts.x * 0.5f, p1.y + fh * 0.2f}, theme.tick_text, label.c_str());
   }
+  ImU32 axis_col[2] = {theme.tick_text, theme.tick_text};
+  if (has_right)
+    for (const Trace& t : spec.traces)
+      if (axis_col[t.axis] == theme.tick_text) axis_col[t.axis] = t.colour;
   for (int a = 0; a < 2; ++a) {
     if (a == 1 && !has_right) break;
     Ticks yt = NiceTicks(res.y[a].lo, res.y[a].hi, std::max(2, static_cast<int>((p1.y - p0.y) / (fh * 3.0f))));
@@ -147,18 +151,13 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
       std::string label = FormatValueTick(v, yt.step);
       ImVec2 ts = ImGui::CalcTextSize(label.c_str());
       float tx = a == 0 ? p0.x - ts.x - fh * 0.4f : p1.x + fh * 0.4f;
-      dl->AddText({tx, py - ts.y * 0.5f}, theme.tick_text, label.c_str());
+      dl->AddText({tx, py - ts.y * 0.5f}, axis_col[a], label.c_str());
     }
   }
-  // Axis titles.
+  // x title centred under the ticks; the y quantities are named in the legend.
   if (!spec.x_label.empty()) {
     ImVec2 ts = ImGui::CalcTextSize(spec.x_label.c_str());
-    dl->AddText({p1.x - ts.x, p1.y + fh * 1.25f}, theme.tick_text, spec.x_label.c_str());
-  }
-  dl->AddText({outer0.x + 2, p1.y + fh * 1.25f}, theme.tick_text, spec.y_label[0].c_str());
-  if (has_right) {
-    ImVec2 ts = ImGui::CalcTextSize(spec.y_label[1].c_str());
-    dl->AddText({outer1.x - ts.x - 2, p1.y + fh * 1.25f}, theme.tick_text, spec.y_label[1].c_str());
+    dl->AddText({0.5f * (p0.x + p1.x - ts.x), p1.y + fh * 1.25f}, theme.tick_text, spec.x_label.c_str());
   }
 
   dl->PushClipRect(p0, p1, true);
@@ -171,7 +170,8 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
       dl->AddLine({p0.x, py}, {p1.x, py}, l.colour, thick);
     std::string text = fmt::format("{} {}", l.label, FormatValueTick(l.value, 0.01));
     ImVec2 ts = ImGui::CalcTextSize(text.c_str());
-    dl->AddText({p1.x - ts.x - fh * 0.3f, py - ts.y - 1}, l.colour, text.c_str());
+    float ty = py - ts.y - 1 < p0.y ? py + 2 : py - ts.y - 1;  // below the line when it hugs the top
+    dl->AddText({p1.x - ts.x - fh * 0.3f - (p1.x - p0.x) * 0.08f, ty}, l.colour, text.c_str());
   }
   for (const Trace& t : spec.traces) DrawTrace(dl, t, xm, ym[t.axis], p0.x, width, thick);
 

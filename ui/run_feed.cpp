@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <chrono>
+#include <span>
 
 #include <fmt/format.h>
 
@@ -10,15 +11,34 @@
 
 namespace kp::ui {
 
-void RunData::Append(const std::vector<Sample>& more) {
-  if (more.empty()) return;
-  samples.reserve(samples.size() + more.size());
-  t_s.reserve(t_s.size() + more.size());
-  charge_mah.reserve(charge_mah.size() + more.size());
+void RunData::Append(const std::vector<Sample>& more) { Append(more.data(), more.size()); }
+
+size_t RunData::TakeBacklog(size_t budget) {
+  size_t n = std::min(budget, BacklogSize());
+  Append(backlog.data() + backlog_pos, n);
+  backlog_pos += n;
+  if (backlog_pos == backlog.size()) {
+    backlog.clear();
+    backlog_pos = 0;
+  }
+  return n;
+}
+
+size_t FeedState::Backlog() const {
+  size_t n = 0;
+  for (const auto& [id, d] : watched) n += d.BacklogSize();
+  return n;
+}
+
+void RunData::Append(const Sample* more_data, size_t count) {
+  if (count == 0) return;
+  std::span<const Sample> more(more_data, count);
+  // No exact reserve() on the long arrays: it would defeat geometric growth
+  // and copy the whole run on every small live append.
   std::vector<float> v, i, temp;
-  v.reserve(more.size());
-  i.reserve(more.size());
-  temp.reserve(more.size());
+  v.reserve(count);
+  i.reserve(count);
+  temp.reserve(count);
   for (const Sample& s : more) {
     figures.Add(s);
     samples.push_back(s);
@@ -92,8 +112,10 @@ void RunFeed::Drain(FeedState& state) {
       d.steps = std::move(p.steps);
       d.limits = ScanLimits(d.row.procedure_text, d.steps);
     }
-    d.Append(p.samples);
+    d.backlog.insert(d.backlog.end(), p.samples.begin(), p.samples.end());
   }
+  size_t budget = options_.max_append_per_frame;
+  for (auto& [id, d] : state.watched) budget -= d.TakeBacklog(budget);
 }
 
 bool RunFeed::WaitCaughtUp(double timeout_s) {

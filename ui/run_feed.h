@@ -40,8 +40,16 @@ struct RunData {
   std::vector<EventRow> events;
   std::vector<StepRow> steps;
   DrawnLimits limits;
+  // Samples read but not yet appended: a long run is taken in over several
+  // frames so no single frame stalls.
+  std::vector<Sample> backlog;
+  size_t backlog_pos = 0;
   // Appends samples in time order, extending the arrays, pyramids and figures.
   void Append(const std::vector<Sample>& more);
+  void Append(const Sample* more, size_t count);
+  // Moves up to `budget` samples from the backlog; returns how many.
+  size_t TakeBacklog(size_t budget);
+  size_t BacklogSize() const { return backlog.size() - backlog_pos; }
   void Clear();
 };
 
@@ -52,6 +60,8 @@ struct FeedState {
   std::vector<std::string> notes;   // results of requests, read errors (appended)
   bool connected = false;
   std::string db_path;
+  // Samples waiting in the watched runs' backlogs.
+  size_t Backlog() const;
 };
 
 class RunFeed {
@@ -60,6 +70,7 @@ class RunFeed {
     std::string db_path;
     double poll_s = 0.25;             // at least twice a second
     size_t max_rows_per_poll = 400000;  // bounds one poll's work per run
+    size_t max_append_per_frame = 100000;  // bounds Drain's work per frame
   };
   explicit RunFeed(Options options);
   ~RunFeed();  // stops and joins the worker
@@ -68,7 +79,9 @@ class RunFeed {
 
   // The runs whose samples the panel draws; others get list figures only.
   void Watch(const std::set<int64_t>& run_ids);
-  // Moves everything the worker read since the last call into `state`.
+  // Moves what the worker read since the last call into `state`; at most
+  // max_append_per_frame samples are appended per call, the rest waits in
+  // the runs' backlogs for the next frames.
   void Drain(FeedState& state);
   // Queues "abort", "pause" or "continue" for `run_id`; the outcome shows up in notes.
   void Request(int64_t run_id, const std::string& action);

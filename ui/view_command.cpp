@@ -112,8 +112,15 @@ int RunView(const ViewOptions& o) {
   };
 
   if (headless) {
+    // The pointer of a headless display sits mid-screen: keep it out of the picture.
+    ImGui::GetIO().ConfigFlags |= ImGuiConfigFlags_NoMouse;
     frame();  // tells the reader which runs to load
     if (!feed.WaitCaughtUp(60.0)) return cli::Fail(TimeoutError("the database took too long to read"));
+    for (int i = 0; i < 100000; ++i) {  // take in long runs (bounded work per frame)
+      frame();
+      win.Present();
+      if (panel.state().Backlog() == 0) break;
+    }
     for (int i = 0; i < o.frames; ++i) {
       frame();
       if (i + 1 < o.frames) win.Present();

@@ -72,6 +72,35 @@ TEST(RunFeed, FollowsALiveRunIncrementally) {
   EXPECT_EQ(EventSeverity(d.events[0]), Severity::kAlarm);
 }
 
+// A long run is taken in over several frames: each Drain appends at most the
+// per-frame budget, and the rest arrives intact on later frames.
+TEST(RunFeed, BoundsTheWorkPerFrame) {
+  testing::TempDir dir;
+  VirtualClock clock;
+  auto store = Store::Open(dir.File("long.db"), clock);
+  ASSERT_OK(store.status());
+  auto run = (*store)->BeginRun(LiveRun());
+  ASSERT_OK(run.status());
+  for (int k = 0; k < 2500; ++k) ASSERT_OK((*store)->AppendSample(*run, At(k)));
+  ASSERT_OK((*store)->Commit());
+  RunFeed::Options o;
+  o.db_path = dir.File("long.db");
+  o.max_append_per_frame = 1000;
+  RunFeed feed(o);
+  feed.Watch({*run});
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  FeedState state;
+  feed.Drain(state);
+  EXPECT_EQ(state.watched[*run].samples.size(), 1000u);
+  EXPECT_EQ(state.Backlog(), 1500u);
+  feed.Drain(state);
+  feed.Drain(state);
+  const RunData& d = state.watched[*run];
+  ASSERT_EQ(d.samples.size(), 2500u);
+  EXPECT_EQ(state.Backlog(), 0u);
+  for (int k = 0; k < 2500; k += 499) EXPECT_DOUBLE_EQ(d.samples[static_cast<size_t>(k)].voltage_v, At(k).voltage_v);
+}
+
 // Requests from the panel land in the database for the runner to act on.
 TEST(RunFeed, RequestsGoThroughTheStore) {
   testing::TempDir dir;
