@@ -70,7 +70,7 @@ Fonts LoadFonts(float scale) {
   const char* bold = "/usr/share/fonts/truetype/dejavu/DejaVuSans-Bold.ttf";
   std::error_code ec;
   static const ImWchar kRanges[] = {0x0020, 0x00FF, 0x2013, 0x2014, 0x2022, 0x2022, 0x2026, 0x2026,
-                                    0x2190, 0x2193, 0x2212, 0x2212, 0x25B2, 0x25BC, 0};
+                                    0x2190, 0x2193, 0x2212, 0x2212, 0x25A0, 0x25A0, 0x25B2, 0x25BC, 0};
   if (std::filesystem::exists(regular, ec)) {
     f.body = io.Fonts->AddFontFromFileTTF(regular, 16.0f * scale, nullptr, kRanges);
     f.medium = io.Fonts->AddFontFromFileTTF(std::filesystem::exists(bold, ec) ? bold : regular, 20.0f * scale, nullptr, kRanges);

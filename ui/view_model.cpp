@@ -125,7 +125,9 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   r.delivered_mah = figures.charge_mah();
   r.rated_mah = run.rated_mah;
   r.reason = run.reason;
-  if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
+  if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
+    r.verdict = "incomplete";  // a capacity verdict needs a discharge that reached its end
+  } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
     r.verdict = "-";
   } else {
     CapacityVerdict v = JudgeCapacity(figures.charge_mah(), run.rated_mah);

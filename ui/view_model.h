@@ -69,7 +69,8 @@ struct RunListRow {
   double elapsed_s = 0.0;
   double delivered_mah = 0.0;
   double rated_mah = 0.0;
-  std::string verdict;  // "PASS 102 %", "FAIL 87 %", "—" while running or without a rating
+  std::string verdict;  // "PASS 102 %", "FAIL 87 %" (completed runs), "incomplete" (aborted,
+                        // interrupted), "-" while running or without a rating
   std::string reason;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);

@@ -79,9 +79,11 @@ TEST(RunList, VerdictAndFilter) {
   EXPECT_FALSE(MatchesFilter(row, "A1 nimh"));
   run.outcome = Outcome::kRunning;
   EXPECT_EQ(MakeRunListRow(run, f).verdict, "-");
-  run.outcome = Outcome::kAborted;
+  run.outcome = Outcome::kCompleted;
   run.rated_mah = 2000.0;
   EXPECT_EQ(MakeRunListRow(run, f).verdict, "FAIL 51 %");
+  run.outcome = Outcome::kAborted;
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "incomplete");
 }
 
 TEST(EstimateRemaining, ChargeAndSlopeBothBound) {
