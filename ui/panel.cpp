@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <cstdio>
 
 #include <fmt/format.h>
 
@@ -57,6 +58,10 @@ Panel::Panel(RunFeed& feed, PanelOptions options, Fonts fonts)
     : feed_(feed), options_(std::move(options)), fonts_(fonts), tab_(options_.tab) {
   selected_ = options_.run_id;
   compare_ = options_.compare;
+  if (!options_.new_run_procedure.empty()) {
+    open_start_ = true;
+    std::snprintf(proc_path_, sizeof(proc_path_), "%s", options_.new_run_procedure.c_str());
+  }
   SetTheme(options_.dark);
 }
 
@@ -239,12 +244,12 @@ void Panel::Headline(const RunData& d) {
   }
   // Voltage colour says how close the cell is to its cutoff.
   ImU32 vcol = theme_.voltage;
-  if (d.limits.cutoff_v) {
+  if (live && d.limits.cutoff_v) {
     double margin = s.voltage_v - *d.limits.cutoff_v;
     vcol = margin <= 0.0 ? theme_.alarm : margin < 0.15 ? theme_.caution : theme_.voltage;
   }
   ImU32 tcol = theme_.temperature;
-  if (d.limits.max_temp_c && s.temperature_c > *d.limits.max_temp_c - 5.0) tcol = theme_.alarm;
+  if (live && d.limits.max_temp_c && s.temperature_c > *d.limits.max_temp_c - 5.0) tcol = theme_.alarm;
   float gap = ImGui::GetFontSize() * 2.0f;
   Figure(fonts_, "voltage", fmt::format("{:.3f} V", s.voltage_v), vcol);
   ImGui::SameLine(0, gap);
@@ -479,17 +484,21 @@ void Panel::StartDialog() {
     check_job_ = std::async(std::launch::async, [argv] { return CaptureOutput(argv); });
   }
   bool checked_ok = check_result_ && check_result_->exit_code == 0 && check_for_ == proc_path_;
-  ImGui::SameLine();
-  if (check_result_)
+  if (check_result_) {
+    ImGui::SameLine();
     ImGui::TextColored(ImColor(checked_ok ? theme_.ok : theme_.alarm), checked_ok ? "plan is valid" : "check failed (exit %d)",
                        check_result_->exit_code);
+  }
   ImGui::BeginChild("plan", {0, ImGui::GetFontSize() * 10}, true);
   ImGui::TextUnformatted(check_result_ ? check_result_->output.c_str() : "Press 'Check plan' to see the steps before starting.");
   ImGui::EndChild();
 
   // Lithium safety notes, always in view before a run starts.
   ImGui::PushStyleColor(ImGuiCol_ChildBg, ImColor(theme_.notice_row).Value);
-  ImGui::BeginChild("cautions", {0, ImGui::GetFontSize() * 8}, true);
+  ImGui::BeginChild("cautions", {0, ImGui::GetFontSize() * 9}, true);
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Before a lithium-cell run");
+  ImGui::PopFont();
   ImGui::TextWrapped("%s", cli::SafetyCautions());
   ImGui::EndChild();
   ImGui::PopStyleColor();

@@ -28,6 +28,7 @@ struct PanelOptions {
   Tab tab = Tab::kLive;
   bool dark = true;
   float scale = 1.0f;
+  std::string new_run_procedure;  // non-empty: open the start dialog with this file
 };
 
 class Panel {

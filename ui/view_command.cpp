@@ -26,6 +26,7 @@ struct ViewOptions {
   std::string layout_out;
   bool light = false;
   float scale = 0.0f;
+  std::string new_run;
 };
 
 Status ParseSize(const std::string& s, int* w, int* h) {
@@ -82,6 +83,7 @@ int RunView(const ViewOptions& o) {
   if (o.tab == "compare") po.tab = Tab::kCompare;
   else if (o.tab != "live") return cli::Fail(InvalidInput(fmt::format("--tab '{}': expected live or compare", o.tab)));
   po.dark = !o.light;
+  po.new_run_procedure = o.new_run;
   std::error_code ec;
   if (!std::filesystem::exists(o.db, ec))
     return cli::Fail(NotFound(fmt::format("database '{}' not found (create one with `kneepoint demo`)", o.db)));
@@ -157,6 +159,7 @@ void RegisterView(cli::CliRegistry& registry) {
   cmd->add_option("--tab", opt->tab, "live or compare")->capture_default_str();
   cmd->add_flag("--light", opt->light, "start in the light (day shift) theme");
   cmd->add_option("--scale", opt->scale, "font and spacing scale (default: the monitor's)");
+  cmd->add_option("--new-run", opt->new_run, "open the start dialog for this procedure file");
   cmd->add_option("--screenshot", opt->screenshot, "render, write this PNG and exit (headless use)");
   cmd->add_option("--size", opt->size, "window size WIDTHxHEIGHT")->capture_default_str();
   cmd->add_option("--frames", opt->frames, "frames rendered before a screenshot")->capture_default_str();
