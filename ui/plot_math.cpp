@@ -189,6 +189,7 @@ IndexRange VisibleIndices(const std::vector<double>& xs, double lo, double hi) {
   if (xs.empty() || hi < lo) return r;
   size_t a = static_cast<size_t>(std::lower_bound(xs.begin(), xs.end(), lo) - xs.begin());
   size_t b = static_cast<size_t>(std::upper_bound(xs.begin(), xs.end(), hi) - xs.begin());
+  if (b < a) b = a;  // xs not ascending after all (e.g. charge that went back): never an inverted range
   r.first = a > 0 ? a - 1 : 0;
   r.last = std::min(xs.size(), b + 1);
   return r;
