@@ -228,7 +228,10 @@ void Panel::Headline(const RunData& d) {
   bool live = d.row.outcome == Outcome::kRunning;
   // State badge.
   ImGui::PushFont(fonts_.medium);
-  ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome));
+  if (live && IsPaused(d.events))
+    ImGui::TextColored(ImColor(theme_.caution), "PAUSED");
+  else
+    ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome));
   ImGui::PopFont();
   ImGui::SameLine();
   ImGui::Text("run %lld  ·  cell %s (%s, %.0f mAh rated)  ·  %s  ·  rig %s", static_cast<long long>(d.row.id),
@@ -305,7 +308,13 @@ void Panel::ControlButtons(const RunData& d) {
   if (ImGui::Button("Abort…  [A]")) open_abort_ = true;
   ImGui::PopStyleColor();
   ImGui::SameLine();
-  ImGui::TextDisabled("requests go through the database; the runner acts on them even if this panel closes");
+  if (!d.requests.empty()) {
+    std::string waiting;
+    for (const RequestRow& r : d.requests) waiting += (waiting.empty() ? "" : ", ") + r.action;
+    ImGui::TextColored(ImColor(theme_.caution), "sent, waiting for the runner: %s", waiting.c_str());
+  } else {
+    ImGui::TextDisabled("requests go through the database; the runner acts on them even if this panel closes");
+  }
 }
 
 void Panel::EventLog(const RunData& d) {

@@ -110,6 +110,7 @@ void RunFeed::Drain(FeedState& state) {
       d.row = std::move(p.row);
       d.events = std::move(p.events);
       d.steps = std::move(p.steps);
+      d.requests = std::move(p.requests);
       d.limits = ScanLimits(d.row.procedure_text, d.steps);
     }
     d.backlog.insert(d.backlog.end(), p.samples.begin(), p.samples.end());
@@ -199,6 +200,9 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
                             : fmt::format("{} request for run {} failed: {}", action, run_id, r.status().message()));
   }
 
+  // A runner that died while the panel watched: mark its run interrupted
+  // (every few seconds; the store checks the runner's pid and host).
+  if (++worker_polls_ % 20 == 0) KP_RETURN_IF_ERROR(store.ReconcileOrphans().status());
   bool more = false;
   KP_ASSIGN_OR_RETURN(auto runs, store.ListRuns());
   std::vector<RunListRow> rows;
@@ -224,6 +228,9 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
     p.row = *found;
     KP_ASSIGN_OR_RETURN(p.events, store.LoadEvents(id));
     KP_ASSIGN_OR_RETURN(p.steps, store.LoadSteps(id));
+    if (found->outcome == Outcome::kRunning) {
+      KP_ASSIGN_OR_RETURN(p.requests, store.PendingRequests(id));
+    }
   }
 
   std::lock_guard<std::mutex> lock(mu_);
@@ -241,6 +248,7 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
     dst.row = std::move(p.row);
     dst.events = std::move(p.events);
     dst.steps = std::move(p.steps);
+    dst.requests = std::move(p.requests);
   }
   *caught_up = !more;
   return Status::Ok();

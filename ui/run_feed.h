@@ -39,6 +39,7 @@ struct RunData {
   RunningFigures figures;
   std::vector<EventRow> events;
   std::vector<StepRow> steps;
+  std::vector<RequestRow> requests;  // sent but not yet handled by the runner
   DrawnLimits limits;
   // Samples read but not yet appended: a long run is taken in over several
   // frames so no single frame stalls.
@@ -97,6 +98,7 @@ class RunFeed {
     RunRow row;
     std::vector<EventRow> events;
     std::vector<StepRow> steps;
+    std::vector<RequestRow> requests;
   };
   struct Cursor {
     int64_t seq = -1;
@@ -121,6 +123,7 @@ class RunFeed {
   bool connected_ = false;
   uint64_t polls_done_ = 0;
   uint64_t caught_up_poll_ = 0;  // last poll that found nothing left to read
+  uint64_t worker_polls_ = 0;    // worker only
   // worker only
   std::map<int64_t, Cursor> list_cursors_;
   std::map<int64_t, Cursor> watch_cursors_;

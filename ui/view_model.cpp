@@ -185,6 +185,15 @@ Severity EventSeverity(const EventRow& e) {
   return Severity::kInfo;
 }
 
+bool IsPaused(const std::vector<EventRow>& events) {
+  for (auto it = events.rbegin(); it != events.rend(); ++it) {
+    std::string k = Lower(it->kind);
+    if (k.find("pause") != std::string::npos) return true;
+    if (k.find("continue") != std::string::npos || k.find("resume") != std::string::npos) return false;
+  }
+  return false;
+}
+
 StepNow CurrentStep(const std::vector<StepRow>& steps) {
   StepNow now;
   if (steps.empty()) return now;

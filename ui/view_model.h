@@ -92,6 +92,10 @@ enum class Severity { kInfo, kNotice, kAlarm };
 // pauses are notices; the rest is information.
 Severity EventSeverity(const EventRow& e);
 
+// True when the newest pause/continue event of a running run is a pause
+// (event kinds containing "pause" versus "continue" or "resume").
+bool IsPaused(const std::vector<EventRow>& events);
+
 // The step in force at the latest sample and its end condition text (the
 // step's label as written in the plan), or empty when no step is recorded.
 struct StepNow {

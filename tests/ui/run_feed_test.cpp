@@ -114,6 +114,7 @@ TEST(RunFeed, RequestsGoThroughTheStore) {
     RunFeed::Options o;
     o.db_path = dir.File("req.db");
     RunFeed feed(o);
+    feed.Watch({*run});
     feed.Request(*run, "pause");
     feed.Request(*run, "abort");
     ASSERT_TRUE(feed.WaitCaughtUp(30.0));
@@ -121,13 +122,19 @@ TEST(RunFeed, RequestsGoThroughTheStore) {
     feed.Drain(state);
     ASSERT_FALSE(state.notes.empty());
     EXPECT_NE(state.notes.back().find("abort requested for run"), std::string::npos);
+    // The panel shows them as waiting until the runner handles them.
+    ASSERT_EQ(state.watched[*run].requests.size(), 2u);
+    ASSERT_OK((*store)->MarkRequestHandled(state.watched[*run].requests[0].id));
+    ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+    feed.Drain(state);
+    ASSERT_EQ(state.watched[*run].requests.size(), 1u);
+    EXPECT_EQ(state.watched[*run].requests[0].action, "abort");
   }
   auto pending = (*store)->PendingRequests(*run);
   ASSERT_OK(pending.status());
-  ASSERT_EQ(pending->size(), 2u);
-  EXPECT_EQ((*pending)[0].action, "pause");
-  EXPECT_EQ((*pending)[1].action, "abort");
-  EXPECT_EQ((*pending)[1].requested_by, "panel");
+  ASSERT_EQ(pending->size(), 1u);
+  EXPECT_EQ((*pending)[0].action, "abort");
+  EXPECT_EQ((*pending)[0].requested_by, "panel");
 }
 
 TEST(RunFeed, MissingDatabaseIsReportedNotCreated) {

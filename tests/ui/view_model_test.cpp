@@ -112,6 +112,16 @@ TEST(Events, AlarmsStandOut) {
   EXPECT_EQ(EventSeverity({0, "step", "discharge", ""}), Severity::kInfo);
 }
 
+TEST(Events, PausedFollowsTheNewestPauseOrContinue) {
+  std::vector<EventRow> e = {{0, "step", "discharge", ""}};
+  EXPECT_FALSE(IsPaused(e));
+  e.push_back({10, "paused", "by panel", ""});
+  e.push_back({11, "retry", "meter", ""});
+  EXPECT_TRUE(IsPaused(e));
+  e.push_back({20, "continued", "by panel", ""});
+  EXPECT_FALSE(IsPaused(e));
+}
+
 TEST(CurrentStep, TakesTheLatest) {
   EXPECT_EQ(CurrentStep({}).index, -1);
   StepRow a{0, 0, "rest", "rest 10 min", 0.0, 600.0, "time"};
