@@ -6,6 +6,7 @@
 #include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <filesystem>
 
 #include <fmt/format.h>
 
@@ -61,6 +62,8 @@ Panel::Panel(RunFeed& feed, PanelOptions options, Fonts fonts)
   if (!options_.new_run_procedure.empty()) {
     open_start_ = true;
     std::snprintf(proc_path_, sizeof(proc_path_), "%s", options_.new_run_procedure.c_str());
+    std::error_code ec;
+    if (std::filesystem::is_directory(options_.new_run_procedure, ec)) browse_target_ = 1;  // pick from that folder
   }
   SetTheme(options_.dark);
 }
@@ -473,10 +476,21 @@ void Panel::StartDialog() {
   }
   ImVec2 center = ImGui::GetMainViewport()->GetCenter();
   ImGui::SetNextWindowPos(center, ImGuiCond_Appearing, {0.5f, 0.5f});
-  ImGui::SetNextWindowSize({ImGui::GetFontSize() * 48, ImGui::GetFontSize() * 36}, ImGuiCond_Appearing);
+  ImGui::SetNextWindowSize({ImGui::GetFontSize() * 50, std::min(ImGui::GetFontSize() * 46, ImGui::GetMainViewport()->WorkSize.y * 0.95f)},
+                           ImGuiCond_Appearing);
   if (!ImGui::BeginPopupModal("Start a run", nullptr)) return;
-  ImGui::InputText("procedure file", proc_path_, sizeof(proc_path_));
-  ImGui::InputText("rig (sim or RIG.toml)", rig_path_, sizeof(rig_path_));
+  ImGui::InputText("##proc", proc_path_, sizeof(proc_path_));
+  ImGui::SameLine();
+  if (ImGui::SmallButton("browse##p")) browse_target_ = browse_target_ == 1 ? 0 : 1;
+  ImGui::SameLine();
+  ImGui::TextUnformatted("procedure file");
+  if (browse_target_ == 1) FileBrowser(proc_path_, sizeof(proc_path_), "browse_proc");
+  ImGui::InputText("##rig", rig_path_, sizeof(rig_path_));
+  ImGui::SameLine();
+  if (ImGui::SmallButton("browse##r")) browse_target_ = browse_target_ == 2 ? 0 : 2;
+  ImGui::SameLine();
+  ImGui::TextUnformatted("rig (sim or RIG.toml)");
+  if (browse_target_ == 2) FileBrowser(rig_path_, sizeof(rig_path_), "browse_rig");
   ImGui::InputText("cell id", cell_name_, sizeof(cell_name_));
   ImGui::InputTextWithHint("speed", "simulator time factor, empty = real time", speed_, sizeof(speed_));
 
@@ -532,6 +546,43 @@ void Panel::StartDialog() {
   if (ImGui::Button("Close") || Key(GLFW_KEY_ESCAPE)) ImGui::CloseCurrentPopup();
   if (!start_message_.empty()) ImGui::TextWrapped("%s", start_message_.c_str());
   ImGui::EndPopup();
+}
+
+void Panel::FileBrowser(char* path, size_t size, const char* id) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  fs::path p(path);
+  fs::path dir = fs::is_directory(p, ec) ? p : p.parent_path();
+  if (dir.empty()) dir = ".";
+  std::string key = dir.string();
+  if (key != browse_dir_) {  // list a folder once, not every frame
+    browse_dir_ = key;
+    browse_entries_.clear();
+    std::vector<std::string> dirs, files;
+    for (fs::directory_iterator it(dir, ec), end; !ec && it != end; it.increment(ec)) {
+      std::string name = it->path().filename().string();
+      if (name.empty() || name[0] == '.') continue;
+      if (it->is_directory(ec)) dirs.push_back(name + "/");
+      else files.push_back(name);
+      if (dirs.size() + files.size() > 500) break;
+    }
+    std::sort(dirs.begin(), dirs.end());
+    std::sort(files.begin(), files.end());
+    browse_entries_.push_back("../");
+    browse_entries_.insert(browse_entries_.end(), dirs.begin(), dirs.end());
+    browse_entries_.insert(browse_entries_.end(), files.begin(), files.end());
+  }
+  ImGui::BeginChild(id, {0, ImGui::GetFontSize() * 8}, true);
+  ImGui::TextDisabled("%s", fs::absolute(dir, ec).lexically_normal().string().c_str());
+  for (const std::string& e : browse_entries_) {
+    if (!ImGui::Selectable(e.c_str())) continue;
+    fs::path chosen = (dir / e).lexically_normal();
+    std::string text = chosen.string();
+    if (e.back() == '/' && (text.empty() || text.back() != '/')) text += "/";
+    std::snprintf(path, size, "%s", text.c_str());
+    if (e.back() != '/') browse_target_ = 0;
+  }
+  ImGui::EndChild();
 }
 
 void Panel::AbortDialog() {

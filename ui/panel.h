@@ -11,6 +11,7 @@
 #include <optional>
 #include <set>
 #include <string>
+#include <vector>
 
 #include "ui/child_process.h"
 #include "ui/plot_widget.h"
@@ -50,6 +51,7 @@ class Panel {
   void CompareView();
   void StartDialog();
   void AbortDialog();
+  void FileBrowser(char* path, size_t size, const char* id);
   void Headline(const RunData& d);
   void EventLog(const RunData& d);
   void ControlButtons(const RunData& d);
@@ -81,6 +83,10 @@ class Panel {
   std::optional<Captured> check_result_;
   std::string check_for_;  // procedure path the check result belongs to
   std::string start_message_;
+  // File browser of the start dialog: the listed folder and its entries (folders end in '/').
+  std::string browse_dir_;
+  std::vector<std::string> browse_entries_;
+  int browse_target_ = 0;  // 0 closed, 1 procedure, 2 rig
 };
 
 }  // namespace kp::ui

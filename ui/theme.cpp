@@ -105,6 +105,8 @@ void ApplyTheme(const Theme& theme, float scale) {
     style.Colors[ImGuiCol_WindowBg] = ImColor(238, 238, 232);
     style.Colors[ImGuiCol_ChildBg] = ImColor(238, 238, 232);
     style.Colors[ImGuiCol_TableRowBgAlt] = ImColor(228, 228, 220);
+    style.Colors[ImGuiCol_FrameBg] = ImColor(222, 224, 216);
+    style.Colors[ImGuiCol_PopupBg] = ImColor(246, 246, 242);
   }
   style.WindowRounding = 0.0f;
   style.FrameRounding = 3.0f;

@@ -161,7 +161,7 @@ void RegisterView(cli::CliRegistry& registry) {
   cmd->add_option("--tab", opt->tab, "live or compare")->capture_default_str();
   cmd->add_flag("--light", opt->light, "start in the light (day shift) theme");
   cmd->add_option("--scale", opt->scale, "font and spacing scale (default: the monitor's)");
-  cmd->add_option("--new-run", opt->new_run, "open the start dialog for this procedure file");
+  cmd->add_option("--new-run", opt->new_run, "open the start dialog for this procedure file (a folder: browse it)");
   cmd->add_option("--screenshot", opt->screenshot, "render, write this PNG and exit (headless use)");
   cmd->add_option("--size", opt->size, "window size WIDTHxHEIGHT")->capture_default_str();
   cmd->add_option("--frames", opt->frames, "frames rendered before a screenshot")->capture_default_str();
