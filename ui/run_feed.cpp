@@ -66,6 +66,7 @@ RunFeed::~RunFeed() {
     std::lock_guard<std::mutex> lock(mu_);
     stop_ = true;
   }
+  wake_ = true;
   cv_.notify_all();
   worker_.join();
 }
@@ -74,13 +75,13 @@ void RunFeed::Watch(const std::set<int64_t>& run_ids) {
   std::lock_guard<std::mutex> lock(mu_);
   if (run_ids == watch_) return;
   watch_ = run_ids;
-  cv_.notify_all();
+  wake_ = true;
 }
 
 void RunFeed::Request(int64_t run_id, const std::string& action) {
   std::lock_guard<std::mutex> lock(mu_);
   requests_.emplace_back(run_id, action);
-  cv_.notify_all();
+  wake_ = true;
 }
 
 void RunFeed::Drain(FeedState& state) {
@@ -122,20 +123,22 @@ void RunFeed::Drain(FeedState& state) {
 bool RunFeed::WaitCaughtUp(double timeout_s) {
   std::unique_lock<std::mutex> lock(mu_);
   uint64_t after = polls_done_ + 1;  // a poll that starts after now
-  cv_.notify_all();
+  wake_ = true;
   return cv_.wait_for(lock, std::chrono::duration<double>(timeout_s), [&] { return caught_up_poll_ > after; });
 }
 
 void RunFeed::Loop() {
-  SteadyClock wall;
+  SteadyClock steady;
+  Clock& clock = options_.clock ? *options_.clock : steady;
   std::unique_ptr<Store> store;
   while (true) {
     {
       std::lock_guard<std::mutex> lock(mu_);
       if (stop_) return;
     }
+    wake_ = false;
     if (!store) {
-      auto opened = cli::OpenExistingDb(options_.db_path, wall);
+      auto opened = cli::OpenExistingDb(options_.db_path, clock);
       std::lock_guard<std::mutex> lock(mu_);
       if (opened.ok()) {
         store = std::move(*opened);
@@ -156,13 +159,15 @@ void RunFeed::Loop() {
         caught_up = false;
       }
     }
-    std::unique_lock<std::mutex> lock(mu_);
-    ++polls_done_;
-    if (caught_up) caught_up_poll_ = polls_done_;
+    {
+      std::lock_guard<std::mutex> lock(mu_);
+      ++polls_done_;
+      if (caught_up) caught_up_poll_ = polls_done_;
+      if (stop_) return;
+    }
     cv_.notify_all();
     if (!caught_up && read_ok) continue;  // more to read: go on at once
-    cv_.wait_for(lock, std::chrono::duration<double>(options_.poll_s),
-                 [&] { return stop_ || !requests_.empty(); });
+    clock.SleepUntil(clock.Now() + Seconds(options_.poll_s), &wake_);
   }
 }
 

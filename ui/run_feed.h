@@ -11,6 +11,7 @@
 // caller.
 #pragma once
 
+#include <atomic>
 #include <condition_variable>
 #include <cstdint>
 #include <map>
@@ -21,6 +22,7 @@
 #include <thread>
 #include <vector>
 
+#include "drivers/clock.h"
 #include "drivers/status.h"
 #include "rig/store.h"
 #include "ui/plot_math.h"
@@ -72,6 +74,7 @@ class RunFeed {
     double poll_s = 0.25;             // at least twice a second
     size_t max_rows_per_poll = 400000;  // bounds one poll's work per run
     size_t max_append_per_frame = 100000;  // bounds Drain's work per frame
+    Clock* clock = nullptr;  // paces the polls; nullptr: a real-time SteadyClock
   };
   explicit RunFeed(Options options);
   ~RunFeed();  // stops and joins the worker
@@ -113,6 +116,7 @@ class RunFeed {
   std::mutex mu_;
   std::condition_variable cv_;
   bool stop_ = false;
+  std::atomic<bool> wake_{false};  // cuts the worker's pause short (stop, request, new watch set)
   // shared, under mu_
   std::set<int64_t> watch_;
   std::vector<std::pair<int64_t, std::string>> requests_;

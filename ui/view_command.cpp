@@ -142,7 +142,7 @@ int RunView(const ViewOptions& o) {
   while (!win.ShouldClose()) {
     // Redraws on input at once, otherwise 4 times a second (the data polls run at
     // 4 Hz): the software renderer's cost stays off an idle bench PC.
-    win.WaitEvents(0.25);
+    win.WaitEvents(panel.state().Backlog() > 0 ? 0.0 : 0.25);  // a long run loads without waiting
     frame();
     win.Present();
   }
