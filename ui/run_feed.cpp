@@ -210,15 +210,6 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
   if (++worker_polls_ % 20 == 0) KP_RETURN_IF_ERROR(store.ReconcileOrphans().status());
   bool more = false;
   KP_ASSIGN_OR_RETURN(auto runs, store.ListRuns());
-  std::vector<RunListRow> rows;
-  for (const RunRow& run : runs) {
-    Cursor& c = list_cursors_[run.id];
-    // Finished runs are read once; running ones follow their tail.
-    KP_RETURN_IF_ERROR(ReadSince(store, run.id, c, nullptr, &more));
-    rows.push_back(MakeRunListRow(run, c.figures));
-  }
-  std::sort(rows.begin(), rows.end(), [](const RunListRow& a, const RunListRow& b) { return a.id > b.id; });
-
   std::map<int64_t, Pending> out;
   for (auto it = watch_cursors_.begin(); it != watch_cursors_.end();)
     it = watch.count(it->first) ? std::next(it) : watch_cursors_.erase(it);
@@ -237,6 +228,19 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
       KP_ASSIGN_OR_RETURN(p.requests, store.PendingRequests(id));
     }
   }
+
+
+  std::vector<RunListRow> rows;
+  for (const RunRow& run : runs) {
+    Cursor& c = list_cursors_[run.id];
+    // A watched run was just read from its start: its figures serve the list too.
+    if (auto w = watch_cursors_.find(run.id); w != watch_cursors_.end() && w->second.seq > c.seq) c = w->second;
+    // Finished runs are read once; running ones follow their tail.
+    KP_RETURN_IF_ERROR(ReadSince(store, run.id, c, nullptr, &more));
+    rows.push_back(MakeRunListRow(run, c.figures));
+  }
+  std::sort(rows.begin(), rows.end(), [](const RunListRow& a, const RunListRow& b) { return a.id > b.id; });
+
 
   std::lock_guard<std::mutex> lock(mu_);
   runs_ = std::move(rows);
