@@ -116,7 +116,7 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   RunListRow r;
   r.id = run.id;
   r.outcome = run.outcome;
-  r.state = OutcomeName(run.outcome);
+  r.state = std::string(OutcomeName(run.outcome));
   r.cell = run.cell;
   r.chemistry = run.chemistry;
   r.procedure = run.procedure_name;
@@ -126,9 +126,9 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   r.rated_mah = run.rated_mah;
   r.reason = run.reason;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
-    r.verdict = "incomplete";  // a capacity verdict needs a discharge that reached its end
+    r.verdict = std::string("incomplete");  // a capacity verdict needs a discharge that reached its end
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
-    r.verdict = "-";
+    r.verdict = std::string("-");
   } else {
     CapacityVerdict v = JudgeCapacity(figures.charge_mah(), run.rated_mah);
     r.verdict = fmt::format("{} {:.0f} %", v.pass ? "PASS" : "FAIL", v.percent_of_rated);

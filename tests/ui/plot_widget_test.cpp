@@ -99,6 +99,49 @@ TEST_F(HeadlessImGui, ZoomedInDrawsARealLineThroughTheSamples) {
     EXPECT_TRUE(VertexNear(theme.voltage, static_cast<float>(xm.ToPixel(t[i])), static_cast<float>(ym.ToPixel(v[i])), 5.0f)) << i;
 }
 
+// Wheel over the plot zooms about the pointer and stops following; a
+// double-click goes back to the whole run.
+TEST_F(HeadlessImGui, WheelZoomsAboutThePointer) {
+  std::vector<double> t;
+  std::vector<float> v;
+  for (int k = 0; k <= 1000; ++k) {
+    t.push_back(k);
+    v.push_back(3.0f + 0.001f * static_cast<float>(k));
+  }
+  MinMaxPyramid p;
+  p.Append(v.data(), v.size());
+  Theme theme = Theme::Night();
+  PlotSpec spec;
+  spec.data_x = {0, 1000};
+  spec.traces.push_back({&t, &p, theme.voltage, "voltage", "V", 0});
+  XView view;
+  ImGuiIO& io = ImGui::GetIO();
+  io.MousePos = {-100, -100};
+  PlotResult r0 = DrawOnce(spec, view, theme);  // lays out the plot
+  float mx = r0.rect_min.x + 0.25f * (r0.rect_max.x - r0.rect_min.x);
+  float my = 0.5f * (r0.rect_min.y + r0.rect_max.y);
+  AxisMap xm0{r0.x, r0.rect_min.x, r0.rect_max.x};
+  double at = xm0.ToValue(mx);
+  io.MousePos = {mx, my};
+  DrawOnce(spec, view, theme);  // hover registers
+  io.MouseWheel = 2.0f;
+  PlotResult r1 = DrawOnce(spec, view, theme);
+  io.MouseWheel = 0.0f;
+  EXPECT_FALSE(view.follow);
+  EXPECT_NEAR(r1.x.Span(), r0.x.Span() * 0.85 * 0.85, 1e-6 * r0.x.Span());
+  AxisMap xm1{r1.x, r1.rect_min.x, r1.rect_max.x};
+  EXPECT_NEAR(xm1.ToValue(mx), at, 1e-6 * r0.x.Span());  // the value under the pointer stays put
+  io.MouseDown[0] = true;
+  DrawOnce(spec, view, theme);
+  io.MouseDown[0] = false;
+  DrawOnce(spec, view, theme);
+  io.MouseDown[0] = true;
+  DrawOnce(spec, view, theme);  // second click: a double-click
+  io.MouseDown[0] = false;
+  EXPECT_TRUE(view.follow);
+  EXPECT_EQ(view.span, 0.0);
+}
+
 TEST(ResolveX, FollowKeepsTheNewestInView) {
   Range data{100.0, 5000.0};
   XView whole;
