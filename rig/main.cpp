@@ -2,8 +2,9 @@
 #include <array>
 
 #include "rig/cli/cli.h"
+#include "ui/view_command.h"
 
 int main(int argc, char** argv) {
-  std::array<kp::cli::Registrar, 0> extra{};
+  std::array<kp::cli::Registrar, 1> extra{&kp::ui::RegisterView};
   return kp::cli::RunCli(argc, argv, extra);
 }

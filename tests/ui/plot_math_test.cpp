@@ -1,0 +1,145 @@
+#include "ui/plot_math.h"
+
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <cmath>
+#include <random>
+
+namespace kp::ui {
+namespace {
+
+TEST(NiceTicks, UsesOneTwoFiveSteps) {
+  Ticks t = NiceTicks(2.7, 4.25, 6);
+  EXPECT_DOUBLE_EQ(t.step, 0.2);  // raw 0.258 -> 0.2
+  ASSERT_FALSE(t.values.empty());
+  EXPECT_NEAR(t.values.front(), 2.8, 1e-12);
+  EXPECT_NEAR(t.values.back(), 4.2, 1e-12);
+  for (double v : t.values) {
+    EXPECT_GE(v, 2.7);
+    EXPECT_LE(v, 4.25);
+  }
+  EXPECT_DOUBLE_EQ(NiceTicks(0, 1000, 4).step, 200.0);
+  EXPECT_DOUBLE_EQ(NiceTicks(0, 1000, 2).step, 500.0);
+  EXPECT_TRUE(NiceTicks(1, 1, 5).values.empty());
+}
+
+TEST(NiceTicks, NoNegativeZero) {
+  Ticks t = NiceTicks(-1.0, 1.0, 4);
+  bool has_zero = false;
+  for (double v : t.values)
+    if (v == 0.0) {
+      has_zero = true;
+      EXPECT_FALSE(std::signbit(v));
+    }
+  EXPECT_TRUE(has_zero);
+}
+
+TEST(TimeTicks, PicksClockSteps) {
+  EXPECT_DOUBLE_EQ(TimeTicks(0, 5 * 3600, 6).step, 3600.0);  // raw 3000 s -> 1 h
+  EXPECT_DOUBLE_EQ(TimeTicks(0, 600, 6).step, 120.0);         // raw 100 s -> 2 min
+  EXPECT_EQ(FormatTimeTick(7200, 3600), "2:00h");
+  EXPECT_EQ(FormatTimeTick(150, 60), "2:30");
+  EXPECT_EQ(FormatTimeTick(20, 5), "20 s");
+  EXPECT_EQ(FormatValueTick(3.2, 0.2), "3.2");
+  EXPECT_EQ(FormatValueTick(3.25, 0.05), "3.25");
+  EXPECT_EQ(FormatValueTick(500, 100), "500");
+}
+
+TEST(AxisMap, RoundTripsAndFlips) {
+  AxisMap y{{2.5, 4.5}, 500.0, 100.0};  // drawn downwards
+  EXPECT_DOUBLE_EQ(y.ToPixel(2.5), 500.0);
+  EXPECT_DOUBLE_EQ(y.ToPixel(4.5), 100.0);
+  EXPECT_DOUBLE_EQ(y.ToPixel(3.5), 300.0);
+  EXPECT_NEAR(y.ToValue(y.ToPixel(3.1234)), 3.1234, 1e-12);
+}
+
+TEST(PadRange, WidensFlatData) {
+  Range r;
+  r.Include(3.0);
+  Range p = PadRange(r, 0.0, 0.1);
+  EXPECT_NEAR(p.lo, 2.9, 1e-12);
+  EXPECT_NEAR(p.hi, 3.1, 1e-12);
+}
+
+// Brute force is the reference for the pyramid.
+void ExpectQueriesMatch(const std::vector<float>& v, const MinMaxPyramid& p, std::mt19937& rng) {
+  std::uniform_int_distribution<size_t> pick(0, v.size());
+  for (int k = 0; k < 300; ++k) {
+    size_t a = pick(rng), b = pick(rng);
+    if (a > b) std::swap(a, b);
+    float mn = 0, mx = 0;
+    bool ok = p.Query(a, b, &mn, &mx);
+    ASSERT_EQ(ok, a < b);
+    if (!ok) continue;
+    auto [lo, hi] = std::minmax_element(v.begin() + static_cast<ptrdiff_t>(a), v.begin() + static_cast<ptrdiff_t>(b));
+    ASSERT_EQ(mn, *lo) << a << ".." << b;
+    ASSERT_EQ(mx, *hi) << a << ".." << b;
+  }
+}
+
+TEST(MinMaxPyramid, MatchesBruteForceWhileGrowingInPieces) {
+  unsigned seed = 20261201;
+  std::mt19937 rng(seed);
+  SCOPED_TRACE(::testing::Message() << "seed " << seed);
+  std::normal_distribution<float> noise(0.0f, 1.0f);
+  std::uniform_int_distribution<int> chunk(1, 700);
+  std::vector<float> all;
+  MinMaxPyramid p;
+  while (all.size() < 20000) {
+    std::vector<float> add(static_cast<size_t>(chunk(rng)));
+    for (float& x : add) x = noise(rng);
+    all.insert(all.end(), add.begin(), add.end());
+    p.Append(add.data(), add.size());
+    ASSERT_EQ(p.size(), all.size());
+    ExpectQueriesMatch(all, p, rng);
+  }
+}
+
+TEST(ReduceColumns, ColumnsHoldTheirSamplesExtremes) {
+  // 10,000 samples at 1 s; a spike at t = 5000 must survive reduction to 100 columns.
+  std::vector<double> xs;
+  std::vector<float> vs;
+  for (int i = 0; i < 10000; ++i) {
+    xs.push_back(i);
+    vs.push_back(i == 5000 ? 9.0f : 3.0f);
+  }
+  MinMaxPyramid p;
+  p.Append(vs.data(), vs.size());
+  auto cols = ReduceColumns(xs, p, 0.0, 10000.0, 100);
+  ASSERT_EQ(cols.size(), 100u);
+  for (size_t c = 0; c < cols.size(); ++c) {
+    ASSERT_TRUE(cols[c].has_data);
+    float expect_max = (c == 50) ? 9.0f : 3.0f;
+    // Column 51 is joined to column 50's band (its min reaches 3, max stays 3).
+    EXPECT_EQ(cols[c].max, expect_max) << c;
+    EXPECT_EQ(cols[c].min, 3.0f) << c;
+  }
+  // A window outside the data has no columns with data.
+  auto none = ReduceColumns(xs, p, 20000.0, 30000.0, 10);
+  for (const Column& c : none) EXPECT_FALSE(c.has_data);
+}
+
+TEST(ReduceColumns, JoinsSteps) {
+  std::vector<double> xs = {0, 1, 2, 3};
+  std::vector<float> vs = {1, 1, 5, 5};
+  MinMaxPyramid p;
+  p.Append(vs.data(), vs.size());
+  auto cols = ReduceColumns(xs, p, 0.0, 4.0, 4);
+  EXPECT_EQ(cols[2].min, 1.0f);  // reaches down to the previous column
+  EXPECT_EQ(cols[2].max, 5.0f);
+  EXPECT_EQ(cols[3].min, 5.0f);
+}
+
+TEST(VisibleIndices, WidensByOne) {
+  std::vector<double> xs = {0, 10, 20, 30, 40};
+  IndexRange r = VisibleIndices(xs, 15, 25);
+  EXPECT_EQ(r.first, 1u);
+  EXPECT_EQ(r.last, 4u);
+  EXPECT_EQ(NearestIndex(xs, 14), 1u);
+  EXPECT_EQ(NearestIndex(xs, 16), 2u);
+  EXPECT_EQ(NearestIndex(xs, 99), 4u);
+}
+
+}  // namespace
+}  // namespace kp::ui

@@ -1,0 +1,136 @@
+#include "ui/view_model.h"
+
+#include <gtest/gtest.h>
+
+#include "analysis/metrics.h"
+
+namespace kp::ui {
+namespace {
+
+std::vector<Sample> Ramp(int n, double dt, double i_a) {
+  std::vector<Sample> s;
+  for (int k = 0; k < n; ++k) s.push_back({k * dt, 4.1 - 0.0001 * k, i_a + 0.01 * (k % 3), 25.0 + 0.001 * k, 0});
+  return s;
+}
+
+TEST(RunningFigures, IncrementalMatchesBatchAnalysis) {
+  auto s = Ramp(5000, 1.0, 0.5);
+  RunningFigures f;
+  for (const Sample& x : s) f.Add(x);
+  RunFigures batch = ComputeRunFigures(s);
+  EXPECT_NEAR(f.charge_mah(), batch.charge_mah, 1e-9 * batch.charge_mah);
+  EXPECT_NEAR(f.energy_wh(), batch.energy_wh, 1e-9 * batch.energy_wh);
+  EXPECT_NEAR(f.mean_voltage_v(), batch.mean_voltage_v, 1e-12);
+  EXPECT_DOUBLE_EQ(f.min_voltage_v(), batch.min_voltage_v);
+  EXPECT_DOUBLE_EQ(f.max_temperature_c(), batch.max_temperature_c);
+  // Independent check: 0.5 A for one hour is 500 mAh (definition of mAh);
+  // the ±0.01 A ripple averages to +0.01 A.
+  RunningFigures flat;
+  for (int k = 0; k <= 3600; ++k) flat.Add({static_cast<double>(k), 3.7, 0.5, 25.0, 0});
+  EXPECT_NEAR(flat.charge_mah(), 500.0, 1e-9);
+  EXPECT_NEAR(flat.energy_wh(), 1.85, 1e-12);
+}
+
+TEST(ScanLimits, ReadsKeywordsAndSkipsComments) {
+  DrawnLimits d = ScanLimits(
+      "# cutoff 9.9 in a comment\ncell li-ion rated 2500 mAh cutoff 2.750 V max-temp 60.0 degC\n"
+      "limits: min_voltage = 2.45, Max-Voltage: 4.25V\n",
+      {});
+  ASSERT_TRUE(d.cutoff_v);
+  EXPECT_DOUBLE_EQ(*d.cutoff_v, 2.75);
+  ASSERT_TRUE(d.max_temp_c);
+  EXPECT_DOUBLE_EQ(*d.max_temp_c, 60.0);
+  ASSERT_TRUE(d.min_voltage_v);
+  EXPECT_DOUBLE_EQ(*d.min_voltage_v, 2.45);
+  ASSERT_TRUE(d.max_voltage_v);
+  EXPECT_DOUBLE_EQ(*d.max_voltage_v, 4.25);
+}
+
+TEST(ScanLimits, FallsBackToStepLabelAndInventsNothing) {
+  StepRow step;
+  step.label = "discharge 0.2C (500 mA) to 2.90 V";
+  DrawnLimits d = ScanLimits("discharge 500 mA\n", {step});
+  ASSERT_TRUE(d.cutoff_v);
+  EXPECT_DOUBLE_EQ(*d.cutoff_v, 2.9);
+  EXPECT_FALSE(d.max_temp_c);
+  EXPECT_FALSE(d.min_voltage_v);
+  DrawnLimits none = ScanLimits("rest 10 min\n", {});
+  EXPECT_FALSE(none.cutoff_v);
+}
+
+TEST(RunList, VerdictAndFilter) {
+  RunRow run;
+  run.id = 7;
+  run.cell = "demo-cell-A1";
+  run.chemistry = "li-ion";
+  run.procedure_name = "rated-capacity";
+  run.rated_mah = 1000.0;
+  run.outcome = Outcome::kCompleted;
+  RunningFigures f;
+  for (int k = 0; k <= 7200; ++k) f.Add({static_cast<double>(k), 3.7, 0.51, 25.0, 0});  // 1020 mAh
+  RunListRow row = MakeRunListRow(run, f);
+  EXPECT_EQ(row.verdict, "PASS 102 %");
+  EXPECT_DOUBLE_EQ(row.elapsed_s, 7200.0);
+  EXPECT_TRUE(MatchesFilter(row, ""));
+  EXPECT_TRUE(MatchesFilter(row, "A1 completed"));
+  EXPECT_TRUE(MatchesFilter(row, "#7"));
+  EXPECT_TRUE(MatchesFilter(row, "pass"));
+  EXPECT_FALSE(MatchesFilter(row, "aborted"));
+  EXPECT_FALSE(MatchesFilter(row, "A1 nimh"));
+  run.outcome = Outcome::kRunning;
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "-");
+  run.outcome = Outcome::kCompleted;
+  run.rated_mah = 2000.0;
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "FAIL 51 %");
+  run.outcome = Outcome::kAborted;
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "incomplete");
+}
+
+TEST(EstimateRemaining, ChargeAndSlopeBothBound) {
+  // 1 A, rated 1000 mAh, 400 delivered: 600 mAh left at 1 A is 36 min.
+  std::vector<Sample> flat;
+  for (int k = 0; k < 100; ++k) flat.push_back({static_cast<double>(k), 3.7, 1.0, 25, 0});
+  auto r = EstimateRemainingS(flat, 400.0, 1000.0, std::nullopt);
+  ASSERT_TRUE(r);
+  EXPECT_NEAR(*r, 2160.0, 1e-9);
+  // Voltage falling 1 mV/s, 0.2 V above cutoff: 200 s, sooner than the charge bound.
+  std::vector<Sample> falling;
+  for (int k = 0; k < 100; ++k) falling.push_back({static_cast<double>(k), 3.2 - 0.001 * k, 1.0, 25, 0});
+  auto r2 = EstimateRemainingS(falling, 400.0, 1000.0, 3.2 - 0.099 - 0.2);
+  ASSERT_TRUE(r2);
+  EXPECT_NEAR(*r2, 200.0, 1e-6);
+  EXPECT_FALSE(EstimateRemainingS({}, 0, 1000, 3.0));
+  // Resting cell, no rating, no cutoff: no estimate.
+  std::vector<Sample> rest = {{0, 3.7, 0, 25, 0}, {1, 3.7, 0, 25, 0}};
+  EXPECT_FALSE(EstimateRemainingS(rest, 0, 0, std::nullopt));
+}
+
+TEST(Events, AlarmsStandOut) {
+  EXPECT_EQ(EventSeverity({0, "abort", "over-temperature", ""}), Severity::kAlarm);
+  EXPECT_EQ(EventSeverity({0, "fault", "meter lost", ""}), Severity::kAlarm);
+  EXPECT_EQ(EventSeverity({0, "retry", "timeout", ""}), Severity::kNotice);
+  EXPECT_EQ(EventSeverity({0, "step", "discharge", ""}), Severity::kInfo);
+}
+
+TEST(Events, PausedFollowsTheNewestPauseOrContinue) {
+  std::vector<EventRow> e = {{0, "step", "discharge", ""}};
+  EXPECT_FALSE(IsPaused(e));
+  e.push_back({10, "paused", "by panel", ""});
+  e.push_back({11, "retry", "meter", ""});
+  EXPECT_TRUE(IsPaused(e));
+  e.push_back({20, "continued", "by panel", ""});
+  EXPECT_FALSE(IsPaused(e));
+}
+
+TEST(CurrentStep, TakesTheLatest) {
+  EXPECT_EQ(CurrentStep({}).index, -1);
+  StepRow a{0, 0, "rest", "rest 10 min", 0.0, 600.0, "time"};
+  StepRow b{1, 1, "cc", "discharge to 2.75 V", 600.0, std::nullopt, ""};
+  StepNow now = CurrentStep({a, b});
+  EXPECT_EQ(now.index, 1);
+  EXPECT_FALSE(now.ended);
+  EXPECT_EQ(now.label, "discharge to 2.75 V");
+}
+
+}  // namespace
+}  // namespace kp::ui

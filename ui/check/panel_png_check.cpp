@@ -1,0 +1,115 @@
+// Checks a panel screenshot against the database it was drawn from: size, not
+// blank, the voltage trace's colour where the stored samples map to inside the
+// plot rectangle (and not far away from them), and the cutoff line at its level.
+// Usage: kp_panel_png_check PNG LAYOUT_JSON DB RUN WIDTH HEIGHT
+#include <stb_image.h>
+
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <iostream>
+#include <set>
+
+#include <nlohmann/json.hpp>
+
+#include "drivers/clock.h"
+#include "rig/store.h"
+
+namespace {
+
+struct Image {
+  int w = 0, h = 0;
+  unsigned char* px = nullptr;
+  const unsigned char* At(int x, int y) const { return px + 3 * (static_cast<size_t>(y) * w + x); }
+};
+
+bool Near(const unsigned char* p, const nlohmann::json& rgb, int tol) {
+  int d = std::abs(p[0] - rgb[0].get<int>()) + std::abs(p[1] - rgb[1].get<int>()) + std::abs(p[2] - rgb[2].get<int>());
+  return d <= tol;
+}
+
+bool ColourInBox(const Image& img, double cx, double cy, int r, const nlohmann::json& rgb, int tol) {
+  for (int y = static_cast<int>(cy) - r; y <= static_cast<int>(cy) + r; ++y)
+    for (int x = static_cast<int>(cx) - r; x <= static_cast<int>(cx) + r; ++x)
+      if (x >= 0 && y >= 0 && x < img.w && y < img.h && Near(img.At(x, y), rgb, tol)) return true;
+  return false;
+}
+
+int Fail(const std::string& why) {
+  std::cerr << "panel screenshot check FAILED: " << why << "\n";
+  return 1;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  if (argc != 7) return Fail("usage: kp_panel_png_check PNG LAYOUT_JSON DB RUN WIDTH HEIGHT");
+  Image img;
+  int comp = 0;
+  img.px = stbi_load(argv[1], &img.w, &img.h, &comp, 3);
+  if (!img.px) return Fail(std::string("cannot read ") + argv[1]);
+  int want_w = std::atoi(argv[5]), want_h = std::atoi(argv[6]);
+  if (img.w != want_w || img.h != want_h)
+    return Fail("size " + std::to_string(img.w) + "x" + std::to_string(img.h) + ", expected " + argv[5] + "x" + argv[6]);
+
+  // Not blank: many distinct colours, no colour covering almost everything.
+  std::set<int> colours;
+  for (int i = 0; i < img.w * img.h; i += 7) {
+    const unsigned char* p = img.px + 3 * i;
+    colours.insert(p[0] << 16 | p[1] << 8 | p[2]);
+  }
+  if (colours.size() < 40) return Fail("image looks blank (" + std::to_string(colours.size()) + " colours)");
+
+  std::ifstream lf(argv[2]);
+  nlohmann::json lay = nlohmann::json::parse(lf, nullptr, false);
+  if (lay.is_discarded()) return Fail("cannot parse layout json");
+  const auto& plot = lay["voltage_plot"];
+  double x0 = plot["x0"], y0 = plot["y0"], x1 = plot["x1"], y1 = plot["y1"];
+  double t_lo = plot["t_lo"], t_hi = plot["t_hi"], v_lo = plot["v_lo"], v_hi = plot["v_hi"];
+  const auto& vrgb = lay["voltage_rgb"];
+  if (!(x1 - x0 > 200 && y1 - y0 > 100)) return Fail("voltage plot rectangle too small");
+
+  kp::SteadyClock wall;
+  kp::Store::Options o;
+  o.create = false;
+  auto store = kp::Store::Open(argv[3], wall, o);
+  if (!store.ok()) return Fail("cannot open database");
+  auto samples = (*store)->LoadSamples(std::atoll(argv[4]));
+  if (!samples.ok() || samples->size() < 100) return Fail("run has too few samples");
+
+  auto px_of = [&](double t) { return x0 + (t - t_lo) / (t_hi - t_lo) * (x1 - x0); };
+  auto py_of = [&](double v) { return y1 - (v - v_lo) / (v_hi - v_lo) * (y1 - y0); };
+  int probes = 0, hits = 0, false_hits = 0;
+  size_t n = samples->size();
+  for (int k = 1; k < 40; ++k) {
+    const kp::Sample& s = (*samples)[n * static_cast<size_t>(k) / 40];
+    if (s.t_s < t_lo || s.t_s > t_hi) continue;
+    double px = px_of(s.t_s), py = py_of(s.voltage_v);
+    if (py < y0 + 4 || py > y1 - 4) continue;
+    ++probes;
+    if (ColourInBox(img, px, py, 3, vrgb, 60)) ++hits;
+    // A point well away from the trace (a fifth of the plot height) must not show it.
+    double away = py - 0.2 * (y1 - y0) > y0 + 4 ? py - 0.2 * (y1 - y0) : py + 0.2 * (y1 - y0);
+    if (ColourInBox(img, px, away, 2, vrgb, 60)) ++false_hits;
+  }
+  std::cout << "voltage trace: " << hits << "/" << probes << " probes hit, " << false_hits << " off-trace probes coloured\n";
+  if (probes < 20) return Fail("too few samples map inside the plot");
+  if (hits < probes * 9 / 10) return Fail("voltage trace missing where the samples map");
+  if (false_hits > probes / 10) return Fail("voltage colour found away from the trace");
+
+  if (lay.contains("cutoff_v")) {
+    double cy = py_of(lay["cutoff_v"].get<double>());
+    int line_hits = 0, line_probes = 0;
+    for (int k = 1; k < 20; ++k) {
+      double px = x0 + (x1 - x0) * k / 20.0;
+      ++line_probes;
+      if (ColourInBox(img, px, cy, 2, lay["cutoff_rgb"], 60)) ++line_hits;
+    }
+    std::cout << "cutoff line: " << line_hits << "/" << line_probes << "\n";
+    if (line_hits < line_probes / 2) return Fail("cutoff line not drawn at its level");
+  }
+  std::cout << "panel screenshot check passed (" << img.w << "x" << img.h << ", " << colours.size() << " colours)\n";
+  stbi_image_free(img.px);
+  return 0;
+}

@@ -1,0 +1,613 @@
+#include "ui/panel.h"
+
+#include <GLFW/glfw3.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+
+#include <fmt/format.h>
+
+#include "analysis/metrics.h"
+#include "rig/cli/cli.h"
+
+namespace kp::ui {
+namespace {
+
+ImU32 OutcomeColour(const Theme& t, Outcome o) {
+  switch (o) {
+    case Outcome::kRunning: return t.ok;
+    case Outcome::kCompleted: return t.idle;
+    case Outcome::kAborted: return t.alarm;
+    case Outcome::kInterrupted: return t.caution;
+  }
+  return t.idle;
+}
+
+const char* OutcomeBadge(Outcome o) {
+  switch (o) {
+    case Outcome::kRunning: return "RUNNING";
+    case Outcome::kCompleted: return "FINISHED";
+    case Outcome::kAborted: return "ABORTED";
+    case Outcome::kInterrupted: return "INTERRUPTED";
+  }
+  return "?";
+}
+
+std::string Hms(double s) { return cli::FormatDuration(std::max(0.0, s)); }
+
+bool TypingText() { return ImGui::GetIO().WantTextInput; }
+
+bool Key(int glfw_key) { return !TypingText() && ImGui::IsKeyPressed(glfw_key, false); }
+
+void Figure(const Fonts& f, const char* caption, const std::string& value, ImU32 colour) {
+  ImGui::BeginGroup();
+  ImGui::TextDisabled("%s", caption);
+  ImGui::PushFont(f.big);
+  ImGui::PushStyleColor(ImGuiCol_Text, colour);
+  ImGui::TextUnformatted(value.c_str());
+  ImGui::PopStyleColor();
+  ImGui::PopFont();
+  ImGui::EndGroup();
+}
+
+}  // namespace
+
+Panel::Panel(RunFeed& feed, PanelOptions options, Fonts fonts)
+    : feed_(feed), options_(std::move(options)), fonts_(fonts), tab_(options_.tab) {
+  selected_ = options_.run_id;
+  compare_ = options_.compare;
+  if (!options_.new_run_procedure.empty()) {
+    open_start_ = true;
+    std::snprintf(proc_path_, sizeof(proc_path_), "%s", options_.new_run_procedure.c_str());
+    std::error_code ec;
+    if (std::filesystem::is_directory(options_.new_run_procedure, ec)) browse_target_ = 1;  // pick from that folder
+  }
+  SetTheme(options_.dark);
+}
+
+void Panel::SetTheme(bool dark) {
+  theme_ = dark ? Theme::Night() : Theme::Day();
+  ApplyTheme(theme_, options_.scale);
+}
+
+void Panel::Frame() {
+  // The one crossing of data per frame: take what the reader thread found.
+  feed_.Drain(state_);
+  if (!selected_ && !state_.runs.empty()) selected_ = state_.runs.front().id;
+  std::set<int64_t> watch = compare_;
+  if (selected_) watch.insert(*selected_);
+  feed_.Watch(watch);
+
+  Shortcuts();
+  const ImGuiViewport* vp = ImGui::GetMainViewport();
+  ImGui::SetNextWindowPos(vp->WorkPos);
+  ImGui::SetNextWindowSize(vp->WorkSize);
+  ImGui::Begin("##kneepoint-panel", nullptr,
+               ImGuiWindowFlags_NoDecoration | ImGuiWindowFlags_NoMove | ImGuiWindowFlags_NoBringToFrontOnFocus |
+                   ImGuiWindowFlags_NoSavedSettings);
+  TopBar();
+  float side_w = std::min(ImGui::GetContentRegionAvail().x * 0.36f, ImGui::GetFontSize() * 34.0f);
+  ImGui::BeginChild("runs", {side_w, 0}, false);
+  RunsList();
+  ImGui::EndChild();
+  ImGui::SameLine();
+  ImGui::BeginChild("main", {0, 0}, false);
+  if (tab_ == Tab::kLive)
+    LiveView();
+  else
+    CompareView();
+  ImGui::EndChild();
+  StartDialog();
+  AbortDialog();
+  ImGui::End();
+}
+
+void Panel::Shortcuts() {
+  ImGuiIO& io = ImGui::GetIO();
+  if (io.KeyCtrl && ImGui::IsKeyPressed(GLFW_KEY_F, false)) focus_filter_ = true;
+  if (io.KeyCtrl && ImGui::IsKeyPressed(GLFW_KEY_N, false)) open_start_ = true;
+  if (io.KeyCtrl) return;
+  if (Key(GLFW_KEY_1) || Key(GLFW_KEY_F1)) tab_ = Tab::kLive;
+  if (Key(GLFW_KEY_2) || Key(GLFW_KEY_F2)) tab_ = Tab::kCompare;
+  if (Key(GLFW_KEY_T)) SetTheme(!theme_.dark);
+  if (Key(GLFW_KEY_F)) {
+    live_x_.follow = true;
+    if (!live_x_.range.Empty()) live_x_.span = live_x_.range.Span();
+  }
+  if (Key(GLFW_KEY_HOME)) live_x_ = XView{};
+  if (Key(GLFW_KEY_UP) || Key(GLFW_KEY_DOWN)) {
+    // Move the selection through the (filtered) runs list.
+    std::vector<int64_t> ids;
+    for (const RunListRow& r : state_.runs)
+      if (MatchesFilter(r, filter_)) ids.push_back(r.id);
+    auto it = selected_ ? std::find(ids.begin(), ids.end(), *selected_) : ids.end();
+    if (!ids.empty()) {
+      if (it == ids.end()) selected_ = ids.front();
+      else if (ImGui::IsKeyPressed(GLFW_KEY_UP) && it != ids.begin()) selected_ = *(it - 1);
+      else if (ImGui::IsKeyPressed(GLFW_KEY_DOWN) && it + 1 != ids.end()) selected_ = *(it + 1);
+      live_x_ = XView{};
+    }
+  }
+  if (selected_ && state_.watched.count(*selected_) && state_.watched.at(*selected_).row.outcome == Outcome::kRunning) {
+    if (Key(GLFW_KEY_P)) feed_.Request(*selected_, "pause");
+    if (Key(GLFW_KEY_C)) feed_.Request(*selected_, "continue");
+    if (Key(GLFW_KEY_A)) open_abort_ = true;
+  }
+}
+
+void Panel::TopBar() {
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("KNEEPOINT");
+  ImGui::PopFont();
+  ImGui::SameLine();
+  ImGui::TextDisabled("bench panel  ·  %s%s", state_.db_path.c_str(), state_.connected ? "" : "  (not connected)");
+  ImGui::SameLine();
+  float right = ImGui::GetWindowContentRegionMax().x;
+  float bw = ImGui::GetFontSize() * 7.5f;
+  ImGui::SetCursorPosX(right - bw * 4.2f);
+  if (ImGui::Selectable("Live  [1]", tab_ == Tab::kLive, 0, {bw, 0})) tab_ = Tab::kLive;
+  ImGui::SameLine();
+  if (ImGui::Selectable("Compare  [2]", tab_ == Tab::kCompare, 0, {bw, 0})) tab_ = Tab::kCompare;
+  ImGui::SameLine();
+  if (ImGui::Button("New run…  Ctrl+N", {bw * 1.1f, 0})) open_start_ = true;
+  ImGui::SameLine();
+  if (ImGui::Button(theme_.dark ? "Day  [T]" : "Night  [T]", {bw * 0.8f, 0})) SetTheme(!theme_.dark);
+  if (!state_.notes.empty()) {
+    ImGui::TextColored(ImColor(theme_.caution), "%s", state_.notes.back().c_str());
+  }
+  ImGui::Separator();
+}
+
+void Panel::RunsList() {
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Runs");
+  ImGui::PopFont();
+  ImGui::SameLine();
+  if (focus_filter_) {
+    ImGui::SetKeyboardFocusHere();
+    focus_filter_ = false;
+  }
+  ImGui::SetNextItemWidth(-1);
+  ImGui::InputTextWithHint("##filter", "filter: cell, state, procedure, pass…  (Ctrl+F)", filter_, sizeof(filter_));
+  ImGuiTableFlags flags = ImGuiTableFlags_RowBg | ImGuiTableFlags_ScrollY | ImGuiTableFlags_BordersInnerV |
+                          ImGuiTableFlags_SizingStretchProp | ImGuiTableFlags_Resizable;
+  bool cmp = tab_ == Tab::kCompare;
+  if (!ImGui::BeginTable("runs_table", cmp ? 8 : 7, flags)) return;
+  ImGui::TableSetupScrollFreeze(0, 1);
+  if (cmp) ImGui::TableSetupColumn("cmp", ImGuiTableColumnFlags_WidthFixed, ImGui::GetFontSize() * 1.6f);
+  ImGui::TableSetupColumn("#", ImGuiTableColumnFlags_WidthFixed, ImGui::GetFontSize() * 2.0f);
+  ImGui::TableSetupColumn("state", 0, 1.4f);
+  ImGui::TableSetupColumn("cell", 0, 1.8f);
+  ImGui::TableSetupColumn("procedure", 0, 1.8f);
+  ImGui::TableSetupColumn("elapsed", 0, 1.1f);
+  ImGui::TableSetupColumn("mAh", 0, 0.9f);
+  ImGui::TableSetupColumn("verdict", 0, 1.5f);
+  ImGui::TableHeadersRow();
+  for (const RunListRow& r : state_.runs) {
+    if (!MatchesFilter(r, filter_)) continue;
+    ImGui::PushID(static_cast<int>(r.id));
+    ImGui::TableNextRow();
+    int col = 0;
+    if (cmp) {
+      ImGui::TableSetColumnIndex(col++);
+      bool on = compare_.count(r.id) > 0;
+      if (ImGui::Checkbox("##cmp", &on)) {
+        if (on) compare_.insert(r.id);
+        else compare_.erase(r.id);
+      }
+    }
+    ImGui::TableSetColumnIndex(col++);
+    bool is_sel = selected_ && *selected_ == r.id;
+    if (ImGui::Selectable(fmt::format("{}", r.id).c_str(), is_sel,
+                          ImGuiSelectableFlags_SpanAllColumns | ImGuiSelectableFlags_AllowItemOverlap)) {
+      if (!is_sel) live_x_ = XView{};
+      selected_ = r.id;
+      if (!cmp) tab_ = Tab::kLive;
+    }
+    ImGui::TableSetColumnIndex(col++);
+    ImGui::TextColored(ImColor(OutcomeColour(theme_, r.outcome)), "%s", r.state.c_str());
+    ImGui::TableSetColumnIndex(col++);
+    ImGui::TextUnformatted(r.cell.c_str());
+    ImGui::TableSetColumnIndex(col++);
+    ImGui::TextUnformatted(r.procedure.c_str());
+    ImGui::TableSetColumnIndex(col++);
+    ImGui::TextUnformatted(Hms(r.elapsed_s).c_str());
+    ImGui::TableSetColumnIndex(col++);
+    ImGui::Text("%.0f", r.delivered_mah);
+    ImGui::TableSetColumnIndex(col++);
+    ImU32 vc = r.verdict.rfind("PASS", 0) == 0 ? theme_.ok : r.verdict.rfind("FAIL", 0) == 0 ? theme_.alarm : theme_.tick_text;
+    ImGui::TextColored(ImColor(vc), "%s", r.verdict.c_str());
+    ImGui::PopID();
+  }
+  ImGui::EndTable();
+}
+
+void Panel::Headline(const RunData& d) {
+  const RunningFigures& f = d.figures;
+  const Sample& s = f.last();
+  bool live = d.row.outcome == Outcome::kRunning;
+  // State badge.
+  ImGui::PushFont(fonts_.medium);
+  if (live && IsPaused(d.events))
+    ImGui::TextColored(ImColor(theme_.caution), "PAUSED");
+  else
+    ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome));
+  ImGui::PopFont();
+  ImGui::SameLine();
+  ImGui::Text("run %lld  ·  cell %s (%s, %.0f mAh rated)  ·  %s  ·  rig %s", static_cast<long long>(d.row.id),
+              d.row.cell.c_str(), d.row.chemistry.c_str(), d.row.rated_mah, d.row.procedure_name.c_str(), d.row.rig.c_str());
+  if (!d.row.reason.empty()) {
+    ImGui::SameLine();
+    ImGui::TextColored(ImColor(d.row.outcome == Outcome::kAborted ? theme_.alarm : theme_.tick_text), "— %s",
+                       d.row.reason.c_str());
+  }
+  if (f.count() == 0) {
+    ImGui::TextDisabled("no samples yet");
+    return;
+  }
+  // Voltage colour says how close the cell is to its cutoff.
+  ImU32 vcol = theme_.voltage;
+  if (live && d.limits.cutoff_v) {
+    double margin = s.voltage_v - *d.limits.cutoff_v;
+    vcol = margin <= 0.0 ? theme_.alarm : margin < 0.15 ? theme_.caution : theme_.voltage;
+  }
+  ImU32 tcol = theme_.temperature;
+  if (live && d.limits.max_temp_c && s.temperature_c > *d.limits.max_temp_c - 5.0) tcol = theme_.alarm;
+  float gap = ImGui::GetFontSize() * 2.0f;
+  Figure(fonts_, "voltage", fmt::format("{:.3f} V", s.voltage_v), vcol);
+  ImGui::SameLine(0, gap);
+  Figure(fonts_, "current", fmt::format("{:.3f} A", s.current_a), theme_.current);
+  ImGui::SameLine(0, gap);
+  Figure(fonts_, "temperature", fmt::format("{:.1f} °C", s.temperature_c), tcol);
+  ImGui::SameLine(0, gap);
+  Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.charge_mah()), theme_.tick_text);
+  std::string remaining = "—";
+  if (live) {
+    if (auto r = EstimateRemainingS(d.samples, f.charge_mah(), d.row.rated_mah, d.limits.cutoff_v)) remaining = "~" + Hms(*r);
+  }
+  ImGui::PushFont(fonts_.medium);
+  ImGui::Text("%.2f Wh", f.energy_wh());
+  ImGui::SameLine(0, gap);
+  ImGui::TextDisabled("elapsed");
+  ImGui::SameLine();
+  ImGui::TextUnformatted(Hms(s.t_s - f.first_t_s()).c_str());
+  if (live) {
+    ImGui::SameLine(0, gap);
+    ImGui::TextDisabled("est. remaining");
+    ImGui::SameLine();
+    ImGui::TextUnformatted(remaining.c_str());
+  }
+  ImGui::PopFont();
+
+  StepNow step = CurrentStep(d.steps);
+  if (step.index >= 0) {
+    ImGui::Text("step %d  [%s]  %s", step.index + 1, step.kind.c_str(), step.label.c_str());
+    ImGui::SameLine();
+    if (step.ended)
+      ImGui::TextDisabled("· ended at %s: %s", Hms(s.t_s).c_str(), step.end_reason.c_str());
+    else
+      ImGui::TextDisabled("· running for %s", Hms(s.t_s - step.started_s).c_str());
+  }
+  std::string lim;
+  if (d.limits.cutoff_v) lim += fmt::format("cutoff {:.3f} V   ", *d.limits.cutoff_v);
+  if (d.limits.min_voltage_v) lim += fmt::format("min {:.2f} V   ", *d.limits.min_voltage_v);
+  if (d.limits.max_voltage_v) lim += fmt::format("max {:.2f} V   ", *d.limits.max_voltage_v);
+  if (d.limits.max_temp_c) lim += fmt::format("max temp {:.0f} °C", *d.limits.max_temp_c);
+  if (!lim.empty()) {
+    ImGui::TextDisabled("limits drawn: %s", lim.c_str());
+  }
+}
+
+void Panel::ControlButtons(const RunData& d) {
+  if (d.row.outcome != Outcome::kRunning) return;
+  if (ImGui::Button("Pause  [P]")) feed_.Request(d.row.id, "pause");
+  ImGui::SameLine();
+  if (ImGui::Button("Continue  [C]")) feed_.Request(d.row.id, "continue");
+  ImGui::SameLine();
+  ImGui::PushStyleColor(ImGuiCol_Button, ImColor(theme_.alarm).Value);
+  if (ImGui::Button("Abort…  [A]")) open_abort_ = true;
+  ImGui::PopStyleColor();
+  ImGui::SameLine();
+  if (!d.requests.empty()) {
+    std::string waiting;
+    for (const RequestRow& r : d.requests) waiting += (waiting.empty() ? "" : ", ") + r.action;
+    ImGui::TextColored(ImColor(theme_.caution), "sent, waiting for the runner: %s", waiting.c_str());
+  } else {
+    ImGui::TextDisabled("requests go through the database; the runner acts on them even if this panel closes");
+  }
+}
+
+void Panel::EventLog(const RunData& d) {
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Events");
+  ImGui::PopFont();
+  if (!ImGui::BeginTable("events", 3, ImGuiTableFlags_ScrollY | ImGuiTableFlags_RowBg | ImGuiTableFlags_SizingStretchProp))
+    return;
+  ImGui::TableSetupColumn("t", 0, 1.0f);
+  ImGui::TableSetupColumn("kind", 0, 1.0f);
+  ImGui::TableSetupColumn("message", 0, 6.0f);
+  // Newest first: alarms must be seen without scrolling.
+  for (auto it = d.events.rbegin(); it != d.events.rend(); ++it) {
+    ImGui::TableNextRow();
+    Severity sev = EventSeverity(*it);
+    if (sev == Severity::kAlarm) ImGui::TableSetBgColor(ImGuiTableBgTarget_RowBg0, theme_.alarm_row);
+    if (sev == Severity::kNotice) ImGui::TableSetBgColor(ImGuiTableBgTarget_RowBg0, theme_.notice_row);
+    ImGui::TableSetColumnIndex(0);
+    ImGui::TextUnformatted(Hms(it->t_s).c_str());
+    ImGui::TableSetColumnIndex(1);
+    if (sev == Severity::kAlarm) ImGui::PushFont(fonts_.medium);
+    ImGui::TextUnformatted(it->kind.c_str());
+    if (sev == Severity::kAlarm) ImGui::PopFont();
+    ImGui::TableSetColumnIndex(2);
+    ImGui::TextWrapped("%s", it->message.c_str());
+  }
+  ImGui::EndTable();
+}
+
+void Panel::LiveView() {
+  if (!selected_) {
+    ImGui::TextDisabled(state_.connected ? "No runs in this database yet. Start one with Ctrl+N." : "Opening the database…");
+    return;
+  }
+  auto it = state_.watched.find(*selected_);
+  if (it == state_.watched.end()) {
+    ImGui::TextDisabled("loading run %lld…", static_cast<long long>(*selected_));
+    return;
+  }
+  const RunData& d = it->second;
+  if (d.BacklogSize() > 0) {
+    ImGui::TextColored(ImColor(theme_.caution), "loading run %lld: %zu samples shown, %zu to go…",
+                       static_cast<long long>(d.row.id), d.samples.size(), d.BacklogSize());
+  }
+  Headline(d);
+  ControlButtons(d);
+
+  Range data_x;
+  if (!d.t_s.empty()) {
+    data_x.Include(d.t_s.front());
+    data_x.Include(d.t_s.back());
+  }
+  float avail_h = ImGui::GetContentRegionAvail().y;
+  PlotSpec vspec;
+  vspec.data_x = data_x;
+  vspec.x_label = "time (h:mm)";
+  vspec.traces.push_back({&d.t_s, &d.voltage, theme_.voltage, "voltage", "V", 0});
+  if (d.limits.cutoff_v) vspec.lines.push_back({*d.limits.cutoff_v, theme_.cutoff, "cutoff", 0, false, true});
+  if (d.limits.min_voltage_v) vspec.lines.push_back({*d.limits.min_voltage_v, theme_.limit, "safety min", 0, true, true});
+  if (d.limits.max_voltage_v) vspec.lines.push_back({*d.limits.max_voltage_v, theme_.limit, "safety max", 0, true, true});
+  voltage_plot_ = DrawPlot("##voltage", vspec, live_x_, {0, avail_h * 0.50f}, theme_);
+
+  PlotSpec ispec;
+  ispec.data_x = data_x;
+  ispec.x_label = "time (h:mm)";
+  ispec.y_label[0] = "A";
+  ispec.y_label[1] = "°C";
+  ispec.traces.push_back({&d.t_s, &d.current, theme_.current, "current", "A", 0});
+  ispec.traces.push_back({&d.t_s, &d.temperature, theme_.temperature, "temperature", "°C", 1});
+  if (d.limits.max_temp_c) ispec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 1, true, true});
+  DrawPlot("##current", ispec, live_x_, {0, avail_h * 0.28f}, theme_);
+  ImGui::TextDisabled("wheel: zoom · drag: pan · double-click/Home: whole run · F: follow newest (%s)",
+                      live_x_.follow ? "on" : "off");
+  EventLog(d);
+}
+
+void Panel::CompareView() {
+  std::vector<const RunData*> runs;
+  for (int64_t id : compare_)
+    if (auto it = state_.watched.find(id); it != state_.watched.end()) runs.push_back(&it->second);
+  if (runs.empty()) {
+    ImGui::TextDisabled("Tick runs in the 'cmp' column to overlay them here.");
+    return;
+  }
+  float avail_h = ImGui::GetContentRegionAvail().y;
+  float half_w = ImGui::GetContentRegionAvail().x * 0.5f - ImGui::GetStyle().ItemSpacing.x;
+  PlotSpec by_q, by_t;
+  by_q.time_x = false;
+  by_q.x_label = "delivered charge (mAh)";
+  by_q.y_label[0] = "voltage (V)";
+  by_t.x_label = "time (h:mm)";
+  by_t.y_label[0] = "voltage (V)";
+  int k = 0;
+  for (const RunData* d : runs) {
+    ImU32 c = theme_.Series(k++);
+    std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
+    by_q.traces.push_back({&d->charge_mah, &d->voltage, c, name, "V", 0});
+    by_t.traces.push_back({&d->t_s, &d->voltage, c, name, "V", 0});
+    if (!d->t_s.empty()) {
+      by_t.data_x.Include(d->t_s.front());
+      by_t.data_x.Include(d->t_s.back());
+      by_q.data_x.Include(0.0);
+      by_q.data_x.Include(d->charge_mah.back());
+    }
+  }
+  DrawPlot("##cmp_q", by_q, cmp_charge_x_, {half_w, avail_h * 0.58f}, theme_);
+  ImGui::SameLine();
+  DrawPlot("##cmp_t", by_t, cmp_time_x_, {0, avail_h * 0.58f}, theme_);
+
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Figures");
+  ImGui::PopFont();
+  if (!ImGui::BeginTable("cmp_figs", 11, ImGuiTableFlags_RowBg | ImGuiTableFlags_BordersInner | ImGuiTableFlags_ScrollY))
+    return;
+  for (const char* h : {"run", "cell", "procedure", "state", "mAh", "Wh", "mean V", "min V", "max °C", "duration", "of rated"})
+    ImGui::TableSetupColumn(h);
+  ImGui::TableHeadersRow();
+  k = 0;
+  for (const RunData* d : runs) {
+    const RunningFigures& f = d->figures;
+    ImGui::TableNextRow();
+    ImGui::TableSetColumnIndex(0);
+    ImGui::TextColored(ImColor(theme_.Series(k++)), "■ %lld", static_cast<long long>(d->row.id));
+    ImGui::TableSetColumnIndex(1);
+    ImGui::TextUnformatted(d->row.cell.c_str());
+    ImGui::TableSetColumnIndex(2);
+    ImGui::TextUnformatted(d->row.procedure_name.c_str());
+    ImGui::TableSetColumnIndex(3);
+    ImGui::TextColored(ImColor(OutcomeColour(theme_, d->row.outcome)), "%s", OutcomeName(d->row.outcome));
+    ImGui::TableSetColumnIndex(4);
+    ImGui::Text("%.0f", f.charge_mah());
+    ImGui::TableSetColumnIndex(5);
+    ImGui::Text("%.3f", f.energy_wh());
+    ImGui::TableSetColumnIndex(6);
+    ImGui::Text("%.3f", f.mean_voltage_v());
+    ImGui::TableSetColumnIndex(7);
+    ImGui::Text("%.3f", f.min_voltage_v());
+    ImGui::TableSetColumnIndex(8);
+    ImGui::Text("%.1f", f.max_temperature_c());
+    ImGui::TableSetColumnIndex(9);
+    ImGui::TextUnformatted(Hms(f.count() ? f.last().t_s - f.first_t_s() : 0.0).c_str());
+    ImGui::TableSetColumnIndex(10);
+    if (d->row.rated_mah > 0)
+      ImGui::Text("%.1f %%", PercentOfRated(f.charge_mah(), d->row.rated_mah));
+    else
+      ImGui::TextDisabled("-");
+  }
+  ImGui::EndTable();
+}
+
+void Panel::StartDialog() {
+  if (open_start_) {
+    ImGui::OpenPopup("Start a run");
+    open_start_ = false;
+    start_message_.clear();
+  }
+  ImVec2 center = ImGui::GetMainViewport()->GetCenter();
+  ImGui::SetNextWindowPos(center, ImGuiCond_Appearing, {0.5f, 0.5f});
+  ImGui::SetNextWindowSize({ImGui::GetFontSize() * 50, std::min(ImGui::GetFontSize() * 46, ImGui::GetMainViewport()->WorkSize.y * 0.95f)},
+                           ImGuiCond_Appearing);
+  if (!ImGui::BeginPopupModal("Start a run", nullptr)) return;
+  ImGui::InputText("##proc", proc_path_, sizeof(proc_path_));
+  ImGui::SameLine();
+  if (ImGui::SmallButton("browse##p")) browse_target_ = browse_target_ == 1 ? 0 : 1;
+  ImGui::SameLine();
+  ImGui::TextUnformatted("procedure file");
+  if (browse_target_ == 1) FileBrowser(proc_path_, sizeof(proc_path_), "browse_proc");
+  ImGui::InputText("##rig", rig_path_, sizeof(rig_path_));
+  ImGui::SameLine();
+  if (ImGui::SmallButton("browse##r")) browse_target_ = browse_target_ == 2 ? 0 : 2;
+  ImGui::SameLine();
+  ImGui::TextUnformatted("rig (sim or RIG.toml)");
+  if (browse_target_ == 2) FileBrowser(rig_path_, sizeof(rig_path_), "browse_rig");
+  ImGui::InputText("cell id", cell_name_, sizeof(cell_name_));
+  ImGui::InputTextWithHint("speed", "simulator time factor, empty = real time", speed_, sizeof(speed_));
+
+  // Check first: the plan as the runner will execute it.
+  if (check_job_.valid() && check_job_.wait_for(std::chrono::seconds(0)) == std::future_status::ready) {
+    auto r = check_job_.get();
+    check_result_ = r.ok() ? *r : Captured{-1, r.status().message()};
+  }
+  bool checking = check_job_.valid();
+  if (ImGui::Button(checking ? "Checking…" : "Check plan") && !checking && proc_path_[0]) {
+    check_for_ = proc_path_;
+    check_result_.reset();
+    std::vector<std::string> argv = {SelfExecutable(), "check", proc_path_};
+    check_job_ = std::async(std::launch::async, [argv] { return CaptureOutput(argv); });
+  }
+  bool checked_ok = check_result_ && check_result_->exit_code == 0 && check_for_ == proc_path_;
+  if (check_result_) {
+    ImGui::SameLine();
+    ImGui::TextColored(ImColor(checked_ok ? theme_.ok : theme_.alarm), checked_ok ? "plan is valid" : "check failed (exit %d)",
+                       check_result_->exit_code);
+  }
+  ImGui::BeginChild("plan", {0, ImGui::GetFontSize() * 10}, true);
+  ImGui::TextUnformatted(check_result_ ? check_result_->output.c_str() : "Press 'Check plan' to see the steps before starting.");
+  ImGui::EndChild();
+
+  // Lithium safety notes, always in view before a run starts.
+  ImGui::PushStyleColor(ImGuiCol_ChildBg, ImColor(theme_.notice_row).Value);
+  ImGui::BeginChild("cautions", {0, ImGui::GetFontSize() * 9}, true);
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Before a lithium-cell run");
+  ImGui::PopFont();
+  ImGui::TextWrapped("%s", cli::SafetyCautions());
+  ImGui::EndChild();
+  ImGui::PopStyleColor();
+  ImGui::Checkbox("I have read the safety notes and the cell is set up accordingly", &cautions_read_);
+
+  bool can_start = checked_ok && cautions_read_ && cell_name_[0] && rig_path_[0];
+  ImGui::BeginDisabled(!can_start);
+  if (ImGui::Button("Start run")) {
+    std::vector<std::string> argv = {SelfExecutable(), "run", proc_path_, "--rig", rig_path_, "--db", options_.db_path,
+                                     "--cell", cell_name_};
+    if (speed_[0]) {
+      argv.push_back("--speed");
+      argv.push_back(speed_);
+    }
+    auto pid = SpawnDetached(argv, options_.db_path + ".runs.log");
+    start_message_ = pid.ok() ? fmt::format("runner started (pid {}); its output goes to {}.runs.log", *pid, options_.db_path)
+                              : "could not start: " + pid.status().message();
+    if (pid.ok()) selected_.reset();  // jump to the newest run when it appears
+  }
+  ImGui::EndDisabled();
+  ImGui::SameLine();
+  if (ImGui::Button("Close") || Key(GLFW_KEY_ESCAPE)) ImGui::CloseCurrentPopup();
+  if (!start_message_.empty()) ImGui::TextWrapped("%s", start_message_.c_str());
+  ImGui::EndPopup();
+}
+
+void Panel::FileBrowser(char* path, size_t size, const char* id) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  fs::path p(path);
+  fs::path dir = fs::is_directory(p, ec) ? p : p.parent_path();
+  if (dir.empty()) dir = ".";
+  std::string key = dir.string();
+  if (key != browse_dir_) {  // list a folder once, not every frame
+    browse_dir_ = key;
+    browse_entries_.clear();
+    std::vector<std::string> dirs, files;
+    for (fs::directory_iterator it(dir, ec), end; !ec && it != end; it.increment(ec)) {
+      std::string name = it->path().filename().string();
+      if (name.empty() || name[0] == '.') continue;
+      if (it->is_directory(ec)) dirs.push_back(name + "/");
+      else files.push_back(name);
+      if (dirs.size() + files.size() > 500) break;
+    }
+    std::sort(dirs.begin(), dirs.end());
+    std::sort(files.begin(), files.end());
+    browse_entries_.push_back("../");
+    browse_entries_.insert(browse_entries_.end(), dirs.begin(), dirs.end());
+    browse_entries_.insert(browse_entries_.end(), files.begin(), files.end());
+  }
+  ImGui::BeginChild(id, {0, ImGui::GetFontSize() * 8}, true);
+  ImGui::TextDisabled("%s", fs::absolute(dir, ec).lexically_normal().string().c_str());
+  for (const std::string& e : browse_entries_) {
+    if (!ImGui::Selectable(e.c_str())) continue;
+    fs::path chosen = (dir / e).lexically_normal();
+    std::string text = chosen.string();
+    if (e.back() == '/' && (text.empty() || text.back() != '/')) text += "/";
+    std::snprintf(path, size, "%s", text.c_str());
+    if (e.back() != '/') browse_target_ = 0;
+  }
+  ImGui::EndChild();
+}
+
+void Panel::AbortDialog() {
+  if (open_abort_) {
+    ImGui::OpenPopup("Abort run?");
+    open_abort_ = false;
+  }
+  ImGui::SetNextWindowPos(ImGui::GetMainViewport()->GetCenter(), ImGuiCond_Appearing, {0.5f, 0.5f});
+  if (!ImGui::BeginPopupModal("Abort run?", nullptr, ImGuiWindowFlags_AlwaysAutoResize)) return;
+  if (!selected_) {
+    ImGui::CloseCurrentPopup();
+    ImGui::EndPopup();
+    return;
+  }
+  ImGui::Text("Abort run %lld? The runner switches the load off and records the run as aborted.",
+              static_cast<long long>(*selected_));
+  ImGui::PushStyleColor(ImGuiCol_Button, ImColor(theme_.alarm).Value);
+  if (ImGui::Button("Abort the run")) {
+    feed_.Request(*selected_, "abort");
+    ImGui::CloseCurrentPopup();
+  }
+  ImGui::PopStyleColor();
+  ImGui::SameLine();
+  if (ImGui::Button("Keep running") || Key(GLFW_KEY_ESCAPE)) ImGui::CloseCurrentPopup();
+  ImGui::EndPopup();
+}
+
+}  // namespace kp::ui

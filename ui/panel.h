@@ -1,0 +1,92 @@
+// Panel: the whole window's contents, drawn once per frame from the FeedState
+// snapshot (Dear ImGui style: the panel owns view state, never the data).
+// Actions go out as requests through RunFeed (pause / continue / abort) or as
+// child processes (`kneepoint check`, a detached `kneepoint run`); nothing here
+// talks to instruments, and no run depends on this window staying open.
+// UI thread only.
+#pragma once
+
+#include <cstdint>
+#include <future>
+#include <optional>
+#include <set>
+#include <string>
+#include <vector>
+
+#include "ui/child_process.h"
+#include "ui/plot_widget.h"
+#include "ui/run_feed.h"
+#include "ui/theme.h"
+
+namespace kp::ui {
+
+enum class Tab { kLive, kCompare };
+
+struct PanelOptions {
+  std::string db_path;
+  std::optional<int64_t> run_id;  // the run shown first (newest when absent)
+  std::set<int64_t> compare;      // runs overlaid in the compare view
+  Tab tab = Tab::kLive;
+  bool dark = true;
+  float scale = 1.0f;
+  std::string new_run_procedure;  // non-empty: open the start dialog with this file
+};
+
+class Panel {
+ public:
+  Panel(RunFeed& feed, PanelOptions options, Fonts fonts);
+  // Draws one frame covering the whole viewport; call between NewFrame and Render.
+  void Frame();
+  // Where the live voltage plot was last drawn (for the headless check).
+  const PlotResult& voltage_plot() const { return voltage_plot_; }
+  const Theme& theme() const { return theme_; }
+  const FeedState& state() const { return state_; }
+  std::optional<int64_t> selected() const { return selected_; }
+
+ private:
+  void Shortcuts();
+  void TopBar();
+  void RunsList();
+  void LiveView();
+  void CompareView();
+  void StartDialog();
+  void AbortDialog();
+  void FileBrowser(char* path, size_t size, const char* id);
+  void Headline(const RunData& d);
+  void EventLog(const RunData& d);
+  void ControlButtons(const RunData& d);
+  void SetTheme(bool dark);
+
+  RunFeed& feed_;
+  PanelOptions options_;
+  Fonts fonts_;
+  Theme theme_;
+  FeedState state_;
+  std::optional<int64_t> selected_;
+  std::set<int64_t> compare_;
+  Tab tab_;
+  XView live_x_;
+  XView cmp_time_x_;
+  XView cmp_charge_x_;
+  PlotResult voltage_plot_;
+  char filter_[128] = "";
+  bool focus_filter_ = false;
+  bool open_start_ = false;
+  bool open_abort_ = false;
+  // Start dialog.
+  char proc_path_[512] = "";
+  char rig_path_[512] = "sim";
+  char cell_name_[128] = "";
+  char speed_[32] = "";
+  bool cautions_read_ = false;
+  std::future<Result<Captured>> check_job_;
+  std::optional<Captured> check_result_;
+  std::string check_for_;  // procedure path the check result belongs to
+  std::string start_message_;
+  // File browser of the start dialog: the listed folder and its entries (folders end in '/').
+  std::string browse_dir_;
+  std::vector<std::string> browse_entries_;
+  int browse_target_ = 0;  // 0 closed, 1 procedure, 2 rig
+};
+
+}  // namespace kp::ui

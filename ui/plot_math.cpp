@@ -1,0 +1,205 @@
+#include "ui/plot_math.h"
+
+#include <algorithm>
+#include <cmath>
+
+#include <fmt/format.h>
+
+namespace kp::ui {
+
+Range PadRange(Range r, double margin_fraction, double min_half_span) {
+  if (r.Empty()) return {0.0, 1.0};
+  if (r.Span() < 2.0 * min_half_span) {
+    double mid = 0.5 * (r.lo + r.hi);
+    r = {mid - min_half_span, mid + min_half_span};
+  }
+  double pad = r.Span() * margin_fraction;
+  return {r.lo - pad, r.hi + pad};
+}
+
+namespace {
+
+Ticks TicksWithStep(double lo, double hi, double step) {
+  Ticks t;
+  t.step = step;
+  if (!(step > 0.0) || !(hi >= lo)) return t;
+  double first = std::ceil(lo / step - 1e-9) * step;
+  for (int i = 0; i < 1000; ++i) {
+    double v = first + i * step;
+    if (v > hi + step * 1e-9) break;
+    if (std::fabs(v) < step * 1e-9) v = 0.0;  // no "-0"
+    t.values.push_back(v);
+  }
+  return t;
+}
+
+}  // namespace
+
+Ticks NiceTicks(double lo, double hi, int target) {
+  if (!(hi > lo) || target < 1) return {};
+  double raw = (hi - lo) / target;
+  double mag = std::pow(10.0, std::floor(std::log10(raw)));
+  double norm = raw / mag;
+  double nice = norm < 1.5 ? 1.0 : norm < 3.5 ? 2.0 : norm < 7.5 ? 5.0 : 10.0;
+  return TicksWithStep(lo, hi, nice * mag);
+}
+
+Ticks TimeTicks(double lo_s, double hi_s, int target) {
+  if (!(hi_s > lo_s) || target < 1) return {};
+  static constexpr double kSteps[] = {1,    2,    5,    10,    15,    30,    60,    120,   300,   600,
+                                      900,  1800, 3600, 7200,  10800, 21600, 43200, 86400, 172800, 604800};
+  double raw = (hi_s - lo_s) / target;
+  if (raw < 1.0) return NiceTicks(lo_s, hi_s, target);
+  for (double s : kSteps)
+    if (s >= raw * 0.75) return TicksWithStep(lo_s, hi_s, s);
+  return TicksWithStep(lo_s, hi_s, std::ceil(raw / 604800.0) * 604800.0);
+}
+
+std::string FormatTimeTick(double t_s, double step_s) {
+  if (step_s < 1.0) return fmt::format("{:.{}f} s", t_s, std::max(0, static_cast<int>(std::ceil(-std::log10(step_s)))));
+  bool neg = t_s < 0;
+  long total = std::lround(std::fabs(t_s));
+  long h = total / 3600, m = (total / 60) % 60, s = total % 60;
+  std::string sign = neg ? "-" : "";
+  if (h > 0) return step_s >= 60.0 ? fmt::format("{}{}:{:02}", sign, h, m) + "h" : fmt::format("{}{}:{:02}:{:02}", sign, h, m, s);
+  if (m > 0 || step_s >= 60.0) return fmt::format("{}{}:{:02}", sign, m, s);
+  return fmt::format("{}{} s", sign, s);
+}
+
+std::string FormatValueTick(double v, double step) {
+  int decimals = step >= 1.0 ? 0 : std::min(6, static_cast<int>(std::ceil(-std::log10(step) - 1e-9)));
+  return fmt::format("{:.{}f}", v, decimals);
+}
+
+double AxisMap::ToPixel(double v) const {
+  double span = value.Span();
+  if (!(span > 0.0)) return 0.5 * (pixel_lo + pixel_hi);
+  return pixel_lo + (v - value.lo) / span * (pixel_hi - pixel_lo);
+}
+
+double AxisMap::ToValue(double px) const {
+  double span = pixel_hi - pixel_lo;
+  if (span == 0.0) return value.lo;
+  return value.lo + (px - pixel_lo) / span * value.Span();
+}
+
+void MinMaxPyramid::Clear() {
+  base_.clear();
+  levels_.clear();
+}
+
+void MinMaxPyramid::Append(const float* values, size_t count) {
+  if (count == 0) return;
+  size_t dirty_from = base_.size();  // first index at the level below that changed
+  base_.insert(base_.end(), values, values + count);
+  // Rebuild upwards only from the block that held the old tail.
+  for (size_t l = 0;; ++l) {
+    size_t n_below = l == 0 ? base_.size() : levels_[l - 1].min.size();
+    if (n_below <= 1) break;
+    size_t n = (n_below + kFanout - 1) / kFanout;
+    if (levels_.size() <= l) levels_.emplace_back();
+    Level& lv = levels_[l];
+    const float* bmin = l == 0 ? base_.data() : levels_[l - 1].min.data();
+    const float* bmax = l == 0 ? base_.data() : levels_[l - 1].max.data();
+    lv.min.resize(n);
+    lv.max.resize(n);
+    size_t first_block = dirty_from / kFanout;
+    for (size_t b = first_block; b < n; ++b) {
+      size_t i0 = b * kFanout, i1 = std::min(n_below, i0 + kFanout);
+      float mn = bmin[i0], mx = bmax[i0];
+      for (size_t i = i0 + 1; i < i1; ++i) {
+        mn = std::min(mn, bmin[i]);
+        mx = std::max(mx, bmax[i]);
+      }
+      lv.min[b] = mn;
+      lv.max[b] = mx;
+    }
+    dirty_from = first_block;
+    if (n == 1) break;
+  }
+}
+
+bool MinMaxPyramid::Query(size_t begin, size_t end, float* min_out, float* max_out) const {
+  end = std::min(end, size());
+  if (begin >= end) return false;
+  float mn = base_[begin], mx = base_[begin];
+  size_t lo = begin, hi = end;  // half-open range at the current level
+  // Level -1 is base_, level l >= 0 is levels_[l].
+  for (size_t depth = 0; lo < hi; ++depth) {
+    const float* vmin = depth == 0 ? base_.data() : levels_[depth - 1].min.data();
+    const float* vmax = depth == 0 ? base_.data() : levels_[depth - 1].max.data();
+    bool top = depth == levels_.size();
+    if (top) {
+      for (size_t i = lo; i < hi; ++i) {
+        mn = std::min(mn, vmin[i]);
+        mx = std::max(mx, vmax[i]);
+      }
+      break;
+    }
+    // Peel unaligned elements at both ends, then move one level up.
+    while (lo < hi && lo % kFanout != 0) {
+      mn = std::min(mn, vmin[lo]);
+      mx = std::max(mx, vmax[lo]);
+      ++lo;
+    }
+    while (lo < hi && hi % kFanout != 0) {
+      --hi;
+      mn = std::min(mn, vmin[hi]);
+      mx = std::max(mx, vmax[hi]);
+    }
+    lo /= kFanout;
+    hi /= kFanout;
+  }
+  *min_out = mn;
+  *max_out = mx;
+  return true;
+}
+
+std::vector<Column> ReduceColumns(const std::vector<double>& xs, const MinMaxPyramid& pyramid, double x_lo, double x_hi,
+                                  int width) {
+  std::vector<Column> cols(static_cast<size_t>(std::max(width, 0)));
+  size_t n = std::min(xs.size(), pyramid.size());
+  if (width <= 0 || n == 0 || !(x_hi > x_lo)) return cols;
+  double dx = (x_hi - x_lo) / width;
+  auto begin_it = xs.begin(), end_it = xs.begin() + static_cast<ptrdiff_t>(n);
+  size_t i = static_cast<size_t>(std::lower_bound(begin_it, end_it, x_lo) - begin_it);
+  for (int c = 0; c < width && i < n; ++c) {
+    double col_hi = x_lo + (c + 1) * dx;
+    size_t j = static_cast<size_t>(std::lower_bound(begin_it + static_cast<ptrdiff_t>(i), end_it, col_hi) - begin_it);
+    if (c == width - 1) j = static_cast<size_t>(std::upper_bound(begin_it + static_cast<ptrdiff_t>(i), end_it, x_hi) - begin_it);
+    Column& col = cols[static_cast<size_t>(c)];
+    col.has_data = pyramid.Query(i, j, &col.min, &col.max);
+    i = j;
+  }
+  // Join neighbours: a column's band reaches the previous column's band.
+  const Column* prev = nullptr;
+  for (Column& col : cols) {
+    if (!col.has_data) continue;
+    if (prev) {
+      if (col.min > prev->max) col.min = prev->max;
+      if (col.max < prev->min) col.max = prev->min;
+    }
+    prev = &col;
+  }
+  return cols;
+}
+
+IndexRange VisibleIndices(const std::vector<double>& xs, double lo, double hi) {
+  IndexRange r;
+  if (xs.empty() || hi < lo) return r;
+  size_t a = static_cast<size_t>(std::lower_bound(xs.begin(), xs.end(), lo) - xs.begin());
+  size_t b = static_cast<size_t>(std::upper_bound(xs.begin(), xs.end(), hi) - xs.begin());
+  if (b < a) b = a;  // xs not ascending after all (e.g. charge that went back): never an inverted range
+  r.first = a > 0 ? a - 1 : 0;
+  r.last = std::min(xs.size(), b + 1);
+  return r;
+}
+
+size_t NearestIndex(const std::vector<double>& xs, double x) {
+  size_t i = static_cast<size_t>(std::lower_bound(xs.begin(), xs.end(), x) - xs.begin());
+  if (i >= xs.size()) return xs.size() - 1;
+  if (i > 0 && x - xs[i - 1] < xs[i] - x) return i - 1;
+  return i;
+}
+
+}  // namespace kp::ui

@@ -1,0 +1,67 @@
+// The panel's plot, drawn on ImDrawList: frame, grid, ticks and labels on two
+// y axes, legend, horizontal limit lines, min/max-per-column traces (a raw
+// polyline only when fewer points than pixels are visible), mouse pan/zoom
+// and a cursor read-out. Holds no data: traces borrow the caller's arrays for
+// the duration of the call. UI thread only.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include <imgui.h>
+
+#include "ui/plot_math.h"
+#include "ui/theme.h"
+
+namespace kp::ui {
+
+struct Trace {
+  const std::vector<double>* xs = nullptr;  // ascending
+  const MinMaxPyramid* ys = nullptr;        // same length as xs
+  ImU32 colour = 0;
+  std::string name;  // legend
+  std::string unit;  // read-out
+  int axis = 0;      // 0 left, 1 right
+};
+
+struct HLine {
+  double value = 0.0;
+  ImU32 colour = 0;
+  std::string label;
+  int axis = 0;
+  bool dashed = false;
+  bool fit = true;  // widen the axis so the line is on screen
+};
+
+// The x view shared by plots drawn one above the other.
+struct XView {
+  bool follow = true;  // keep the newest data in view
+  double span = 0.0;   // width of the followed window; 0 = the whole run
+  Range range;         // when not following
+};
+
+struct PlotSpec {
+  std::vector<Trace> traces;
+  std::vector<HLine> lines;
+  Range data_x;  // full extent of the data on x
+  bool time_x = true;
+  std::string x_label;
+  std::string y_label[2];
+  float min_y_span[2] = {0.05f, 0.5f};  // smallest half-span per axis
+};
+
+struct PlotResult {
+  ImVec2 rect_min, rect_max;  // the data area in screen pixels
+  Range x;
+  Range y[2];
+  bool hovered = false;
+};
+
+// Draws at the cursor position with `size` (a non-positive component takes the
+// remaining space). `id` must be unique in the window.
+PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 size, const Theme& theme);
+
+// The x range a view shows for data spanning `data_x`.
+Range ResolveX(const XView& view, Range data_x);
+
+}  // namespace kp::ui

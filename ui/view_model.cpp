@@ -1,0 +1,210 @@
+#include "ui/view_model.h"
+
+#include <algorithm>
+#include <cctype>
+#include <cmath>
+#include <cstdlib>
+
+#include <fmt/format.h>
+
+#include "analysis/metrics.h"
+
+namespace kp::ui {
+
+void RunningFigures::Add(const Sample& s) {
+  if (count_ == 0) {
+    min_voltage_v_ = s.voltage_v;
+    max_temperature_c_ = s.temperature_c;
+    first_t_s_ = s.t_s;
+  } else {
+    double dt_h = (s.t_s - last_.t_s) / 3600.0;
+    charge_mah_ += 0.5 * (s.current_a + last_.current_a) * dt_h * 1000.0;
+    energy_wh_ += 0.5 * (s.voltage_v * s.current_a + last_.voltage_v * last_.current_a) * dt_h;
+    voltage_time_vs_ += 0.5 * (s.voltage_v + last_.voltage_v) * (s.t_s - last_.t_s);
+    min_voltage_v_ = std::min(min_voltage_v_, s.voltage_v);
+    max_temperature_c_ = std::max(max_temperature_c_, s.temperature_c);
+  }
+  last_ = s;
+  ++count_;
+}
+
+double RunningFigures::mean_voltage_v() const {
+  double span = last_.t_s - first_t_s_;
+  return span > 0.0 ? voltage_time_vs_ / span : last_.voltage_v;
+}
+
+namespace {
+
+std::string Lower(std::string s) {
+  for (char& c : s) c = (c == '_') ? '-' : static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return s;
+}
+
+std::vector<std::string> Words(const std::string& text) {
+  std::vector<std::string> out;
+  std::string cur;
+  for (char c : text) {
+    if (std::isspace(static_cast<unsigned char>(c)) || c == '=' || c == ':' || c == ',' || c == ';' || c == '(' ||
+        c == ')' || c == '[' || c == ']' || c == '{' || c == '}' || c == '"') {
+      if (!cur.empty()) out.push_back(cur);
+      cur.clear();
+    } else {
+      cur += c;
+    }
+  }
+  if (!cur.empty()) out.push_back(cur);
+  return out;
+}
+
+// Leading number of a word ("2.75", "2.75V", "60degC"); nullopt when none.
+std::optional<double> LeadingNumber(const std::string& w) {
+  if (w.empty()) return std::nullopt;
+  const char* b = w.c_str();
+  char* e = nullptr;
+  double v = std::strtod(b, &e);
+  if (e == b || !std::isfinite(v)) return std::nullopt;
+  return v;
+}
+
+bool IsAny(const std::string& w, std::initializer_list<const char*> names) {
+  for (const char* n : names)
+    if (w == n) return true;
+  return false;
+}
+
+}  // namespace
+
+DrawnLimits ScanLimits(const std::string& procedure_text, const std::vector<StepRow>& steps) {
+  DrawnLimits d;
+  // Comments ('#' to end of line) are skipped.
+  std::string text;
+  bool comment = false;
+  for (char c : procedure_text) {
+    if (c == '#') comment = true;
+    if (c == '\n') comment = false;
+    if (!comment) text += c;
+  }
+  std::vector<std::string> w = Words(Lower(text));
+  for (size_t i = 0; i + 1 < w.size(); ++i) {
+    std::optional<double>* slot = nullptr;
+    if (IsAny(w[i], {"cutoff", "cutoff-v", "cutoff-voltage", "end-voltage", "end-v"})) slot = &d.cutoff_v;
+    else if (IsAny(w[i], {"max-temp", "max-temp-c", "max-temperature", "temp-max", "over-temp"})) slot = &d.max_temp_c;
+    else if (IsAny(w[i], {"min-voltage", "min-v", "voltage-min", "under-voltage"})) slot = &d.min_voltage_v;
+    else if (IsAny(w[i], {"max-voltage", "max-v", "voltage-max", "over-voltage"})) slot = &d.max_voltage_v;
+    if (slot == nullptr || slot->has_value()) continue;
+    if (auto v = LeadingNumber(w[i + 1])) *slot = *v;
+  }
+  if (!d.cutoff_v) {
+    for (const StepRow& s : steps) {
+      std::vector<std::string> lw = Words(Lower(s.label));
+      for (size_t i = 0; i + 1 < lw.size(); ++i) {
+        if (lw[i] != "to") continue;
+        const std::string& num = lw[i + 1];
+        bool volts = (!num.empty() && num.back() == 'v') || (i + 2 < lw.size() && lw[i + 2] == "v");
+        if (auto v = LeadingNumber(num); v && volts) {
+          d.cutoff_v = *v;
+          break;
+        }
+      }
+      if (d.cutoff_v) break;
+    }
+  }
+  return d;
+}
+
+RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
+  RunListRow r;
+  r.id = run.id;
+  r.outcome = run.outcome;
+  r.state = std::string(OutcomeName(run.outcome));
+  r.cell = run.cell;
+  r.chemistry = run.chemistry;
+  r.procedure = run.procedure_name;
+  r.started_at = run.started_at;
+  r.elapsed_s = figures.count() > 0 ? figures.last().t_s - figures.first_t_s() : 0.0;
+  r.delivered_mah = figures.charge_mah();
+  r.rated_mah = run.rated_mah;
+  r.reason = run.reason;
+  if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
+    r.verdict = std::string("incomplete");  // a capacity verdict needs a discharge that reached its end
+  } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
+    r.verdict = std::string("-");
+  } else {
+    CapacityVerdict v = JudgeCapacity(figures.charge_mah(), run.rated_mah);
+    r.verdict = fmt::format("{} {:.0f} %", v.pass ? "PASS" : "FAIL", v.percent_of_rated);
+  }
+  return r;
+}
+
+bool MatchesFilter(const RunListRow& row, const std::string& filter) {
+  std::string hay = Lower(fmt::format("#{} {} {} {} {} {} {} {}", row.id, row.id, row.state, row.cell, row.chemistry,
+                                      row.procedure, row.verdict, row.started_at));
+  for (const std::string& word : Words(Lower(filter)))
+    if (hay.find(word) == std::string::npos) return false;
+  return true;
+}
+
+std::optional<double> EstimateRemainingS(const std::vector<Sample>& samples, double delivered_mah, double rated_mah,
+                                         std::optional<double> cutoff_v, double window_s) {
+  if (samples.empty()) return std::nullopt;
+  const Sample& last = samples.back();
+  std::optional<double> best;
+  auto offer = [&](double s) {
+    if (std::isfinite(s) && s >= 0.0 && (!best || s < *best)) best = s;
+  };
+  if (rated_mah > 0.0 && last.current_a > 1e-6) offer(std::max(0.0, rated_mah - delivered_mah) / (last.current_a * 1000.0) * 3600.0);
+  if (cutoff_v && samples.size() >= 2) {
+    // Least-squares slope of V(t) over the recent window.
+    double t0 = last.t_s - window_s;
+    auto it = std::lower_bound(samples.begin(), samples.end(), t0, [](const Sample& s, double t) { return s.t_s < t; });
+    double n = 0, st = 0, sv = 0, stt = 0, stv = 0;
+    for (; it != samples.end(); ++it) {
+      double t = it->t_s - last.t_s;
+      n += 1;
+      st += t;
+      sv += it->voltage_v;
+      stt += t * t;
+      stv += t * it->voltage_v;
+    }
+    double den = n * stt - st * st;
+    if (n >= 3 && den > 0.0) {
+      double slope = (n * stv - st * sv) / den;  // V per second
+      if (slope < 0.0 && last.voltage_v > *cutoff_v) offer((last.voltage_v - *cutoff_v) / -slope);
+      if (last.voltage_v <= *cutoff_v) offer(0.0);
+    }
+  }
+  return best;
+}
+
+Severity EventSeverity(const EventRow& e) {
+  std::string k = Lower(e.kind);
+  for (const char* alarm : {"abort", "fault", "limit", "safety", "lost", "error", "interrupt"})
+    if (k.find(alarm) != std::string::npos) return Severity::kAlarm;
+  for (const char* notice : {"retry", "pause", "continue", "resume", "request", "warn"})
+    if (k.find(notice) != std::string::npos) return Severity::kNotice;
+  return Severity::kInfo;
+}
+
+bool IsPaused(const std::vector<EventRow>& events) {
+  for (auto it = events.rbegin(); it != events.rend(); ++it) {
+    std::string k = Lower(it->kind);
+    if (k.find("pause") != std::string::npos) return true;
+    if (k.find("continue") != std::string::npos || k.find("resume") != std::string::npos) return false;
+  }
+  return false;
+}
+
+StepNow CurrentStep(const std::vector<StepRow>& steps) {
+  StepNow now;
+  if (steps.empty()) return now;
+  const StepRow& s = steps.back();
+  now.index = s.index;
+  now.kind = s.kind;
+  now.label = s.label;
+  now.started_s = s.started_s;
+  now.ended = s.ended_s.has_value();
+  now.end_reason = s.end_reason;
+  return now;
+}
+
+}  // namespace kp::ui
