@@ -5,6 +5,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <chrono>
 #include <cerrno>
 #include <ctime>
 #include <fstream>
@@ -93,6 +94,12 @@ Status MigrateTo2(sql::Db& db) {
 using Migration = Status (*)(sql::Db&);
 constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2};
 static_assert(std::size(kMigrations) == kSchemaVersion);
+
+// Heartbeats are calendar time (they must compare across processes), with
+// sub-second resolution so short gaps are measured.
+double UnixSeconds() {
+  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+}
 
 std::string HostName() {
   char buf[256] = {0};
@@ -233,7 +240,7 @@ Status Store::Commit() {
         " delivered_mah=COALESCE(?5, delivered_mah), delivered_wh=COALESCE(?6, delivered_wh) WHERE id=?2");
     st = hb.status();
     if (st.ok()) {
-      hb->Bind(1, static_cast<int64_t>(std::time(nullptr))).Bind(2, seq_run_);
+      hb->Bind(1, UnixSeconds()).Bind(2, seq_run_);
       if (progress_) {
         hb->Bind(3, progress_->engine_snapshot).Bind(4, progress_->t_s).Bind(5, progress_->delivered_mah).Bind(6, progress_->delivered_wh);
       }
@@ -296,7 +303,7 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
 Status Store::ClaimRunner(int64_t run_id) {
   KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET runner_pid=?1, runner_host=?2, runner_token=?3, heartbeat_at=?4 WHERE id=?5"));
   const int64_t pid = getpid();
-  return up.Bind(1, pid).Bind(2, HostName()).Bind(3, ProcessStartToken(pid)).Bind(4, static_cast<int64_t>(std::time(nullptr))).Bind(5, run_id).Run();
+  return up.Bind(1, pid).Bind(2, HostName()).Bind(3, ProcessStartToken(pid)).Bind(4, UnixSeconds()).Bind(5, run_id).Run();
 }
 
 Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
@@ -314,7 +321,7 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
                                       outcome == "running" ? " (its runner is still alive)" : ""));
     }
     ReopenedRun out;
-    out.gap_s = std::max<double>(0.0, static_cast<double>(static_cast<int64_t>(std::time(nullptr)) - q.Int(1)));
+    out.gap_s = std::max(0.0, UnixSeconds() - q.Real(1));
     out.resumes = static_cast<int>(q.Int(2));
     KP_ASSIGN_OR_RETURN(out.progress, LoadProgress(run_id));
     if (!out.progress) {

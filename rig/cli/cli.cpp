@@ -82,6 +82,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterRuns(registry);
   RegisterReport(registry);
   RegisterExport(registry);
+  RegisterControl(registry);
+  RegisterResume(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

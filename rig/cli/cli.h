@@ -54,6 +54,8 @@ void RegisterDemo(CliRegistry& r);
 void RegisterRuns(CliRegistry& r);
 void RegisterReport(CliRegistry& r);
 void RegisterExport(CliRegistry& r);
+void RegisterControl(CliRegistry& r);  // abort / pause / continue
+void RegisterResume(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);
