@@ -252,11 +252,17 @@ Status Store::Commit() {
     // Nothing of the batch becomes visible; the caller stops the run.
     if (!sqlite3_get_autocommit(db_->raw())) (void)db_->Exec("ROLLBACK");
     in_batch_ = false;
+    // Back to what the database holds, so a later commit cannot pair the
+    // rolled-back progress with the older samples.
     next_seq_ = committed_seq_;
+    progress_ = committed_progress_;
     return st.WithContext("committing samples");
   }
   in_batch_ = false;
-  if (seq_run_ >= 0) committed_seq_ = next_seq_;
+  if (seq_run_ >= 0) {
+    committed_seq_ = next_seq_;
+    committed_progress_ = progress_;
+  }
   return Status::Ok();
 }
 
@@ -296,6 +302,7 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
   committed_seq_ = 0;
   step_seq_ = 0;
   progress_.reset();
+  committed_progress_.reset();
   KP_RETURN_IF_ERROR(Commit());
   return id;
 }
@@ -348,6 +355,7 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     committed_seq_ = out.next_seq;
     step_seq_ = step_seq;
     progress_ = out.progress;
+    committed_progress_ = out.progress;
     return out;
   };
   Result<ReopenedRun> r = body();

@@ -179,6 +179,7 @@ class Store {
   int64_t step_seq_ = 0;
   int64_t committed_seq_ = 0;
   std::optional<RunProgress> progress_;
+  std::optional<RunProgress> committed_progress_;  // what the database holds
   bool has_insert_ = false;
   sql::Stmt insert_sample_;
 };
