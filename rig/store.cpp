@@ -477,11 +477,22 @@ Result<int> Store::ReconcileOrphans() {
       gone.emplace_back(id, fmt::format("no heartbeat from runner on {} for {} s", run_host, now - beat));
     }
   }
+  q.Reset();
+  int marked = 0;
   for (const auto& [id, why] : gone) {
+    // The state change and its event together, at the last committed run time.
+    KP_RETURN_IF_ERROR(EnsureBatch());
     KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='interrupted', reason=?1 WHERE id=?2 AND outcome='running'"));
     KP_RETURN_IF_ERROR(up.Bind(1, why).Bind(2, id).Run());
+    if (sqlite3_changes(db_->raw()) > 0) {
+      KP_ASSIGN_OR_RETURN(auto ev, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at)"
+                                                " SELECT id, COALESCE(progress_t_s, 0), 'interrupted', ?1, ?2 FROM runs WHERE id=?3"));
+      KP_RETURN_IF_ERROR(ev.Bind(1, "interrupted: " + why).Bind(2, wall_.WallTimeIso()).Bind(3, id).Run());
+      ++marked;
+    }
+    KP_RETURN_IF_ERROR(Commit());
   }
-  return static_cast<int>(gone.size());
+  return marked;
 }
 
 namespace {

@@ -32,6 +32,7 @@ int Request(const ControlOptions& opt, ControlAction action) {
 void AddOne(CliRegistry& r, const char* name, const char* help, ControlAction action) {
   static ControlOptions opts[3];
   ControlOptions& opt = opts[static_cast<int>(action)];
+  opt = ControlOptions{};  // fresh defaults for each command line parsed
   CLI::App* c = r.Add(name, help, [&opt, action] { return Request(opt, action); });
   c->add_option("RUN", opt.run_id, "Run id (see `kneepoint runs`)")->required();
   c->add_option("--db", opt.db_path, "Database file")->capture_default_str();

@@ -67,6 +67,7 @@ int RunExport(const ExportOptions& opt) {
 
 void RegisterExport(CliRegistry& r) {
   static ExportOptions opt;
+  opt = ExportOptions{};  // fresh defaults for each command line parsed
   CLI::App* exp = r.Add("export", "Write a run's samples as CSV or JSON (streamed)", [] { return RunExport(opt); });
   exp->add_option("RUN", opt.run_id, "Run id")->required();
   exp->add_option("--db", opt.db_path, "Database file")->capture_default_str();

@@ -36,13 +36,19 @@ int RunResume(const ResumeOptions& opt) {
   ro.sim_speed = opt.speed;
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
-  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
-  if (!lock.ok()) return Fail(lock.status());
   SteadyClock wall;
   auto store = OpenExistingDb(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());
+  // Database-only checks first, then the rig: nothing touches an instrument
+  // before this process holds the rig's lock.
+  auto run = (*store)->GetRun(opt.run_id);
+  if (!run.ok()) return Fail(run.status());
+  if (run->outcome != Outcome::kInterrupted)
+    return Fail(InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
   auto plan = ResumablePlan(**store, opt.run_id, RebuildBuiltInPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
+  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
+  if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());
   std::cout << SafetyCautions() << "\n"
@@ -68,6 +74,7 @@ int RunResume(const ResumeOptions& opt) {
 
 void RegisterResume(CliRegistry& r) {
   static ResumeOptions opt;
+  opt = ResumeOptions{};  // fresh defaults for each command line parsed
   CLI::App* c = r.Add("resume", "Continue an interrupted run on the same rig from where it was logged", [] { return RunResume(opt); });
   c->add_option("RUN", opt.run_id, "Run id (see `kneepoint runs`)")->required();
   c->add_option("--db", opt.db_path, "Database file")->capture_default_str();

@@ -155,6 +155,10 @@ Check CheckAfterKill(const std::string& db, int64_t committed_before) {
   EXPECT_GE(c.samples, committed_before) << "a committed sample is missing";
   auto samples = (*store)->LoadSamples(run.id);
   for (size_t i = 1; i < samples->size(); ++i) EXPECT_GT((*samples)[i].t_s, (*samples)[i - 1].t_s) << "at " << i;
+  if (run.outcome == Outcome::kInterrupted) {
+    auto events = (*store)->LoadEvents(run.id);
+    EXPECT_TRUE(events.ok() && !events->empty() && events->back().kind == "interrupted") << "the detection is logged";
+  }
   auto prog = (*store)->LoadProgress(run.id);
   if (prog.ok() && *prog) {
     c.logged_mah = (*prog)->delivered_mah;
