@@ -22,6 +22,7 @@
 #include <thread>
 
 #include "analysis/metrics.h"
+#include "rig/control_channel.h"
 #include "rig/resume.h"
 #include "rig/run_controller.h"
 #include "rig/run_lock.h"
@@ -265,6 +266,62 @@ TEST(CrashResume, KilledRunnerLosesNothingCommittedAndResumesToTheRightCharge) {
   }
   EXPECT_GE(kills, kKills);
   EXPECT_GT(resumes, kKills / 2);
+  munmap(shared, sizeof(Shared));
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+// Control from another process while the runner holds its batch transaction
+// open (production commit interval): the request waits for the next commit at
+// most, and the runner acts on it and names who asked.
+TEST(CrossProcessControl, AbortFromAnotherProcessStopsTheRunner) {
+  testing::TempDir dir;
+  const std::string db = dir.File("ctl.db");
+  auto* shared = static_cast<Shared*>(mmap(nullptr, sizeof(Shared), PROT_READ | PROT_WRITE, MAP_SHARED | MAP_ANONYMOUS, -1, 0));
+  ASSERT_NE(shared, MAP_FAILED);
+  new (shared) Shared();
+  std::fflush(nullptr);
+  pid_t pid = fork();
+  ASSERT_GE(pid, 0);
+  if (pid == 0) {
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);  // production options: 1 s batches
+    if (!store.ok()) _exit(10);
+    SteadyClock clock(20.0);
+    SimRig rig(clock, sim::DemoLiIonCell(kCapacityAh));
+    ControlChannel channel(**store);
+    RunController rc(**store, clock, rig.roles());
+    RunOptions o;
+    o.control = &channel;
+    o.on_sample = [&](const Reading&, double) { shared->sampling.store(true); };
+    Plan plan = RatedCapacityPlan(Cell());
+    plan.steps[0].end.time_s = 600;  // bounded: 30 wall seconds if the abort were never seen
+    auto r = rc.Execute(plan, o);
+    _exit(r.ok() && r->outcome == Outcome::kAborted && !rig.bench().load_input_on() ? 0 : 15);
+  }
+  for (int i = 0; i < 10000 && !shared->sampling.load(); ++i) std::this_thread::sleep_for(std::chrono::milliseconds(1));
+  ASSERT_TRUE(shared->sampling.load());
+  {
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);
+    ASSERT_TRUE(store.ok());
+    EXPECT_OK(ControlChannel::Request(**store, 1, ControlAction::kAbort, "remote@panel"));
+  }
+  int status = 0;
+  ASSERT_EQ(waitpid(pid, &status, 0), pid);
+  ASSERT_TRUE(WIFEXITED(status));
+  EXPECT_EQ(WEXITSTATUS(status), 0) << "runner did not end aborted with the load off";
+  SteadyClock wall;
+  auto store = Store::Open(db, wall);
+  ASSERT_TRUE(store.ok());
+  auto run = (*store)->GetRun(1);
+  ASSERT_TRUE(run.ok());
+  EXPECT_EQ(run->outcome, Outcome::kAborted);
+  EXPECT_EQ(run->reason, "aborted by remote@panel");
   munmap(shared, sizeof(Shared));
 }
 
