@@ -1,19 +1,21 @@
 #include "rig/control_channel.h"
 
+#include <fmt/format.h>
 #include <pwd.h>
 #include <unistd.h>
 
 #include <cstdlib>
 
-#include <fmt/format.h>
-
 namespace kp {
 
 const char* ControlActionName(ControlAction a) {
   switch (a) {
-    case ControlAction::kAbort: return "abort";
-    case ControlAction::kPause: return "pause";
-    case ControlAction::kContinue: return "continue";
+    case ControlAction::kAbort:
+      return "abort";
+    case ControlAction::kPause:
+      return "pause";
+    case ControlAction::kContinue:
+      return "continue";
   }
   return "?";
 }
@@ -25,10 +27,14 @@ Result<std::vector<ControlRequest>> ControlChannel::Poll(int64_t run_id) {
     KP_RETURN_IF_ERROR(store_.MarkRequestHandled(row.id));
     ControlRequest r;
     r.requested_by = row.requested_by;
-    if (row.action == "abort") r.action = ControlAction::kAbort;
-    else if (row.action == "pause") r.action = ControlAction::kPause;
-    else if (row.action == "continue") r.action = ControlAction::kContinue;
-    else continue;  // the schema's CHECK makes this unreachable
+    if (row.action == "abort")
+      r.action = ControlAction::kAbort;
+    else if (row.action == "pause")
+      r.action = ControlAction::kPause;
+    else if (row.action == "continue")
+      r.action = ControlAction::kContinue;
+    else
+      continue;  // the schema's CHECK makes this unreachable
     out.push_back(std::move(r));
   }
   return out;

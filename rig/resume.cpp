@@ -1,10 +1,10 @@
 #include "rig/resume.h"
 
+#include <fmt/format.h>
+
 #include <cstdlib>
 #include <map>
 #include <sstream>
-
-#include <fmt/format.h>
 
 #include "procedures/engine.h"
 
@@ -43,8 +43,8 @@ std::map<std::string, double> CellFigures(const std::string& text, std::string* 
 
 Result<Plan> RebuildBuiltInPlan(const RunRow& run) {
   if (run.procedure_name != "rated-capacity-0.2C") {
-    return InvalidInput(fmt::format("run {} used procedure '{}', which this kneepoint cannot rebuild from its stored text", run.id,
-                                    run.procedure_name));
+    return InvalidInput(fmt::format("run {} used procedure '{}', which this kneepoint cannot rebuild from its stored text",
+                                    run.id, run.procedure_name));
   }
   CellSpec cell;
   auto f = CellFigures(run.procedure_text, &cell.chemistry);
@@ -63,9 +63,10 @@ Result<Plan> RebuildBuiltInPlan(const RunRow& run) {
   }
   Plan plan = RatedCapacityPlan(cell);
   if (plan.source_text != run.procedure_text) {
-    return InvalidInput(fmt::format("run {}: procedure changed — the built-in '{}' no longer produces the text stored with the run; "
-                                    "resuming would run a different procedure",
-                                    run.id, run.procedure_name));
+    return InvalidInput(
+        fmt::format("run {}: procedure changed — the built-in '{}' no longer produces the text stored with the run; "
+                    "resuming would run a different procedure",
+                    run.id, run.procedure_name));
   }
   return plan;
 }
@@ -73,18 +74,21 @@ Result<Plan> RebuildBuiltInPlan(const RunRow& run) {
 Result<Plan> ResumablePlan(Store& store, int64_t run_id, const PlanRebuilder& rebuild, const std::string* expected_text) {
   KP_ASSIGN_OR_RETURN(RunRow run, store.GetRun(run_id));
   if (expected_text != nullptr && *expected_text != run.procedure_text) {
-    return InvalidInput(fmt::format("procedure changed: the file given differs from the procedure stored with run {}; resume "
-                                    "continues the stored one only (omit the file, or start a new run)",
-                                    run_id));
+    return InvalidInput(
+        fmt::format("procedure changed: the file given differs from the procedure stored with run {}; resume "
+                    "continues the stored one only (omit the file, or start a new run)",
+                    run_id));
   }
   KP_ASSIGN_OR_RETURN(Plan plan, rebuild(run));
   if (plan.source_text != run.procedure_text)
-    return InvalidInput(fmt::format("procedure changed: the rebuilt plan's text differs from the one stored with run {}", run_id));
+    return InvalidInput(
+        fmt::format("procedure changed: the rebuilt plan's text differs from the one stored with run {}", run_id));
   return plan;
 }
 
 Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan, RigRoles roles) {
-  if (roles.load == nullptr || roles.thermometer == nullptr) return InvalidInput("a run needs a load and a thermometer in the rig");
+  if (roles.load == nullptr || roles.thermometer == nullptr)
+    return InvalidInput("a run needs a load and a thermometer in the rig");
   KP_RETURN_IF_ERROR(store.ReconcileOrphans().status());
   KP_ASSIGN_OR_RETURN(RunRow run, store.GetRun(run_id));
   if (run.outcome != Outcome::kInterrupted) {
@@ -92,10 +96,12 @@ Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan
                                     run.outcome == Outcome::kRunning ? " (its runner is still alive)" : ""));
   }
   KP_ASSIGN_OR_RETURN(auto progress, store.LoadProgress(run_id));
-  if (!progress) return InvalidInput(fmt::format("run {} stopped before its first commit; nothing to resume — start a new run", run_id));
+  if (!progress)
+    return InvalidInput(fmt::format("run {} stopped before its first commit; nothing to resume — start a new run", run_id));
   StepEngine probe(plan);
-  KP_RETURN_IF_ERROR(probe.Restore(progress->engine_snapshot, progress->t_s).status().WithContext(
-      fmt::format("run {} cannot continue with this procedure", run_id)));
+  KP_RETURN_IF_ERROR(probe.Restore(progress->engine_snapshot, progress->t_s)
+                         .status()
+                         .WithContext(fmt::format("run {} cannot continue with this procedure", run_id)));
 
   // The cell as it is now, with no load.
   KP_RETURN_IF_ERROR(roles.load->SetInput(false).WithContext("switching the load off before checking the cell"));
@@ -103,20 +109,22 @@ Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan
   KP_ASSIGN_OR_RETURN(double temp_c, roles.thermometer->MeasureTemperature());
   const SafetyLimits& lim = plan.limits;
   if (temp_c >= lim.max_temp_c)
-    return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.1f} degC, limit {:.1f} degC; let it cool", run_id, temp_c, lim.max_temp_c));
+    return LimitExceeded(
+        fmt::format("cannot resume run {}: cell at {:.1f} degC, limit {:.1f} degC; let it cool", run_id, temp_c, lim.max_temp_c));
   if (volts > lim.max_voltage_v)
-    return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, above the limit {:.3f} V — is this the same cell?", run_id,
-                                     volts, lim.max_voltage_v));
+    return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, above the limit {:.3f} V — is this the same cell?",
+                                     run_id, volts, lim.max_voltage_v));
   if (volts < lim.min_voltage_v)
-    return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, below the limit {:.3f} V", run_id, volts, lim.min_voltage_v));
+    return LimitExceeded(
+        fmt::format("cannot resume run {}: cell at {:.3f} V, below the limit {:.3f} V", run_id, volts, lim.min_voltage_v));
   if (plan.cell.cutoff_v > 0 && volts <= plan.cell.cutoff_v)
-    return LimitExceeded(fmt::format("cannot resume run {}: cell already at {:.3f} V, at or below the cutoff {:.3f} V", run_id, volts,
-                                     plan.cell.cutoff_v));
+    return LimitExceeded(fmt::format("cannot resume run {}: cell already at {:.3f} V, at or below the cutoff {:.3f} V", run_id,
+                                     volts, plan.cell.cutoff_v));
   if (!probe.finished()) {
     const Step& step = plan.steps[static_cast<size_t>(probe.step_index())];
     if (step.end.voltage_below_v && volts <= *step.end.voltage_below_v)
-      return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, at or below step {}'s end voltage {:.3f} V", run_id, volts,
-                                       probe.step_index() + 1, *step.end.voltage_below_v));
+      return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, at or below step {}'s end voltage {:.3f} V",
+                                       run_id, volts, probe.step_index() + 1, *step.end.voltage_below_v));
   }
   ResumePoint point;
   point.run_id = run_id;

@@ -33,7 +33,8 @@ Result<Plan> RebuildBuiltInPlan(const RunRow& run);
 // The run's plan via `rebuild`, refusing when it cannot be rebuilt exactly or
 // when `expected_text` (a procedure file the operator named) differs from the
 // stored text.
-Result<Plan> ResumablePlan(Store& store, int64_t run_id, const PlanRebuilder& rebuild, const std::string* expected_text = nullptr);
+Result<Plan> ResumablePlan(Store& store, int64_t run_id, const PlanRebuilder& rebuild,
+                           const std::string* expected_text = nullptr);
 
 // What RunController needs to continue a run; built by PrepareResume.
 struct ResumePoint {

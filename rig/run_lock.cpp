@@ -1,6 +1,7 @@
 #include "rig/run_lock.h"
 
 #include <fcntl.h>
+#include <fmt/format.h>
 #include <sys/file.h>
 #include <unistd.h>
 
@@ -8,8 +9,6 @@
 #include <cstdlib>
 #include <cstring>
 #include <filesystem>
-
-#include <fmt/format.h>
 
 namespace kp {
 namespace {
@@ -64,9 +63,10 @@ Result<std::unique_ptr<RunLock>> RunLock::Acquire(const std::string& key, const 
     std::string who = ReadAll(fd);
     close(fd);
     if (err == EWOULDBLOCK) {
-      return Unavailable(fmt::format("rig '{}' is already driven by another kneepoint ({}); one runner per rig — stop that run "
-                                     "first (kneepoint abort RUN) or wait for it to end",
-                                     key, who.empty() ? "holder unknown" : who));
+      return Unavailable(
+          fmt::format("rig '{}' is already driven by another kneepoint ({}); one runner per rig — stop that run "
+                      "first (kneepoint abort RUN) or wait for it to end",
+                      key, who.empty() ? "holder unknown" : who));
     }
     return IoError(fmt::format("cannot lock '{}': {}", path, std::strerror(err)));
   }

@@ -22,7 +22,8 @@ class RunLock {
   // Takes the lock for `key` in `dir` (created when missing) without waiting.
   // `holder` describes this runner for whoever is refused ("run 7 in lab.db").
   // kUnavailable when another process holds it.
-  static Result<std::unique_ptr<RunLock>> Acquire(const std::string& key, const std::string& holder, const std::string& dir = DefaultDir());
+  static Result<std::unique_ptr<RunLock>> Acquire(const std::string& key, const std::string& holder,
+                                                  const std::string& dir = DefaultDir());
   ~RunLock();
   RunLock(const RunLock&) = delete;
   RunLock& operator=(const RunLock&) = delete;

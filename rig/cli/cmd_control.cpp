@@ -1,9 +1,9 @@
 // `abort`, `pause`, `continue`: steer a run from another process. Each writes
 // a request row; the runner acts on it within one sample period and records
 // who asked.
-#include <iostream>
-
 #include <fmt/format.h>
+
+#include <iostream>
 
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
@@ -24,8 +24,9 @@ int Request(const ControlOptions& opt, ControlAction action) {
   if (!store.ok()) return Fail(store.status());
   std::string who = opt.as.empty() ? DefaultRequester() : opt.as;
   if (Status st = ControlChannel::Request(**store, opt.run_id, action, who); !st.ok()) return Fail(st);
-  std::cout << fmt::format("{} requested for run {} by {}; the runner acts within one sample period (see `kneepoint report {}`)\n",
-                           ControlActionName(action), opt.run_id, who, opt.run_id);
+  std::cout << fmt::format(
+      "{} requested for run {} by {}; the runner acts within one sample period (see `kneepoint report {}`)\n",
+      ControlActionName(action), opt.run_id, who, opt.run_id);
   return kExitOk;
 }
 

@@ -1,8 +1,8 @@
 // `export`: write a run's samples to a file, streamed (constant memory: one
 // sample at a time from the database to the file), as CSV or JSON.
-#include <fstream>
-
 #include <fmt/format.h>
+
+#include <fstream>
 #include <nlohmann/json.hpp>
 
 #include "rig/cli/cli.h"
@@ -23,10 +23,12 @@ struct ExportOptions {
 // written piece by piece; numbers in shortest round-trip form.
 Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std::string& path) {
   auto check = [&]() { return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path)); };
-  out << "{\"run\":" << RunRowJson(run).dump() << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\"],\n";
+  out << "{\"run\":" << RunRowJson(run).dump()
+      << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\"],\n";
   KP_ASSIGN_OR_RETURN(auto events, store.LoadEvents(run.id));
   nlohmann::json ev = nlohmann::json::array();
-  for (const EventRow& e : events) ev.push_back({{"t_s", e.t_s}, {"kind", e.kind}, {"message", e.message}, {"wall_at", e.wall_at}});
+  for (const EventRow& e : events)
+    ev.push_back({{"t_s", e.t_s}, {"kind", e.kind}, {"message", e.message}, {"wall_at", e.wall_at}});
   out << "\"events\":" << ev.dump() << ",\n\"samples\":[";
   bool first = true;
   KP_RETURN_IF_ERROR(store.ForEachSample(run.id, [&](const Sample& s) {

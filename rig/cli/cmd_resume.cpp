@@ -1,9 +1,9 @@
 // `resume`: continue an interrupted run on the same rig.
+#include <fmt/format.h>
+
 #include <fstream>
 #include <iostream>
 #include <sstream>
-
-#include <fmt/format.h>
 
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
@@ -44,15 +44,15 @@ int RunResume(const ResumeOptions& opt) {
   auto run = (*store)->GetRun(opt.run_id);
   if (!run.ok()) return Fail(run.status());
   if (run->outcome != Outcome::kInterrupted)
-    return Fail(InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
+    return Fail(
+        InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
   auto plan = ResumablePlan(**store, opt.run_id, RebuildBuiltInPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());
-  std::cout << SafetyCautions() << "\n"
-            << fmt::format("Resuming run {} ({}): {}\n", opt.run_id, plan->name, point->checks);
+  std::cout << SafetyCautions() << "\n" << fmt::format("Resuming run {} ({}): {}\n", opt.run_id, plan->name, point->checks);
   ControlChannel control(**store);
   RunOptions options;
   options.stop = InstallStopSignals();
@@ -75,7 +75,8 @@ int RunResume(const ResumeOptions& opt) {
 void RegisterResume(CliRegistry& r) {
   static ResumeOptions opt;
   opt = ResumeOptions{};  // fresh defaults for each command line parsed
-  CLI::App* c = r.Add("resume", "Continue an interrupted run on the same rig from where it was logged", [] { return RunResume(opt); });
+  CLI::App* c =
+      r.Add("resume", "Continue an interrupted run on the same rig from where it was logged", [] { return RunResume(opt); });
   c->add_option("RUN", opt.run_id, "Run id (see `kneepoint runs`)")->required();
   c->add_option("--db", opt.db_path, "Database file")->capture_default_str();
   c->add_option("--rig", opt.rig, "Rig: 'sim' or a rig file")->capture_default_str();

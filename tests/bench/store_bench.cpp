@@ -26,8 +26,8 @@ struct BenchDir {
 kp::Sample MakeSample(int64_t i) {
   // Varying values, as a real log has (constant ones would compress in the record format).
   double t = static_cast<double>(i) * 1.000137;
-  return kp::Sample{t, 4.2 - static_cast<double>(i) * 7.3e-5, 0.5 + static_cast<double>(i % 13) * 1.1e-4, 22.0 + static_cast<double>(i % 97) * 1e-3,
-                    static_cast<int>(i / 100000)};
+  return kp::Sample{t, 4.2 - static_cast<double>(i) * 7.3e-5, 0.5 + static_cast<double>(i % 13) * 1.1e-4,
+                    22.0 + static_cast<double>(i % 97) * 1e-3, static_cast<int>(i / 100000)};
 }
 
 // Bytes the database file grew by, after folding the WAL back into it.
@@ -68,11 +68,12 @@ StoreFigures RunStore(const std::string& path, int64_t n, bool* ok) {
 StoreFigures RunRaw(const std::string& path, int64_t n, bool* ok) {
   sqlite3* db = nullptr;
   if (sqlite3_open(path.c_str(), &db) != SQLITE_OK) return {};
-  sqlite3_exec(db,
-               "PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL;"
-               "CREATE TABLE samples(run_id INTEGER NOT NULL, seq INTEGER NOT NULL, t_s REAL NOT NULL, voltage_v REAL NOT NULL,"
-               " current_a REAL NOT NULL, temperature_c REAL NOT NULL, step INTEGER NOT NULL, PRIMARY KEY(run_id, seq)) WITHOUT ROWID;",
-               nullptr, nullptr, nullptr);
+  sqlite3_exec(
+      db,
+      "PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL;"
+      "CREATE TABLE samples(run_id INTEGER NOT NULL, seq INTEGER NOT NULL, t_s REAL NOT NULL, voltage_v REAL NOT NULL,"
+      " current_a REAL NOT NULL, temperature_c REAL NOT NULL, step INTEGER NOT NULL, PRIMARY KEY(run_id, seq)) WITHOUT ROWID;",
+      nullptr, nullptr, nullptr);
   double before = DbBytes(db);
   sqlite3_stmt* ins = nullptr;
   sqlite3_prepare_v3(db, "INSERT INTO samples VALUES(?1,?2,?3,?4,?5,?6,?7)", -1, SQLITE_PREPARE_PERSISTENT, &ins, nullptr);

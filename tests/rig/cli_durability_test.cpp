@@ -4,9 +4,8 @@
 #include <gtest/gtest.h>
 
 #include <fstream>
-#include <sstream>
-
 #include <nlohmann/json.hpp>
+#include <sstream>
 
 #include "rig/cli/cli.h"
 #include "rig/run_controller.h"

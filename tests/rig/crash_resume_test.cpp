@@ -8,12 +8,11 @@
 // process, so it stops discharging when the runner dies, as if the load had
 // dropped out; its state of charge at the kill is handed to the next runner
 // through shared memory, so the resumed cell is the same cell.
+#include <gtest/gtest.h>
 #include <signal.h>
 #include <sys/mman.h>
 #include <sys/wait.h>
 #include <unistd.h>
-
-#include <gtest/gtest.h>
 
 #include <atomic>
 #include <chrono>
@@ -32,7 +31,7 @@
 namespace kp {
 namespace {
 
-constexpr double kSpeed = 6000.0;          // simulated seconds per wall second
+constexpr double kSpeed = 6000.0;           // simulated seconds per wall second
 constexpr double kCommitIntervalS = 0.005;  // wall seconds; about 30 simulated seconds of samples
 constexpr double kCapacityAh = 2.56;
 constexpr int kKills = 20;
@@ -55,7 +54,8 @@ struct Shared {
 };
 
 // The runner process: never returns; exit code 0 = run completed.
-[[noreturn]] void Runner(const std::string& db, const std::string& lock_dir, int64_t resume_run, double initial_soc, Shared* shared) {
+[[noreturn]] void Runner(const std::string& db, const std::string& lock_dir, int64_t resume_run, double initial_soc,
+                         Shared* shared) {
   SteadyClock wall;
   Store::Options so;
   so.commit_interval_s = kCommitIntervalS;
@@ -257,10 +257,11 @@ TEST(CrashResume, KilledRunnerLosesNothingCommittedAndResumesToTheRightCharge) {
     } else {
       ASSERT_EQ(c.outcome, Outcome::kCompleted);
       const double err = (c.logged_mah + lost_mah - ref_mah) / ref_mah;
-      std::printf("kills %d, interrupted runs seen %d, resumes %d; reference %.2f mAh; logged %.2f mAh + lost in crashes %.2f mAh "
-                  "= %.2f mAh (error %+.3f%%); logged alone %+.3f%%\n",
-                  kills, interrupted_seen, resumes, ref_mah, c.logged_mah, lost_mah, c.logged_mah + lost_mah, err * 100.0,
-                  (c.logged_mah - ref_mah) / ref_mah * 100.0);
+      std::printf(
+          "kills %d, interrupted runs seen %d, resumes %d; reference %.2f mAh; logged %.2f mAh + lost in crashes %.2f mAh "
+          "= %.2f mAh (error %+.3f%%); logged alone %+.3f%%\n",
+          kills, interrupted_seen, resumes, ref_mah, c.logged_mah, lost_mah, c.logged_mah + lost_mah, err * 100.0,
+          (c.logged_mah - ref_mah) / ref_mah * 100.0);
       EXPECT_LT(std::abs(err), 0.005);
     }
   }

@@ -46,7 +46,9 @@ void ExpectIntact(const std::string& path) {
     EXPECT_EQ(q->Int(0) + 1, static_cast<int64_t>(samples->size()));
     auto prog = (*store)->LoadProgress(run.id);
     ASSERT_TRUE(prog.ok());
-    if (*prog && !samples->empty()) EXPECT_EQ((*prog)->t_s, samples->back().t_s);
+    if (*prog && !samples->empty()) {
+      EXPECT_EQ((*prog)->t_s, samples->back().t_s);
+    }
   }
 }
 
@@ -92,7 +94,8 @@ TEST(DiskFault, FullDiskAtEveryWriteEndsTheRunCleanly) {
     ExpectIntact(dir.File("f.db"));
     if (::testing::Test::HasFailure()) return;
     if (o.recorded && o.result.outcome == Outcome::kCompleted) {
-      std::printf("full disk injected from write 1 to %lld: %d runs ended as aborted, then completed\n", static_cast<long long>(n - 1), aborted);
+      std::printf("full disk injected from write 1 to %lld: %d runs ended as aborted, then completed\n",
+                  static_cast<long long>(n - 1), aborted);
       break;
     }
     if (o.recorded) {

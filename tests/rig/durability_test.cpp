@@ -1,8 +1,7 @@
 // Schema migration, the one-runner-per-rig lock, control requests, resume
 // refusals and concurrent readers.
-#include <sqlite3.h>
-
 #include <gtest/gtest.h>
+#include <sqlite3.h>
 
 #include <atomic>
 #include <set>
@@ -152,8 +151,12 @@ TEST(Control, PauseHoldsTheLoadOffAndStopsTheStepClock) {
   // 600 s of step time plus the 300 s paused.
   EXPECT_NEAR(samples.back().t_s, 900, 1.01);
   for (const Sample& s : samples) {
-    if (s.t_s > 101.5 && s.t_s < 400.5) EXPECT_LT(std::abs(s.current_a), 1e-6) << "t=" << s.t_s;
-    if (s.t_s > 402 || s.t_s < 100) EXPECT_NEAR(s.current_a, 0.5, 1e-3) << "t=" << s.t_s;
+    if (s.t_s > 101.5 && s.t_s < 400.5) {
+      EXPECT_LT(std::abs(s.current_a), 1e-6) << "t=" << s.t_s;
+    }
+    if (s.t_s > 402 || s.t_s < 100) {
+      EXPECT_NEAR(s.current_a, 0.5, 1e-3) << "t=" << s.t_s;
+    }
   }
   std::string log;
   auto events = b.store->LoadEvents(r->run_id);
@@ -171,7 +174,8 @@ TEST(Control, AbortActsWithinOneSamplePeriodAndNamesWhoAsked) {
   RunOptions o;
   o.control = &channel;
   o.on_sample = [&](const Reading& r, double) {
-    if (r.t_s == 250) ASSERT_OK(ControlChannel::Request(*b.store, b.store->ListRuns()->back().id, ControlAction::kAbort, "alice@lab"));
+    if (r.t_s == 250)
+      ASSERT_OK(ControlChannel::Request(*b.store, b.store->ListRuns()->back().id, ControlAction::kAbort, "alice@lab"));
   };
   auto r = rc.Execute(TimedPlan(600), o);
   ASSERT_TRUE(r.ok());

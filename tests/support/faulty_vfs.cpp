@@ -46,9 +46,25 @@ int Fetch(sqlite3_file*, sqlite3_int64, int, void** p) {
 }
 int Unfetch(sqlite3_file*, sqlite3_int64, void*) { return SQLITE_OK; }
 
-const sqlite3_io_methods kMethods = {3,         Close,        Read,          Write,    Truncate,   Sync,        FileSize,
-                                     Lock,      Unlock,       CheckReservedLock, FileControl, SectorSize, DeviceCharacteristics,
-                                     ShmMap,    ShmLock,      ShmBarrier,    ShmUnmap, Fetch,      Unfetch};
+const sqlite3_io_methods kMethods = {3,
+                                     Close,
+                                     Read,
+                                     Write,
+                                     Truncate,
+                                     Sync,
+                                     FileSize,
+                                     Lock,
+                                     Unlock,
+                                     CheckReservedLock,
+                                     FileControl,
+                                     SectorSize,
+                                     DeviceCharacteristics,
+                                     ShmMap,
+                                     ShmLock,
+                                     ShmBarrier,
+                                     ShmUnmap,
+                                     Fetch,
+                                     Unfetch};
 
 int Open(sqlite3_vfs* v, const char* name, sqlite3_file* f, int flags, int* out_flags) {
   FaultyVfs* owner = Owner(v);
@@ -61,7 +77,9 @@ int Open(sqlite3_vfs* v, const char* name, sqlite3_file* f, int flags, int* out_
   return rc;
 }
 int Delete(sqlite3_vfs* v, const char* name, int sync) { return Owner(v)->real()->xDelete(Owner(v)->real(), name, sync); }
-int Access(sqlite3_vfs* v, const char* name, int flags, int* out) { return Owner(v)->real()->xAccess(Owner(v)->real(), name, flags, out); }
+int Access(sqlite3_vfs* v, const char* name, int flags, int* out) {
+  return Owner(v)->real()->xAccess(Owner(v)->real(), name, flags, out);
+}
 int FullPathname(sqlite3_vfs* v, const char* name, int n, char* out) {
   return Owner(v)->real()->xFullPathname(Owner(v)->real(), name, n, out);
 }
