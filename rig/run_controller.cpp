@@ -5,6 +5,8 @@
 #include <cmath>
 #include <exception>
 
+#include "rig/control_channel.h"
+#include "rig/resume.h"
 #include "rig/safety_monitor.h"
 
 namespace kp {
@@ -84,8 +86,8 @@ Result<Reading> RunController::Read(double t_s) {
 // pause for heat below; control requests can pause the same way).
 class RunSession {
  public:
-  RunSession(RunController& rc, const Plan& plan, const RunOptions& options, int64_t run_id)
-      : rc_(rc), plan_(plan), options_(options), run_id_(run_id), engine_(plan), monitor_(plan.limits) {
+  RunSession(RunController& rc, const Plan& plan, const RunOptions& options, int64_t run_id, std::optional<ReopenedRun> reopened)
+      : rc_(rc), plan_(plan), options_(options), run_id_(run_id), reopened_(std::move(reopened)), engine_(plan), monitor_(plan.limits) {
     result_.run_id = run_id;
   }
 
@@ -100,20 +102,33 @@ class RunSession {
   Result<Reading> TakeReading();
   Status LogSample(const Reading& r, int step, bool force);
   Status Handle(const EngineOutput& out);
-  // Everything off until the cell cools; then the step continues. Returns a
-  // finished RunResult if the run ended while paused.
-  std::optional<RunResult> PauseForHeat(const std::string& why);
+  // Records where the run stands; committed with the next batch so a killed
+  // run resumes from exactly its last committed sample.
+  void NoteProgress(const std::string& snapshot) {
+    rc_.store_.SetProgress(run_id_, {snapshot, t_s_, delivered_mah_, delivered_wh_});
+  }
+  // Acts on control requests from other processes. Returns a finished
+  // RunResult when the run ended (abort, or ended while paused).
+  std::optional<RunResult> PollControl();
+  // Everything off, sampling on, until the cell cools (kHeat) or an operator
+  // asks to continue (kOperator); then the step continues from its snapshot
+  // (step time does not run while held). Returns a finished RunResult if the
+  // run ended while held.
+  enum class HoldKind { kHeat, kOperator };
+  std::optional<RunResult> Hold(HoldKind kind, const std::string& why);
 
   RunController& rc_;
   const Plan& plan_;
   const RunOptions& options_;
   int64_t run_id_;
+  std::optional<ReopenedRun> reopened_;
   StepEngine engine_;
   SafetyMonitor monitor_;
   RunResult result_;
   Seconds t0_{0};
   double t_s_ = 0.0;
   double delivered_mah_ = 0.0;
+  double delivered_wh_ = 0.0;
   std::optional<Reading> prev_;
   std::optional<Sample> last_logged_;
   int last_logged_step_ = -1;
@@ -139,7 +154,11 @@ RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_vi
 Result<Reading> RunSession::TakeReading() {
   t_s_ = Now();
   KP_ASSIGN_OR_RETURN(Reading r, rc_.Read(t_s_));
-  if (prev_ && r.t_s > prev_->t_s) delivered_mah_ += 0.5 * (r.current_a + prev_->current_a) * (r.t_s - prev_->t_s) / 3.6;
+  if (prev_ && r.t_s > prev_->t_s) {
+    double dt = r.t_s - prev_->t_s;
+    delivered_mah_ += 0.5 * (r.current_a + prev_->current_a) * dt / 3.6;
+    delivered_wh_ += 0.5 * (r.current_a * r.voltage_v + prev_->current_a * prev_->voltage_v) * dt / 3600.0;
+  }
   prev_ = r;
   if (options_.on_sample) options_.on_sample(r, delivered_mah_);
   return r;
@@ -153,7 +172,9 @@ Status RunSession::LogSample(const Reading& r, int step, bool force) {
   Sample smp{r.t_s, r.voltage_v, r.current_a, r.temperature_c, std::max(step, 0)};
   last_logged_ = smp;
   last_logged_step_ = step;
-  return rc_.store_.AppendSample(run_id_, smp);
+  // Staged only: committed by MaybeCommit / the next event together with the
+  // progress it leads to.
+  return rc_.store_.StageSample(run_id_, smp);
 }
 
 Status RunSession::Handle(const EngineOutput& out) {
@@ -176,44 +197,88 @@ Status RunSession::Handle(const EngineOutput& out) {
   return Status::Ok();
 }
 
-std::optional<RunResult> RunSession::PauseForHeat(const std::string& why) {
+std::optional<RunResult> RunSession::PollControl() {
+  if (options_.control == nullptr) return std::nullopt;
+  Result<std::vector<ControlRequest>> reqs = options_.control->Poll(run_id_);
+  if (!reqs.ok()) return Finish(Outcome::kAborted, "database failed while reading requests: " + reqs.status().ToString(), "fault");
+  for (const ControlRequest& q : *reqs) {
+    if (q.action == ControlAction::kAbort) return Finish(Outcome::kAborted, "aborted by " + q.requested_by, "abort");
+    if (q.action == ControlAction::kPause) {
+      if (auto ended = Hold(HoldKind::kOperator, "paused by " + q.requested_by)) return ended;
+      continue;
+    }
+    Status st = rc_.store_.AddEvent(run_id_, t_s_, "control",
+                                    fmt::format("{} by {} ignored: run is not paused", ControlActionName(q.action), q.requested_by));
+    if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+  }
+  return std::nullopt;
+}
+
+std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why) {
   rc_.SafeOff();
-  // The reading that tripped the limit still counts (the load was on until it).
+  // The reading that led here still counts (the load was on until it).
   if (prev_) engine_.Integrate(*prev_);
   std::string snapshot = engine_.Snapshot(t_s_);
-  if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "pause", why); !st.ok())
+  NoteProgress(snapshot);
+  if (Status st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "pause" : "control", why); !st.ok())
     return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
   const Step* step = engine_.current_step();
   double period = step != nullptr ? std::max(1.0, step->sample_period_s) : 1.0;
   // First reading just after the load went off, so the log shows the edge.
   double wait = plan_.edge_settle_s;
-  while (true) {
+  std::string released_by;
+  while (released_by.empty()) {
     rc_.clock_.SleepUntil(t0_ + Seconds(t_s_ + wait), options_.stop);
     wait = period;
     if (StopRequested()) {
       t_s_ = Now();
       return Finish(Outcome::kAborted, options_.stop_reason, "abort");
     }
+    if (options_.control != nullptr) {
+      Result<std::vector<ControlRequest>> reqs = options_.control->Poll(run_id_);
+      if (!reqs.ok()) return Finish(Outcome::kAborted, "database failed while reading requests: " + reqs.status().ToString(), "fault");
+      for (const ControlRequest& q : *reqs) {
+        if (q.action == ControlAction::kAbort) return Finish(Outcome::kAborted, "aborted by " + q.requested_by, "abort");
+        if (q.action == ControlAction::kContinue && kind == HoldKind::kOperator) {
+          released_by = "continued by " + q.requested_by;
+        } else if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "control",
+                                                   fmt::format("{} by {} ignored: run is {}", ControlActionName(q.action), q.requested_by,
+                                                               kind == HoldKind::kOperator ? std::string("paused") : "held (" + why + ")"));
+                   !st.ok()) {
+          return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+        }
+      }
+    }
     Result<Reading> rr = TakeReading();
     if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
     if (Status st = LogSample(*rr, engine_.step_index(), true); !st.ok())
       return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    // The step clock stands still while held, also across a crash.
+    NoteProgress(snapshot);
+    if (Status st = rc_.store_.MaybeCommit(); !st.ok())
+      return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     SafetyVerdict v = monitor_.Check(*rr, delivered_mah_);
     if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
-    if (monitor_.CooledDown(*rr)) break;
+    if (kind == HoldKind::kHeat && monitor_.CooledDown(*rr))
+      released_by = fmt::format("cell cooled to {:.1f} degC; continuing", rr->temperature_c);
   }
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
-  engine_.Integrate(*prev_);  // integration restarts from the cooled, load-off reading
-  Status st =
-      rc_.store_.AddEvent(run_id_, t_s_, "resume", fmt::format("cell cooled to {:.1f} degC; continuing", prev_->temperature_c));
+  engine_.Integrate(*prev_);  // integration restarts from the held, load-off reading
+  Status st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "resume" : "control", released_by);
   if (st.ok()) st = Handle(*out);
   if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
   return std::nullopt;
 }
 
 Result<RunResult> RunSession::Run() {
-  t0_ = rc_.clock_.Now();
+  if (reopened_) {
+    // Run time continues across a resume: the gap counts as elapsed run time.
+    t_s_ = reopened_->progress->t_s + reopened_->gap_s;
+    delivered_mah_ = reopened_->progress->delivered_mah;
+    delivered_wh_ = reopened_->progress->delivered_wh;
+  }
+  t0_ = rc_.clock_.Now() - Seconds(t_s_);
   try {
     // Bring the load to a known, inert state before anything else.
     if (Status st = rc_.roles_.load->SetInput(false); !st.ok())
@@ -229,15 +294,34 @@ Result<RunResult> RunSession::Run() {
       }
     }
 
-    // Open-circuit reading at t = 0, before any load: integration starts here.
+    // First reading with the load off: the open-circuit voltage at t = 0 (or,
+    // resuming, where the run left off). Integration starts here; a resumed
+    // run does not integrate across its gap.
     Result<Reading> ocv = TakeReading();
     if (!ocv.ok()) return Finish(Outcome::kAborted, "instrument lost: " + ocv.status().ToString(), "fault");
-    if (Status st = LogSample(*ocv, 0, true); !st.ok())
+    int first_step = reopened_ && reopened_->last_sample ? reopened_->last_sample->step : 0;
+    if (Status st = LogSample(*ocv, first_step, true); !st.ok())
       return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
-    if (SafetyVerdict v = monitor_.Check(*ocv, 0.0); !v.ok())
-      return Finish(Outcome::kAborted, "before start: " + v.reason, "abort");
+    if (SafetyVerdict v = monitor_.Check(*ocv, delivered_mah_); !v.ok())
+      return Finish(Outcome::kAborted, (reopened_ ? "before resuming: " : "before start: ") + v.reason, "abort");
 
-    EngineOutput out = engine_.Start(t_s_, *ocv);
+    EngineOutput out;
+    if (reopened_) {
+      Result<EngineOutput> restored = engine_.Restore(reopened_->progress->engine_snapshot, t_s_);
+      if (!restored.ok()) return Finish(Outcome::kAborted, "could not resume: " + restored.status().ToString(), "fault");
+      out = *restored;
+      engine_.Integrate(*ocv);
+      // Progress first: the event below commits the staged reading with it.
+      NoteProgress(engine_.Snapshot(t_s_));
+      Status st = rc_.store_.AddEvent(
+          run_id_, t_s_, "gap",
+          fmt::format("resumed after {:.0f} s unattended (last sample at t={:.1f} s, {:.2f} mAh / {:.4f} Wh so far); {}",
+                      reopened_->gap_s, reopened_->progress->t_s, delivered_mah_, delivered_wh_, options_.resume->checks));
+      if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    } else {
+      out = engine_.Start(t_s_, *ocv);
+    }
+    NoteProgress(engine_.Snapshot(t_s_));
     if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not start: " + st.ToString(), "fault");
 
     while (!engine_.finished()) {
@@ -246,6 +330,7 @@ Result<RunResult> RunSession::Run() {
         t_s_ = Now();
         return Finish(Outcome::kAborted, options_.stop_reason, "abort");
       }
+      if (auto ended = PollControl()) return *ended;
       Result<Reading> rr = TakeReading();
       if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
       const Reading& r = *rr;
@@ -257,7 +342,7 @@ Result<RunResult> RunSession::Run() {
         if (Status st = LogSample(r, step_before, true); !st.ok())
           return Finish(Outcome::kAborted, v.reason + "; database write failed: " + st.ToString(), "abort");
         if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
-        if (auto ended = PauseForHeat(v.reason)) return *ended;
+        if (auto ended = Hold(HoldKind::kHeat, v.reason)) return *ended;
         continue;
       }
 
@@ -269,7 +354,10 @@ Result<RunResult> RunSession::Run() {
       after_edge_ = edge;
       if (Status st = LogSample(r, step_before, edge || after_edge); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+      NoteProgress(engine_.Snapshot(t_s_));
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
+      if (Status st = rc_.store_.MaybeCommit(); !st.ok())
+        return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     }
     rc_.SafeOff();
     return Finish(Outcome::kCompleted, last_reason_.empty() ? "procedure complete" : "procedure complete: " + last_reason_,
@@ -288,9 +376,18 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
   if (PlanNeedsSupply(plan) && roles_.supply == nullptr)
     return InvalidInput("the procedure charges the cell, but the rig has no supply");
 
-  NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
-  KP_ASSIGN_OR_RETURN(int64_t run_id, store_.BeginRun(nr));
-  RunSession session(*this, plan, options, run_id);
+  // A resumed run continues its own record; a new one gets a fresh row.
+  std::optional<ReopenedRun> reopened;
+  int64_t run_id = 0;
+  if (options.resume != nullptr) {
+    KP_ASSIGN_OR_RETURN(reopened, store_.ReopenRun(options.resume->run_id));
+    if (!reopened->progress) return InvalidInput(fmt::format("run {} has no committed progress to resume from", options.resume->run_id));
+    run_id = options.resume->run_id;
+  } else {
+    NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
+    KP_ASSIGN_OR_RETURN(run_id, store_.BeginRun(nr));
+  }
+  RunSession session(*this, plan, options, run_id, std::move(reopened));
   return session.Run();
 }
 

@@ -36,6 +36,9 @@ struct RigRoles {
   std::string description;                   // "sim", "rig.toml"
 };
 
+class ControlChannel;  // rig/control_channel.h
+struct ResumePoint;    // rig/resume.h
+
 struct RunOptions {
   std::string cell_name;
   // Set from a signal handler or another thread: the run ends as aborted by operator.
@@ -43,6 +46,14 @@ struct RunOptions {
   std::string stop_reason = "stopped by operator (signal)";
   // Called after each sample (for progress displays); keep it cheap.
   std::function<void(const Reading&, double delivered_mah)> on_sample;
+  // Optional: polled once per loop iteration for requests from other processes.
+  // Pause = load off, keep sampling until continue or abort (step time does not
+  // run while paused); abort = the run ends as aborted "by <who>".
+  ControlChannel* control = nullptr;
+  // Optional: continue this interrupted run (see rig/resume.h) instead of
+  // starting a new one: the engine is restored from the snapshot committed with
+  // the last samples, delivered charge/energy carry over, the gap is an event.
+  const ResumePoint* resume = nullptr;
 };
 
 struct RunResult {

@@ -87,10 +87,10 @@ std::string Stmt::Text(int col) const {
   return t ? std::string(reinterpret_cast<const char*>(t), static_cast<size_t>(sqlite3_column_bytes(stmt_, col))) : std::string();
 }
 
-Result<std::unique_ptr<Db>> Db::Open(const std::string& path, bool create, bool read_only) {
+Result<std::unique_ptr<Db>> Db::Open(const std::string& path, bool create, bool read_only, const std::string& vfs) {
   sqlite3* db = nullptr;
   int flags = read_only ? SQLITE_OPEN_READONLY : (SQLITE_OPEN_READWRITE | (create ? SQLITE_OPEN_CREATE : 0));
-  int rc = sqlite3_open_v2(path.c_str(), &db, flags | SQLITE_OPEN_NOMUTEX, nullptr);
+  int rc = sqlite3_open_v2(path.c_str(), &db, flags | SQLITE_OPEN_NOMUTEX, vfs.empty() ? nullptr : vfs.c_str());
   if (rc != SQLITE_OK) {
     Status st = FromSqlite(rc, db, "opening database " + path);
     sqlite3_close(db);

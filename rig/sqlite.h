@@ -47,8 +47,9 @@ class Stmt {
 
 class Db {
  public:
-  // Opens (creating when `create`) the database file; read_only opens without writing.
-  static Result<std::unique_ptr<Db>> Open(const std::string& path, bool create, bool read_only = false);
+  // Opens (creating when `create`) the database file; read_only opens without
+  // writing. `vfs` names a registered SQLite VFS (empty: the default one).
+  static Result<std::unique_ptr<Db>> Open(const std::string& path, bool create, bool read_only = false, const std::string& vfs = "");
   ~Db();
 
   Result<Stmt> Prepare(std::string_view sql);

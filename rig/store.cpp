@@ -4,8 +4,12 @@
 #include <signal.h>
 #include <unistd.h>
 
+#include <algorithm>
+#include <chrono>
 #include <cerrno>
 #include <ctime>
+#include <fstream>
+#include <sstream>
 
 namespace kp {
 namespace {
@@ -71,9 +75,31 @@ Status MigrateTo1(sql::Db& db) {
   )sql");
 }
 
+// v2: where a run stands (engine snapshot and delivered totals, committed with
+// its samples) so an interrupted run can resume; the runner's process start
+// token so a recycled pid is not taken for a live runner; a partial index for
+// the requests a runner polls.
+Status MigrateTo2(sql::Db& db) {
+  return db.Exec(R"sql(
+    ALTER TABLE runs ADD COLUMN engine_snapshot TEXT;
+    ALTER TABLE runs ADD COLUMN progress_t_s REAL;
+    ALTER TABLE runs ADD COLUMN delivered_mah REAL NOT NULL DEFAULT 0;
+    ALTER TABLE runs ADD COLUMN delivered_wh REAL NOT NULL DEFAULT 0;
+    ALTER TABLE runs ADD COLUMN runner_token TEXT;
+    ALTER TABLE runs ADD COLUMN resumes INTEGER NOT NULL DEFAULT 0;
+    CREATE INDEX requests_pending ON requests(run_id, id) WHERE handled_at IS NULL;
+  )sql");
+}
+
 using Migration = Status (*)(sql::Db&);
-constexpr Migration kMigrations[] = {&MigrateTo1};
+constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2};
 static_assert(std::size(kMigrations) == kSchemaVersion);
+
+// Heartbeats are calendar time (they must compare across processes), with
+// sub-second resolution so short gaps are measured.
+double UnixSeconds() {
+  return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
+}
 
 std::string HostName() {
   char buf[256] = {0};
@@ -81,10 +107,44 @@ std::string HostName() {
   return buf;
 }
 
-bool ProcessAlive(int64_t pid) {
+// Fields of /proc/<pid>/stat after the command name: state (field 3) and the
+// start time in clock ticks since boot (field 22). Empty where /proc is absent.
+struct ProcStat {
+  char state = '?';
+  std::string start_token;
+};
+
+std::optional<ProcStat> ReadProcStat(int64_t pid) {
+  std::ifstream in(fmt::format("/proc/{}/stat", pid));
+  if (!in) return std::nullopt;
+  std::string line;
+  std::getline(in, line);
+  size_t close = line.rfind(')');
+  if (close == std::string::npos) return std::nullopt;
+  std::istringstream rest(line.substr(close + 1));
+  ProcStat st;
+  std::string field;
+  for (int i = 3; i <= 22 && (rest >> field); ++i) {
+    if (i == 3) st.state = field.empty() ? '?' : field[0];
+    if (i == 22) st.start_token = field;
+  }
+  return st;
+}
+
+std::string ProcessStartToken(int64_t pid) {
+  auto st = ReadProcStat(pid);
+  return st ? st->start_token : std::string();
+}
+
+// A runner is alive when its pid exists, is not a zombie and, where the start
+// token was recorded, started at the same moment (not a recycled pid).
+bool RunnerAlive(int64_t pid, const std::string& token) {
   if (pid <= 0) return false;
-  if (kill(static_cast<pid_t>(pid), 0) == 0) return true;
-  return errno == EPERM;
+  if (kill(static_cast<pid_t>(pid), 0) != 0 && errno != EPERM) return false;
+  auto st = ReadProcStat(pid);
+  if (!st) return true;  // no /proc: the pid check is all we have
+  if (st->state == 'Z' || st->state == 'X') return false;
+  return token.empty() || token == st->start_token;
 }
 
 }  // namespace
@@ -114,7 +174,7 @@ Store::~Store() {
 }
 
 Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall, Options options) {
-  KP_ASSIGN_OR_RETURN(auto db, sql::Db::Open(path, options.create && !options.read_only, options.read_only));
+  KP_ASSIGN_OR_RETURN(auto db, sql::Db::Open(path, options.create && !options.read_only, options.read_only, options.vfs));
   std::unique_ptr<Store> store(new Store(std::move(db), wall, options));
   if (!options.read_only) {
     KP_RETURN_IF_ERROR(store->db_->Exec("PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")
@@ -172,18 +232,37 @@ Status Store::EnsureBatch() {
 Status Store::Commit() {
   if (!in_batch_) return Status::Ok();
   // A heartbeat in the same transaction tells readers the runner is alive.
+  // So does the run's progress, which therefore always matches the samples.
+  Status st = Status::Ok();
   if (seq_run_ >= 0) {
-    KP_ASSIGN_OR_RETURN(auto hb, db_->Prepare("UPDATE runs SET heartbeat_at=?1 WHERE id=?2"));
-    KP_RETURN_IF_ERROR(hb.Bind(1, static_cast<int64_t>(std::time(nullptr))).Bind(2, seq_run_).Run());
+    auto hb = db_->Prepare(
+        "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
+        " delivered_mah=COALESCE(?5, delivered_mah), delivered_wh=COALESCE(?6, delivered_wh) WHERE id=?2");
+    st = hb.status();
+    if (st.ok()) {
+      hb->Bind(1, UnixSeconds()).Bind(2, seq_run_);
+      if (progress_) {
+        hb->Bind(3, progress_->engine_snapshot).Bind(4, progress_->t_s).Bind(5, progress_->delivered_mah).Bind(6, progress_->delivered_wh);
+      }
+      st = hb->Run();
+    }
   }
-  Status st = db_->Exec("COMMIT");
+  if (st.ok()) st = db_->Exec("COMMIT");
   if (!st.ok()) {
     // Nothing of the batch becomes visible; the caller stops the run.
-    (void)db_->Exec("ROLLBACK");
+    if (!sqlite3_get_autocommit(db_->raw())) (void)db_->Exec("ROLLBACK");
     in_batch_ = false;
+    // Back to what the database holds, so a later commit cannot pair the
+    // rolled-back progress with the older samples.
+    next_seq_ = committed_seq_;
+    progress_ = committed_progress_;
     return st.WithContext("committing samples");
   }
   in_batch_ = false;
+  if (seq_run_ >= 0) {
+    committed_seq_ = next_seq_;
+    committed_progress_ = progress_;
+  }
   return Status::Ok();
 }
 
@@ -207,27 +286,99 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
   KP_RETURN_IF_ERROR(EnsureBatch());
   KP_ASSIGN_OR_RETURN(int64_t cell_id, EnsureCell(run));
   KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare(
-                                    "INSERT INTO runs(cell_id, procedure_name, procedure_text, rig, rated_mah, started_at, outcome,"
-                                    " runner_pid, runner_host, heartbeat_at) VALUES(?1,?2,?3,?4,?5,?6,'running',?7,?8,?9)"));
+                                    "INSERT INTO runs(cell_id, procedure_name, procedure_text, rig, rated_mah, started_at, outcome)"
+                                    " VALUES(?1,?2,?3,?4,?5,?6,'running')"));
   KP_RETURN_IF_ERROR(ins.Bind(1, cell_id)
                          .Bind(2, run.procedure_name)
                          .Bind(3, run.procedure_text)
                          .Bind(4, run.rig)
                          .Bind(5, run.rated_mah)
                          .Bind(6, wall_.WallTimeIso())
-                         .Bind(7, static_cast<int64_t>(getpid()))
-                         .Bind(8, HostName())
-                         .Bind(9, static_cast<int64_t>(std::time(nullptr)))
                          .Run());
   int64_t id = sqlite3_last_insert_rowid(db_->raw());
+  KP_RETURN_IF_ERROR(ClaimRunner(id));
   seq_run_ = id;
   next_seq_ = 0;
+  committed_seq_ = 0;
   step_seq_ = 0;
+  progress_.reset();
+  committed_progress_.reset();
   KP_RETURN_IF_ERROR(Commit());
   return id;
 }
 
+Status Store::ClaimRunner(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET runner_pid=?1, runner_host=?2, runner_token=?3, heartbeat_at=?4 WHERE id=?5"));
+  const int64_t pid = getpid();
+  return up.Bind(1, pid).Bind(2, HostName()).Bind(3, ProcessStartToken(pid)).Bind(4, UnixSeconds()).Bind(5, run_id).Run();
+}
+
+Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
+  KP_RETURN_IF_ERROR(Commit());
+  KP_RETURN_IF_ERROR(ReconcileOrphans().status());
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  auto body = [&]() -> Result<ReopenedRun> {
+    KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT outcome, COALESCE(heartbeat_at,0), resumes FROM runs WHERE id=?1"));
+    q.Bind(1, run_id);
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+    std::string outcome = q.Text(0);
+    if (outcome != "interrupted") {
+      return InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed{}", run_id, outcome,
+                                      outcome == "running" ? " (its runner is still alive)" : ""));
+    }
+    ReopenedRun out;
+    out.gap_s = std::max(0.0, UnixSeconds() - q.Real(1));
+    out.resumes = static_cast<int>(q.Int(2));
+    KP_ASSIGN_OR_RETURN(out.progress, LoadProgress(run_id));
+    if (!out.progress) {
+      return InvalidInput(fmt::format("run {} stopped before its first commit; there is nothing to resume from — start a new run",
+                                      run_id));
+    }
+    KP_ASSIGN_OR_RETURN(auto last, db_->Prepare("SELECT seq, t_s, voltage_v, current_a, temperature_c, step FROM samples"
+                                                " WHERE run_id=?1 ORDER BY seq DESC LIMIT 1"));
+    last.Bind(1, run_id);
+    KP_ASSIGN_OR_RETURN(bool has_last, last.Step());
+    if (has_last) {
+      out.next_seq = last.Int(0) + 1;
+      out.last_sample = Sample{last.Real(1), last.Real(2), last.Real(3), last.Real(4), static_cast<int>(last.Int(5))};
+    }
+    KP_ASSIGN_OR_RETURN(auto steps, db_->Prepare("SELECT COALESCE(MAX(seq)+1, 0) FROM steps WHERE run_id=?1"));
+    steps.Bind(1, run_id);
+    KP_RETURN_IF_ERROR(steps.Step().status());
+    const int64_t step_seq = steps.Int(0);
+    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='running', reason='', ended_at=NULL, resumes=resumes+1 WHERE id=?1"));
+    KP_RETURN_IF_ERROR(up.Bind(1, run_id).Run());
+    KP_RETURN_IF_ERROR(ClaimRunner(run_id));
+    seq_run_ = run_id;
+    next_seq_ = out.next_seq;
+    committed_seq_ = out.next_seq;
+    step_seq_ = step_seq;
+    progress_ = out.progress;
+    committed_progress_ = out.progress;
+    return out;
+  };
+  Result<ReopenedRun> r = body();
+  if (!r.ok()) {
+    (void)db_->Exec("ROLLBACK");
+    in_batch_ = false;
+    seq_run_ = -1;
+    return r.status();
+  }
+  KP_RETURN_IF_ERROR(Commit());
+  return r;
+}
+
+void Store::SetProgress(int64_t run_id, RunProgress progress) {
+  if (run_id == seq_run_) progress_ = std::move(progress);
+}
+
 Status Store::AppendSample(int64_t run_id, const Sample& s) {
+  KP_RETURN_IF_ERROR(StageSample(run_id, s));
+  return MaybeCommit();
+}
+
+Status Store::StageSample(int64_t run_id, const Sample& s) {
   if (run_id != seq_run_) return InvalidInput(fmt::format("run {} is not the run this store is writing", run_id));
   KP_RETURN_IF_ERROR(EnsureBatch());
   if (!has_insert_) {
@@ -244,7 +395,7 @@ Status Store::AppendSample(int64_t run_id, const Sample& s) {
                          .Bind(7, s.step)
                          .Run());
   ++next_seq_;
-  return MaybeCommit();
+  return Status::Ok();
 }
 
 Status Store::BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s) {
@@ -310,7 +461,7 @@ Status Store::MarkRequestHandled(int64_t request_id) {
 }
 
 Result<int> Store::ReconcileOrphans() {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, runner_pid, runner_host, heartbeat_at FROM runs WHERE outcome='running'"));
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, runner_pid, runner_host, heartbeat_at, COALESCE(runner_token,'') FROM runs WHERE outcome='running'"));
   std::vector<std::pair<int64_t, std::string>> gone;
   const std::string host = HostName();
   const int64_t now = static_cast<int64_t>(std::time(nullptr));
@@ -318,19 +469,30 @@ Result<int> Store::ReconcileOrphans() {
     KP_ASSIGN_OR_RETURN(bool row, q.Step());
     if (!row) break;
     int64_t id = q.Int(0), pid = q.Int(1), beat = q.Int(3);
-    std::string run_host = q.Text(2);
+    std::string run_host = q.Text(2), token = q.Text(4);
     if (id == seq_run_) continue;  // our own live run
     if (run_host == host) {
-      if (!ProcessAlive(pid)) gone.emplace_back(id, fmt::format("runner process {} is gone", pid));
+      if (!RunnerAlive(pid, token)) gone.emplace_back(id, fmt::format("runner process {} is gone", pid));
     } else if (now - beat > 600) {
       gone.emplace_back(id, fmt::format("no heartbeat from runner on {} for {} s", run_host, now - beat));
     }
   }
+  q.Reset();
+  int marked = 0;
   for (const auto& [id, why] : gone) {
+    // The state change and its event together, at the last committed run time.
+    KP_RETURN_IF_ERROR(EnsureBatch());
     KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='interrupted', reason=?1 WHERE id=?2 AND outcome='running'"));
     KP_RETURN_IF_ERROR(up.Bind(1, why).Bind(2, id).Run());
+    if (sqlite3_changes(db_->raw()) > 0) {
+      KP_ASSIGN_OR_RETURN(auto ev, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at)"
+                                                " SELECT id, COALESCE(progress_t_s, 0), 'interrupted', ?1, ?2 FROM runs WHERE id=?3"));
+      KP_RETURN_IF_ERROR(ev.Bind(1, "interrupted: " + why).Bind(2, wall_.WallTimeIso()).Bind(3, id).Run());
+      ++marked;
+    }
+    KP_RETURN_IF_ERROR(Commit());
   }
-  return static_cast<int>(gone.size());
+  return marked;
 }
 
 namespace {
@@ -428,6 +590,28 @@ Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
     if (!q.IsNull(5)) s.ended_s = q.Real(5);
     s.end_reason = q.Text(6);
     out.push_back(std::move(s));
+  }
+  return out;
+}
+
+Result<std::optional<RunProgress>> Store::LoadProgress(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT engine_snapshot, progress_t_s, delivered_mah, delivered_wh FROM runs WHERE id=?1"));
+  q.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool row, q.Step());
+  if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  if (q.IsNull(0)) return std::optional<RunProgress>();
+  return std::optional<RunProgress>(RunProgress{q.Text(0), q.Real(1), q.Real(2), q.Real(3)});
+}
+
+Result<std::vector<Sample>> Store::LatestSamples(int64_t run_id, int n) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, voltage_v, current_a, temperature_c, step FROM"
+                                           " (SELECT * FROM samples WHERE run_id=?1 ORDER BY seq DESC LIMIT ?2) ORDER BY seq"));
+  q.Bind(1, run_id).Bind(2, static_cast<int64_t>(n));
+  std::vector<Sample> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back(Sample{q.Real(0), q.Real(1), q.Real(2), q.Real(3), static_cast<int>(q.Int(4))});
   }
   return out;
 }

@@ -25,7 +25,7 @@
 
 namespace kp {
 
-inline constexpr int kSchemaVersion = 1;
+inline constexpr int kSchemaVersion = 2;
 
 enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
 const char* OutcomeName(Outcome o);
@@ -53,6 +53,24 @@ struct RunRow {
   Outcome outcome = Outcome::kRunning;
   std::string reason;
   int64_t sample_count = 0;
+};
+
+// Where a run stands, written in the same transaction as the samples it
+// accounts for, so a killed run can resume exactly from its last commit.
+struct RunProgress {
+  std::string engine_snapshot;  // StepEngine::Snapshot after the latest sample
+  double t_s = 0.0;             // run time of that sample
+  double delivered_mah = 0.0;   // since the run started, all segments
+  double delivered_wh = 0.0;
+};
+
+// What a reopened (resumed) run continues from.
+struct ReopenedRun {
+  int64_t next_seq = 0;                // first sample seq of the resumed part
+  std::optional<Sample> last_sample;   // the latest committed sample
+  std::optional<RunProgress> progress; // empty when the run never committed one
+  double gap_s = 0.0;                  // wall seconds since the runner last committed
+  int resumes = 0;                     // how many times it was resumed before
 };
 
 struct EventRow {
@@ -87,6 +105,7 @@ class Store {
     double commit_interval_s = 1.0;  // wall seconds between batch commits
     bool create = true;
     bool read_only = false;
+    std::string vfs;  // SQLite VFS name; empty = default (tests inject faults with a wrapper)
   };
   // Opens or creates `path`, migrating an older schema in a transaction;
   // refuses a newer schema. `wall` times the batch commits.
@@ -98,6 +117,17 @@ class Store {
   Result<int64_t> BeginRun(const NewRun& run);
   // Buffered into the open batch; commits when the batch is a second old.
   Status AppendSample(int64_t run_id, const Sample& s);
+  // Buffers a sample without ever committing; pair with SetProgress +
+  // MaybeCommit so the progress always matches the committed samples.
+  Status StageSample(int64_t run_id, const Sample& s);
+  // Remembers where the run stands; written with the next commit.
+  void SetProgress(int64_t run_id, RunProgress progress);
+  // Takes over an interrupted run as this process's run: outcome back to
+  // running, this process as runner, sample numbering continued. Refuses a run
+  // that is not interrupted.
+  Result<ReopenedRun> ReopenRun(int64_t run_id);
+  // Samples committed so far in this store's current run (for crash tests and progress displays).
+  int64_t committed_samples() const { return committed_seq_; }
   Status BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s);
   Status EndStep(int64_t run_id, double t_s, std::string_view reason);
   // Events commit the open batch with them.
@@ -123,6 +153,10 @@ class Store {
   Status ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn);
   Result<std::vector<EventRow>> LoadEvents(int64_t run_id);
   Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
+  // The progress last committed with the run's samples, if any.
+  Result<std::optional<RunProgress>> LoadProgress(int64_t run_id);
+  // The latest `n` samples of a run, oldest first (live displays).
+  Result<std::vector<Sample>> LatestSamples(int64_t run_id, int n);
 
   Result<int> SchemaVersion();
   Result<std::string> JournalMode();
@@ -132,6 +166,7 @@ class Store {
   Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options);
   Status Migrate();
   Status EnsureBatch();
+  Status ClaimRunner(int64_t run_id);
   Result<int64_t> EnsureCell(const NewRun& run);
 
   std::unique_ptr<sql::Db> db_;
@@ -142,6 +177,9 @@ class Store {
   int64_t next_seq_ = 0;
   int64_t seq_run_ = -1;
   int64_t step_seq_ = 0;
+  int64_t committed_seq_ = 0;
+  std::optional<RunProgress> progress_;
+  std::optional<RunProgress> committed_progress_;  // what the database holds
   bool has_insert_ = false;
   sql::Stmt insert_sample_;
 };

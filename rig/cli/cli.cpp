@@ -89,6 +89,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterRun(registry);
   RegisterCompare(registry);
   RegisterLife(registry);
+  RegisterControl(registry);
+  RegisterResume(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

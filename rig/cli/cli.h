@@ -61,6 +61,8 @@ void RegisterCheck(CliRegistry& r);
 void RegisterRun(CliRegistry& r);
 void RegisterCompare(CliRegistry& r);
 void RegisterLife(CliRegistry& r);
+void RegisterControl(CliRegistry& r);  // abort / pause / continue
+void RegisterResume(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

@@ -1,0 +1,51 @@
+// `abort`, `pause`, `continue`: steer a run from another process. Each writes
+// a request row; the runner acts on it within one sample period and records
+// who asked.
+#include <fmt/format.h>
+
+#include <iostream>
+
+#include "rig/cli/cli.h"
+#include "rig/cli/db_open.h"
+#include "rig/control_channel.h"
+
+namespace kp::cli {
+namespace {
+
+struct ControlOptions {
+  std::string db_path = "kneepoint.db";
+  int64_t run_id = 0;
+  std::string as;
+};
+
+int Request(const ControlOptions& opt, ControlAction action) {
+  SteadyClock wall;
+  auto store = OpenExistingDb(opt.db_path, wall);
+  if (!store.ok()) return Fail(store.status());
+  std::string who = opt.as.empty() ? DefaultRequester() : opt.as;
+  if (Status st = ControlChannel::Request(**store, opt.run_id, action, who); !st.ok()) return Fail(st);
+  std::cout << fmt::format(
+      "{} requested for run {} by {}; the runner acts within one sample period (see `kneepoint report {}`)\n",
+      ControlActionName(action), opt.run_id, who, opt.run_id);
+  return kExitOk;
+}
+
+void AddOne(CliRegistry& r, const char* name, const char* help, ControlAction action) {
+  static ControlOptions opts[3];
+  ControlOptions& opt = opts[static_cast<int>(action)];
+  opt = ControlOptions{};  // fresh defaults for each command line parsed
+  CLI::App* c = r.Add(name, help, [&opt, action] { return Request(opt, action); });
+  c->add_option("RUN", opt.run_id, "Run id (see `kneepoint runs`)")->required();
+  c->add_option("--db", opt.db_path, "Database file")->capture_default_str();
+  c->add_option("--as", opt.as, "Who is asking (default: user@host)");
+}
+
+}  // namespace
+
+void RegisterControl(CliRegistry& r) {
+  AddOne(r, "abort", "Ask the runner of a run to stop it (load off, run aborted)", ControlAction::kAbort);
+  AddOne(r, "pause", "Ask the runner to pause a run (load off, sampling goes on)", ControlAction::kPause);
+  AddOne(r, "continue", "Ask the runner to continue a paused run", ControlAction::kContinue);
+}
+
+}  // namespace kp::cli

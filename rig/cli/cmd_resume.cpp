@@ -1,0 +1,87 @@
+// `resume`: continue an interrupted run on the same rig.
+#include <fmt/format.h>
+
+#include <fstream>
+#include <iostream>
+#include <sstream>
+
+#include "rig/cli/cli.h"
+#include "rig/cli/db_open.h"
+#include "rig/control_channel.h"
+#include "rig/resume.h"
+#include "rig/rig.h"
+#include "rig/run_lock.h"
+
+namespace kp::cli {
+namespace {
+
+struct ResumeOptions {
+  std::string db_path = "kneepoint.db";
+  int64_t run_id = 0;
+  std::string rig = "sim";
+  double speed = 0.0;
+  std::string procedure_file;
+};
+
+int RunResume(const ResumeOptions& opt) {
+  std::optional<std::string> expected;
+  if (!opt.procedure_file.empty()) {
+    std::ifstream in(opt.procedure_file);
+    if (!in) return Fail(NotFound(fmt::format("cannot read procedure file '{}'", opt.procedure_file)));
+    std::ostringstream text;
+    text << in.rdbuf();
+    expected = text.str();
+  }
+  RigOpenOptions ro;
+  ro.sim_speed = opt.speed;
+  auto rig = OpenRig(opt.rig, ro);
+  if (!rig.ok()) return Fail(rig.status());
+  SteadyClock wall;
+  auto store = OpenExistingDb(opt.db_path, wall);
+  if (!store.ok()) return Fail(store.status());
+  // Database-only checks first, then the rig: nothing touches an instrument
+  // before this process holds the rig's lock.
+  auto run = (*store)->GetRun(opt.run_id);
+  if (!run.ok()) return Fail(run.status());
+  if (run->outcome != Outcome::kInterrupted)
+    return Fail(
+        InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
+  auto plan = ResumablePlan(**store, opt.run_id, RebuildBuiltInPlan, expected ? &*expected : nullptr);
+  if (!plan.ok()) return Fail(plan.status());
+  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
+  if (!lock.ok()) return Fail(lock.status());
+  auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
+  if (!point.ok()) return Fail(point.status());
+  std::cout << SafetyCautions() << "\n" << fmt::format("Resuming run {} ({}): {}\n", opt.run_id, plan->name, point->checks);
+  ControlChannel control(**store);
+  RunOptions options;
+  options.stop = InstallStopSignals();
+  options.control = &control;
+  options.resume = &*point;
+  RunController controller(**store, (*rig)->clock(), (*rig)->roles());
+  auto result = controller.Execute(*plan, options);
+  if (!result.ok()) return Fail(result.status());
+  std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
+  if (result->outcome != Outcome::kCompleted) {
+    std::fprintf(stderr, "kneepoint: run %lld %s: %s\n", static_cast<long long>(result->run_id), OutcomeName(result->outcome),
+                 result->reason.c_str());
+    return kExitFailure;
+  }
+  return kExitOk;
+}
+
+}  // namespace
+
+void RegisterResume(CliRegistry& r) {
+  static ResumeOptions opt;
+  opt = ResumeOptions{};  // fresh defaults for each command line parsed
+  CLI::App* c =
+      r.Add("resume", "Continue an interrupted run on the same rig from where it was logged", [] { return RunResume(opt); });
+  c->add_option("RUN", opt.run_id, "Run id (see `kneepoint runs`)")->required();
+  c->add_option("--db", opt.db_path, "Database file")->capture_default_str();
+  c->add_option("--rig", opt.rig, "Rig: 'sim' or a rig file")->capture_default_str();
+  c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0 = virtual time)");
+  c->add_option("--procedure", opt.procedure_file, "Refuse unless this file is the procedure stored with the run");
+}
+
+}  // namespace kp::cli
