@@ -1,5 +1,7 @@
 #include "rig/resume.h"
 
+#include "procedures/procedure_parser.h"
+
 #include <fmt/format.h>
 
 #include <cstdlib>
@@ -130,6 +132,15 @@ Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan
   point.run_id = run_id;
   point.checks = fmt::format("cell re-checked with the load off: {:.3f} V, {:.1f} degC", volts, temp_c);
   return point;
+}
+
+Result<Plan> RebuildStoredPlan(const RunRow& run) {
+  if (run.procedure_name == RatedCapacityPlan(CellSpec{}).name) return RebuildBuiltInPlan(run);
+  Result<Plan> plan = CompileProcedure(run.procedure_text, run.procedure_name);
+  if (!plan.ok()) return plan.status().WithContext(fmt::format("run {}: the stored procedure no longer compiles", run.id));
+  if (plan->name != run.procedure_name)
+    return InvalidInput(fmt::format("run {}: the stored procedure compiles to '{}', not '{}'", run.id, plan->name, run.procedure_name));
+  return plan;
 }
 
 }  // namespace kp

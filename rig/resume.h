@@ -30,6 +30,11 @@ using PlanRebuilder = std::function<Result<Plan>(const RunRow&)>;
 // identical, so a plan whose built-in definition changed is refused.
 Result<Plan> RebuildBuiltInPlan(const RunRow& run);
 
+// Rebuilder for every run: built-in plans as above, procedure files by
+// compiling the stored text again (so `resume` never reads a file that may
+// have changed since the run started).
+Result<Plan> RebuildStoredPlan(const RunRow& run);
+
 // The run's plan via `rebuild`, refusing when it cannot be rebuilt exactly or
 // when `expected_text` (a procedure file the operator named) differs from the
 // stored text.

@@ -1,8 +1,10 @@
 #include "rig/rig.h"
 
 #include <fmt/format.h>
+#include <unistd.h>
 
 #include "rig/rig_file.h"
+#include "drivers/scpi_trace.h"
 #include "rig/sim_rig.h"
 
 namespace kp {
@@ -17,8 +19,11 @@ class BuiltInSimRig final : public Rig {
   }
   RigRoles roles() override { return sim_.roles(); }
   BenchLimits limits() const override { return limits_; }
+  SimRig& sim() { return sim_; }
   Clock& clock() override { return *clock_; }
-  std::string LockKey() const override { return "sim"; }
+  // Each process simulates its own bench: nothing to share, so the key is
+  // this process's own and never refuses another runner.
+  std::string LockKey() const override { return fmt::format("sim-process-{}", static_cast<long>(getpid())); }
 
  private:
   std::unique_ptr<Clock> clock_;
@@ -29,7 +34,14 @@ class BuiltInSimRig final : public Rig {
 }  // namespace
 
 Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptions& options) {
-  if (spec == "sim") return std::unique_ptr<Rig>(new BuiltInSimRig(options));
+  if (spec == "sim") {
+    auto rig = std::make_unique<BuiltInSimRig>(options);
+    if (!options.trace_path.empty()) {
+      KP_ASSIGN_OR_RETURN(ScpiTraceHook trace, OpenTraceFile(options.trace_path));
+      rig->sim().SetTrace(trace);
+    }
+    return std::unique_ptr<Rig>(std::move(rig));
+  }
   if (spec.ends_with(".toml")) {
     KP_ASSIGN_OR_RETURN(RigFileSpec file, LoadRigFile(spec));
     return OpenFileRig(file, options);

@@ -265,8 +265,10 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
   engine_.Integrate(*prev_);  // integration restarts from the held, load-off reading
-  Status st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "resume" : "control", released_by);
-  if (st.ok()) st = Handle(*out);
+  // Setpoint first (inside Handle), then the record: the load comes back on
+  // right after the reading that released the hold.
+  Status st = Handle(*out);
+  if (st.ok()) st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "resume" : "control", released_by);
   if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
   return std::nullopt;
 }
@@ -311,8 +313,11 @@ Result<RunResult> RunSession::Run() {
       if (!restored.ok()) return Finish(Outcome::kAborted, "could not resume: " + restored.status().ToString(), "fault");
       out = *restored;
       engine_.Integrate(*ocv);
-      // Progress first: the event below commits the staged reading with it.
+      // Progress first: what follows commits the staged reading with it. The
+      // setpoint goes out before the gap is recorded, so the load comes on
+      // right after the reading that starts the resumed segment.
       NoteProgress(engine_.Snapshot(t_s_));
+      if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
       Status st = rc_.store_.AddEvent(
           run_id_, t_s_, "gap",
           fmt::format("resumed after {:.0f} s unattended (last sample at t={:.1f} s, {:.2f} mAh / {:.4f} Wh so far); {}",
@@ -320,9 +325,9 @@ Result<RunResult> RunSession::Run() {
       if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     } else {
       out = engine_.Start(t_s_, *ocv);
+      NoteProgress(engine_.Snapshot(t_s_));
+      if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not start: " + st.ToString(), "fault");
     }
-    NoteProgress(engine_.Snapshot(t_s_));
-    if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not start: " + st.ToString(), "fault");
 
     while (!engine_.finished()) {
       rc_.clock_.SleepUntil(t0_ + Seconds(engine_.NextWakeup()), options_.stop);

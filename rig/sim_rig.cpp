@@ -23,4 +23,9 @@ RigRoles SimRig::roles() { RigRoles r;
   r.description = "sim";
   return r; }
 
+void SimRig::SetTrace(const ScpiTraceHook& hook) {
+  for (ScpiSession* s : {load_session_.get(), meter_session_.get(), thermo_session_.get(), supply_session_.get()})
+    if (s != nullptr) s->SetTrace(hook);
+}
+
 }  // namespace kp

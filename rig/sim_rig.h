@@ -23,6 +23,8 @@ class SimRig {
   sim::SimBench& bench() { return bench_; }
   ScpiSession& load_session() { return *load_session_; }
   ScpiSession& supply_session() { return *supply_session_; }
+  // Traces every exchange of the four simulated instruments.
+  void SetTrace(const ScpiTraceHook& hook);
 
  private:
   sim::SimBench bench_;

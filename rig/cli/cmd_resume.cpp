@@ -46,7 +46,7 @@ int RunResume(const ResumeOptions& opt) {
   if (run->outcome != Outcome::kInterrupted)
     return Fail(
         InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
-  auto plan = ResumablePlan(**store, opt.run_id, RebuildBuiltInPlan, expected ? &*expected : nullptr);
+  auto plan = ResumablePlan(**store, opt.run_id, RebuildStoredPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());

@@ -9,6 +9,8 @@
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
+#include "rig/control_channel.h"
+#include "rig/run_lock.h"
 #include "rig/rig.h"
 #include "rig/run_controller.h"
 #include "rig/run_report.h"
@@ -22,6 +24,7 @@ struct RunCmdOptions {
   std::string rig;
   std::string db;
   std::string cell;
+  std::string trace;
   double speed = 0.0;
   double progress_s = 600.0;
 };
@@ -29,6 +32,7 @@ struct RunCmdOptions {
 int RunRun(const RunCmdOptions& opt) {
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
+  ro.trace_path = opt.trace;
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
@@ -52,8 +56,14 @@ int RunRun(const RunCmdOptions& opt) {
   auto store = Store::Open(opt.db, wall);
   if (!store.ok()) return Fail(store.status());
 
+  // One runner per rig: nothing is switched on before this process holds the
+  // instruments' lock.
+  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
+  if (!lock.ok()) return Fail(lock.status());
+  ControlChannel control(**store);
   RunController controller(**store, (*rig)->clock(), roles);
   RunOptions run;
+  run.control = &control;
   run.cell_name = cell;
   run.stop = InstallStopSignals();
   run.stop_reason = "stopped by operator (signal)";
@@ -69,6 +79,8 @@ int RunRun(const RunCmdOptions& opt) {
   auto result = controller.Execute(*plan, run);
   if (!result.ok()) return Fail(result.status());
   std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
+  if (result->outcome != Outcome::kCompleted)
+    std::cerr << fmt::format("kneepoint: run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
   if (auto events = (*store)->LoadEvents(result->run_id); events.ok()) {
     for (const EventRow& e : *events)
       if (e.kind == "result" || e.kind == "pause" || e.kind == "resume")
@@ -89,6 +101,7 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--cell", opt.cell, "Name of the cell under test (required on real rigs)");
   c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")
       ->capture_default_str();
+  c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
 }
 

@@ -34,7 +34,8 @@ int RunSim(SimCmdOptions o) {
   sim::SimOptions so;
   so.runaway_start_s = o.runaway_at_s;
   sim::SimBench bench(sim::DemoLiIonCell(o.capacity_ah), clock, so);
-  std::vector<sim::ServedDevice> devices{{"load", &bench.load()}, {"meter", &bench.meter()}, {"thermometer", &bench.thermometer()}};
+  std::vector<sim::ServedDevice> devices{{"load", &bench.load()}, {"meter", &bench.meter()}, {"thermometer", &bench.thermometer()},
+                                         {"supply", &bench.supply()}};
   auto note = o.verbose ? std::function<void(std::string_view)>([](std::string_view m) { std::cerr << "sim: " << m << "\n"; }) : nullptr;
   auto server = sim::SimServer::Start(*listen, devices, o.faults, note);
   if (!server.ok()) return Fail(server.status());
