@@ -97,6 +97,8 @@ class MeterDriver {
   // load and a real meter's last digit never sit still that long.
   void SetStuckLimit(int readings) { stuck_limit_ = readings; }
 
+  ScpiSession& session() { return session_; }
+
  private:
   ScpiSession& session_;
   MeterCommands cmd_;
@@ -117,6 +119,8 @@ class ThermometerDriver {
       : session_(session), cmd_(std::move(commands)) {}
   Result<double> MeasureTemperature();
   void SetCalibration(Calibration temperature) { cal_ = temperature; }
+
+  ScpiSession& session() { return session_; }
 
  private:
   ScpiSession& session_;

@@ -102,6 +102,10 @@ class RunSession {
   Result<Reading> TakeReading();
   Status LogSample(const Reading& r, int step, bool force);
   Status Handle(const EngineOutput& out);
+  // Logs a "retry" event when any instrument session had to repeat an
+  // exchange since the last check (the run went on; the trace has details).
+  Status NoteRetries();
+
   // Records where the run stands; committed with the next batch so a killed
   // run resumes from exactly its last committed sample.
   void NoteProgress(const std::string& snapshot) {
@@ -134,7 +138,26 @@ class RunSession {
   int last_logged_step_ = -1;
   bool after_edge_ = true;  // the first reading after the load is applied
   std::string last_reason_;
+  int retries_seen_ = 0;
 };
+
+int TotalRetries(const RigRoles& roles) {
+  int total = roles.load->session().retry_count();
+  if (roles.meter != nullptr) total += roles.meter->session().retry_count();
+  if (roles.thermometer != nullptr) total += roles.thermometer->session().retry_count();
+  if (roles.supply != nullptr) total += roles.supply->session().retry_count();
+  return total;
+}
+
+Status RunSession::NoteRetries() {
+  int total = TotalRetries(rc_.roles_);
+  if (total == retries_seen_) return Status::Ok();
+  int fresh = total - retries_seen_;
+  retries_seen_ = total;
+  return rc_.store_.AddEvent(run_id_, t_s_, "retry",
+                             fmt::format("{} instrument exchange{} repeated after a timeout, drop or garbled reply ({} in this run)",
+                                         fresh, fresh == 1 ? "" : "s", total));
+}
 
 RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_view kind) {
   rc_.SafeOff();
@@ -281,6 +304,7 @@ Result<RunResult> RunSession::Run() {
     delivered_wh_ = reopened_->progress->delivered_wh;
   }
   t0_ = rc_.clock_.Now() - Seconds(t_s_);
+  retries_seen_ = TotalRetries(rc_.roles_);  // sessions outlive runs: count this run's only
   try {
     // Bring the load to a known, inert state before anything else.
     if (Status st = rc_.roles_.load->SetInput(false); !st.ok())
@@ -361,6 +385,7 @@ Result<RunResult> RunSession::Run() {
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
       NoteProgress(engine_.Snapshot(t_s_));
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
+      if (Status st = NoteRetries(); !st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
       if (Status st = rc_.store_.MaybeCommit(); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     }

@@ -129,3 +129,37 @@ TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// A meter that drops every fifth reply: the session retries, the run completes
+// with every sample, and the retries are in the run's log.
+TEST(RunController, RetriedExchangesAreLoggedAndTheRunCompletes) {
+  Fixture f;
+  sim::SimBench bench(sim::DemoLiIonCell(2.56), f.clock);
+  testing::FaultyDevice flaky(bench.meter());
+  flaky.drop_every = 5;
+  ScpiSession load_s(std::make_unique<InProcTransport>(bench.load(), f.clock), f.clock);
+  ScpiSession meter_s(std::make_unique<InProcTransport>(flaky, f.clock), f.clock);
+  ScpiSession temp_s(std::make_unique<InProcTransport>(bench.thermometer(), f.clock), f.clock);
+  LoadDriver load(load_s);
+  MeterDriver meter(meter_s);
+  ThermometerDriver thermo(temp_s);
+  RunController rc(*f.store, f.clock, RigRoles{&load, &meter, &thermo, nullptr, "test"});
+  Plan p = RatedCapacityPlan(Cell2500());
+  p.steps[0].end.voltage_below_v.reset();
+  p.steps[0].end.time_s = 60;
+  auto r = rc.Execute(p, {});
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+  int logged_retries = 0;
+  for (const EventRow& e : *f.store->LoadEvents(r->run_id))
+    if (e.kind == "retry") ++logged_retries;
+  EXPECT_GT(logged_retries, 5);
+  EXPECT_GT(meter_s.retry_count(), 5);
+  EXPECT_FALSE(bench.load_input_on());
+}
+
+}  // namespace
+}  // namespace kp
