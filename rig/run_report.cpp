@@ -1,5 +1,8 @@
 #include "rig/run_report.h"
 
+#include "procedures/procedure_parser.h"
+#include "rig/commanded_segments.h"
+
 #include <fmt/format.h>
 
 #include <algorithm>
@@ -58,6 +61,13 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
     auto it = std::lower_bound(smp.begin(), smp.end(), e.t_s, [](const Sample& a, double t) { return a.t_s < t; });
     if (it == smp.begin() || it == smp.end()) continue;
     ctx.recorded_gaps.push_back({(it - 1)->t_s, it->t_s, it->step});
+  }
+  // The procedure stored with the run gives the commanded pulse / duty-cycle
+  // timeline (and the end voltage when no step ended on it).
+  ParseOutput parsed = ParseProcedure(rep.run.procedure_text, rep.run.procedure_name);
+  if (parsed.ok()) {
+    ctx.segments = CommandedSegmentsFor(parsed.plan, rep.steps, events);
+    if (!ctx.cutoff_v && parsed.plan.cell.cutoff_v > 0) ctx.cutoff_v = parsed.plan.cell.cutoff_v;
   }
   rep.analysis = AnalyseRun(rep.samples, ctx);
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
