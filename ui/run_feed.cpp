@@ -112,7 +112,7 @@ void RunFeed::Drain(FeedState& state) {
       d.events = std::move(p.events);
       d.steps = std::move(p.steps);
       d.requests = std::move(p.requests);
-      d.limits = ScanLimits(d.row.procedure_text, d.steps);
+      d.limits = LimitsForRun(d.row.procedure_text, d.row.procedure_name, d.steps);
     }
     d.backlog.insert(d.backlog.end(), p.samples.begin(), p.samples.end());
   }

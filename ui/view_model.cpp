@@ -1,5 +1,7 @@
 #include "ui/view_model.h"
 
+#include "procedures/procedure_parser.h"
+
 #include <algorithm>
 #include <cctype>
 #include <cmath>
@@ -109,6 +111,18 @@ DrawnLimits ScanLimits(const std::string& procedure_text, const std::vector<Step
       if (d.cutoff_v) break;
     }
   }
+  return d;
+}
+
+DrawnLimits LimitsForRun(const std::string& procedure_text, const std::string& procedure_name, const std::vector<StepRow>& steps) {
+  ParseOutput parsed = ParseProcedure(procedure_text, procedure_name);
+  if (!parsed.ok()) return ScanLimits(procedure_text, steps);
+  const Plan& p = parsed.plan;
+  DrawnLimits d;
+  if (p.cell.cutoff_v > 0) d.cutoff_v = p.cell.cutoff_v;
+  if (p.limits.min_voltage_v > 0) d.min_voltage_v = p.limits.min_voltage_v;
+  if (std::isfinite(p.limits.max_voltage_v)) d.max_voltage_v = p.limits.max_voltage_v;
+  if (std::isfinite(p.limits.max_temp_c)) d.max_temp_c = p.limits.max_temp_c;
   return d;
 }
 

@@ -57,6 +57,11 @@ struct DrawnLimits {
 // cutoff.
 DrawnLimits ScanLimits(const std::string& procedure_text, const std::vector<StepRow>& steps);
 
+// The limits of the procedure stored with a run: compiled with the procedure
+// parser (cell cutoff, safety min/max voltage, max temperature); text the
+// parser refuses (an older or hand-written record) falls back to ScanLimits.
+DrawnLimits LimitsForRun(const std::string& procedure_text, const std::string& procedure_name, const std::vector<StepRow>& steps);
+
 // One line of the runs list.
 struct RunListRow {
   int64_t id = 0;

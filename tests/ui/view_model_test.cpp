@@ -134,3 +134,28 @@ TEST(CurrentStep, TakesTheLatest) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+TEST(LimitsForRun, ComesFromTheCompiledProcedure) {
+  const char* text =
+      "name \"limits\"\n"
+      "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n"
+      "safety max-temp=52degC\n"
+      "discharge 0.2C until voltage<=2.75V\n";
+  DrawnLimits d = LimitsForRun(text, "limits", {});
+  ASSERT_TRUE(d.cutoff_v);
+  EXPECT_DOUBLE_EQ(*d.cutoff_v, 2.75);
+  ASSERT_TRUE(d.max_temp_c);
+  EXPECT_DOUBLE_EQ(*d.max_temp_c, 52.0);
+  ASSERT_TRUE(d.max_voltage_v);
+  EXPECT_GE(*d.max_voltage_v, 4.2);
+  // A record the parser refuses still gets what the text states.
+  DrawnLimits old = LimitsForRun("cutoff 3.0 V\n", "old", {});
+  ASSERT_TRUE(old.cutoff_v);
+  EXPECT_DOUBLE_EQ(*old.cutoff_v, 3.0);
+}
+
+}  // namespace
+}  // namespace kp::ui
