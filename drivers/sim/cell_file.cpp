@@ -271,4 +271,18 @@ CellParams DemoLiIonCell(double capacity_ah) {
   return out;
 }
 
+CellParams ScaleCell(const CellParams& cell, double rated_ah) {
+  CellParams c = cell;
+  if (rated_ah <= 0 || cell.rated_ah <= 0) return c;
+  const double f = rated_ah / cell.rated_ah;
+  c.rated_ah *= f;
+  c.capacity_ah *= f;
+  c.r0_ohm /= f;
+  c.r1_ohm /= f;
+  c.r2_ohm /= f;
+  c.heat_capacity_j_per_k *= f;
+  c.thermal_resistance_k_per_w /= f;
+  return c;
+}
+
 }  // namespace kp::sim

@@ -55,4 +55,10 @@ Result<CellPreset> LoadCell(std::string_view name_or_path);
 // A zero spread returns the nominal cell unchanged.
 CellParams VaryCell(const CellParams& nominal, const CellSpread& spread, uint64_t seed);
 
+// The same design built to another rating: capacity, rated capacity and heat
+// capacity scale with `rated_ah / cell.rated_ah`, resistances and the thermal
+// resistance to ambient inversely (as cells in parallel would); voltages and
+// time constants stay.
+CellParams ScaleCell(const CellParams& cell, double rated_ah);
+
 }  // namespace kp::sim

@@ -3,9 +3,11 @@
 // cleanly: load off, run recorded as aborted by the operator.
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
 #include <iostream>
 
+#include "drivers/sim/cell_file.h"
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
@@ -25,6 +27,8 @@ struct RunCmdOptions {
   std::string db;
   std::string cell;
   std::string trace;
+  std::string sim_cell;
+  uint64_t sim_seed = 0;
   double speed = 0.0;
   double progress_s = 600.0;
 };
@@ -32,6 +36,29 @@ struct RunCmdOptions {
 int RunRun(const RunCmdOptions& opt) {
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
+  if (opt.rig == "sim") {
+    // The simulated cell matches the procedure's cell header: the preset of
+    // its chemistry (or --sim-cell), built to its rated capacity.
+    auto draft = LoadProcedure(opt.file);
+    if (!draft.ok()) {
+      std::cerr << draft.status().message() << "\n";
+      return ExitCodeFor(draft.status());
+    }
+    std::string preset = opt.sim_cell;
+    if (preset.empty()) {
+      auto names = sim::BuiltInCellNames();
+      bool known = std::find(names.begin(), names.end(), draft->cell.chemistry) != names.end();
+      preset = known ? draft->cell.chemistry : "li-ion";
+      if (!known)
+        std::cerr << fmt::format("kneepoint: no simulated '{}' cell; simulating a li-ion cell (choose one with --sim-cell)\n",
+                                 draft->cell.chemistry);
+    }
+    auto cell = sim::LoadCell(preset);
+    if (!cell.ok()) return Fail(cell.status());
+    sim::CellParams params = sim::ScaleCell(cell->params, draft->cell.rated_mah / 1000.0);
+    if (opt.sim_seed != 0) params = sim::VaryCell(params, cell->spread, opt.sim_seed);
+    ro.sim_cell = params;
+  }
   ro.trace_path = opt.trace;
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
@@ -101,6 +128,9 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--cell", opt.cell, "Name of the cell under test (required on real rigs)");
   c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")
       ->capture_default_str();
+  c->add_option("--sim-cell", opt.sim_cell, "Simulator only: cell preset (li-ion, lifepo4, nimh, alkaline) or cell file")
+      ->capture_default_str();
+  c->add_option("--sim-seed", opt.sim_seed, "Simulator only: draw one cell of the preset's batch (0: the nominal cell)");
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
 }

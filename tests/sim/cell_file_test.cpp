@@ -165,3 +165,26 @@ TEST(CellFile, SpreadIsOptional) {
 
 }  // namespace
 }  // namespace kp::sim
+
+namespace kp::sim {
+namespace {
+
+// Cells of one design in parallel: twice the rating stores twice the charge
+// behind half the resistance (Ohm's law for parallel paths, textbook).
+TEST(ScaleCell, ParallelDesignRule) {
+  auto li = BuiltInCell("li-ion");
+  ASSERT_TRUE(li.ok());
+  const CellParams& a = li->params;
+  CellParams b = ScaleCell(a, 2.0 * a.rated_ah);
+  EXPECT_DOUBLE_EQ(b.capacity_ah, 2.0 * a.capacity_ah);
+  EXPECT_DOUBLE_EQ(b.rated_ah, 2.0 * a.rated_ah);
+  EXPECT_DOUBLE_EQ(b.r0_ohm, a.r0_ohm / 2.0);
+  EXPECT_DOUBLE_EQ(b.r2_ohm, a.r2_ohm / 2.0);
+  EXPECT_DOUBLE_EQ(b.tau1_s, a.tau1_s);
+  EXPECT_EQ(b.ocv_table, a.ocv_table);
+  CellParams same = ScaleCell(a, 0.0);  // no rating: unchanged
+  EXPECT_DOUBLE_EQ(same.capacity_ah, a.capacity_ah);
+}
+
+}  // namespace
+}  // namespace kp::sim
