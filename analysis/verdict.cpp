@@ -15,7 +15,7 @@ CapacityMethod MethodForChemistry(std::string_view chemistry) {
   if (c == "nimh" || c == "ni-mh") {
     m.name = "IEC 61951-2 rated capacity (0.2 It to 1.0 V)";
     m.end_voltage_v = 1.0;
-  } else if (c.find("li") != std::string::npos) {
+  } else if (c.rfind("li", 0) == 0 || c.find("lithium") != std::string::npos) {  // li-ion, lifepo4, li-mno2...; not "alkaline"
     m.name = "IEC 61960-3 7.3.1 rated capacity (0.2 It to end voltage)";
   } else {
     m.name = "delivered >= rated at 0.2 It";

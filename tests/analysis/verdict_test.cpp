@@ -124,3 +124,18 @@ TEST(RunAnalysis, RecordedAndDetectedGapsMerge) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// Regression: "alkaline" contains the letters "li" but is not a lithium cell;
+// IEC 61960-3 covers secondary lithium cells only (from memory).
+TEST(MethodForChemistry, AlkalineIsNotJudgedAsLithium) {
+  EXPECT_EQ(MethodForChemistry("alkaline").name.find("61960"), std::string::npos);
+  EXPECT_NE(MethodForChemistry("li-ion").name.find("61960"), std::string::npos);
+  EXPECT_NE(MethodForChemistry("LiFePO4").name.find("61960"), std::string::npos);
+  EXPECT_NE(MethodForChemistry("NiMH").name.find("61951"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace kp
