@@ -4,9 +4,6 @@
 BUILD    ?= build
 JOBS     ?= $(shell nproc 2>/dev/null || echo 2)
 SUDO     := $(shell [ "$$(id -u)" = 0 ] || echo sudo)
-# ccache (when installed) keys objects by paths relative to the checkout, so
-# clones in other folders share the cache.
-export CCACHE_BASEDIR := $(CURDIR)
 
 # Everything the build, the tests, the benchmarks and the headless panel need.
 PKGS := build-essential cmake ninja-build pkg-config ccache \
