@@ -349,18 +349,18 @@ std::string DemoSummaryText(const DemoFigures& f) {
                      OutcomeName(r.outcome), r.discharge_mah, r.discharge_wh, r.discharge_h, r.max_temperature_c);
   o += "\n";
   o += fmt::format("1 rated capacity   {:.0f} mAh at 0.2 It = {:.1f} % of the {:.0f} mAh claimed: {}\n", f.measured_mah,
-                   f.percent_of_rated, f.rated_mah, f.capacity_pass ? "PASS" : "FAIL");
+                   f.percent_of_rated, f.rated_mah, f.capacity_pass ? "PASS" : "FAIL (below the claim)");
   o += fmt::format("2 product load     duty cycle {:.0f} mAh; 2 A pulses {:.0f} mAh vs 2 A continuous {:.0f} mAh\n", f.duty_mah,
                    f.pulsed_mah, f.continuous_mah);
   for (const RatioFigures& r : f.ratios)
     o += fmt::format("                   {} / {} ({}): capacity x{:.3f}, energy x{:.3f}\n", r.pulsed_label, r.continuous_label,
                      r.basis, r.capacity_ratio, r.energy_ratio);
   if (!f.dcir.empty()) {
-    auto [lo, hi] = std::minmax_element(f.dcir.begin(), f.dcir.end(),
-                                        [](const DcirPoint& a, const DcirPoint& b) { return a.resistance_ohm < b.resistance_ohm; });
-    o += fmt::format("3 DC-IR            {} points, {:.1f} mOhm (at {:.0f} % DoD) to {:.1f} mOhm (at {:.0f} % DoD)\n", f.dcir.size(),
-                     lo->resistance_ohm * 1000.0, lo->depth_of_discharge * 100.0, hi->resistance_ohm * 1000.0,
-                     hi->depth_of_discharge * 100.0);
+    const DcirPoint& first = f.dcir.front();
+    const DcirPoint& last = f.dcir.back();
+    o += fmt::format("3 DC-IR            {} points: {:.1f} mOhm at {:.0f} % depth of discharge ... {:.1f} mOhm at {:.0f} %\n",
+                     f.dcir.size(), first.resistance_ohm * 1000.0, first.depth_of_discharge * 100.0, last.resistance_ohm * 1000.0,
+                     last.depth_of_discharge * 100.0);
   }
   if (f.peukert)
     o += fmt::format("4 Peukert          k = {:.3f} (R^2 {:.4f}) over {} currents on cell 2\n", f.peukert->exponent_k,
