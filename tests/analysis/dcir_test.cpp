@@ -81,8 +81,11 @@ TEST(Dcir, DepthCountsFromTheEndOfAPrecedingCharge) {
   std::vector<double> edges = {5410.0};
   auto pts = MeasureDcir(s, edges, DcirOptions{}, 2500.0);
   ASSERT_EQ(pts.size(), 1u);
-  EXPECT_NEAR(pts[0].delivered_mah, 250.0, 1e-9);  // 0.5 A x 0.5 h after the charge
-  EXPECT_NEAR(pts[0].depth_of_discharge, 0.1, 1e-12);
+  // The interval from 3600 s (-1 A) to 3618 s (+0.5 A) nets charge into the
+  // cell, so the fullest point is at 3618 s; from there to the last sample
+  // before the edge (5400 s): 0.5 A x 1782 s = 247.5 mAh.
+  EXPECT_NEAR(pts[0].delivered_mah, 0.5 * 1782.0 / 3.6, 1e-9);
+  EXPECT_NEAR(pts[0].depth_of_discharge, 0.5 * 1782.0 / 3.6 / 2500.0, 1e-12);
 }
 
 TEST(Dcir, EdgesWithoutSamplesAroundThemAreSkipped) {

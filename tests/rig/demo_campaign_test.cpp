@@ -142,6 +142,15 @@ TEST_F(DemoCampaignTest, DcirPointsSpanTheDischargeAndRiseTowardsEmpty) {
     EXPECT_GT(p.resistance_ohm, 0.02);
     EXPECT_LT(p.resistance_ohm, 0.3);
   }
+  // The engine measured each point itself at the pulse's end and logged it as
+  // a `result` event: the analysis of the stored samples agrees within 2 %.
+  auto events = store_->LoadEvents(RunById(f.runs[4].run_id).run_id);
+  ASSERT_TRUE(events.ok());
+  std::vector<double> engine_ohm;
+  for (const EventRow& e : *events)
+    if (e.kind == "result") engine_ohm.push_back(std::stod(e.message.substr(e.message.find("= ") + 2)));
+  ASSERT_EQ(engine_ohm.size(), f.dcir.size());
+  for (size_t i = 0; i < f.dcir.size(); ++i) EXPECT_NEAR(f.dcir[i].resistance_ohm, engine_ohm[i], 0.02 * engine_ohm[i]) << i;
   EXPECT_LT(f.dcir.front().depth_of_discharge, 0.05);
   EXPECT_GT(f.dcir.back().depth_of_discharge, 0.8);
   EXPECT_GT(f.dcir.back().resistance_ohm, f.dcir.front().resistance_ohm);
