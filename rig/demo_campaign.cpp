@@ -377,6 +377,8 @@ std::string DemoSummaryText(const DemoFigures& f) {
   if (f.life)
     o += fmt::format("5 product life     {:.0f} mAh at a real mean of {:.3f} mA: {:.0f} days ({:.2f} years)\n", f.life->capacity_mah,
                      f.life->average_current_a * 1000.0, f.life->hours / 24.0, f.life->years);
+  if (f.life)
+    for (const std::string& a : f.life->assumptions) o += fmt::format("                   - {}\n", a);
   o += fmt::format("6 failing cell     run {} {}: {}; load input {}\n", f.failing_run, OutcomeName(f.failing_outcome),
                    f.failing_reason, f.failing_load_on_after ? "STILL ON" : "off");
   o += fmt::format("\n{} runs, {:.0f} h of simulated bench time.\n", f.runs.size(), f.virtual_hours);

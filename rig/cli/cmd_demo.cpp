@@ -49,12 +49,15 @@ int RunDemo(const DemoCliOptions& opt) {
   std::cout << "\n\n";
   if (!figures.ok()) return Fail(figures.status());
   std::cout << DemoSummaryText(*figures) << "\n";
-  std::cout << fmt::format("Samples: {}   Report: {}\n\nNext:\n", opt.db, figures->index_html);
-  std::cout << fmt::format("  kneepoint view --db {}                      # the panel on these runs\n", opt.db);
-  std::cout << fmt::format("  kneepoint report {} --db {}                  # one run's figures\n", figures->duty_run, opt.db);
-  std::cout << "  kneepoint sim --listen tcp:127.0.0.1:5025 --speed 60 &           # a simulated bench over TCP\n"
-               "  kneepoint run procedures/library/continuous-2a-same-peak.kpp --rig rig/examples/sim-tcp.toml --cell sim-1 --db lab.db\n"
-               "  cp rig/examples/bench-generic.toml bench.toml   # real instruments: set addresses and profiles, then --rig bench.toml\n";
+  std::cout << fmt::format("Samples: {}   Report: {}\n\nNext (from the repository root):\n", opt.db, figures->index_html);
+  std::cout << fmt::format("  ./build/kneepoint view --db {}        # the panel on these runs\n", opt.db);
+  std::cout << fmt::format("  ./build/kneepoint report {} --db {}    # one run's figures (--html, --json, --csv)\n", figures->duty_run,
+                           opt.db);
+  std::cout << "  ./build/kneepoint sim --listen tcp:127.0.0.1:5025 --speed 60 &   # a simulated bench over TCP, then:\n"
+               "  ./build/kneepoint run procedures/library/continuous-2a-same-peak.kpp --rig rig/examples/sim-tcp.toml \\\n"
+               "      --cell sim-1 --db lab.db\n"
+               "  cp rig/examples/bench-generic.toml bench.toml   # real instruments: set their addresses and profiles,\n"
+               "                                                  # then run with --rig bench.toml\n";
   bool as_expected = figures->failing_outcome == Outcome::kAborted && !figures->failing_load_on_after;
   for (const DemoRun& r : figures->runs)
     if (r.run_id != figures->failing_run && r.outcome != Outcome::kCompleted) as_expected = false;
