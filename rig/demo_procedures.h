@@ -67,7 +67,8 @@ rest 1h every=10s log-change=2mV
 pulse 2A/2s 0A/8s until voltage<=2.75V every=2s
 )kpdemo"},
     {"node-peak-continuous.kpp", R"kpdemo(# Demo campaign, part 2c: the continuous partner of node-peak-pulses.kpp at
-# the SAME PEAK current, 2 A without interruption to the same end voltage.
+# the SAME PEAK current, 2 A without interruption to the same end voltage
+# (comparison method: common practice, no source).
 # Numbers invented.
 name "demo: 2 A peak, continuous"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
@@ -98,7 +99,7 @@ end
     {"rate-0a5.kpp", R"kpdemo(# Demo campaign, part 4: one point of the Peukert series on a second cell of
 # the same batch: full charge, rest, then a constant 0.5 A to the end voltage.
 # The time to the end voltage at each current feeds the fit C_p = I^k t
-# (Peukert 1897). Numbers invented.
+# (Peukert 1897, from memory). Numbers invented.
 name "demo: constant 0.5 A (Peukert series)"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
 safety max-temp=55degC max-time=16h
@@ -110,7 +111,7 @@ discharge 500mA until voltage<=2.75V every=5s
     {"rate-1a.kpp", R"kpdemo(# Demo campaign, part 4: one point of the Peukert series on a second cell of
 # the same batch: full charge, rest, then a constant 1 A to the end voltage.
 # The time to the end voltage at each current feeds the fit C_p = I^k t
-# (Peukert 1897). Numbers invented.
+# (Peukert 1897, from memory). Numbers invented.
 name "demo: constant 1 A (Peukert series)"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
 safety max-temp=55degC max-time=16h
@@ -122,7 +123,7 @@ discharge 1A until voltage<=2.75V every=5s
     {"rate-2a.kpp", R"kpdemo(# Demo campaign, part 4: one point of the Peukert series on a second cell of
 # the same batch: full charge, rest, then a constant 2 A to the end voltage.
 # The time to the end voltage at each current feeds the fit C_p = I^k t
-# (Peukert 1897). Numbers invented.
+# (Peukert 1897, from memory). Numbers invented.
 name "demo: constant 2 A (Peukert series)"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
 safety max-temp=55degC max-time=16h
@@ -134,7 +135,7 @@ discharge 2A until voltage<=2.75V every=5s
     {"rate-3a.kpp", R"kpdemo(# Demo campaign, part 4: one point of the Peukert series on a second cell of
 # the same batch: full charge, rest, then a constant 3 A to the end voltage.
 # The time to the end voltage at each current feeds the fit C_p = I^k t
-# (Peukert 1897). Numbers invented.
+# (Peukert 1897, from memory). Numbers invented.
 name "demo: constant 3 A (Peukert series)"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
 safety max-temp=55degC max-time=16h
@@ -146,7 +147,8 @@ discharge 3A until voltage<=2.75V every=2s
     {"failing-cell.kpp", R"kpdemo(# Demo campaign, part 6: a cell that goes wrong. The simulator is told to let
 # this cell heat itself from a few minutes into the run (its thermal-runaway
 # fault option); the over-temperature limit must switch the load off and end
-# the run as aborted, with the reason logged. Numbers invented.
+# the run as aborted, with the reason logged (limit setting: common practice,
+# no source). Numbers invented.
 name "demo: 1 It discharge, over-temperature guard"
 cell li-ion rated=2500mAh nominal=3.65V max=4.2V cutoff=2.75V max-temp=60degC
 safety max-temp=50degC when-hot=abort max-time=4h
