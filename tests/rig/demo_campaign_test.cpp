@@ -15,6 +15,7 @@
 #include "procedures/procedure_parser.h"
 #include "rig/demo_procedures.h"
 #include "rig/run_report.h"
+#include "tests/analysis/xml_check.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -228,6 +229,7 @@ TEST_F(DemoCampaignTest, EveryLinkInTheReportResolves) {
   std::stringstream ss;
   ss << in.rdbuf();
   std::string html = ss.str();
+  EXPECT_EQ(testing::CheckXml(html), "") << "index.html is not well-formed XHTML";
   std::regex href("href=\"([^\"]+)\"");
   int links = 0;
   for (auto it = std::sregex_iterator(html.begin(), html.end(), href); it != std::sregex_iterator(); ++it) {
