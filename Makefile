@@ -12,7 +12,7 @@ PKGS := build-essential cmake ninja-build pkg-config ccache \
         libgtest-dev libgmock-dev libbenchmark-dev \
         libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev \
         libgsl-dev libboost-dev \
-        xvfb xauth libgl1-mesa-dri
+        xvfb xauth libgl1-mesa-dri librsvg2-bin
 
 .PHONY: all deps configure build demo test bench clean
 

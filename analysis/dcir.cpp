@@ -23,8 +23,11 @@ std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, 
   std::vector<DcirPoint> out;
   if (s.size() < 2) return out;
   // Running charge up to sample k (trapezoid), advanced as edges move forward.
+  // Depth of discharge counts from the fullest point so far (the lowest
+  // running charge), so a record that starts with a charge step measures its
+  // depth from the end of that charge, not from the empty cell it began with.
   size_t k = 0;
-  double as = 0.0;
+  double as = 0.0, fullest_as = 0.0;
   for (double te : edges) {
     // before: last sample with t < te
     auto it = std::lower_bound(s.begin(), s.end(), te, [](const Sample& a, double t) { return a.t_s < t; });
@@ -35,6 +38,7 @@ std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, 
     size_t after = static_cast<size_t>(jt - s.begin());
     while (k < before) {
       as += 0.5 * (s[k].current_a + s[k + 1].current_a) * (s[k + 1].t_s - s[k].t_s);
+      fullest_as = std::min(fullest_as, as);
       ++k;
     }
     DcirPoint p;
@@ -46,7 +50,7 @@ std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, 
     double di = p.i2_a - p.i1_a;
     if (std::abs(di) < o.min_step_a) continue;
     p.resistance_ohm = (p.u1_v - p.u2_v) / di;
-    p.delivered_mah = as / 3.6;
+    p.delivered_mah = (as - fullest_as) / 3.6;
     p.depth_of_discharge = capacity_mah > 0 ? p.delivered_mah / capacity_mah : 0.0;
     out.push_back(p);
   }

@@ -36,8 +36,10 @@ std::vector<double> EdgesFromSegments(std::span<const CommandedSegment> segments
 std::vector<double> EdgesFromSamples(SampleSpan samples, double min_step_a);
 
 // One point per edge that has a sample before it and one at edge + delay, and
-// whose measured current change is at least min_step_a. capacity_mah scales
-// the depth of discharge (pass the rated or the delivered capacity).
+// whose measured current change is at least min_step_a. delivered_mah counts
+// from the fullest point of the record before the edge (after a charge step,
+// from its end); capacity_mah scales the depth of discharge (pass the rated or
+// the delivered capacity).
 std::vector<DcirPoint> MeasureDcir(SampleSpan samples, std::span<const double> edge_times_s, const DcirOptions& options,
                                    double capacity_mah);
 

@@ -70,6 +70,24 @@ TEST(Dcir, ResistanceVersusDepthOfDischarge) {
   EXPECT_EQ(EdgesFromSamples(s, o.min_step_a), edges);
 }
 
+// A record that starts with a charge: depth of discharge counts from the end
+// of the charge (the fullest point), not from the record's start (Q = I·t).
+TEST(Dcir, DepthCountsFromTheEndOfAPrecedingCharge) {
+  std::vector<Sample> s;
+  for (int k = 0; k <= 100; ++k) s.push_back({k * 36.0, 4.1, -1.0, 25, 0});        // 1 A into the cell for 1 h
+  for (int k = 1; k <= 100; ++k) s.push_back({3600.0 + k * 18.0, 3.8, 0.5, 25, 1});  // 0.5 A out for 0.5 h
+  s.push_back({5410.0, 3.7, 2.5, 25, 2});
+  s.push_back({5411.0, 3.7, 2.5, 25, 2});
+  std::vector<double> edges = {5410.0};
+  auto pts = MeasureDcir(s, edges, DcirOptions{}, 2500.0);
+  ASSERT_EQ(pts.size(), 1u);
+  // The interval from 3600 s (-1 A) to 3618 s (+0.5 A) nets charge into the
+  // cell, so the fullest point is at 3618 s; from there to the last sample
+  // before the edge (5400 s): 0.5 A x 1782 s = 247.5 mAh.
+  EXPECT_NEAR(pts[0].delivered_mah, 0.5 * 1782.0 / 3.6, 1e-9);
+  EXPECT_NEAR(pts[0].depth_of_discharge, 0.5 * 1782.0 / 3.6 / 2500.0, 1e-12);
+}
+
 TEST(Dcir, EdgesWithoutSamplesAroundThemAreSkipped) {
   std::vector<Sample> s = {{0, 3.7, 0.1, 25, 0}, {1, 3.6, 1.0, 25, 0}};
   std::vector<double> edges = {0.0, 1.0, 5.0};
