@@ -135,10 +135,13 @@ SegmentIntegration IntegrateBySegments(SampleSpan s, std::span<const CommandedSe
     double len = g.t_end_s - g.t_start_s;
     if (len <= 0) continue;
     ++r.segments;
-    while (i < s.size() && s[i].t_s < g.t_start_s) last_v = s[i++].voltage_v;
+    // A reading exactly on an edge is taken before the new setpoint goes out
+    // (the engine's convention), so it belongs to the segment that ends there:
+    // a segment owns the samples in (start, end].
+    while (i < s.size() && s[i].t_s <= g.t_start_s) last_v = s[i++].voltage_v;
     double sum_i = 0.0, sum_p = 0.0;
     size_t n = 0;
-    for (size_t j = i; j < s.size() && s[j].t_s < g.t_end_s; ++j) {
+    for (size_t j = i; j < s.size() && s[j].t_s <= g.t_end_s; ++j) {
       sum_i += s[j].current_a;
       sum_p += s[j].current_a * s[j].voltage_v;
       last_v = s[j].voltage_v;

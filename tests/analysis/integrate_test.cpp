@@ -134,3 +134,21 @@ TEST(Integrate, PerSegmentIntegrationHandlesSparseSamples) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// Regression: the engine reads exactly on each edge before the new setpoint
+// goes out, so an edge reading belongs to the segment that ends there. 2 A for
+// 1 s then 4 s off is 2 A·s (Q = I·t, common practice, no source).
+TEST(IntegrateBySegments, EdgeReadingsBelongToTheEndingSegment) {
+  std::vector<Sample> s = {{0.0, 3.9, 0.0, 25, 0}, {0.05, 3.8, 2.0, 25, 0}, {1.0, 3.8, 2.0, 25, 0},
+                           {1.05, 3.9, 0.0, 25, 0}, {5.0, 3.9, 0.0, 25, 0}};
+  std::vector<CommandedSegment> segs = {{0.0, 1.0, 2.0}, {1.0, 5.0, 0.0}};
+  SegmentIntegration r = IntegrateBySegments(s, segs);
+  EXPECT_NEAR(r.charge_mah, 2.0 / 3.6, 1e-12);
+  EXPECT_EQ(r.segments_without_samples, 0);
+}
+
+}  // namespace
+}  // namespace kp
