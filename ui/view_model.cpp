@@ -20,7 +20,9 @@ void RunningFigures::Add(const Sample& s) {
     first_t_s_ = s.t_s;
   } else {
     double dt_h = (s.t_s - last_.t_s) / 3600.0;
-    charge_mah_ += 0.5 * (s.current_a + last_.current_a) * dt_h * 1000.0;
+    double mean_a = 0.5 * (s.current_a + last_.current_a);
+    charge_mah_ += mean_a * dt_h * 1000.0;
+    discharged_mah_ += std::max(0.0, mean_a) * dt_h * 1000.0;
     energy_wh_ += 0.5 * (s.voltage_v * s.current_a + last_.voltage_v * last_.current_a) * dt_h;
     voltage_time_vs_ += 0.5 * (s.voltage_v + last_.voltage_v) * (s.t_s - last_.t_s);
     min_voltage_v_ = std::min(min_voltage_v_, s.voltage_v);
@@ -136,7 +138,7 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   r.procedure = run.procedure_name;
   r.started_at = run.started_at;
   r.elapsed_s = figures.count() > 0 ? figures.last().t_s - figures.first_t_s() : 0.0;
-  r.delivered_mah = figures.charge_mah();
+  r.delivered_mah = figures.discharged_mah();
   r.rated_mah = run.rated_mah;
   r.reason = run.reason;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
@@ -144,7 +146,7 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
     r.verdict = std::string("-");
   } else {
-    CapacityVerdict v = JudgeCapacity(figures.charge_mah(), run.rated_mah);
+    CapacityVerdict v = JudgeCapacity(figures.discharged_mah(), run.rated_mah);
     r.verdict = fmt::format("{} {:.0f} %", v.pass ? "PASS" : "FAIL", v.percent_of_rated);
   }
   return r;

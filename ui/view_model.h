@@ -21,7 +21,10 @@ class RunningFigures {
  public:
   void Add(const Sample& s);
   void Reset() { *this = RunningFigures{}; }
-  double charge_mah() const { return charge_mah_; }
+  double charge_mah() const { return charge_mah_; }  // net: charging counts negative
+  // Charge delivered by the cell only (intervals where it was discharging):
+  // what the runs list shows, so a charge-then-discharge run reads right.
+  double discharged_mah() const { return discharged_mah_; }
   double energy_wh() const { return energy_wh_; }
   double min_voltage_v() const { return min_voltage_v_; }
   // Time-weighted mean voltage (the last voltage while no time has passed).
@@ -34,6 +37,7 @@ class RunningFigures {
 
  private:
   double charge_mah_ = 0.0;
+  double discharged_mah_ = 0.0;
   double energy_wh_ = 0.0;
   double voltage_time_vs_ = 0.0;  // ∫ V dt
   double min_voltage_v_ = 0.0;

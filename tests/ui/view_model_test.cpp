@@ -159,3 +159,18 @@ TEST(LimitsForRun, ComesFromTheCompiledProcedure) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+// Regression: a run that charges first listed a negative delivered charge.
+TEST(RunningFigures, DeliveredCountsDischargeOnly) {
+  RunningFigures f;
+  for (int k = 0; k <= 3600; ++k) f.Add({static_cast<double>(k), 4.0, -1.0, 25.0, 0});         // 1 Ah in
+  for (int k = 3601; k <= 7200; ++k) f.Add({static_cast<double>(k), 3.7, 0.5, 25.0, 1});       // 0.5 Ah out
+  EXPECT_NEAR(f.discharged_mah(), 500.0, 0.5);  // one mixed interval at the turn
+  EXPECT_NEAR(f.charge_mah(), -500.0, 0.5);
+}
+
+}  // namespace
+}  // namespace kp::ui
