@@ -103,7 +103,7 @@ constexpr double kMaxVirtualS = 3 * 3600;  // safety max-time is 2 h
 Plan PlanFor(const StepKind& step) {
   std::string text =
       "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n"
-      "safety max-temp=55degC max-time=2h\n";
+      "safety max-temp=55degC max-current=5A max-time=2h\n";
   text += step.text;
   ParseOutput out = ParseProcedure(text, step.name);
   EXPECT_TRUE(out.ok()) << FormatDiagnostics(step.name, out.errors);
@@ -222,7 +222,9 @@ void CheckDatabase(const std::string& db, const std::map<double, Reading>* obser
   cell.reason = run.reason;
   EXPECT_NE(run.outcome, Outcome::kRunning) << "the outcome is stored";
   EXPECT_FALSE(run.reason.empty()) << "the reason is stored";
-  if (expect_interrupted) EXPECT_EQ(run.outcome, Outcome::kInterrupted);
+  if (expect_interrupted) {
+    EXPECT_EQ(run.outcome, Outcome::kInterrupted);
+  }
   auto q = (*store)->db().Prepare("SELECT COUNT(*), COALESCE(MIN(seq),0), COALESCE(MAX(seq),-1) FROM samples WHERE run_id=?1");
   ASSERT_TRUE(q.ok());
   q->Bind(1, run.id);
@@ -237,7 +239,9 @@ void CheckDatabase(const std::string& db, const std::map<double, Reading>* obser
     ASSERT_TRUE(std::isfinite(s.t_s) && std::isfinite(s.voltage_v) && std::isfinite(s.current_a) &&
                 std::isfinite(s.temperature_c))
         << "sample " << i;
-    if (i > 0) ASSERT_GT(s.t_s, (*samples)[i - 1].t_s) << "sample " << i;
+    if (i > 0) {
+      ASSERT_GT(s.t_s, (*samples)[i - 1].t_s) << "sample " << i;
+    }
     if (observed) {
       auto it = observed->find(s.t_s);
       ASSERT_NE(it, observed->end()) << "sample " << i << " at t=" << s.t_s << " was never read";
@@ -268,7 +272,7 @@ CellResult RunCell(Fault fault, const StepKind& step, const std::string& db, tes
     EXPECT_TRUE(store.ok()) << store.status().ToString();
     if (!store.ok()) return cell;
     // One write fails while samples are being committed; the disk then recovers.
-    if (fault == Fault::kDatabaseWrite) vfs.FailWrite(12, SQLITE_IOERR_WRITE, /*one_shot=*/true);
+    if (fault == Fault::kDatabaseWrite) vfs.FailWrite(40, SQLITE_IOERR_WRITE, /*one_shot=*/true);
     std::atomic<bool> stop{false};
     int taken = 0;
     bool hung = false;
@@ -303,9 +307,13 @@ CellResult RunCell(Fault fault, const StepKind& step, const std::string& db, tes
       EXPECT_EQ(r->outcome, Outcome::kAborted);
       EXPECT_NE(r->reason.find("temperature"), std::string::npos) << r->reason;
     }
-    if (fault == Fault::kLinkDropForGood && r.ok()) EXPECT_EQ(r->outcome, Outcome::kAborted) << r->reason;
+    if (fault == Fault::kLinkDropForGood && r.ok()) {
+      EXPECT_EQ(r->outcome, Outcome::kAborted) << r->reason;
+    }
   }
   CheckDatabase(db, &observed, cell, false);
+  // The failure struck mid-run: samples committed before it are there.
+  if (fault == Fault::kDatabaseWrite) EXPECT_GT(cell.samples, 0);
   return cell;
 }
 
