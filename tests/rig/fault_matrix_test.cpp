@@ -161,6 +161,12 @@ class MeterFault final : public LineDevice {
   int queries_ = 0;
 };
 
+// A real meter's last digits move; identical readings in a row mean "stuck".
+sim::SimOptions WithNoise(sim::SimOptions so) {
+  so.meter_noise_v = 0.0002;
+  return so;
+}
+
 // The simulated bench assembled like SimRig, with the meter behind the fault.
 struct FaultRig {
   sim::SimBench bench;
@@ -172,7 +178,7 @@ struct FaultRig {
   std::unique_ptr<ThermometerDriver> thermometer;
   std::unique_ptr<SupplyDriver> supply;
 
-  FaultRig(Clock& clock, Fault fault, sim::SimOptions so) : bench(MatrixCell(), clock, so) {
+  FaultRig(Clock& clock, Fault fault, sim::SimOptions so) : bench(MatrixCell(), clock, WithNoise(so)) {
     LineDevice* meter_dev = &bench.meter();
     if (fault == Fault::kScpiError || fault == Fault::kStuckReading) {
       sim::FaultOptions fo;
@@ -188,6 +194,7 @@ struct FaultRig {
     supply_s = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench.supply(), clock), clock);
     load = std::make_unique<LoadDriver>(*load_s);
     meter = std::make_unique<MeterDriver>(*meter_s);
+    meter->SetStuckLimit(30);  // as `stuck_after = 30` in a rig file
     thermometer = std::make_unique<ThermometerDriver>(*thermo_s);
     supply = std::make_unique<SupplyDriver>(*supply_s);
   }
@@ -317,13 +324,16 @@ CellResult RunCell(Fault fault, const StepKind& step, const std::string& db, tes
   return cell;
 }
 
-// Shared with a forked runner: samples its store has committed.
+// Shared with a forked runner: samples its store has committed, and whether
+// it is parked mid-run waiting for the kill.
 struct KillShared {
   std::atomic<int64_t> committed{0};
+  std::atomic<bool> parked{false};
 };
 
-// SIGKILL: a child process runs the step (scaled wall clock so that it is
-// still running when killed) and is killed once it has committed samples.
+// SIGKILL: a child process runs the step in virtual time; once its store has
+// committed a few samples it parks inside the run (load on, run open, a batch
+// staged) and the parent kills it there — no race with the run's own end.
 CellResult KillCell(const StepKind& step, const std::string& db) {
   CellResult cell;
   Plan plan = PlanFor(step);
@@ -333,22 +343,28 @@ CellResult KillCell(const StepKind& step, const std::string& db) {
   auto* shared = new (mem) KillShared();
   pid_t pid = fork();
   if (pid == 0) {
-    SteadyClock wall;
+    VirtualClock clock;
     Store::Options sto;
-    sto.commit_interval_s = 0.005;
-    auto store = Store::Open(db, wall, sto);
+    sto.commit_interval_s = 2;  // on the virtual clock
+    auto store = Store::Open(db, clock, sto);
     if (!store.ok()) _exit(10);
-    SteadyClock clock(200.0);  // 200 run seconds per wall second
     FaultRig rig(clock, Fault::kSigkill, {});
     RunController rc(**store, clock, rig.roles());
     RunOptions o;
-    o.on_sample = [&](const Reading&, double) { shared->committed.store((*store)->committed_samples()); };
+    o.on_sample = [&](const Reading&, double) {
+      shared->committed.store((*store)->committed_samples());
+      if ((*store)->committed_samples() >= 3) {
+        shared->parked.store(true);
+        for (;;) pause();
+      }
+    };
     (void)rc.Execute(plan, o);
-    _exit(20);  // finished before the kill: the parent reports it
+    _exit(20);  // finished without parking: the parent reports it
   }
   EXPECT_GT(pid, 0);
-  // Wait (bounded) for committed samples, then kill.
-  for (int i = 0; i < 4000 && shared->committed.load() < 5; ++i) std::this_thread::sleep_for(std::chrono::milliseconds(1));
+  // Wait (bounded) for the runner to park, then kill.
+  for (int i = 0; i < 20000 && !shared->parked.load(); ++i) std::this_thread::sleep_for(std::chrono::milliseconds(1));
+  EXPECT_TRUE(shared->parked.load()) << "the runner never committed samples";
   int64_t committed = shared->committed.load();
   kill(pid, SIGKILL);
   int status = 0;
