@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cctype>
+#include <charconv>
 #include <cmath>
 #include <cstdlib>
 #include <map>
@@ -693,7 +694,8 @@ class Parser {
     }
     for (const std::string& p : ApplyRigLimits(plan_, rig_)) {
       // "line N: message"
-      int line = std::atoi(p.c_str() + 5);
+      int line = 1;
+      if (p.size() > 5) (void)std::from_chars(p.data() + 5, p.data() + p.size(), line);
       size_t colon = p.find(": ");
       Error(line, 1, colon == std::string::npos ? p : p.substr(colon + 2));
     }
