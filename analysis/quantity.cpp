@@ -4,6 +4,7 @@
 
 #include <cctype>
 #include <charconv>
+#include <cmath>
 
 namespace kp {
 namespace {
@@ -93,8 +94,29 @@ ParsedQuantity ParseQuantity(std::string_view text, QuantityKind kind) {
     r.error_column = b + num_len + 1;
     return r;
   }
+  if (!std::isfinite(v)) {
+    r.error = fmt::format("'{}' is not a finite number", t);
+    r.error_column = b + 1;
+    return r;
+  }
   if (v < 0) {
     r.error = fmt::format("'{}' must not be negative", t);
+    r.error_column = b + 1;
+    return r;
+  }
+  // Bounds far beyond any bench (no test draws 10 kA, lasts 300 years or
+  // holds a billion mAh): a value past them is a typo, not a setting.
+  double limit = 1e9;
+  const char* base = "";
+  switch (kind) {
+    case QuantityKind::kCurrent: limit = 1e4, base = "A"; break;
+    case QuantityKind::kCharge: limit = 1e9, base = "mAh"; break;
+    case QuantityKind::kDuration: limit = 1e10, base = "s"; break;
+    case QuantityKind::kFraction: limit = 1e9, base = ""; break;
+    case QuantityKind::kRatePerMonth: limit = 1e9, base = " per month"; break;
+  }
+  if (v * u->scale > limit) {
+    r.error = fmt::format("'{}' is out of range (at most {:g}{})", t, limit, base);
     r.error_column = b + 1;
     return r;
   }

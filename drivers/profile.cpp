@@ -12,6 +12,8 @@
 
 #include <fmt/format.h>
 
+#include "drivers/text_limits.h"
+
 #ifndef KP_PROFILE_DIR
 #define KP_PROFILE_DIR "drivers/profiles"
 #endif
@@ -84,6 +86,7 @@ bool InstrumentProfile::HasRole(std::string_view role) const {
 }
 
 Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string& file) {
+  KP_RETURN_IF_ERROR(CheckTextLimits(text, file));
   InstrumentProfile p;
   p.file = file;
   // Start from empty commands: a profile says everything it supports.
@@ -157,11 +160,8 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
 }
 
 Result<InstrumentProfile> LoadProfileFile(const std::string& path) {
-  std::ifstream f(path);
-  if (!f) return NotFound(fmt::format("cannot read profile '{}'", path));
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return ParseProfile(ss.str(), path);
+  KP_ASSIGN_OR_RETURN(std::string text, ReadLimitedTextFile(path, "profile"));
+  return ParseProfile(text, path);
 }
 
 Result<std::string> FindProfile(const std::string& ref, const std::string& base_dir) {

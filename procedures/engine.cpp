@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <cstdlib>
 #include <map>
@@ -318,10 +319,28 @@ Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) 
   for (size_t i = 0; i < loops.size(); ++i) {
     auto it = kv.find(fmt::format("loop{}", i));
     if (it == kv.end()) continue;
-    double ago = 0;
-    if (std::sscanf(it->second.c_str(), "%d:%lf:%lf:%lf", &loops[i].iter, &ago, &loops[i].charge_mah, &loops[i].energy_wh) != 4)
+    // "iter:ago:charge:energy", each checked (a damaged snapshot must not
+    // turn into an out-of-range iteration count).
+    double f[4] = {0, 0, 0, 0};
+    std::string_view rest = it->second;
+    bool good = true;
+    for (int k = 0; k < 4 && good; ++k) {
+      size_t colon = k < 3 ? rest.find(':') : rest.size();
+      if (colon == std::string_view::npos) {
+        good = false;
+        break;
+      }
+      std::string_view part = rest.substr(0, colon);
+      auto [ptr, ec] = std::from_chars(part.data(), part.data() + part.size(), f[k]);
+      good = ec == std::errc() && ptr == part.data() + part.size() && std::isfinite(f[k]);
+      rest = colon < rest.size() ? rest.substr(colon + 1) : std::string_view();
+    }
+    if (!good || f[0] < 0 || f[0] > 1e9 || f[0] != std::floor(f[0]))
       return InvalidInput(fmt::format("unreadable loop state in engine snapshot '{}'", snapshot));
-    loops[i].start_s = t_s - ago;
+    loops[i].iter = static_cast<int>(f[0]);
+    loops[i].charge_mah = f[2];
+    loops[i].energy_wh = f[3];
+    loops[i].start_s = t_s - f[1];
   }
   EngineOutput out;
   applied_.reset();

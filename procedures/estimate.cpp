@@ -28,7 +28,7 @@ double SegmentCurrentA(const Segment& g, const CellSpec& cell) {
 }
 
 std::string Hms(double s) {
-  long t = static_cast<long>(s + 0.5);
+  long t = std::lround(s);
   return fmt::format("{}:{:02}:{:02}", t / 3600, (t / 60) % 60, t % 60);
 }
 

@@ -4,15 +4,19 @@
 
 #include <algorithm>
 #include <cctype>
+#include <charconv>
 #include <cmath>
 #include <cstdlib>
 #include <map>
 #include <optional>
 
+#include "drivers/text_limits.h"
 #include "procedures/units.h"
 
 namespace kp {
 namespace {
+
+constexpr double kMaxNumber = 1e9;  // largest number written in a procedure, any unit
 
 // ---------------------------------------------------------------- lexer ----
 
@@ -71,7 +75,9 @@ std::vector<Tok> Lex(std::string_view line) {
       t.text = std::string(line.substr(i, k - i));
       t.num = std::strtod(number.c_str(), nullptr);
       t.unit = std::string(line.substr(j, k - j));
-      if (!std::isfinite(t.num)) throw LineError{col, fmt::format("number '{}' is out of range", number)};
+      // No setting of a bench comes near 1e9 in any unit (1e9 s is 31 years).
+      if (!std::isfinite(t.num) || std::abs(t.num) > kMaxNumber)
+        throw LineError{col, fmt::format("number '{}' is out of range (at most {:g})", number, kMaxNumber)};
       i = k;
     } else if (c == '"') {
       size_t j = line.find('"', i + 1);
@@ -127,6 +133,11 @@ class Parser {
   Parser(const std::string& name, const RigLimits& rig) : rig_(rig) { plan_.name = name; }
 
   ParseOutput Run(std::string_view text) {
+    if (text.size() > kMaxTextFileBytes) {
+      Error(1, 1, fmt::format("the procedure is {} bytes; the limit is {} bytes (is this the right file?)", text.size(),
+                              kMaxTextFileBytes));
+      return std::move(out_);
+    }
     plan_.source_text = std::string(text);
     int line_no = 0;
     size_t pos = 0;
@@ -137,6 +148,13 @@ class Parser {
       ++line_no;
       line_ = line_no;
       line_text_ = line;
+      if (line.size() > kMaxTextLineBytes) {
+        Error(line_no, static_cast<int>(kMaxTextLineBytes) + 1,
+              fmt::format("line is {} bytes long; the limit is {} bytes", line.size(), kMaxTextLineBytes));
+        if (nl == std::string_view::npos) break;
+        pos = nl + 1;
+        continue;
+      }
       try {
         toks_ = Lex(line);
         at_ = 0;
@@ -676,7 +694,8 @@ class Parser {
     }
     for (const std::string& p : ApplyRigLimits(plan_, rig_)) {
       // "line N: message"
-      int line = std::atoi(p.c_str() + 5);
+      int line = 1;
+      if (p.size() > 5) (void)std::from_chars(p.data() + 5, p.data() + p.size(), line);
       size_t colon = p.find(": ");
       Error(line, 1, colon == std::string::npos ? p : p.substr(colon + 2));
     }

@@ -10,6 +10,7 @@
 #include <toml++/toml.h>
 
 #include "drivers/address.h"
+#include "drivers/text_limits.h"
 
 namespace kp {
 namespace {
@@ -91,6 +92,7 @@ const std::set<std::string> kRoles = {"load", "meter", "thermometer", "supply"};
 }  // namespace
 
 Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path) {
+  KP_RETURN_IF_ERROR(CheckTextLimits(text, path));
   Reader r(path);
   toml::table root;
   try {
@@ -199,11 +201,8 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
 }
 
 Result<RigFileSpec> LoadRigFile(const std::string& path) {
-  std::ifstream f(path);
-  if (!f) return NotFound(fmt::format("cannot read rig file '{}'", path));
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return ParseRigFile(ss.str(), path);
+  KP_ASSIGN_OR_RETURN(std::string text, ReadLimitedTextFile(path, "rig file"));
+  return ParseRigFile(text, path);
 }
 
 }  // namespace kp

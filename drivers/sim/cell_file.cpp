@@ -10,6 +10,7 @@
 #include <set>
 
 #include "drivers/sim/cell_presets.h"
+#include "drivers/text_limits.h"
 
 namespace kp::sim {
 namespace {
@@ -197,6 +198,7 @@ double Gaussian(std::mt19937_64& rng) {
 }  // namespace
 
 Result<CellPreset> ParseCellText(std::string_view text, std::string_view source_name) {
+  KP_RETURN_IF_ERROR(CheckTextLimits(text, source_name));
   toml::table root;
   try {
     root = toml::parse(text, source_name);
@@ -208,9 +210,10 @@ Result<CellPreset> ParseCellText(std::string_view text, std::string_view source_
 }
 
 Result<CellPreset> LoadCellFile(const std::string& path) {
+  KP_ASSIGN_OR_RETURN(std::string text, ReadLimitedTextFile(path, "cell file"));
   toml::table root;
   try {
-    root = toml::parse_file(path);
+    root = toml::parse(text, path);
   } catch (const toml::parse_error& e) {
     if (e.source().begin.line == 0) return InvalidInput(fmt::format("{}: {}", path, e.description()));
     return InvalidInput(fmt::format("{}:{}:{}: {}", path, e.source().begin.line, e.source().begin.column, e.description()));

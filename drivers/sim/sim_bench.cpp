@@ -20,7 +20,9 @@ class SimBench::Device final : public LineDevice {
   std::optional<std::string> HandleLine(std::string_view line) override {
     std::lock_guard<std::mutex> lock(bench_.mu_);
     bench_.AdvanceLocked();
-    ScpiCommand c = SplitScpiCommand(line);
+    // Kept in a member so that header_ never outlives the text it points to.
+    line_ = SplitScpiCommand(line);
+    const ScpiCommand& c = line_;
     const std::string& h = c.header;
     if (h.empty()) return std::nullopt;
     header_ = &h;
@@ -270,7 +272,8 @@ class SimBench::Device final : public LineDevice {
   Role role_;
   std::deque<std::string> errors_;
   std::unordered_map<std::string, std::string_view> memo_;
-  const std::string* header_ = nullptr;
+  ScpiCommand line_;  // the line being handled
+  const std::string* header_ = nullptr;  // line_.header while a line is handled
   const std::string_view* cached_ = nullptr;
 };
 

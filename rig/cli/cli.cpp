@@ -1,6 +1,7 @@
 #include "rig/cli/cli.h"
 
 #include <atomic>
+#include <cmath>
 #include <csignal>
 #include <cstdio>
 #include <iostream>
@@ -69,7 +70,7 @@ const std::atomic<bool>* InstallStopSignals() {
 }
 
 std::string FormatDuration(double seconds) {
-  long s = static_cast<long>(seconds + 0.5);
+  long s = std::lround(seconds);
   return fmt::format("{}:{:02}:{:02}", s / 3600, (s / 60) % 60, s % 60);
 }
 

@@ -6,6 +6,7 @@
 #include <fstream>
 #include <sstream>
 
+#include "drivers/text_limits.h"
 #include "procedures/procedure_parser.h"
 
 namespace kp::cli {
@@ -14,7 +15,9 @@ Result<std::string> ReadProcedureText(const std::string& path) {
   std::error_code ec;
   if (!std::filesystem::is_regular_file(path, ec)) return NotFound(fmt::format("{}: no such procedure file", path));
   auto size = std::filesystem::file_size(path, ec);
-  if (ec || size > 4 * 1024 * 1024) return InvalidInput(fmt::format("{}: not a procedure file (too large or unreadable)", path));
+  if (ec) return IoError(fmt::format("{}: cannot read its size", path));
+  if (size > kMaxTextFileBytes)
+    return InvalidInput(fmt::format("{}:1:1: not a procedure file ({} bytes; the limit is {} bytes)", path, size, kMaxTextFileBytes));
   std::ifstream in(path, std::ios::binary);
   if (!in) return IoError(fmt::format("{}: cannot open", path));
   std::ostringstream ss;

@@ -1,6 +1,7 @@
-// Replays the fuzz corpus (and the procedure library) through the fuzz entry
-// point, with any compiler: `procedure_fuzz_replay DIR...`. Exit 0 when every
-// file went through.
+// Replays a fuzz corpus through one fuzz entry point, with any compiler:
+// `<target>_replay DIR...` (one executable per target, linked with its entry
+// point). A crash or sanitizer report fails the test; exit 0 when every file
+// went through and at least one was found.
 #include <cstdint>
 #include <cstdio>
 #include <filesystem>
