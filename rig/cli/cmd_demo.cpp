@@ -1,5 +1,7 @@
 // `demo`: the simulated qualification campaign (rig/demo_campaign.h), in
 // virtual time, into kneepoint-demo.db and kneepoint-demo-report/.
+#include <algorithm>
+#include <cmath>
 #include <iostream>
 
 #include <fmt/format.h>
@@ -24,7 +26,7 @@ class ProgressLine {
     percent_ = percent;
     label_ = label;
     constexpr int kWidth = 30;
-    int filled = std::clamp(static_cast<int>(fraction * kWidth + 0.5), 0, kWidth);
+    int filled = std::clamp(static_cast<int>(std::lround(fraction * kWidth)), 0, kWidth);
     std::cout << fmt::format("\r  [{}{}] {:3d} %  {:<20}", std::string(static_cast<size_t>(filled), '#'),
                              std::string(static_cast<size_t>(kWidth - filled), '.'), percent, label)
               << std::flush;
