@@ -154,7 +154,9 @@ TEST(RunController, RetriedExchangesAreLoggedAndTheRunCompletes) {
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
   int logged_retries = 0;
-  for (const EventRow& e : *f.store->LoadEvents(r->run_id))
+  auto events = f.store->LoadEvents(r->run_id);
+  ASSERT_TRUE(events.ok());
+  for (const EventRow& e : *events)
     if (e.kind == "retry") ++logged_retries;
   EXPECT_GT(logged_retries, 5);
   EXPECT_GT(meter_s.retry_count(), 5);
