@@ -532,7 +532,8 @@ std::string CompareReportHtml(const CompareReport& c) {
     // Aligned at the start of each run's main discharge.
     const RunAnalysis& a = r.analysis;
     double t0 = a.discharge_start_s;
-    PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false}, tt = q;
+    PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false};
+    PlotSeries tt{q.name, {}, {}, false, false};
     double as = 0;
     for (size_t i = 0; i < r.samples.size(); ++i) {
       const Sample& s = r.samples[i];

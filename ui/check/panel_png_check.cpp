@@ -49,7 +49,8 @@ int main(int argc, char** argv) {
   int comp = 0;
   img.px = stbi_load(argv[1], &img.w, &img.h, &comp, 3);
   if (!img.px) return Fail(std::string("cannot read ") + argv[1]);
-  int want_w = std::atoi(argv[5]), want_h = std::atoi(argv[6]);
+  int want_w = static_cast<int>(std::strtol(argv[5], nullptr, 10));
+  int want_h = static_cast<int>(std::strtol(argv[6], nullptr, 10));
   if (img.w != want_w || img.h != want_h)
     return Fail("size " + std::to_string(img.w) + "x" + std::to_string(img.h) + ", expected " + argv[5] + "x" + argv[6]);
 
@@ -75,7 +76,7 @@ int main(int argc, char** argv) {
   o.create = false;
   auto store = kp::Store::Open(argv[3], wall, o);
   if (!store.ok()) return Fail("cannot open database");
-  auto samples = (*store)->LoadSamples(std::atoll(argv[4]));
+  auto samples = (*store)->LoadSamples(std::strtoll(argv[4], nullptr, 10));
   if (!samples.ok() || samples->size() < 100) return Fail("run has too few samples");
 
   auto px_of = [&](double t) { return x0 + (t - t_lo) / (t_hi - t_lo) * (x1 - x0); };
