@@ -1,0 +1,138 @@
+// The whole panel drawn into an ImGui context without a window or GPU, from a
+// real database read by the real feed: the live view must plot the watched
+// run over its full time and voltage span, and both tabs must draw. Under
+// `make sanitize` this is where the panel's own code is leak-checked (the
+// screenshot test's GL process cannot be, see ui/check/screenshot_test.sh).
+#include "ui/panel.h"
+
+#include <gtest/gtest.h>
+
+#include "drivers/clock.h"
+#include "rig/store.h"
+#include "tests/support/test_support.h"
+
+namespace kp::ui {
+namespace {
+
+NewRun AbortedRun() {
+  NewRun r;
+  r.cell_name = "panel-cell-3";
+  r.chemistry = "li-ion";
+  r.rated_mah = 1200.0;
+  r.procedure_name = "panel-check";
+  r.procedure_text = "cell li-ion rated 1200 mAh cutoff 3.000 V max-temp 50 degC\n";
+  r.rig = "sim";
+  return r;
+}
+
+class HeadlessPanel : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    ImGui::CreateContext();
+    ImGuiIO& io = ImGui::GetIO();
+    io.DisplaySize = {1400, 900};
+    io.DeltaTime = 1.0f / 30.0f;
+    io.IniFilename = nullptr;
+    io.ConfigFlags |= ImGuiConfigFlags_NoMouse;
+    fonts_ = LoadFonts(1.0f);
+    unsigned char* px;
+    int w, h;
+    io.Fonts->GetTexDataAsRGBA32(&px, &w, &h);  // the atlas must exist before NewFrame
+  }
+  void TearDown() override { ImGui::DestroyContext(); }
+
+  // Writes one aborted run: `n` samples one second apart from 4.10 V down by 0.5 mV each.
+  int64_t WriteRun(const std::string& db, int n) {
+    VirtualClock clock;
+    auto store = Store::Open(db, clock);
+    EXPECT_TRUE(store.ok());
+    auto run = (*store)->BeginRun(AbortedRun());
+    EXPECT_TRUE(run.ok());
+    EXPECT_TRUE((*store)->BeginStep(*run, 0, "cc", "discharge 1 A", 0.0).ok());
+    for (int k = 0; k < n; ++k)
+      EXPECT_TRUE((*store)->AppendSample(*run, {k * 1.0, 4.10 - 0.0005 * k, 1.0, 25.0 + 0.01 * k, 0}).ok());
+    EXPECT_TRUE((*store)->AddEvent(*run, n - 1.0, "abort", "temperature 51.0 degC above 50 degC").ok());
+    EXPECT_TRUE((*store)->FinishRun(*run, Outcome::kAborted, "over-temperature").ok());
+    EXPECT_TRUE((*store)->Commit().ok());
+    return *run;
+  }
+
+  // Draws frames until the feed has delivered everything (bounded).
+  void DrawUntilLoaded(RunFeed& feed, Panel& panel) {
+    DrawFrame(panel);  // tells the feed which runs to read
+    ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+    for (int i = 0; i < 1000; ++i) {
+      DrawFrame(panel);
+      if (panel.state().Backlog() == 0 && !panel.state().watched.empty()) break;
+    }
+    DrawFrame(panel);
+  }
+
+  static void DrawFrame(Panel& panel) {
+    ImGui::NewFrame();
+    panel.Frame();
+    ImGui::Render();
+  }
+
+  Fonts fonts_;
+};
+
+TEST_F(HeadlessPanel, LiveViewPlotsTheWholeRun) {
+  testing::TempDir dir;
+  const std::string db = dir.File("panel.db");
+  const int n = 1800;
+  int64_t run = WriteRun(db, n);
+
+  RunFeed::Options fo;
+  fo.db_path = db;
+  RunFeed feed(fo);
+  PanelOptions po;
+  po.db_path = db;
+  po.run_id = run;
+  Panel panel(feed, po, fonts_);
+  DrawUntilLoaded(feed, panel);
+
+  ASSERT_TRUE(panel.selected());
+  EXPECT_EQ(*panel.selected(), run);
+  ASSERT_EQ(panel.state().runs.size(), 1u);
+  EXPECT_EQ(panel.state().runs[0].state, "aborted");
+  auto it = panel.state().watched.find(run);
+  ASSERT_NE(it, panel.state().watched.end());
+  EXPECT_EQ(it->second.samples.size(), static_cast<size_t>(n));
+
+  const PlotResult& p = panel.voltage_plot();
+  EXPECT_GT(p.rect_max.x - p.rect_min.x, 200.0f);
+  EXPECT_GT(p.rect_max.y - p.rect_min.y, 100.0f);
+  // Auto-follow shows the whole run: first and last sample times inside the x range.
+  EXPECT_LE(p.x.lo, 0.0);
+  EXPECT_GE(p.x.hi, n - 1.0);
+  // The voltage axis holds the data and the 3.000 V cutoff drawn with it.
+  EXPECT_LE(p.y[0].lo, 4.10 - 0.0005 * (n - 1));
+  EXPECT_GE(p.y[0].hi, 4.10);
+}
+
+TEST_F(HeadlessPanel, CompareTabDrawsTwoRuns) {
+  testing::TempDir dir;
+  const std::string db = dir.File("panel.db");
+  int64_t a = WriteRun(db, 600);
+  int64_t b = WriteRun(db, 900);
+
+  RunFeed::Options fo;
+  fo.db_path = db;
+  RunFeed feed(fo);
+  PanelOptions po;
+  po.db_path = db;
+  po.tab = Tab::kCompare;
+  po.compare = {a, b};
+  Panel panel(feed, po, fonts_);
+  DrawUntilLoaded(feed, panel);
+
+  EXPECT_EQ(panel.state().runs.size(), 2u);
+  ASSERT_EQ(panel.state().watched.count(a), 1u);
+  ASSERT_EQ(panel.state().watched.count(b), 1u);
+  EXPECT_EQ(panel.state().watched.at(a).samples.size(), 600u);
+  EXPECT_EQ(panel.state().watched.at(b).samples.size(), 900u);
+}
+
+}  // namespace
+}  // namespace kp::ui
