@@ -22,7 +22,8 @@ struct RunSummary {
   double duration_s = 0.0;  // of the main discharge (time to end voltage)
   bool pulsed = false;
   std::optional<double> resistance_ohm;  // median DC-IR, when measured
-  std::string verdict;
+  std::string verdict;        // the full verdict line
+  std::string verdict_brief;  // "PASS 101 %", "not judged: pulsed discharge"
 };
 
 struct RatioFigures {

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 
 namespace kp {
 
@@ -28,13 +29,23 @@ std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, 
   // depth from the end of that charge, not from the empty cell it began with.
   size_t k = 0;
   double as = 0.0, fullest_as = 0.0;
-  for (double te : edges) {
+  for (size_t e = 0; e < edges.size(); ++e) {
+    const double te = edges[e];
     // before: last sample with t < te
     auto it = std::lower_bound(s.begin(), s.end(), te, [](const Sample& a, double t) { return a.t_s < t; });
     if (it == s.begin()) continue;
     size_t before = static_cast<size_t>(it - s.begin()) - 1;
     auto jt = std::lower_bound(it, s.end(), te + o.delay_s, [](const Sample& a, double t) { return a.t_s < t; });
-    if (jt == s.end()) continue;
+    // U2 belongs to the I2 level: when the delay reaches the next edge (a 1 s
+    // pulse read at 1 s), take the last sample before that edge instead, the
+    // end of t2 where the two-current method reads U2.
+    const double next_edge = e + 1 < edges.size() ? edges[e + 1] : std::numeric_limits<double>::infinity();
+    if (jt == s.end() && !(next_edge <= s.back().t_s)) continue;  // the record ends inside t2
+    if (jt == s.end() || jt->t_s >= next_edge) {
+      auto kt = std::lower_bound(it, s.end(), next_edge, [](const Sample& a, double t) { return a.t_s < t; });
+      if (kt == it) continue;  // no sample inside the I2 level
+      jt = kt - 1;
+    }
     size_t after = static_cast<size_t>(jt - s.begin());
     while (k < before) {
       as += 0.5 * (s[k].current_a + s[k + 1].current_a) * (s[k + 1].t_s - s[k].t_s);
@@ -46,6 +57,7 @@ std::vector<DcirPoint> MeasureDcir(SampleSpan s, std::span<const double> edges, 
     p.u1_v = s[before].voltage_v;
     p.i1_a = s[before].current_a;
     p.u2_v = s[after].voltage_v;
+    p.t_u2_s = s[after].t_s;
     p.i2_a = s[after].current_a;
     double di = p.i2_a - p.i1_a;
     if (std::abs(di) < o.min_step_a) continue;

@@ -23,7 +23,8 @@ struct DcirOptions {
 struct DcirPoint {
   double t_edge_s = 0.0;
   double u1_v = 0.0, i1_a = 0.0;  // before the edge
-  double u2_v = 0.0, i2_a = 0.0;  // delay after the edge
+  double u2_v = 0.0, i2_a = 0.0;  // delay after the edge (or the end of the I2 level, if sooner)
+  double t_u2_s = 0.0;            // when U2 was read
   double resistance_ohm = 0.0;
   double delivered_mah = 0.0;       // charge delivered before the edge
   double depth_of_discharge = 0.0;  // delivered / capacity (0..1); 0 when capacity unknown
@@ -36,7 +37,10 @@ std::vector<double> EdgesFromSegments(std::span<const CommandedSegment> segments
 std::vector<double> EdgesFromSamples(SampleSpan samples, double min_step_a);
 
 // One point per edge that has a sample before it and one at edge + delay, and
-// whose measured current change is at least min_step_a. delivered_mah counts
+// whose measured current change is at least min_step_a. U2 is never read past
+// the next edge: when edge + delay reaches it, or the record ends first, U2 is
+// the last sample before the next edge (the end of t2). `edge_times_s` must be
+// sorted. delivered_mah counts
 // from the fullest point of the record before the edge (after a charge step,
 // from its end); capacity_mah scales the depth of discharge (pass the rated or
 // the delivered capacity).

@@ -127,14 +127,14 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
         dc.rest_before_s = *prev.ended_s - prev.started_s;
     }
   }
-  a.verdict = JudgeCapacityByMethod(MethodForChemistry(ctx.chemistry), dc);
-
   // Pulses and DC-IR.
   std::vector<CommandedSegment> segs = ctx.segments;
   if (segs.empty() && !d.empty()) segs = SegmentsFromSamples(d, ctx.segment_tolerance_a);
   a.pulses = AnalysePulses(s, segs);
   a.pulsed = a.pulses.size() >= 2;
   if (!a.pulsed) a.pulses.clear();  // one high segment is a plain discharge
+  dc.pulsed = a.pulsed;
+  a.verdict = JudgeCapacityByMethod(MethodForChemistry(ctx.chemistry), dc);
   if (ctx.brownout_v) a.brownout = FirstBrownout(a.pulses, *ctx.brownout_v);
   std::vector<double> edges =
       ctx.segments.empty() ? EdgesFromSamples(s, ctx.dcir.min_step_a) : EdgesFromSegments(ctx.segments, ctx.dcir.min_step_a);

@@ -55,12 +55,31 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
   std::string unmet;
   for (const ConditionCheck& c : j.conditions)
     if (!c.met) unmet += (unmet.empty() ? "" : ", ") + c.name;
+  double rate_it = it_a > 0 ? r.mean_current_a / it_a : 0.0;
+  if (r.rated_mah <= 0) {
+    j.not_judged_why = "no rated capacity";
+  } else if (r.pulsed) {
+    j.not_judged_why = "pulsed discharge";
+  } else if (r.mean_current_a <= 0.0) {
+    j.not_judged_why = "no discharge recorded";
+  } else if (std::abs(r.mean_current_a - want_a) > kJudgedRateWindow * want_a) {
+    j.not_judged_why = fmt::format("constant current at {:.2f} It", rate_it);
+  }
+  j.judged = j.not_judged_why.empty();
   if (r.rated_mah <= 0) {
     j.text = fmt::format("no verdict: no rated capacity given ({})", m.name);
+    j.brief = "-";
+  } else if (!j.judged) {
+    j.text = fmt::format("not judged: {}, not the {} It constant-current test of {}; {:.0f} mAh is {:.1f} % of rated {:.0f} mAh",
+                         j.not_judged_why, m.rate_it, m.name, r.delivered_mah, j.percent_of_rated, r.rated_mah);
+    j.brief = "not judged: " + j.not_judged_why;
   } else {
     j.text = fmt::format("{}: {:.0f} mAh is {:.1f} % of rated {:.0f} mAh (criterion >= {:.0f} %, {}); {}",
                          j.capacity_pass ? "PASS" : "FAIL", r.delivered_mah, j.percent_of_rated, r.rated_mah, m.required_percent,
                          m.name, j.conditions_met ? "all test conditions met" : "conditions not met: " + unmet);
+    // Rounded down to 0.1 % so a FAIL never reads as 100.0 % (the epsilon
+    // keeps 102 % computed as 101.99999... at 102.0).
+    j.brief = fmt::format("{} {:.1f} %", j.capacity_pass ? "PASS" : "FAIL", std::floor(j.percent_of_rated * 10.0 + 1e-6) / 10.0);
   }
   return j;
 }

@@ -41,6 +41,7 @@ struct DischargeConditions {
   double min_temperature_c = 0.0, max_temperature_c = 0.0;
   std::optional<double> rest_before_s;  // rest step right before the discharge
   double end_voltage_v = 0.0;           // last sample of the discharge
+  bool pulsed = false;                  // a pulse train or duty cycle, not one constant current
 };
 
 struct ConditionCheck {
@@ -50,13 +51,22 @@ struct ConditionCheck {
   bool met = false;
 };
 
+// A discharge is judged under the method only when it is the method's test:
+// one constant current within this fraction of the method's rate (the current
+// condition itself is checked at the method's tighter tolerance). A pulsed
+// run or a run at another rate delivers a figure, not a rated-capacity verdict.
+inline constexpr double kJudgedRateWindow = 0.10;
+
 struct CapacityJudgement {
   std::string method;
   double percent_of_rated = 0.0;
-  bool capacity_pass = false;   // the capacity criterion alone
+  bool judged = false;          // the discharge is the method's test (see kJudgedRateWindow)
+  std::string not_judged_why;   // "pulsed discharge", "constant current at 0.50 It", "no rated capacity"
+  bool capacity_pass = false;   // the capacity criterion alone (meaningful when judged)
   bool conditions_met = false;  // every condition below met
   std::vector<ConditionCheck> conditions;
-  std::string text;  // one line: verdict, method and unmet conditions
+  std::string text;   // one line: verdict, method and unmet conditions
+  std::string brief;  // for tables: "PASS 101 %", "FAIL 97 %", "not judged: pulsed"
 };
 
 CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& method, const DischargeConditions& run);

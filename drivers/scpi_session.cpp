@@ -2,6 +2,8 @@
 
 #include <fmt/format.h>
 
+#include <functional>
+
 namespace kp {
 
 ScpiSession::ScpiSession(std::unique_ptr<Transport> transport, Clock& clock, ScpiOptions options)
@@ -26,72 +28,65 @@ void ScpiSession::Resync(const Status& last) {
   transport_->Flush();
 }
 
-Status ScpiSession::Write(std::string_view command) {
+Status ScpiSession::Retrying(std::string_view what, bool retry_protocol, const std::function<Status()>& once) {
   Status last;
   for (int attempt = 0; attempt <= options_.retries; ++attempt) {
     if (attempt > 0) {
       ++retry_count_;
-      Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, command, last.ToString()));
+      Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, what, last.ToString()));
       Resync(last);
       if (last.code() == StatusCode::kIo) {
-        Status rc = transport_->Reconnect();
-        if (!rc.ok()) {
+        if (Status rc = transport_->Reconnect(); !rc.ok()) {
           last = rc;
           continue;
         }
       }
     }
-    last = Send(command);
-    if (last.ok() && options_.confirm_writes) {
-      last = Send("*OPC?");
-      if (last.ok()) {
-        Result<std::string> reply = transport_->ReadLine(options_.timeout);
-        if (!reply.ok()) {
-          last = reply.status();
-          Trace('!', last.ToString());
-        } else {
-          Trace('<', *reply);
-          Result<ScpiNumber> n = ParseScpiNumber(*reply);
-          if (!n.ok() || !n->finite() || n->value != 1.0) {
-            last = ProtocolError(fmt::format("'*OPC?' after '{}' replied '{}', expected 1", command, *reply));
-            Trace('!', last.message());
-          }
-        }
-      }
-    }
+    last = once();
     if (last.ok()) return last;
-    if (last.code() != StatusCode::kTimeout && last.code() != StatusCode::kIo && last.code() != StatusCode::kProtocol) break;
+    bool retryable = last.code() == StatusCode::kTimeout || last.code() == StatusCode::kIo ||
+                     (retry_protocol && last.code() == StatusCode::kProtocol);
+    if (!retryable) break;
   }
-  return last.WithContext(fmt::format("{} '{}'", address_, command));
+  return last.WithContext(fmt::format("{} '{}'", address_, what));
+}
+
+Status ScpiSession::Write(std::string_view command) {
+  return Retrying(command, /*retry_protocol=*/true, [&]() -> Status {
+    KP_RETURN_IF_ERROR(Send(command));
+    if (!options_.confirm_writes) return Status::Ok();
+    KP_RETURN_IF_ERROR(Send("*OPC?"));
+    Result<std::string> reply = transport_->ReadLine(options_.timeout);
+    if (!reply.ok()) {
+      Trace('!', reply.status().ToString());
+      return reply.status();
+    }
+    Trace('<', *reply);
+    Result<ScpiNumber> n = ParseScpiNumber(*reply);
+    if (!n.ok() || !n->finite() || n->value != 1.0) {
+      Status bad = ProtocolError(fmt::format("'*OPC?' after '{}' replied '{}', expected 1", command, *reply));
+      Trace('!', bad.message());
+      return bad;
+    }
+    return Status::Ok();
+  });
 }
 
 Result<std::string> ScpiSession::Query(std::string_view query) {
-  Status last;
-  for (int attempt = 0; attempt <= options_.retries; ++attempt) {
-    if (attempt > 0) {
-      ++retry_count_;
-      Trace('!', fmt::format("retry {} of '{}' after: {}", attempt, query, last.ToString()));
-      Resync(last);
-      if (last.code() == StatusCode::kIo) {
-        Status rc = transport_->Reconnect();
-        if (!rc.ok()) {
-          last = rc;
-          continue;
-        }
-      }
-    }
-    last = Send(query);
-    if (!last.ok()) continue;
+  std::string line;
+  Status st = Retrying(query, /*retry_protocol=*/false, [&]() -> Status {
+    KP_RETURN_IF_ERROR(Send(query));
     Result<std::string> reply = transport_->ReadLine(options_.timeout);
-    if (reply.ok()) {
-      Trace('<', *reply);
-      return reply;
+    if (!reply.ok()) {
+      Trace('!', reply.status().ToString());
+      return reply.status();
     }
-    last = reply.status();
-    Trace('!', last.ToString());
-    if (last.code() != StatusCode::kTimeout && last.code() != StatusCode::kIo) break;
-  }
-  return last.WithContext(fmt::format("{} '{}'", address_, query));
+    Trace('<', *reply);
+    line = std::move(*reply);
+    return Status::Ok();
+  });
+  if (!st.ok()) return st;
+  return line;
 }
 
 Result<ScpiNumber> ScpiSession::QueryNumber(std::string_view query) {

@@ -67,6 +67,12 @@ class ScpiSession {
   Status Send(std::string_view line);
   // Before a retry: drops unread input and, after a timeout, a late reply.
   void Resync(const Status& last);
+  // Runs `once` up to 1 + retries times. Before each retry: counts and traces
+  // it, resynchronises the line and reconnects after a link error. Stops at
+  // the first success or at an error that is not retryable (timeout and link
+  // errors are; protocol errors too when `retry_protocol`). A final error
+  // carries the address and `what`.
+  Status Retrying(std::string_view what, bool retry_protocol, const std::function<Status()>& once);
   void Trace(char direction, std::string_view text);
 
   std::unique_ptr<Transport> transport_;

@@ -30,7 +30,7 @@ uint64_t CellSeed(int index) { return kBatchSeed * 1000 + static_cast<uint64_t>(
 constexpr double kRunawayStartS = 360.0;
 
 Result<std::string_view> ProcedureText(std::string_view file) {
-  for (const demo::DemoProcedureText& p : demo::kDemoProcedures)
+  for (const embedded::EmbeddedText& p : embedded::kDemoProcedures)
     if (p.file == file) return p.text;
   return NotFound(fmt::format("no demo procedure '{}'", file));
 }
@@ -236,15 +236,10 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
   KP_RETURN_IF_ERROR(c.Plan("2 duty cycle", "node-duty-cycle.kpp", cell1));
   KP_RETURN_IF_ERROR(c.Plan("2 pulses at 2 A", "node-peak-pulses.kpp", cell1));
   KP_RETURN_IF_ERROR(c.Plan("2 continuous 2 A", "node-peak-continuous.kpp", cell1));
-  // U2 belongs at the end of the 1 s I2 pulse (IEC 61960-3 clause 7.7,
-  // secondary source). Readings come every 100 ms; the pulse's last readings
-  // lie 0.9 s to 1 s after the edge, while the report's 1 s default can land on
-  // the first reading of the next step (0.5 It). 0.9 s stays inside the pulse
-  // (U2 then reads the voltage 0.1 s before the end: well under 1 mV higher
-  // on this cell).
-  ReportOptions dcir_report;
-  dcir_report.dcir.delay_s = 0.9;
-  KP_RETURN_IF_ERROR(c.Plan("3 DC-IR sweep", "dcir-over-dod.kpp", cell1, dcir_report));
+  // U2 at the end of the 1 s I2 pulse (IEC 61960-3 clause 7.7, secondary
+  // source): the report's 1 s delay meets the pulse's falling edge, so
+  // MeasureDcir reads the pulse's last reading, 0.9 s after the edge.
+  KP_RETURN_IF_ERROR(c.Plan("3 DC-IR sweep", "dcir-over-dod.kpp", cell1));
   KP_RETURN_IF_ERROR(c.Plan("4 Peukert 0.5 A", "rate-0a5.kpp", cell2));
   KP_RETURN_IF_ERROR(c.Plan("4 Peukert 1 A", "rate-1a.kpp", cell2));
   KP_RETURN_IF_ERROR(c.Plan("4 Peukert 2 A", "rate-2a.kpp", cell2));

@@ -118,7 +118,8 @@ nlohmann::json RunReportJson(const RunReport& rep) {
          {"samples", f.sample_count},
          {"rated_mAh", rep.run.rated_mah},
          {"percent_of_rated", a.verdict.percent_of_rated},
-         {"pass", a.verdict.capacity_pass},
+         {"judged", a.verdict.judged},
+         {"pass", a.verdict.judged && a.verdict.capacity_pass},
          {"conditions_met", a.verdict.conditions_met},
          {"verdict", a.verdict.text},
          {"method", a.verdict.method}};
@@ -152,6 +153,7 @@ nlohmann::json RunReportJson(const RunReport& rep) {
                     {"U1_V", p.u1_v},
                     {"I1_A", p.i1_a},
                     {"U2_V", p.u2_v},
+                    {"U2_t_s", p.t_u2_s},
                     {"I2_A", p.i2_a},
                     {"resistance_ohm", p.resistance_ohm},
                     {"delivered_mAh", p.delivered_mah},
@@ -370,15 +372,17 @@ std::string RunReportHtml(const RunReport& rep) {
     dc.title = "DC internal resistance";
     dc.paragraphs.push_back(fmt::format(
         "Two-current method (IEC 61960-3 clause 7.7): R = (U1 - U2) / (I2 - I1), U1 and I1 from the last sample before each "
-        "current edge, U2 and I2 from the first sample {:.2f} s after it.",
+        "current edge, U2 and I2 from the first sample {:.2f} s after it, or from the last sample before the next edge when "
+        "that comes sooner (the end of t2).",
         rep.options.dcir.delay_s));
     HtmlTable t;
-    t.header = {"edge (s)", "U1 (V)", "I1 (A)", "U2 (V)", "I2 (A)", "R (mOhm)", "DoD (%)"};
+    t.header = {"edge (s)", "U1 (V)", "I1 (A)", "U2 (V)", "U2 read at (s)", "I2 (A)", "R (mOhm)", "DoD (%)"};
     for (size_t k = 0; k < a.dcir.size() && k < 200; ++k) {
       const DcirPoint& p = a.dcir[k];
       std::string ptr = fmt::format("/dcir/{}/", k);
       t.rows.push_back({FigureCell(ptr + "t_s", p.t_edge_s, 1), FigureCell(ptr + "U1_V", p.u1_v, 4),
                         FigureCell(ptr + "I1_A", p.i1_a, 4), FigureCell(ptr + "U2_V", p.u2_v, 4),
+                        FigureCell(ptr + "U2_t_s", p.t_u2_s, 2),
                         FigureCell(ptr + "I2_A", p.i2_a, 4), FigureCell(ptr + "resistance_ohm", p.resistance_ohm, 4, "Ohm"),
                         FigureCell(ptr + "depth_of_discharge", p.depth_of_discharge, 3)});
     }
@@ -417,6 +421,7 @@ RunSummary SummariseRun(const RunReport& rep) {
     s.resistance_ohm = r[r.size() / 2];
   }
   s.verdict = a.verdict.text;
+  s.verdict_brief = a.verdict.brief;
   return s;
 }
 
@@ -447,7 +452,8 @@ nlohmann::json CompareReportJson(const CompareReport& c) {
                     {"duration_s", s.duration_s},
                     {"pulsed", s.pulsed},
                     {"resistance_ohm", Optional(s.resistance_ohm)},
-                    {"verdict", s.verdict}});
+                    {"verdict", s.verdict},
+                    {"verdict_brief", s.verdict_brief}});
   json ratios = json::array();
   for (const RatioFigures& r : c.ratios)
     ratios.push_back({{"pulsed", r.pulsed_label},
@@ -479,7 +485,7 @@ std::string CompareReportText(const CompareReport& c) {
     o += fmt::format("{:<8} {:>10.1f} {:>9.3f} {:>8.3f} {:>9.4f} {:>9.4f} {:>9} {:>7}  {}\n", s.label, s.charge_mah, s.energy_wh,
                      s.mean_voltage_v, s.average_current_a, s.peak_current_a,
                      s.resistance_ohm ? fmt::format("{:.1f}", *s.resistance_ohm * 1000) : "-", s.pulsed ? "yes" : "no",
-                     s.verdict.substr(0, s.verdict.find(':')));
+                     s.verdict_brief);
   for (const RatioFigures& r : c.ratios)
     o += fmt::format("pulsed {} vs continuous {} at {}: capacity ratio {:.3f}, energy ratio {:.3f}\n", r.pulsed_label,
                      r.continuous_label, r.basis, r.capacity_ratio, r.energy_ratio);
@@ -519,7 +525,7 @@ std::string CompareReportHtml(const CompareReport& c) {
         {TextCell(s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
          FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), FigureCell(p + "average_current_A", s.average_current_a, 4),
          FigureCell(p + "peak_current_A", s.peak_current_a, 4),
-         s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"), TextCell(s.verdict)});
+         s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"), TextCell(s.verdict_brief)});
   }
   t.tables.push_back(tab);
   sections.push_back(t);

@@ -10,6 +10,7 @@
 #include <fmt/format.h>
 
 #include "analysis/metrics.h"
+#include "analysis/verdict.h"
 
 namespace kp::ui {
 
@@ -128,6 +129,35 @@ DrawnLimits LimitsForRun(const std::string& procedure_text, const std::string& p
   return d;
 }
 
+std::string ListVerdict(const RunRow& run, double delivered_mah) {
+  ParseOutput parsed = ParseProcedure(run.procedure_text, run.procedure_name);
+  if (!parsed.ok()) return "not judged: procedure unreadable";
+  DischargeConditions dc;
+  dc.rated_mah = run.rated_mah;
+  dc.delivered_mah = delivered_mah;
+  bool other = false;  // constant power or resistance: no single current to compare
+  for (const Step& st : parsed.plan.steps) {
+    switch (st.kind) {
+      case StepKind::kPulseTrain:
+      case StepKind::kDutyCycle:
+      case StepKind::kResistanceTest:
+        dc.pulsed = true;
+        break;
+      case StepKind::kConstantCurrent:
+        if (st.current_a > 0) dc.mean_current_a = std::max(dc.mean_current_a, st.current_a);
+        break;
+      case StepKind::kConstantPower:
+      case StepKind::kConstantResistance:
+        other = true;
+        break;
+      default:
+        break;
+    }
+  }
+  if (other && !dc.pulsed && dc.mean_current_a <= 0.0) return "not judged: constant power or resistance";
+  return JudgeCapacityByMethod(MethodForChemistry(run.chemistry), dc).brief;
+}
+
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   RunListRow r;
   r.id = run.id;
@@ -146,8 +176,7 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
     r.verdict = std::string("-");
   } else {
-    CapacityVerdict v = JudgeCapacity(figures.discharged_mah(), run.rated_mah);
-    r.verdict = fmt::format("{} {:.0f} %", v.pass ? "PASS" : "FAIL", v.percent_of_rated);
+    r.verdict = ListVerdict(run, figures.discharged_mah());
   }
   return r;
 }

@@ -83,6 +83,11 @@ struct RunListRow {
   std::string reason;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
+// The run list's verdict of a completed run, without the full analysis: the
+// stored procedure says whether its discharge is the capacity method's
+// constant-current test (then "PASS 101 %" / "FAIL 97 %"), or not ("not
+// judged: pulsed discharge"); the same rule as the report's verdict.
+std::string ListVerdict(const RunRow& run, double delivered_mah);
 
 // True when every whitespace-separated word of `filter` occurs (ignoring case)
 // in the row's id, state, cell, chemistry, procedure, verdict or start time.

@@ -221,23 +221,40 @@ Result<CellPreset> LoadCellFile(const std::string& path) {
   return Parser(path).Parse(root);
 }
 
+namespace {
+
+// A built-in preset's short name is its file's stem with '_' read as '-'
+// ("li_ion.toml" is "li-ion").
+std::string PresetName(std::string_view file) {
+  std::string name(file.substr(0, file.rfind('.')));
+  for (char& c : name)
+    if (c == '_') c = '-';
+  return name;
+}
+
+const embedded::EmbeddedText* FindPreset(std::string_view name) {
+  for (const embedded::EmbeddedText& p : embedded::kCellPresets)
+    if (PresetName(p.file) == name) return &p;
+  return nullptr;
+}
+
+}  // namespace
+
 std::vector<std::string> BuiltInCellNames() {
   std::vector<std::string> out;
-  for (const PresetText& p : kPresetTexts) out.emplace_back(p.name);
+  for (const embedded::EmbeddedText& p : embedded::kCellPresets) out.push_back(PresetName(p.file));
   return out;
 }
 
 std::string_view BuiltInCellText(std::string_view name) {
-  for (const PresetText& p : kPresetTexts)
-    if (p.name == name) return p.text;
-  return {};
+  const embedded::EmbeddedText* p = FindPreset(name);
+  return p ? p->text : std::string_view();
 }
 
 Result<CellPreset> BuiltInCell(std::string_view name) {
-  for (const PresetText& p : kPresetTexts)
-    if (p.name == name) return ParseCellText(p.text, fmt::format("built-in {}", p.file));
+  if (const embedded::EmbeddedText* p = FindPreset(name)) return ParseCellText(p->text, fmt::format("built-in {}", p->file));
   std::string names;
-  for (const PresetText& p : kPresetTexts) names += (names.empty() ? "" : ", ") + std::string(p.name);
+  for (const std::string& n : BuiltInCellNames()) names += (names.empty() ? "" : ", ") + n;
   return NotFound(fmt::format("no built-in cell '{}' (known: {})", name, names));
 }
 

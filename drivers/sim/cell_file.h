@@ -40,7 +40,7 @@ Result<CellPreset> ParseCellText(std::string_view text, std::string_view source_
 // Reads and parses a parameter file.
 Result<CellPreset> LoadCellFile(const std::string& path);
 
-// Built-in presets by short name: "li-ion", "lifepo4", "nimh", "alkaline".
+// Built-in presets by short name: "li-ion", "lifepo4", "nimh", "alkaline", "li-mno2".
 std::vector<std::string> BuiltInCellNames();
 Result<CellPreset> BuiltInCell(std::string_view name);
 // The parameter-file text of a built-in preset (empty when unknown).

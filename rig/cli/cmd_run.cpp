@@ -128,7 +128,7 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--cell", opt.cell, "Name of the cell under test (required on real rigs)");
   c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0: as fast as possible)")
       ->capture_default_str();
-  c->add_option("--sim-cell", opt.sim_cell, "Simulator only: cell preset (li-ion, lifepo4, nimh, alkaline) or cell file")
+  c->add_option("--sim-cell", opt.sim_cell, "Simulator only: cell preset (li-ion, lifepo4, nimh, alkaline, li-mno2) or cell file")
       ->capture_default_str();
   c->add_option("--sim-seed", opt.sim_seed, "Simulator only: draw one cell of the preset's batch (0: the nominal cell)");
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");

@@ -36,6 +36,39 @@ TEST(Dcir, TwoCurrentStepGivesTheStandardsFormulaExactly) {
   EXPECT_DOUBLE_EQ(early[0].u2_v, u2 + 0.01);
 }
 
+// A 1 s I2 pulse sampled every 100 ms and followed at once by another level:
+// the default 1 s delay meets the falling edge, where the first sample belongs
+// to the next level. U2 must come from the pulse's last sample (0.9 s), the
+// end of t2 where IEC 61960-3 clause 7.7 reads it (secondary source).
+TEST(Dcir, DelayThatMeetsTheNextEdgeReadsTheEndOfThePulse) {
+  const double i1 = 0.5, i2 = 2.5, i3 = 1.25;
+  const double u1 = 3.80, u2_end = 3.60, u_next = 3.70;
+  std::vector<Sample> s;
+  for (int k = 0; k < 100; ++k) s.push_back({k * 0.1, u1, i1, 25, 0});          // I1 for 10 s
+  for (int k = 0; k < 10; ++k) s.push_back({10.0 + k * 0.1, u2_end + 0.01 * (9 - k), i2, 25, 1});  // I2 for 1 s
+  for (int k = 0; k < 50; ++k) s.push_back({11.0 + k * 0.1, u_next, i3, 25, 2});  // next step
+  std::vector<CommandedSegment> segs = {{0.0, 10.0, i1}, {10.0, 11.0, i2}, {11.0, 16.0, i3}};
+  DcirOptions o;  // default delay
+  std::vector<double> edges = EdgesFromSegments(segs, o.min_step_a);
+  ASSERT_EQ(edges.size(), 2u);
+  auto pts = MeasureDcir(s, edges, o, 2500.0);
+  ASSERT_EQ(pts.size(), 2u);
+  EXPECT_NEAR(pts[0].t_u2_s, 10.9, 1e-9);
+  EXPECT_DOUBLE_EQ(pts[0].u2_v, u2_end);
+  EXPECT_DOUBLE_EQ(pts[0].i2_a, i2);
+  EXPECT_NEAR(pts[0].resistance_ohm, (u1 - u2_end) / (i2 - i1), 1e-12);
+  // A delay inside the pulse still reads the first sample at or after it.
+  o.delay_s = 0.45;
+  auto early = MeasureDcir(s, edges, o, 2500.0);
+  ASSERT_EQ(early.size(), 2u);
+  EXPECT_NEAR(early[0].t_u2_s, 10.5, 1e-9);
+  EXPECT_NEAR(early[0].u2_v, u2_end + 0.04, 1e-12);
+  // A record that ends inside t2 gives no point for that edge.
+  std::vector<Sample> cut(s.begin(), s.begin() + 105);  // up to 10.4 s
+  o.delay_s = 1.0;
+  EXPECT_TRUE(MeasureDcir(cut, std::vector<double>{10.0}, o, 2500.0).empty());
+}
+
 // R versus depth of discharge: pulses on a cell whose resistance grows as it
 // empties; each point recovers the resistance used to make it.
 TEST(Dcir, ResistanceVersusDepthOfDischarge) {

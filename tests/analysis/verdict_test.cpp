@@ -56,6 +56,46 @@ TEST(Verdict, LithiumRatedCapacityWithConditions) {
 
 // IEC 61951-2 (NiMH): 0.2 It to 1.0 V; rated means >= 5 h at 0.2 It
 // (secondary / from memory).
+// Only the method's own test gets a PASS or FAIL: 0.2 It constant current
+// (IEC 61960-3 7.3.1). A pulse train, or a constant current at another rate,
+// delivers a figure that is reported but not judged against the rating; a
+// current a little off 0.2 It is still the test, with its current condition unmet.
+TEST(Verdict, OnlyTheMethodsOwnDischargeIsJudged) {
+  CapacityMethod m = MethodForChemistry("li-ion");
+  CapacityJudgement good = JudgeCapacityByMethod(m, GoodLiIon());
+  EXPECT_TRUE(good.judged);
+  EXPECT_EQ(good.brief, "PASS 102.4 %");
+
+  DischargeConditions pulsed = GoodLiIon();
+  pulsed.pulsed = true;
+  CapacityJudgement p = JudgeCapacityByMethod(m, pulsed);
+  EXPECT_FALSE(p.judged);
+  EXPECT_EQ(p.not_judged_why, "pulsed discharge");
+  EXPECT_EQ(p.brief, "not judged: pulsed discharge");
+  EXPECT_EQ(p.text.rfind("not judged", 0), 0u) << p.text;
+  EXPECT_NEAR(p.percent_of_rated, 102.44, 1e-9);  // the figure is still there
+
+  DischargeConditions fast = GoodLiIon();
+  fast.mean_current_a = 2.5;  // 1 It
+  fast.delivered_mah = 2400;
+  CapacityJudgement f = JudgeCapacityByMethod(m, fast);
+  EXPECT_FALSE(f.judged);
+  EXPECT_EQ(f.brief, "not judged: constant current at 1.00 It");
+
+  DischargeConditions near = GoodLiIon();
+  near.mean_current_a = 0.5 * (1.0 + 0.5 * kJudgedRateWindow);  // off by half the window
+  near.delivered_mah = 2400;
+  CapacityJudgement n = JudgeCapacityByMethod(m, near);
+  EXPECT_TRUE(n.judged);
+  EXPECT_FALSE(n.capacity_pass);
+  EXPECT_FALSE(n.conditions_met);  // the ±1 % current condition
+  EXPECT_EQ(n.brief, "FAIL 96.0 %");
+
+  DischargeConditions none = GoodLiIon();
+  none.rated_mah = 0;
+  EXPECT_FALSE(JudgeCapacityByMethod(m, none).judged);
+}
+
 TEST(Verdict, NickelMetalHydrideChecksEndVoltage) {
   CapacityMethod m = MethodForChemistry("NiMH");
   EXPECT_NE(m.name.find("61951-2"), std::string::npos);

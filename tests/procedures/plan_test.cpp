@@ -4,19 +4,12 @@
 
 #include "procedures/engine.h"
 #include "procedures/procedure_parser.h"
+#include "tests/support/fixtures.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // IEC 61960-3 clause 7.3.1: discharge at 0.2 It, where It (A) = Cn (Ah) / 1 h,
 // down to the manufacturer's end-of-discharge voltage (secondary source).

@@ -8,6 +8,7 @@
 
 #include "procedures/estimate.h"
 #include "procedures/units.h"
+#include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
@@ -351,7 +352,7 @@ TEST(Parser, ReportsSeveralErrorsAtOnce) {
 // --------------------------------------------------------------- library ---
 
 std::filesystem::path LibraryDir() {
-  return std::filesystem::path(__FILE__).parent_path() / ".." / ".." / "procedures" / "library";
+  return testing::SourcePath("procedures/library");
 }
 
 TEST(Library, EveryFileChecksAndRoundTrips) {

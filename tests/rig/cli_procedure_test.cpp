@@ -6,6 +6,7 @@
 #include <vector>
 
 #include "rig/cli/cli.h"
+#include "rig/run_report.h"
 #include "rig/store.h"
 #include "tests/support/test_support.h"
 
@@ -56,6 +57,37 @@ TEST(CliProcedure, RunOnTheSimulatorRecordsTheRun) {
   // A procedure with errors never starts a run.
   EXPECT_EQ(Cli({"run", Write(dir, "bad.kpp", "rest 5s\n"), "--rig", "sim", "--db", db}), cli::kExitBadInput);
   EXPECT_EQ((*store)->ListRuns()->size(), 1u);
+}
+
+// The coin-cell procedure of the library simulates its own chemistry: the
+// Li-MnO2 preset at the procedure's 230 mAh, run to its 2.0 V end under the
+// compressed duty cycle, with the load off at the end and the run judged as
+// what it is (a pulsed discharge, not a rated-capacity test).
+TEST(CliProcedure, CoinCellLibraryProcedureRunsOnItsOwnChemistry) {
+  testing::TempDir dir;
+  std::string db = dir.File("runs.db");
+  std::string file = testing::SourcePath("procedures/library/sensor-node-duty-cycle.kpp").string();
+  ASSERT_EQ(Cli({"run", file, "--rig", "sim", "--db", db}), cli::kExitOk);
+  SteadyClock wall;
+  auto store = Store::Open(db, wall);
+  ASSERT_TRUE(store.ok());
+  auto runs = (*store)->ListRuns();
+  ASSERT_TRUE(runs.ok());
+  ASSERT_EQ(runs->size(), 1u);
+  const RunRow& run = (*runs)[0];
+  EXPECT_EQ(run.outcome, Outcome::kCompleted) << run.reason;
+  EXPECT_EQ(run.chemistry, "li-mno2");
+  EXPECT_EQ(run.cell, "sim-li-mno2-230mAh");
+  auto rep = BuildRunReport(**store, run.id);
+  ASSERT_TRUE(rep.ok()) << rep.status().ToString();
+  const RunAnalysis& a = rep->analysis;
+  EXPECT_TRUE(a.pulsed);
+  EXPECT_FALSE(a.verdict.judged);
+  EXPECT_EQ(a.verdict.brief, "not judged: pulsed discharge");
+  // Bursts to 45 mA from a cell of tens of ohms end the test while most of
+  // the charge a light drain would get is still in it, but well past half.
+  EXPECT_GT(a.discharge_charge_mah, 0.5 * 230.0);
+  EXPECT_LT(a.discharge_charge_mah, 240.0);
 }
 
 }  // namespace

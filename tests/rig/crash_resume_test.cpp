@@ -26,6 +26,7 @@
 #include "rig/run_controller.h"
 #include "rig/run_lock.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -36,15 +37,7 @@ constexpr double kCommitIntervalS = 0.005;  // wall seconds; about 30 simulated 
 constexpr double kCapacityAh = 2.56;
 constexpr int kKills = 20;
 
-CellSpec Cell() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // Written by the runner after every sample, read by the test after the kill.
 struct Shared {
@@ -75,7 +68,7 @@ struct Shared {
     shared->soc.store(rig.bench().cell_soc());
     shared->sampling.store(true);
   };
-  Plan plan = RatedCapacityPlan(Cell());
+  Plan plan = RatedCapacityPlan(Cell2500());
   std::optional<ResumePoint> point;
   if (resume_run > 0) {
     auto p = ResumablePlan(**store, resume_run, RebuildBuiltInPlan);
@@ -192,7 +185,7 @@ TEST(CrashResume, KilledRunnerLosesNothingCommittedAndResumesToTheRightCharge) {
     ASSERT_TRUE(store.ok());
     SimRig rig(clock, sim::DemoLiIonCell(kCapacityAh));
     RunController rc(**store, clock, rig.roles());
-    auto r = rc.Execute(RatedCapacityPlan(Cell()), {});
+    auto r = rc.Execute(RatedCapacityPlan(Cell2500()), {});
     ASSERT_TRUE(r.ok());
     ASSERT_EQ(r->outcome, Outcome::kCompleted);
     ref_mah = DeliveredChargeMah(*(*store)->LoadSamples(r->run_id));
@@ -301,7 +294,7 @@ TEST(CrossProcessControl, AbortFromAnotherProcessStopsTheRunner) {
     RunOptions o;
     o.control = &channel;
     o.on_sample = [&](const Reading&, double) { shared->sampling.store(true); };
-    Plan plan = RatedCapacityPlan(Cell());
+    Plan plan = RatedCapacityPlan(Cell2500());
     plan.steps[0].end.time_s = 600;  // bounded: 30 wall seconds if the abort were never seen
     auto r = rc.Execute(plan, o);
     _exit(r.ok() && r->outcome == Outcome::kAborted && !rig.bench().load_input_on() ? 0 : 15);

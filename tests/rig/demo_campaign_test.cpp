@@ -10,6 +10,7 @@
 #include <fstream>
 #include <memory>
 #include <regex>
+#include <set>
 #include <sstream>
 
 #include "procedures/procedure_parser.h"
@@ -240,18 +241,24 @@ TEST_F(DemoCampaignTest, EveryLinkInTheReportResolves) {
   for (const std::string& page : figures_->pages) EXPECT_TRUE(std::filesystem::is_regular_file(dir / page)) << page;
 }
 
-TEST(DemoCampaign, ShippedProceduresMatchTheBuiltInsAndCompile) {
-  std::filesystem::path dir = std::filesystem::current_path(), lib;
-  for (int up = 0; up < 6 && lib.empty(); ++up, dir = dir.parent_path())
-    if (std::filesystem::exists(dir / "procedures/library/demo/rated-capacity.kpp")) lib = dir / "procedures/library/demo";
-  ASSERT_FALSE(lib.empty()) << "run from inside the source tree (build directory below it)";
-  for (const demo::DemoProcedureText& p : demo::kDemoProcedures) {
-    std::ifstream in(lib / std::string(p.file));
+// Every procedure under procedures/library/demo is compiled in (the demo runs
+// from any folder) byte for byte, and compiles.
+TEST(DemoCampaign, ShippedProceduresAreTheBuiltInsAndCompile) {
+  std::set<std::string> files;
+  for (const auto& entry : std::filesystem::directory_iterator(testing::SourcePath("procedures/library/demo"))) {
+    if (entry.path().extension() != ".kpp") continue;
+    files.insert(entry.path().filename().string());
+    std::ifstream in(entry.path());
     std::stringstream ss;
     ss << in.rdbuf();
-    EXPECT_EQ(ss.str(), std::string(p.text)) << p.file;
-    EXPECT_TRUE(CompileProcedure(p.text, std::string(p.file)).ok()) << p.file;
+    const embedded::EmbeddedText* built_in = nullptr;
+    for (const embedded::EmbeddedText& p : embedded::kDemoProcedures)
+      if (p.file == entry.path().filename().string()) built_in = &p;
+    ASSERT_NE(built_in, nullptr) << entry.path();
+    EXPECT_EQ(ss.str(), std::string(built_in->text)) << entry.path();
+    EXPECT_TRUE(CompileProcedure(built_in->text, entry.path().filename().string()).ok()) << entry.path();
   }
+  EXPECT_EQ(files.size(), std::size(embedded::kDemoProcedures));
 }
 
 TEST(DemoCampaign, RefusesToReplaceAFileThatIsNotAKneepointDatabase) {

@@ -12,20 +12,13 @@
 #include "rig/run_controller.h"
 #include "rig/run_lock.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // The tables as schema version 1 created them, with one finished run.
 constexpr const char* kVersion1Db = R"sql(
@@ -125,7 +118,7 @@ struct Bench {
 };
 
 Plan TimedPlan(double seconds) {
-  Plan p = RatedCapacityPlan(Cell());
+  Plan p = RatedCapacityPlan(Cell2500());
   p.steps[0].end.time_s = seconds;
   return p;
 }
@@ -210,7 +203,7 @@ int64_t InterruptedRun(Bench& b, double stop_at_s) {
   o.on_sample = [&](const Reading& r, double) {
     if (r.t_s >= stop_at_s) stop = true;
   };
-  auto r = rc.Execute(RatedCapacityPlan(Cell()), o);
+  auto r = rc.Execute(RatedCapacityPlan(Cell2500()), o);
   EXPECT_TRUE(r.ok());
   EXPECT_OK(b.store->db().Exec("UPDATE runs SET outcome='running', ended_at=NULL, runner_pid=2147483646"));
   return r->run_id;
@@ -221,7 +214,7 @@ TEST(Resume, RefusesARunThatIsNotInterrupted) {
   RunController rc(*b.store, b.clock, b.rig->roles());
   auto r = rc.Execute(TimedPlan(30), {});
   ASSERT_TRUE(r.ok());
-  auto point = PrepareResume(*b.store, r->run_id, RatedCapacityPlan(Cell()), b.rig->roles());
+  auto point = PrepareResume(*b.store, r->run_id, RatedCapacityPlan(Cell2500()), b.rig->roles());
   ASSERT_FALSE(point.ok());
   EXPECT_NE(point.status().message().find("is completed; only an interrupted run can be resumed"), std::string::npos)
       << point.status().message();
@@ -279,7 +272,7 @@ TEST(Resume, ContinuesTheStepWithChargeCarriedOverAndLogsTheGap) {
   // RunController suite); both parts together must give that.
   Bench ref;
   RunController rc2(*ref.store, ref.clock, ref.rig->roles());
-  auto rr = rc2.Execute(RatedCapacityPlan(Cell()), {});
+  auto rr = rc2.Execute(RatedCapacityPlan(Cell2500()), {});
   ASSERT_TRUE(rr.ok());
   double ref_mah = ref.store->LoadProgress(rr->run_id)->value().delivered_mah;
   EXPECT_NEAR(after->delivered_mah, ref_mah, 0.001 * ref_mah);

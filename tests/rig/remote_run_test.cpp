@@ -17,20 +17,13 @@
 #include "rig/rig.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // One sample every 10 s keeps a full 0.2C discharge (about 1,850 samples) quick over sockets.
 Plan TestPlan() { return RatedCapacityPlan(Cell2500(), 10.0); }

@@ -13,6 +13,7 @@
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "tests/analysis/xml_check.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -93,15 +94,7 @@ TEST(LifeCli, PeukertDerating) {
   EXPECT_EQ(Cli({"life", "--capacity", "2000mAh", "--average", "1mA", "--peukert", "1.2"}).code, cli::kExitBadInput);
 }
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // Constant-current runs at three rates: the compare command fits Peukert's
 // law over them and writes the HTML comparison; `report --html` writes a

@@ -10,20 +10,13 @@
 #include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "tests/analysis/xml_check.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
 // Rest, then 0.2 It with a 1 It step of 10 s every 30 min, to the cutoff:
 // gives DC-IR points across the depth of discharge.
@@ -55,16 +48,7 @@ Plan SteppedPlan(const CellSpec& cell) {
   return p;
 }
 
-struct Fixture {
-  testing::TempDir dir;
-  SteadyClock wall;
-  VirtualClock clock;
-  std::unique_ptr<Store> store;
-  Fixture() {
-    auto s = Store::Open(dir.File("run.db"), wall);
-    EXPECT_TRUE(s.ok()) << s.status().ToString();
-    store = std::move(*s);
-  }
+struct Fixture : testing::StoreFixture {
   int64_t Run(const Plan& plan) {
     SimRig rig(clock, sim::DemoLiIonCell(2.56));
     RunController rc(*store, clock, rig.roles());

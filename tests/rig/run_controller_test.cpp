@@ -5,32 +5,15 @@
 #include "analysis/metrics.h"
 #include "drivers/inproc_transport.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
-struct Fixture {
-  testing::TempDir dir;
-  SteadyClock wall;
-  VirtualClock clock;
-  std::unique_ptr<Store> store;
-  Fixture() {
-    auto s = Store::Open(dir.File("run.db"), wall);
-    EXPECT_TRUE(s.ok()) << s.status().ToString();
-    store = std::move(*s);
-  }
-};
+using Fixture = testing::StoreFixture;
 
 TEST(RunController, RatedCapacityCheckCompletesWithLoadOff) {
   Fixture f;

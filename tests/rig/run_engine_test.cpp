@@ -399,7 +399,7 @@ TEST(RunEngine, ChargeStepDrivesTheSupplyUntilTaper) {
 
 // The ready procedures that need only a load run to completion on the simulator.
 TEST(RunEngine, LibraryProceduresRunOnTheSimulator) {
-  auto dir = std::filesystem::path(__FILE__).parent_path() / ".." / ".." / "procedures" / "library";
+  auto dir = testing::SourcePath("procedures/library");
   for (const char* name : {"dcir-sweep.kpp", "hppc-pulses.kpp", "pulsed-2a-quarter-duty.kpp"}) {
     std::ifstream in(dir / name);
     std::stringstream ss;

@@ -4,8 +4,10 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
+#include <set>
 #include <sstream>
 
 #include "tests/support/test_support.h"
@@ -37,7 +39,7 @@ Status ParseError(const std::string& text) {
 
 TEST(CellFile, EveryBuiltInPresetLoads) {
   std::vector<std::string> names = BuiltInCellNames();
-  ASSERT_EQ(names.size(), 4u);
+  ASSERT_EQ(names.size(), 5u);
   for (const std::string& n : names) {
     Result<CellPreset> p = BuiltInCell(n);
     ASSERT_TRUE(p.ok()) << p.status().ToString();
@@ -59,25 +61,28 @@ TEST(CellFile, DemoCellIsTheLiIonPreset) {
   EXPECT_DOUBLE_EQ(p->params.kibam_k_per_s, 1.3 / 3600);  // per hour in the file
 }
 
-// The files under drivers/sim/presets are what users copy: they must be the
-// compiled-in presets byte for byte. Found from the build directory upwards.
-TEST(CellFile, ShippedPresetFilesMatchTheBuiltIns) {
-  std::filesystem::path dir = std::filesystem::current_path();
-  std::filesystem::path presets;
-  for (int up = 0; up < 6 && presets.empty(); ++up, dir = dir.parent_path()) {
-    if (std::filesystem::exists(dir / "drivers/sim/presets/li_ion.toml")) presets = dir / "drivers/sim/presets";
-  }
-  ASSERT_FALSE(presets.empty()) << "run from inside the source tree (build directory below it)";
-  const std::pair<const char*, const char*> files[] = {
-      {"li-ion", "li_ion.toml"}, {"lifepo4", "lifepo4.toml"}, {"nimh", "nimh.toml"}, {"alkaline", "alkaline.toml"}};
-  for (auto [name, file] : files) {
-    std::ifstream in(presets / file);
+// The files under drivers/sim/presets are what users copy and what the
+// program compiles in: every file is a built-in preset under its short name
+// (its stem, '_' read as '-'), every built-in comes from a file, and each
+// loads as a cell file.
+TEST(CellFile, EveryShippedPresetFileIsBuiltIn) {
+  std::vector<std::string> names = BuiltInCellNames();
+  std::set<std::string> from_files;
+  for (const auto& entry : std::filesystem::directory_iterator(testing::SourcePath("drivers/sim/presets"))) {
+    if (entry.path().extension() != ".toml") continue;
+    std::string name = entry.path().stem().string();
+    std::replace(name.begin(), name.end(), '_', '-');
+    from_files.insert(name);
+    std::ifstream in(entry.path());
     std::stringstream ss;
     ss << in.rdbuf();
-    EXPECT_EQ(ss.str(), std::string(BuiltInCellText(name))) << file;
-    Result<CellPreset> loaded = LoadCellFile((presets / file).string());
+    EXPECT_EQ(ss.str(), std::string(BuiltInCellText(name))) << entry.path();
+    Result<CellPreset> loaded = LoadCellFile(entry.path().string());
     ASSERT_TRUE(loaded.ok()) << loaded.status().ToString();
+    EXPECT_EQ(loaded->params.chemistry, name) << "a preset's short name is its chemistry";
   }
+  EXPECT_EQ(from_files, std::set<std::string>(names.begin(), names.end()));
+  EXPECT_EQ(names.front(), "li-ion");  // the default, listed first
 }
 
 TEST(CellFile, UserFileOverridesValues) {

@@ -9,37 +9,15 @@
 #include "analysis/metrics.h"
 #include "drivers/sim/cell_file.h"
 #include "rig/run_controller.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-CellSpec Cell2500() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  return c;
-}
+using testing::Cell2500;
 
-struct Fixture {
-  testing::TempDir dir;
-  SteadyClock wall;
-  VirtualClock clock;
-  std::unique_ptr<Store> store;
-  Fixture() {
-    auto s = Store::Open(dir.File("run.db"), wall);
-    EXPECT_TRUE(s.ok()) << s.status().ToString();
-    store = std::move(*s);
-  }
-  std::vector<Sample> Samples(int64_t run_id) {
-    auto s = store->LoadSamples(run_id);
-    EXPECT_TRUE(s.ok());
-    return s.ok() ? *s : std::vector<Sample>{};
-  }
-};
+using Fixture = testing::StoreFixture;
 
 // A second run on the same SimRig continues from the charge, wells and
 // temperature the first one left; the two together deliver what one

@@ -24,6 +24,13 @@
 
 namespace kp::testing {
 
+// A file or folder of the source tree (procedures/library, drivers/sim/presets
+// ...), found through the source directory CMake compiled in, so tests run
+// from any working directory and any build folder.
+inline std::filesystem::path SourcePath(const std::string& relative) {
+  return std::filesystem::path(KP_SOURCE_DIR) / relative;
+}
+
 // A fresh temporary directory, removed with everything in it at destruction.
 class TempDir {
  public:

@@ -65,11 +65,14 @@ TEST(RunList, VerdictAndFilter) {
   run.chemistry = "li-ion";
   run.procedure_name = "rated-capacity";
   run.rated_mah = 1000.0;
+  run.procedure_text =
+      "cell li-ion rated=1000mAh nominal=3.6V max=4.2V cutoff=3.0V max-temp=60degC\n"
+      "discharge 0.2C until voltage<=3.0V\n";
   run.outcome = Outcome::kCompleted;
   RunningFigures f;
   for (int k = 0; k <= 7200; ++k) f.Add({static_cast<double>(k), 3.7, 0.51, 25.0, 0});  // 1020 mAh
   RunListRow row = MakeRunListRow(run, f);
-  EXPECT_EQ(row.verdict, "PASS 102 %");
+  EXPECT_EQ(row.verdict, "PASS 102.0 %");
   EXPECT_DOUBLE_EQ(row.elapsed_s, 7200.0);
   EXPECT_TRUE(MatchesFilter(row, ""));
   EXPECT_TRUE(MatchesFilter(row, "A1 completed"));
@@ -81,7 +84,19 @@ TEST(RunList, VerdictAndFilter) {
   EXPECT_EQ(MakeRunListRow(run, f).verdict, "-");
   run.outcome = Outcome::kCompleted;
   run.rated_mah = 2000.0;
-  EXPECT_EQ(MakeRunListRow(run, f).verdict, "FAIL 51 %");
+  run.procedure_text =
+      "cell li-ion rated=2000mAh nominal=3.6V max=4.2V cutoff=3.0V max-temp=60degC\n"
+      "discharge 400mA until voltage<=3.0V\n";
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "FAIL 51.0 %");
+  // Only the method's own test gets PASS or FAIL: not a pulse train, not another rate.
+  run.procedure_text =
+      "cell li-ion rated=2000mAh nominal=3.6V max=4.2V cutoff=3.0V max-temp=60degC\n"
+      "pulse 2A/2s 0A/8s until voltage<=3.0V\n";
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "not judged: pulsed discharge");
+  run.procedure_text =
+      "cell li-ion rated=2000mAh nominal=3.6V max=4.2V cutoff=3.0V max-temp=60degC\n"
+      "discharge 1C until voltage<=3.0V\n";
+  EXPECT_EQ(MakeRunListRow(run, f).verdict, "not judged: constant current at 1.00 It");
   run.outcome = Outcome::kAborted;
   EXPECT_EQ(MakeRunListRow(run, f).verdict, "incomplete");
 }

@@ -1,0 +1,27 @@
+#include "tests/support/fixtures.h"
+
+namespace kp::testing {
+
+CellSpec Cell2500() {
+  CellSpec c;
+  c.rated_mah = 2500;
+  c.nominal_v = 3.6;
+  c.max_v = 4.2;
+  c.cutoff_v = 2.75;
+  c.max_temp_c = 60;
+  return c;
+}
+
+StoreFixture::StoreFixture(const std::string& file) {
+  auto s = Store::Open(dir.File(file), wall);
+  EXPECT_TRUE(s.ok()) << s.status().ToString();
+  if (s.ok()) store = std::move(*s);
+}
+
+std::vector<Sample> StoreFixture::Samples(int64_t run_id) {
+  auto s = store->LoadSamples(run_id);
+  EXPECT_TRUE(s.ok()) << s.status().ToString();
+  return s.ok() ? *s : std::vector<Sample>{};
+}
+
+}  // namespace kp::testing

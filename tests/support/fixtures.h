@@ -1,0 +1,35 @@
+// Fixtures several suites share: the cell most procedures in the tests
+// describe, and a store in a fresh folder with the clocks a run needs.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "analysis/sample.h"
+#include "drivers/clock.h"
+#include "procedures/plan.h"
+#include "rig/store.h"
+#include "tests/support/test_support.h"
+
+namespace kp::testing {
+
+// A 2,500 mAh Li-ion cell: 3.6 V nominal, 4.2 V full, 2.75 V cutoff, 60 degC
+// limit (the simulator's DemoLiIonCell(2.56) stands in for it).
+CellSpec Cell2500();
+
+// A store in a fresh temporary folder, its wall clock real-time, plus a
+// virtual clock for the runs driven against it.
+struct StoreFixture {
+  explicit StoreFixture(const std::string& file = "run.db");
+  // Every sample of `run_id` (empty, and a test failure, when unreadable).
+  std::vector<Sample> Samples(int64_t run_id);
+
+  TempDir dir;
+  SteadyClock wall;
+  VirtualClock clock;
+  std::unique_ptr<Store> store;
+};
+
+}  // namespace kp::testing
