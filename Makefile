@@ -15,27 +15,38 @@ PKGS := build-essential cmake ninja-build pkg-config ccache \
         libgsl-dev libboost-dev \
         xvfb xauth libgl1-mesa-dri librsvg2-bin
 
-# Hardening (see DEVELOPERS.md, "Hardening"): a second build under
-# AddressSanitizer + UndefinedBehaviorSanitizer, bounded libFuzzer runs with
-# clang, and the static checkers. `.ci/run` runs test, sanitize, fuzz, lint.
+# Hardening (see DEVELOPERS.md, "Hardening"): a second build with clang under
+# AddressSanitizer + UndefinedBehaviorSanitizer with libFuzzer coverage, which
+# runs the whole suite and also holds the fuzz targets; bounded libFuzzer runs;
+# and the static checkers. `.ci/run` runs test, sanitize, fuzz, lint.
+HARDEN_PKGS := clang libclang-rt-14-dev clang-tidy cppcheck
 SAN_BUILD  ?= build-asan
-FUZZ_BUILD ?= build-fuzz
 FUZZ_SECONDS ?= 20
 FUZZ_TARGETS := procedure scpi_number profile rig_file sim_command
-SAN_FLAGS  := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer -O1 -g
 # Any report fails the test that produced it: UBSan halts, ASan aborts.
 SAN_ENV    := ASAN_OPTIONS=abort_on_error=1:detect_leaks=1:strict_string_checks=1:detect_stack_use_after_return=1 \
               UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
               LSAN_OPTIONS=suppressions=$(CURDIR)/.ci/lsan-suppressions.txt
 LINT_DIRS  := analysis drivers procedures rig ui
 
-.PHONY: all deps configure build demo test bench clean sanitize fuzz lint
+.PHONY: all deps deps-harden configure build demo test bench clean san-configure sanitize fuzz lint
 
 all: build
 
 deps:
 	@missing=""; \
 	for p in $(PKGS); do \
+	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "install ok installed" || missing="$$missing $$p"; \
+	done; \
+	if [ -n "$$missing" ]; then \
+	  echo "kneepoint: installing missing Debian packages:$$missing"; \
+	  $(SUDO) apt-get update && \
+	  DEBIAN_FRONTEND=noninteractive $(SUDO) apt-get install -y --no-install-recommends $$missing; \
+	fi
+
+deps-harden: deps
+	@missing=""; \
+	for p in $(HARDEN_PKGS); do \
 	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "install ok installed" || missing="$$missing $$p"; \
 	done; \
 	if [ -n "$$missing" ]; then \
@@ -59,42 +70,43 @@ test: build
 bench: build
 	./$(BUILD)/tests/bench/kneepoint_bench
 
-# The whole GoogleTest suite (and every other ctest) again under ASan+UBSan, in
-# $(SAN_BUILD)/ with the default compiler; benchmarks are left out.
+# The sanitizer build ($(SAN_BUILD)/, clang, -DKP_FUZZ=ON): every library and
+# test is compiled with ASan + UBSan and libFuzzer's coverage, so one build
+# serves both `sanitize` (the whole GoogleTest suite and every other ctest,
+# benchmarks left out) and `fuzz` (the <name>_fuzz binaries).
+san-configure: deps-harden
+	@[ -f $(SAN_BUILD)/build.ninja ] || CXX=clang++ cmake -S . -B $(SAN_BUILD) -G Ninja -DCMAKE_BUILD_TYPE=Debug \
+	  -DKP_BENCH=OFF -DKP_FUZZ=ON -DCMAKE_CXX_FLAGS_DEBUG="-O1"
+
 # CrashResume is left out here: it kills runners that run in real time at
 # 6000x and bounds the charge lost per kill by what a commit window can hold;
 # under the sanitizers every step is several times slower, a window spans far
 # more simulated time and the bound no longer describes the code. It runs in
 # every `make test`.
-sanitize: deps
-	@[ -f $(SAN_BUILD)/build.ninja ] || cmake -S . -B $(SAN_BUILD) -G Ninja -DCMAKE_BUILD_TYPE=Debug \
-	  -DKP_BENCH=OFF -DCMAKE_CXX_FLAGS="$(SAN_FLAGS)" \
-	  -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined"
+sanitize: san-configure
 	cmake --build $(SAN_BUILD) -j $(JOBS)
 	$(SAN_ENV) ctest --test-dir $(SAN_BUILD) --output-on-failure -j $(JOBS) --timeout 600 -E '^CrashResume\.'
 
-# libFuzzer: each target runs FUZZ_SECONDS on a scratch copy of its seed corpus
-# (clang, $(FUZZ_BUILD)/). A crash leaves crash-* in $(FUZZ_BUILD)/findings/:
-# fix the bug, then copy the input into tests/fuzz/corpus/<target>/.
-fuzz: deps
-	@[ -f $(FUZZ_BUILD)/build.ninja ] || CXX=clang++ cmake -S . -B $(FUZZ_BUILD) -G Ninja \
-	  -DCMAKE_BUILD_TYPE=RelWithDebInfo -DKP_FUZZ=ON -DKP_BENCH=OFF
-	cmake --build $(FUZZ_BUILD) -j $(JOBS) --target $(addsuffix _fuzz,$(FUZZ_TARGETS))
-	@mkdir -p $(FUZZ_BUILD)/findings
+# libFuzzer: each target runs FUZZ_SECONDS on a scratch copy of its seed corpus.
+# A crash leaves crash-* in $(SAN_BUILD)/findings/: fix the bug, then copy the
+# input into tests/fuzz/corpus/<target>/ (the replay tests keep it fixed).
+fuzz: san-configure
+	cmake --build $(SAN_BUILD) -j $(JOBS) --target $(addsuffix _fuzz,$(FUZZ_TARGETS))
+	@mkdir -p $(SAN_BUILD)/findings
 	@set -e; for t in $(FUZZ_TARGETS); do \
-	  rm -rf $(FUZZ_BUILD)/corpus/$$t; mkdir -p $(FUZZ_BUILD)/corpus/$$t; \
-	  cp tests/fuzz/corpus/$$t/* $(FUZZ_BUILD)/corpus/$$t/; \
+	  rm -rf $(SAN_BUILD)/corpus/$$t; mkdir -p $(SAN_BUILD)/corpus/$$t; \
+	  cp tests/fuzz/corpus/$$t/* $(SAN_BUILD)/corpus/$$t/; \
 	  echo "fuzz: $$t for $(FUZZ_SECONDS) s"; \
-	  $(SAN_ENV) ./$(FUZZ_BUILD)/tests/fuzz/$${t}_fuzz -max_total_time=$(FUZZ_SECONDS) -max_len=8192 \
+	  $(SAN_ENV) ./$(SAN_BUILD)/tests/fuzz/$${t}_fuzz -max_total_time=$(FUZZ_SECONDS) -max_len=8192 \
 	    -timeout=10 -rss_limit_mb=2048 -print_final_stats=1 \
-	    -artifact_prefix=$(FUZZ_BUILD)/findings/$$t- $(FUZZ_BUILD)/corpus/$$t 2>&1 \
-	    | tee $(FUZZ_BUILD)/$$t.log | grep -E "^(stat::number_of_executed_units|==[0-9]+==ERROR|SUMMARY)" ; \
-	  [ $${PIPESTATUS[0]} -eq 0 ] || { echo "fuzz: $$t failed, see $(FUZZ_BUILD)/$$t.log"; exit 1; }; \
+	    -artifact_prefix=$(SAN_BUILD)/findings/$$t- $(SAN_BUILD)/corpus/$$t 2>&1 \
+	    | tee $(SAN_BUILD)/$$t.log | grep -E "^(stat::number_of_executed_units|==[0-9]+==ERROR|SUMMARY)" ; \
+	  [ $${PIPESTATUS[0]} -eq 0 ] || { echo "fuzz: $$t failed, see $(SAN_BUILD)/$$t.log"; exit 1; }; \
 	done
 
 # Static analysis of the project's own sources (configs and the commented
 # suppressions live in .ci/). Needs the compile database of $(BUILD).
-lint: configure
+lint: configure deps-harden
 	cppcheck --quiet --error-exitcode=1 -j $(JOBS) --std=c++20 --language=c++ --inline-suppr \
 	  --enable=warning,performance,portability --suppressions-list=.ci/cppcheck-suppressions.txt \
 	  -I . $(LINT_DIRS)
@@ -102,4 +114,4 @@ lint: configure
 	  xargs -P $(JOBS) -n 4 clang-tidy --quiet --config-file=.ci/clang-tidy.yaml -p $(BUILD)
 
 clean:
-	rm -rf $(BUILD) $(SAN_BUILD) $(FUZZ_BUILD)
+	rm -rf $(BUILD) $(SAN_BUILD)
