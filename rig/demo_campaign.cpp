@@ -1,6 +1,7 @@
 #include "rig/demo_campaign.h"
 
 #include <algorithm>
+#include <cmath>
 #include <filesystem>
 #include <fstream>
 
@@ -168,6 +169,10 @@ std::string IndexHtml(const DemoFigures& f) {
   o += "<h2>1. Rated capacity</h2>\n";
   o += fmt::format("<p>Measured {:.0f} mAh at 0.2 It against a datasheet claim of {:.0f} mAh: {:.1f} % of rated. {}</p>\n",
                    f.measured_mah, f.rated_mah, f.percent_of_rated, Esc(f.verdict_text));
+  if (f.batch_mate_run > 0)
+    o += fmt::format("<p>Cell 2 of the same batch, discharged at the same 0.2 It in its Peukert series (run {}), delivered "
+                     "{:.1f} % of the claim: one cell's verdict sits inside the batch's spread.</p>\n",
+                     f.batch_mate_run, f.batch_mate_percent);
   o += "<h2>2. The product's load</h2>\n";
   o += fmt::format("<p>Duty cycle {:.0f} mAh, 2 A pulses {:.0f} mAh, 2 A continuous {:.0f} mAh. "
                    "<a href=\"compare-product-load.html\">Comparison table and overlays</a>.</p>\n",
@@ -292,6 +297,11 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
     SimRig rig(clock, sim::VaryCell(preset.params, preset.spread, CellSeed(2)));
     for (size_t i = 5; i <= 8; ++i) {
       KP_ASSIGN_OR_RETURN(DemoRun run, c.Run(i, rig, clock));
+      const RunAnalysis& a = c.last_report().analysis;
+      if (f.rated_mah > 0 && std::abs(a.average_current_a - 0.2 * f.rated_mah / 1000.0) < 0.01 * 0.2 * f.rated_mah / 1000.0) {
+        f.batch_mate_run = run.run_id;
+        f.batch_mate_percent = 100.0 * run.discharge_mah / f.rated_mah;
+      }
       peukert_runs.push_back(run.run_id);
       f.runs.push_back(std::move(run));
     }
@@ -354,6 +364,9 @@ std::string DemoSummaryText(const DemoFigures& f) {
   o += "\n";
   o += fmt::format("1 rated capacity   {:.0f} mAh at 0.2 It = {:.1f} % of the {:.0f} mAh claimed: {}\n", f.measured_mah,
                    f.percent_of_rated, f.rated_mah, f.capacity_pass ? "PASS" : "FAIL (below the claim)");
+  if (f.batch_mate_run > 0)
+    o += fmt::format("                   cell 2 of the batch at the same 0.2 It (run {}): {:.1f} % of the claim\n",
+                     f.batch_mate_run, f.batch_mate_percent);
   o += fmt::format("2 product load     duty cycle {:.0f} mAh; 2 A pulses {:.0f} mAh vs 2 A continuous {:.0f} mAh\n", f.duty_mah,
                    f.pulsed_mah, f.continuous_mah);
   for (const RatioFigures& r : f.ratios)

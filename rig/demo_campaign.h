@@ -64,6 +64,10 @@ struct DemoFigures {
   double measured_mah = 0.0;
   double percent_of_rated = 0.0;
   bool capacity_pass = false;
+  // The batch mate (cell 2) at the same 0.2 It in its Peukert series: the
+  // spread a single cell's verdict sits in.
+  int64_t batch_mate_run = 0;
+  double batch_mate_percent = 0.0;
   std::string verdict_text;
   // 2. product load on the same cell
   int64_t duty_run = 0, pulsed_run = 0, continuous_run = 0;

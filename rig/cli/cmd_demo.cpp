@@ -5,6 +5,7 @@
 #include <iostream>
 
 #include <fmt/format.h>
+#include <unistd.h>
 
 #include "rig/cli/cli.h"
 #include "rig/demo_campaign.h"
@@ -17,12 +18,19 @@ struct DemoCliOptions {
   std::string report_dir = "kneepoint-demo-report";
 };
 
-// Redraws one line: "[#####.....]  42 %  2 duty cycle".
+// Redraws one line on a terminal: "[#####.....]  42 %  2 duty cycle". Into a
+// file or a pipe (CI logs, `| tee`) it writes one plain line per part instead.
 class ProgressLine {
  public:
   void Update(double fraction, const std::string& label) {
     int percent = static_cast<int>(fraction * 100.0);
     if (percent == percent_ && label == label_) return;
+    if (!tty_) {
+      if (label != label_) std::cout << fmt::format("  {:3d} %  {}\n", percent, label) << std::flush;
+      percent_ = percent;
+      label_ = label;
+      return;
+    }
     percent_ = percent;
     label_ = label;
     constexpr int kWidth = 30;
@@ -32,7 +40,13 @@ class ProgressLine {
               << std::flush;
   }
 
+  // Ends the redrawn line (a terminal only).
+  void Finish() {
+    if (tty_ && percent_ >= 0) std::cout << "\n";
+  }
+
  private:
+  bool tty_ = isatty(STDOUT_FILENO) == 1;
   int percent_ = -1;
   std::string label_;
 };
@@ -48,7 +62,8 @@ int RunDemo(const DemoCliOptions& opt) {
   o.stop = InstallStopSignals();
   o.on_progress = [&](double fraction, const std::string& label) { progress.Update(fraction, label); };
   auto figures = RunDemoCampaign(o);
-  std::cout << "\n\n";
+  progress.Finish();
+  std::cout << "\n";
   if (!figures.ok()) return Fail(figures.status());
   std::cout << DemoSummaryText(*figures) << "\n";
   std::cout << fmt::format("Samples: {}   Report: {}\n\nNext (from the repository root):\n", opt.db, figures->index_html);

@@ -1,4 +1,5 @@
 // `runs`: list the runs in a database.
+#include <algorithm>
 #include <iostream>
 
 #include <fmt/format.h>
@@ -26,10 +27,19 @@ void RegisterRuns(CliRegistry& r) {
       std::cout << arr.dump(2) << "\n";
       return kExitOk;
     }
-    std::cout << fmt::format("{:>4}  {:<22} {:<24} {:<11} {:>8}  {}\n", "run", "cell", "procedure", "outcome", "samples", "started");
+    // Columns as wide as their longest entry (names longer than 60 characters are cut).
+    constexpr size_t kMaxWidth = 60;
+    auto cut = [&](const std::string& text) { return text.size() <= kMaxWidth ? text : text.substr(0, kMaxWidth - 3) + "..."; };
+    size_t cell_w = 4, proc_w = 9;
     for (const RunRow& row : *rows) {
-      std::cout << fmt::format("{:>4}  {:<22} {:<24} {:<11} {:>8}  {}\n", row.id, row.cell, row.procedure_name, OutcomeName(row.outcome),
-                               row.sample_count, row.started_at);
+      cell_w = std::max(cell_w, cut(row.cell).size());
+      proc_w = std::max(proc_w, cut(row.procedure_name).size());
+    }
+    std::cout << fmt::format("{:>4}  {:<{}}  {:<{}}  {:<11} {:>8}  {}\n", "run", "cell", cell_w, "procedure", proc_w, "outcome",
+                             "samples", "started");
+    for (const RunRow& row : *rows) {
+      std::cout << fmt::format("{:>4}  {:<{}}  {:<{}}  {:<11} {:>8}  {}\n", row.id, cut(row.cell), cell_w, cut(row.procedure_name),
+                               proc_w, OutcomeName(row.outcome), row.sample_count, row.started_at);
     }
     return kExitOk;
   });

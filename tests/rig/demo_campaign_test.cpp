@@ -112,6 +112,23 @@ TEST_F(DemoCampaignTest, RatedCapacityVerdictFollowsTheMeasuredCharge) {
   EXPECT_EQ(f.capacity_pass, f.measured_mah >= f.rated_mah);
   EXPECT_EQ(f.measured_mah, RunById(f.runs.front().run_id).discharge_mah);
   EXPECT_FALSE(f.verdict_text.empty());
+  // The rated-capacity run is the method's own test, so it gets a verdict.
+  auto rep = BuildRunReport(*store_, f.runs.front().run_id);
+  ASSERT_TRUE(rep.ok());
+  EXPECT_TRUE(rep->analysis.verdict.judged);
+  // The batch mate: cell 2's Peukert run at 0.2 It (0.5 A), recomputed from its report.
+  ASSERT_GT(f.batch_mate_run, 0);
+  auto mate = BuildRunReport(*store_, f.batch_mate_run);
+  ASSERT_TRUE(mate.ok());
+  EXPECT_NEAR(mate->analysis.average_current_a, 0.5, 0.005);
+  EXPECT_NEAR(f.batch_mate_percent, 100.0 * mate->analysis.discharge_charge_mah / 2500.0, 1e-9);
+  EXPECT_TRUE(mate->analysis.verdict.judged);
+  // The product-load runs are not rated-capacity tests: reported, not judged.
+  for (int64_t id : {f.duty_run, f.pulsed_run, f.continuous_run}) {
+    auto r = BuildRunReport(*store_, id);
+    ASSERT_TRUE(r.ok());
+    EXPECT_FALSE(r->analysis.verdict.judged) << "run " << id << ": " << r->analysis.verdict.text;
+  }
 }
 
 // KiBaM recovery (Manwell & McGowan 1993, from memory): rests between pulses
