@@ -21,14 +21,20 @@ struct CapacityMethod {
   std::string name;  // "IEC 61960-3 7.3.1 rated capacity"
   double required_percent = 100.0;
   double rate_it = 0.2;             // discharge current in It (rated mAh / 1 h)
+  // Primary cells: IEC 60086 rates them by application discharge tests (a
+  // load, a daily duration, an end voltage), not at a C-rate, so any constant
+  // current is the test and the rating is compared at the procedure's drain.
+  bool any_rate = false;
+  bool rest_required = true;        // the rest-before-discharge condition applies
   double current_tolerance = 0.01;  // relative
   double temp_min_c = 15.0, temp_max_c = 25.0;
   double rest_min_s = 3600.0, rest_max_s = 4.0 * 3600.0;
   std::optional<double> end_voltage_v;  // set by the method (NiMH 1.0 V), else the procedure's
 };
 
-// IEC 61951-2 for "nimh"; IEC 61960-3 for lithium chemistries; otherwise a
-// plain ">= 100 % of rated" check with the same conditions reported.
+// IEC 61951-2 for "nimh"; IEC 61960-3 for secondary lithium chemistries;
+// primary chemistries (alkaline, li-mno2, ...) any_rate, no rest; otherwise a
+// plain ">= 100 % of rated at 0.2 It" check with the same conditions reported.
 CapacityMethod MethodForChemistry(std::string_view chemistry);
 
 // What the run shows about the discharge that was judged.

@@ -118,7 +118,7 @@ class RunSession {
   // asks to continue (kOperator); then the step continues from its snapshot
   // (step time does not run while held). Returns a finished RunResult if the
   // run ended while held.
-  enum class HoldKind { kHeat, kOperator };
+  enum class HoldKind { kHeat, kOperator, kLink };
   std::optional<RunResult> Hold(HoldKind kind, const std::string& why);
 
   RunController& rc_;
@@ -243,8 +243,11 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
   if (prev_) engine_.Integrate(*prev_);
   std::string snapshot = engine_.Snapshot(t_s_);
   NoteProgress(snapshot);
-  if (Status st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "pause" : "control", why); !st.ok())
+  const char* held_kind = kind == HoldKind::kHeat ? "pause" : kind == HoldKind::kLink ? "fault" : "control";
+  if (Status st = rc_.store_.AddEvent(run_id_, t_s_, held_kind, why); !st.ok())
     return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+  const double held_since = t_s_;
+  const double last_reading_t = prev_ ? prev_->t_s : t_s_;
   const Step* step = engine_.current_step();
   double period = step != nullptr ? std::max(1.0, step->sample_period_s) : 1.0;
   // First reading just after the load went off, so the log shows the edge.
@@ -273,7 +276,15 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
       }
     }
     Result<Reading> rr = TakeReading();
-    if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
+    if (!rr.ok()) {
+      const bool link = rr.status().code() == StatusCode::kTimeout || rr.status().code() == StatusCode::kIo;
+      if (kind == HoldKind::kLink && link && Now() - held_since < options_.link_grace_s) continue;
+      return Finish(Outcome::kAborted,
+                    kind == HoldKind::kLink ? fmt::format("instrument lost: no reading for {:.0f} s: {}", Now() - held_since,
+                                                          rr.status().ToString())
+                                            : "instrument lost: " + rr.status().ToString(),
+                    "fault");
+    }
     if (Status st = LogSample(*rr, engine_.step_index(), true); !st.ok())
       return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     // The step clock stands still while held, also across a crash.
@@ -284,6 +295,15 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
     if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
     if (kind == HoldKind::kHeat && monitor_.CooledDown(*rr))
       released_by = fmt::format("cell cooled to {:.1f} degC; continuing", rr->temperature_c);
+    if (kind == HoldKind::kLink) {
+      released_by = fmt::format("instruments answer again after {:.1f} s with the load off; continuing", t_s_ - held_since);
+      // No readings in between: analysis flags the interval as a gap.
+      if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "gap",
+                                          fmt::format("no readings for {:.1f} s while an instrument did not answer",
+                                                      t_s_ - last_reading_t));
+          !st.ok())
+        return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    }
   }
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
@@ -291,7 +311,7 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
   // Setpoint first (inside Handle), then the record: the load comes back on
   // right after the reading that released the hold.
   Status st = Handle(*out);
-  if (st.ok()) st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kHeat ? "resume" : "control", released_by);
+  if (st.ok()) st = rc_.store_.AddEvent(run_id_, t_s_, kind == HoldKind::kOperator ? "control" : "resume", released_by);
   if (!st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
   return std::nullopt;
 }
@@ -361,7 +381,17 @@ Result<RunResult> RunSession::Run() {
       }
       if (auto ended = PollControl()) return *ended;
       Result<Reading> rr = TakeReading();
-      if (!rr.ok()) return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
+      if (!rr.ok()) {
+        // Only a silent or broken link is waited for; an instrument that
+        // answers with an error, an over-range or nonsense is not trusted again.
+        const bool link = rr.status().code() == StatusCode::kTimeout || rr.status().code() == StatusCode::kIo;
+        if (!link || options_.link_grace_s <= 0)
+          return Finish(Outcome::kAborted, "instrument lost: " + rr.status().ToString(), "fault");
+        std::string why = fmt::format("no reading ({}); load off, trying again for up to {:.0f} s", rr.status().ToString(),
+                                      options_.link_grace_s);
+        if (auto ended = Hold(HoldKind::kLink, why)) return *ended;
+        continue;
+      }
       const Reading& r = *rr;
       int step_before = engine_.step_index();
 

@@ -54,6 +54,15 @@ struct RunOptions {
   // starting a new one: the engine is restored from the snapshot committed with
   // the last samples, delivered charge/energy carry over, the gap is an event.
   const ResumePoint* resume = nullptr;
+  // A reading that times out or hits a dropped link even after the SCPI
+  // session's retries (a USB hub reset, a LAN switch rebooting) switches the
+  // load off and holds the step (instrument errors, over-range readings and
+  // malformed replies still abort at once);
+  // readings are tried again every sample period for this many seconds of run
+  // time. When one succeeds (and passes the safety limits) the step continues
+  // where it was, with the outage logged; otherwise the run aborts as
+  // "instrument lost". 0 aborts at the first failed reading.
+  double link_grace_s = 30.0;
 };
 
 struct RunResult {

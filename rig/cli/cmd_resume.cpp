@@ -21,6 +21,7 @@ struct ResumeOptions {
   std::string rig = "sim";
   double speed = 0.0;
   std::string procedure_file;
+  double link_grace_s = 30.0;
 };
 
 int RunResume(const ResumeOptions& opt) {
@@ -58,6 +59,7 @@ int RunResume(const ResumeOptions& opt) {
   options.stop = InstallStopSignals();
   options.control = &control;
   options.resume = &*point;
+  options.link_grace_s = opt.link_grace_s;
   RunController controller(**store, (*rig)->clock(), (*rig)->roles());
   auto result = controller.Execute(*plan, options);
   if (!result.ok()) return Fail(result.status());
@@ -82,6 +84,10 @@ void RegisterResume(CliRegistry& r) {
   c->add_option("--rig", opt.rig, "Rig: 'sim' or a rig file")->capture_default_str();
   c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0 = virtual time)");
   c->add_option("--procedure", opt.procedure_file, "Refuse unless this file is the procedure stored with the run");
+  c->add_option("--link-grace", opt.link_grace_s,
+                "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
+      ->capture_default_str()
+      ->check(CLI::Range(0.0, 3600.0));
 }
 
 }  // namespace kp::cli

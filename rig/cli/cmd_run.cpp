@@ -31,6 +31,7 @@ struct RunCmdOptions {
   uint64_t sim_seed = 0;
   double speed = 0.0;
   double progress_s = 600.0;
+  double link_grace_s = 30.0;
 };
 
 int RunRun(const RunCmdOptions& opt) {
@@ -94,6 +95,7 @@ int RunRun(const RunCmdOptions& opt) {
   run.cell_name = cell;
   run.stop = InstallStopSignals();
   run.stop_reason = "stopped by operator (signal)";
+  run.link_grace_s = opt.link_grace_s;
   double next_report = 0.0;
   run.on_sample = [&](const Reading& r, double mah) {
     if (r.t_s < next_report) return;
@@ -133,6 +135,10 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--sim-seed", opt.sim_seed, "Simulator only: draw one cell of the preset's batch (0: the nominal cell)");
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
+  c->add_option("--link-grace", opt.link_grace_s,
+                "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
+      ->capture_default_str()
+      ->check(CLI::Range(0.0, 3600.0));
 }
 
 }  // namespace kp::cli

@@ -175,6 +175,33 @@ TEST(MethodForChemistry, AlkalineIsNotJudgedAsLithium) {
   EXPECT_NE(MethodForChemistry("li-ion").name.find("61960"), std::string::npos);
   EXPECT_NE(MethodForChemistry("LiFePO4").name.find("61960"), std::string::npos);
   EXPECT_NE(MethodForChemistry("NiMH").name.find("61951"), std::string::npos);
+  // Li-MnO2 coin cells are primaries: IEC 61960-3 is for secondary cells.
+  EXPECT_EQ(MethodForChemistry("li-mno2").name.find("61960"), std::string::npos);
+  EXPECT_TRUE(MethodForChemistry("li-mno2").any_rate);
+}
+
+// Primary cells are rated by application discharge tests of IEC 60086 (a load
+// and an end voltage), not at 0.2 It (from memory): any constant current is
+// their capacity test, judged against the rating with no rest required; a
+// pulsed discharge still is not.
+TEST(Verdict, PrimaryCellsAreJudgedAtTheProceduresDrain) {
+  CapacityMethod m = MethodForChemistry("alkaline");
+  DischargeConditions d;
+  d.rated_mah = 2400;
+  d.delivered_mah = 2520;
+  d.mean_current_a = 0.025;  // a light 25 mA drain, about 0.01 It
+  d.max_current_deviation_a = 0.0001;
+  d.start_temperature_c = 21.0;
+  d.min_temperature_c = 21.0;
+  d.max_temperature_c = 21.5;
+  d.end_voltage_v = 0.9;
+  CapacityJudgement j = JudgeCapacityByMethod(m, d);
+  EXPECT_TRUE(j.judged) << j.text;
+  EXPECT_TRUE(j.capacity_pass);
+  EXPECT_TRUE(j.conditions_met) << j.text;  // no rest step needed
+  EXPECT_EQ(j.brief, "PASS 105.0 %");
+  d.pulsed = true;
+  EXPECT_FALSE(JudgeCapacityByMethod(m, d).judged);
 }
 
 }  // namespace

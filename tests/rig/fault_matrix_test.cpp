@@ -316,6 +316,17 @@ CellResult RunCell(Fault fault, const StepKind& step, const std::string& db, tes
     }
     if (fault == Fault::kLinkDropForGood && r.ok()) {
       EXPECT_EQ(r->outcome, Outcome::kAborted) << r->reason;
+      EXPECT_NE(r->reason.find("instrument lost"), std::string::npos) << r->reason;
+    }
+    // A link that comes back within the grace period costs a gap, not the run.
+    if (fault == Fault::kLinkDropAndReturn && r.ok()) {
+      EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+      auto events = (*store)->LoadEvents(r->run_id);
+      EXPECT_TRUE(events.ok());
+      int gaps = 0;
+      if (events.ok())
+        for (const EventRow& e : *events) gaps += e.kind == "gap";
+      EXPECT_EQ(gaps, 1) << "the outage is logged once as a gap";
     }
   }
   CheckDatabase(db, &observed, cell, false);

@@ -110,6 +110,68 @@ TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
   EXPECT_EQ(f.store->LoadSamples(r->run_id)->size(), 50u);  // one per answered temperature query
 }
 
+// A thermometer that goes silent for a while (a USB hub resetting) and comes
+// back: the load goes off and the step is held; when readings return the run
+// continues and completes, with the outage logged as a fault, a gap and a resume,
+// and no sample taken with the load on while nothing was watching the cell.
+TEST(RunController, InstrumentThatComesBackWithinTheGraceContinuesTheRun) {
+  Fixture f;
+  sim::SimBench bench(sim::DemoLiIonCell(2.56), f.clock);
+  testing::FaultyDevice flaky(bench.thermometer());
+  flaky.silent_after = 50;
+  flaky.silent_until = 62;  // 12 queries unanswered: several failed readings in a row
+  ScpiSession load_s(std::make_unique<InProcTransport>(bench.load(), f.clock), f.clock);
+  ScpiSession temp_s(std::make_unique<InProcTransport>(flaky, f.clock), f.clock);
+  LoadDriver load(load_s);
+  ThermometerDriver thermo(temp_s);
+  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, nullptr, "test"});
+  Plan plan = RatedCapacityPlan(Cell2500());
+  plan.steps[0].end.time_s = 600.0;  // ten minutes are enough
+  auto r = rc.Execute(plan, {});
+  ASSERT_TRUE(r.ok());
+  EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
+  EXPECT_FALSE(bench.load_input_on());
+  auto events = f.store->LoadEvents(r->run_id);
+  ASSERT_TRUE(events.ok());
+  std::vector<std::string> kinds;
+  for (const EventRow& e : *events)
+    if (e.kind == "fault" || e.kind == "gap" || e.kind == "resume") kinds.push_back(e.kind);
+  EXPECT_EQ(kinds, (std::vector<std::string>{"fault", "gap", "resume"}));
+  // The held step's clock stood still: ten minutes of step time plus the outage.
+  auto samples = f.Samples(r->run_id);
+  ASSERT_FALSE(samples.empty());
+  EXPECT_GT(samples.back().t_s, 600.0);
+  // The first reading after the outage was taken with the load off.
+  double gap_t = 0;
+  for (const EventRow& e : *events)
+    if (e.kind == "gap") gap_t = e.t_s;
+  bool found = false;
+  for (const Sample& s : samples)
+    if (s.t_s == gap_t) {
+      found = true;
+      EXPECT_NEAR(s.current_a, 0.0, 1e-3);
+    }
+  EXPECT_TRUE(found);
+
+  // With no grace, the same outage aborts the run at once.
+  sim::SimBench bench2(sim::DemoLiIonCell(2.56), f.clock);
+  testing::FaultyDevice flaky2(bench2.thermometer());
+  flaky2.silent_after = 50;
+  flaky2.silent_until = 62;
+  ScpiSession load2_s(std::make_unique<InProcTransport>(bench2.load(), f.clock), f.clock);
+  ScpiSession temp2_s(std::make_unique<InProcTransport>(flaky2, f.clock), f.clock);
+  LoadDriver load2(load2_s);
+  ThermometerDriver thermo2(temp2_s);
+  RunController rc2(*f.store, f.clock, RigRoles{&load2, nullptr, &thermo2, nullptr, "test"});
+  RunOptions strict;
+  strict.link_grace_s = 0;
+  auto r2 = rc2.Execute(plan, strict);
+  ASSERT_TRUE(r2.ok());
+  EXPECT_EQ(r2->outcome, Outcome::kAborted);
+  EXPECT_NE(r2->reason.find("instrument lost"), std::string::npos) << r2->reason;
+  EXPECT_FALSE(bench2.load_input_on());
+}
+
 }  // namespace
 }  // namespace kp
 

@@ -17,7 +17,7 @@ TempDir::~TempDir() {
 
 std::optional<std::string> FaultyDevice::HandleLine(std::string_view line) {
   ++lines_seen;
-  if (silent_after >= 0 && lines_seen > silent_after) {
+  if (silent_after >= 0 && lines_seen > silent_after && (silent_until < 0 || lines_seen <= silent_until)) {
     if (forward_when && forward_when(line)) (void)inner_.HandleLine(line);
     return std::nullopt;
   }

@@ -52,6 +52,7 @@ class FaultyDevice final : public LineDevice {
 
   int lines_seen = 0;
   int silent_after = -1;      // >= 0: no reply at all once this many lines were seen
+  int silent_until = -1;      // >= 0: ... and replies again after this many lines (a link that comes back)
   int drop_every = 0;         // > 0: drop every N-th reply
   int garble_every = 0;       // > 0: garble every N-th reply
   std::function<bool(std::string_view)> forward_when;  // lines still forwarded while silent
