@@ -184,7 +184,7 @@ void Panel::RunsList() {
   ImGui::TableSetupColumn("procedure", 0, 1.8f);
   ImGui::TableSetupColumn("elapsed", 0, 1.1f);
   ImGui::TableSetupColumn("mAh", 0, 0.9f);
-  ImGui::TableSetupColumn("verdict", 0, 1.5f);
+  ImGui::TableSetupColumn("verdict", 0, 1.9f);
   ImGui::TableHeadersRow();
   for (const RunListRow& r : state_.runs) {
     if (!MatchesFilter(r, filter_)) continue;
@@ -219,7 +219,10 @@ void Panel::RunsList() {
     ImGui::Text("%.0f", r.delivered_mah);
     ImGui::TableSetColumnIndex(col++);
     ImU32 vc = r.verdict.rfind("PASS", 0) == 0 ? theme_.ok : r.verdict.rfind("FAIL", 0) == 0 ? theme_.alarm : theme_.tick_text;
-    ImGui::TextColored(ImColor(vc), "%s", r.verdict.c_str());
+    // "not judged: pulsed discharge" is too wide for the column: the reason goes in the tooltip.
+    const bool not_judged = r.verdict.rfind("not judged", 0) == 0;
+    ImGui::TextColored(ImColor(vc), "%s", not_judged ? "not judged" : r.verdict.c_str());
+    if (ImGui::IsItemHovered()) ImGui::SetTooltip("%s", r.verdict.c_str());
     ImGui::PopID();
   }
   ImGui::EndTable();
@@ -263,13 +266,20 @@ void Panel::Headline(const RunData& d) {
   ImGui::SameLine(0, gap);
   Figure(fonts_, "temperature", fmt::format("{:.1f} °C", s.temperature_c), tcol);
   ImGui::SameLine(0, gap);
-  Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.charge_mah()), theme_.tick_text);
+  Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.discharged_mah()), theme_.tick_text);
   std::string remaining = "—";
   if (live) {
-    if (auto r = EstimateRemainingS(d.samples, f.charge_mah(), d.row.rated_mah, d.limits.cutoff_v)) remaining = "~" + Hms(*r);
+    if (auto r = EstimateRemainingS(d.samples, f.discharged_since_charge_mah(), d.row.rated_mah, d.limits.cutoff_v))
+      remaining = "~" + Hms(*r);
   }
   ImGui::PushFont(fonts_.medium);
-  ImGui::Text("%.2f Wh", f.energy_wh());
+  ImGui::Text("%.2f Wh", f.discharged_wh());
+  if (f.charged_mah() >= 1.0) {
+    ImGui::SameLine(0, gap);
+    ImGui::TextDisabled("charged in");
+    ImGui::SameLine();
+    ImGui::Text("%.0f mAh", f.charged_mah());
+  }
   ImGui::SameLine(0, gap);
   ImGui::TextDisabled("elapsed");
   ImGui::SameLine();
@@ -448,9 +458,9 @@ void Panel::CompareView() {
     ImGui::TableSetColumnIndex(3);
     ImGui::TextColored(ImColor(OutcomeColour(theme_, d->row.outcome)), "%s", OutcomeName(d->row.outcome));
     ImGui::TableSetColumnIndex(4);
-    ImGui::Text("%.0f", f.charge_mah());
+    ImGui::Text("%.0f", f.discharged_mah());
     ImGui::TableSetColumnIndex(5);
-    ImGui::Text("%.3f", f.energy_wh());
+    ImGui::Text("%.3f", f.discharged_wh());
     ImGui::TableSetColumnIndex(6);
     ImGui::Text("%.3f", f.mean_voltage_v());
     ImGui::TableSetColumnIndex(7);
@@ -461,7 +471,7 @@ void Panel::CompareView() {
     ImGui::TextUnformatted(Hms(f.count() ? f.last().t_s - f.first_t_s() : 0.0).c_str());
     ImGui::TableSetColumnIndex(10);
     if (d->row.rated_mah > 0)
-      ImGui::Text("%.1f %%", PercentOfRated(f.charge_mah(), d->row.rated_mah));
+      ImGui::Text("%.1f %%", PercentOfRated(f.discharged_mah(), d->row.rated_mah));
     else
       ImGui::TextDisabled("-");
   }

@@ -24,7 +24,13 @@ void RunningFigures::Add(const Sample& s) {
     double mean_a = 0.5 * (s.current_a + last_.current_a);
     charge_mah_ += mean_a * dt_h * 1000.0;
     discharged_mah_ += std::max(0.0, mean_a) * dt_h * 1000.0;
-    energy_wh_ += 0.5 * (s.voltage_v * s.current_a + last_.voltage_v * last_.current_a) * dt_h;
+    charged_mah_ += std::max(0.0, -mean_a) * dt_h * 1000.0;
+    // Rest readings (|I| under 1 mA) neither count as charging nor reset it.
+    if (mean_a < -0.001) since_charge_mah_ = 0.0;
+    else since_charge_mah_ += std::max(0.0, mean_a) * dt_h * 1000.0;
+    const double mean_w = 0.5 * (s.voltage_v * s.current_a + last_.voltage_v * last_.current_a);
+    energy_wh_ += mean_w * dt_h;
+    discharged_wh_ += std::max(0.0, mean_w) * dt_h;
     voltage_time_vs_ += 0.5 * (s.voltage_v + last_.voltage_v) * (s.t_s - last_.t_s);
     min_voltage_v_ = std::min(min_voltage_v_, s.voltage_v);
     max_temperature_c_ = std::max(max_temperature_c_, s.temperature_c);

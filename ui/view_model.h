@@ -25,7 +25,12 @@ class RunningFigures {
   // Charge delivered by the cell only (intervals where it was discharging):
   // what the runs list shows, so a charge-then-discharge run reads right.
   double discharged_mah() const { return discharged_mah_; }
-  double energy_wh() const { return energy_wh_; }
+  double energy_wh() const { return energy_wh_; }  // net, like charge_mah()
+  double discharged_wh() const { return discharged_wh_; }  // energy the cell gave
+  double charged_mah() const { return charged_mah_; }      // charge put into the cell
+  // Delivered since the cell was last charged (the whole run when it never
+  // was): what the remaining-time estimate counts against the rating.
+  double discharged_since_charge_mah() const { return since_charge_mah_; }
   double min_voltage_v() const { return min_voltage_v_; }
   // Time-weighted mean voltage (the last voltage while no time has passed).
   double mean_voltage_v() const;
@@ -39,6 +44,9 @@ class RunningFigures {
   double charge_mah_ = 0.0;
   double discharged_mah_ = 0.0;
   double energy_wh_ = 0.0;
+  double discharged_wh_ = 0.0;
+  double charged_mah_ = 0.0;
+  double since_charge_mah_ = 0.0;
   double voltage_time_vs_ = 0.0;  // ∫ V dt
   double min_voltage_v_ = 0.0;
   double max_temperature_c_ = 0.0;

@@ -185,6 +185,18 @@ TEST(RunningFigures, DeliveredCountsDischargeOnly) {
   for (int k = 3601; k <= 7200; ++k) f.Add({static_cast<double>(k), 3.7, 0.5, 25.0, 1});       // 0.5 Ah out
   EXPECT_NEAR(f.discharged_mah(), 500.0, 0.5);  // one mixed interval at the turn
   EXPECT_NEAR(f.charge_mah(), -500.0, 0.5);
+  EXPECT_NEAR(f.charged_mah(), 1000.0, 0.5);
+  // Energy out counts the discharge only: 0.5 A at 3.7 V for 1 h (E = V·I·t).
+  EXPECT_NEAR(f.discharged_wh(), 1.85, 0.01);
+  EXPECT_NEAR(f.energy_wh(), 1.85 - 4.0, 0.01);
+  EXPECT_NEAR(f.discharged_since_charge_mah(), 500.0, 0.5);
+  // A second charge starts the count again; rest readings do not.
+  for (int k = 7201; k <= 7300; ++k) f.Add({static_cast<double>(k), 3.9, 0.0, 25.0, 2});
+  EXPECT_NEAR(f.discharged_since_charge_mah(), 500.0, 0.5);
+  for (int k = 7301; k <= 7400; ++k) f.Add({static_cast<double>(k), 4.1, -1.0, 25.0, 3});
+  for (int k = 7401; k <= 7760; ++k) f.Add({static_cast<double>(k), 3.8, 1.0, 25.0, 4});  // 100 mAh out
+  EXPECT_NEAR(f.discharged_since_charge_mah(), 100.0, 0.5);
+  EXPECT_NEAR(f.discharged_mah(), 600.0, 1.0);
 }
 
 }  // namespace
