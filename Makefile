@@ -33,9 +33,11 @@ LINT_DIRS  := analysis drivers procedures rig ui
 
 all: build
 
-deps:
+# $(call install-missing,PACKAGES): installs those of PACKAGES that dpkg does
+# not list as installed; apt-get update runs only when something is missing.
+define install-missing
 	@missing=""; \
-	for p in $(PKGS); do \
+	for p in $(1); do \
 	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "install ok installed" || missing="$$missing $$p"; \
 	done; \
 	if [ -n "$$missing" ]; then \
@@ -43,17 +45,13 @@ deps:
 	  $(SUDO) apt-get update && \
 	  DEBIAN_FRONTEND=noninteractive $(SUDO) apt-get install -y --no-install-recommends $$missing; \
 	fi
+endef
+
+deps:
+	$(call install-missing,$(PKGS))
 
 deps-harden: deps
-	@missing=""; \
-	for p in $(HARDEN_PKGS); do \
-	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "install ok installed" || missing="$$missing $$p"; \
-	done; \
-	if [ -n "$$missing" ]; then \
-	  echo "kneepoint: installing missing Debian packages:$$missing"; \
-	  $(SUDO) apt-get update && \
-	  DEBIAN_FRONTEND=noninteractive $(SUDO) apt-get install -y --no-install-recommends $$missing; \
-	fi
+	$(call install-missing,$(HARDEN_PKGS))
 
 configure: deps
 	@[ -f $(BUILD)/build.ninja ] || cmake -S . -B $(BUILD) -G Ninja -DCMAKE_BUILD_TYPE=Release

@@ -7,19 +7,14 @@
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "tests/support/faulty_vfs.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
 Plan ShortPlan() {
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.nominal_v = 3.6;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  c.max_temp_c = 60;
-  Plan p = RatedCapacityPlan(c);
+  Plan p = RatedCapacityPlan(testing::Cell2500());
   p.steps[0].end.time_s = 300;  // 300 samples
   return p;
 }

@@ -90,23 +90,39 @@ TEST(RunController, StopFlagAbortsAsOperator) {
   EXPECT_FALSE(rig.bench().load_input_on());
 }
 
+// A simulated bench whose thermometer goes silent after `silent_after` lines
+// and answers again after `silent_until` (-1: never).
+struct FlakyThermometerRig {
+  FlakyThermometerRig(Clock& clock, int silent_after, int silent_until)
+      : bench(sim::DemoLiIonCell(2.56), clock),
+        flaky(bench.thermometer()),
+        load_s(std::make_unique<InProcTransport>(bench.load(), clock), clock),
+        temp_s(std::make_unique<InProcTransport>(flaky, clock), clock),
+        load(load_s),
+        thermo(temp_s) {
+    flaky.silent_after = silent_after;
+    flaky.silent_until = silent_until;
+  }
+  RigRoles roles() { return RigRoles{&load, nullptr, &thermo, nullptr, "test"}; }
+
+  sim::SimBench bench;
+  testing::FaultyDevice flaky;
+  ScpiSession load_s, temp_s;
+  LoadDriver load;
+  ThermometerDriver thermo;
+};
+
 // Lost thermometer: the run aborts, the load (on another link) goes off, and
 // every sample logged before stays in the database.
 TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
   Fixture f;
-  sim::SimBench bench(sim::DemoLiIonCell(2.56), f.clock);
-  testing::FaultyDevice dying(bench.thermometer());
-  dying.silent_after = 50;
-  ScpiSession load_s(std::make_unique<InProcTransport>(bench.load(), f.clock), f.clock);
-  ScpiSession temp_s(std::make_unique<InProcTransport>(dying, f.clock), f.clock);
-  LoadDriver load(load_s);
-  ThermometerDriver thermo(temp_s);
-  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, nullptr, "test"});
+  FlakyThermometerRig rig(f.clock, 50, -1);
+  RunController rc(*f.store, f.clock, rig.roles());
   auto r = rc.Execute(RatedCapacityPlan(Cell2500()), {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, Outcome::kAborted);
   EXPECT_NE(r->reason.find("instrument lost"), std::string::npos) << r->reason;
-  EXPECT_FALSE(bench.load_input_on());
+  EXPECT_FALSE(rig.bench.load_input_on());
   EXPECT_EQ(f.store->LoadSamples(r->run_id)->size(), 50u);  // one per answered temperature query
 }
 
@@ -116,35 +132,28 @@ TEST(RunController, LostInstrumentAbortsAndKeepsSamples) {
 // and no sample taken with the load on while nothing was watching the cell.
 TEST(RunController, InstrumentThatComesBackWithinTheGraceContinuesTheRun) {
   Fixture f;
-  sim::SimBench bench(sim::DemoLiIonCell(2.56), f.clock);
-  testing::FaultyDevice flaky(bench.thermometer());
-  flaky.silent_after = 50;
-  flaky.silent_until = 62;  // 12 queries unanswered: several failed readings in a row
-  ScpiSession load_s(std::make_unique<InProcTransport>(bench.load(), f.clock), f.clock);
-  ScpiSession temp_s(std::make_unique<InProcTransport>(flaky, f.clock), f.clock);
-  LoadDriver load(load_s);
-  ThermometerDriver thermo(temp_s);
-  RunController rc(*f.store, f.clock, RigRoles{&load, nullptr, &thermo, nullptr, "test"});
+  FlakyThermometerRig rig(f.clock, 50, 62);  // 12 queries unanswered: several failed readings in a row
+  RunController rc(*f.store, f.clock, rig.roles());
   Plan plan = RatedCapacityPlan(Cell2500());
   plan.steps[0].end.time_s = 600.0;  // ten minutes are enough
   auto r = rc.Execute(plan, {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, Outcome::kCompleted) << r->reason;
-  EXPECT_FALSE(bench.load_input_on());
+  EXPECT_FALSE(rig.bench.load_input_on());
   auto events = f.store->LoadEvents(r->run_id);
   ASSERT_TRUE(events.ok());
   std::vector<std::string> kinds;
-  for (const EventRow& e : *events)
+  double gap_t = 0;
+  for (const EventRow& e : *events) {
     if (e.kind == "fault" || e.kind == "gap" || e.kind == "resume") kinds.push_back(e.kind);
+    if (e.kind == "gap") gap_t = e.t_s;
+  }
   EXPECT_EQ(kinds, (std::vector<std::string>{"fault", "gap", "resume"}));
   // The held step's clock stood still: ten minutes of step time plus the outage.
   auto samples = f.Samples(r->run_id);
   ASSERT_FALSE(samples.empty());
   EXPECT_GT(samples.back().t_s, 600.0);
   // The first reading after the outage was taken with the load off.
-  double gap_t = 0;
-  for (const EventRow& e : *events)
-    if (e.kind == "gap") gap_t = e.t_s;
   bool found = false;
   for (const Sample& s : samples)
     if (s.t_s == gap_t) {
@@ -154,22 +163,15 @@ TEST(RunController, InstrumentThatComesBackWithinTheGraceContinuesTheRun) {
   EXPECT_TRUE(found);
 
   // With no grace, the same outage aborts the run at once.
-  sim::SimBench bench2(sim::DemoLiIonCell(2.56), f.clock);
-  testing::FaultyDevice flaky2(bench2.thermometer());
-  flaky2.silent_after = 50;
-  flaky2.silent_until = 62;
-  ScpiSession load2_s(std::make_unique<InProcTransport>(bench2.load(), f.clock), f.clock);
-  ScpiSession temp2_s(std::make_unique<InProcTransport>(flaky2, f.clock), f.clock);
-  LoadDriver load2(load2_s);
-  ThermometerDriver thermo2(temp2_s);
-  RunController rc2(*f.store, f.clock, RigRoles{&load2, nullptr, &thermo2, nullptr, "test"});
+  FlakyThermometerRig strict_rig(f.clock, 50, 62);
+  RunController strict_rc(*f.store, f.clock, strict_rig.roles());
   RunOptions strict;
   strict.link_grace_s = 0;
-  auto r2 = rc2.Execute(plan, strict);
+  auto r2 = strict_rc.Execute(plan, strict);
   ASSERT_TRUE(r2.ok());
   EXPECT_EQ(r2->outcome, Outcome::kAborted);
   EXPECT_NE(r2->reason.find("instrument lost"), std::string::npos) << r2->reason;
-  EXPECT_FALSE(bench2.load_input_on());
+  EXPECT_FALSE(strict_rig.bench.load_input_on());
 }
 
 }  // namespace
