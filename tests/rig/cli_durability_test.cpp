@@ -10,17 +10,13 @@
 #include "rig/cli/cli.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-int Cli(std::vector<std::string> args) {
-  args.insert(args.begin(), "kneepoint");
-  std::vector<char*> argv;
-  for (std::string& a : args) argv.push_back(a.data());
-  return cli::RunCli(static_cast<int>(argv.size()), argv.data());
-}
+int Cli(std::vector<std::string> args) { return testing::RunKneepoint(std::move(args)); }
 
 std::string Slurp(const std::string& path) {
   std::ifstream in(path);
@@ -35,11 +31,7 @@ int64_t ShortRun(const std::string& db) {
   auto store = Store::Open(db, wall);
   EXPECT_TRUE(store.ok());
   SimRig rig(clock, sim::DemoLiIonCell(2.56));
-  CellSpec c;
-  c.rated_mah = 2500;
-  c.max_v = 4.2;
-  c.cutoff_v = 2.75;
-  Plan p = RatedCapacityPlan(c);
+  Plan p = RatedCapacityPlan(testing::Cell2500());
   p.steps[0].end.time_s = 120;
   RunController rc(**store, clock, rig.roles());
   auto r = rc.Execute(p, {});

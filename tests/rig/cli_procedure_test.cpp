@@ -8,17 +8,13 @@
 #include "rig/cli/cli.h"
 #include "rig/run_report.h"
 #include "rig/store.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
 namespace {
 
-int Cli(std::vector<std::string> args) {
-  args.insert(args.begin(), "kneepoint");
-  std::vector<char*> argv;
-  for (std::string& a : args) argv.push_back(a.data());
-  return cli::RunCli(static_cast<int>(argv.size()), argv.data());
-}
+int Cli(std::vector<std::string> args) { return testing::RunKneepoint(std::move(args)); }
 
 std::string Write(const testing::TempDir& dir, const std::string& name, const std::string& text) {
   std::string path = dir.File(name);

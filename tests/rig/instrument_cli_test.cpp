@@ -12,16 +12,12 @@
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
 #include "rig/cli/cli.h"
+#include "tests/support/fixtures.h"
 
 namespace kp {
 namespace {
 
-int Cli(std::vector<std::string> args) {
-  args.insert(args.begin(), "kneepoint");
-  std::vector<char*> argv;
-  for (auto& a : args) argv.push_back(a.data());
-  return cli::RunCli(static_cast<int>(argv.size()), argv.data());
-}
+int Cli(std::vector<std::string> args) { return testing::RunKneepoint(std::move(args)); }
 
 // A loopback listener that accepts connections (the kernel does) and never answers.
 struct SilentListener {

@@ -16,6 +16,7 @@
 #include "rig/cli/cli.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -109,11 +110,7 @@ Modes WriteFilesUnderUmask(mode_t mask, const testing::TempDir& dir, const std::
       auto store = Store::Open(db, wall);
       if (!store.ok()) _exit(2);
       SimRig rig(clock, sim::DemoLiIonCell(2.56));
-      CellSpec c;
-      c.rated_mah = 2500;
-      c.max_v = 4.2;
-      c.cutoff_v = 2.75;
-      Plan p = RatedCapacityPlan(c);
+      Plan p = RatedCapacityPlan(testing::Cell2500());
       p.steps[0].end.time_s = 60;
       RunController rc(**store, clock, rig.roles());
       RunOptions o;
@@ -121,12 +118,7 @@ Modes WriteFilesUnderUmask(mode_t mask, const testing::TempDir& dir, const std::
       auto r = rc.Execute(p, o);
       if (!r.ok()) _exit(3);
     }
-    auto cli = [](std::vector<std::string> args) {
-      args.insert(args.begin(), "kneepoint");
-      std::vector<char*> argv;
-      for (std::string& a : args) argv.push_back(a.data());
-      return cli::RunCli(static_cast<int>(argv.size()), argv.data());
-    };
+    auto cli = [](std::vector<std::string> args) { return testing::RunKneepoint(std::move(args)); };
     if (cli({"export", "1", "--db", db, "--csv", csv}) != cli::kExitOk) _exit(4);
     if (cli({"report", "1", "--db", db, "--html", html}) != cli::kExitOk) _exit(5);
     _exit(0);

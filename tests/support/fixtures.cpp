@@ -1,6 +1,15 @@
 #include "tests/support/fixtures.h"
 
+#include "rig/cli/cli.h"
+
 namespace kp::testing {
+
+int RunKneepoint(std::vector<std::string> args) {
+  args.insert(args.begin(), "kneepoint");
+  std::vector<char*> argv;
+  for (std::string& a : args) argv.push_back(a.data());
+  return cli::RunCli(static_cast<int>(argv.size()), argv.data());
+}
 
 CellSpec Cell2500() {
   CellSpec c;

@@ -15,6 +15,9 @@
 
 namespace kp::testing {
 
+// Runs `kneepoint ARGS...` in this process, as main() would; returns the exit code.
+int RunKneepoint(std::vector<std::string> args);
+
 // A 2,500 mAh Li-ion cell: 3.6 V nominal, 4.2 V full, 2.75 V cutoff, 60 degC
 // limit (the simulator's DemoLiIonCell(2.56) stands in for it).
 CellSpec Cell2500();
