@@ -6,6 +6,7 @@
 #include <charconv>
 #include <cmath>
 #include <cstdlib>
+#include <limits>
 #include <map>
 #include <sstream>
 
@@ -61,8 +62,116 @@ Setpoint StepEngine::SetpointFor(const Step& step) const {
 }
 
 void StepEngine::Emit(const Setpoint& sp, EngineOutput& out) {
-  if (!applied_ || !(*applied_ == sp)) out.setpoint = sp;
+  if (!applied_ || !(*applied_ == sp)) {
+    out.setpoint = sp;
+    applied_at_s_ = now_s_;
+    low_since_s_.reset();
+  }
   applied_ = sp;
+}
+
+int StepEngine::pass() const {
+  int p = 0;
+  for (size_t li = 0; li < plan_.loops.size(); ++li)
+    if (plan_.loops[li].first_step <= step_ && step_ <= plan_.loops[li].last_step) p = loops_[li].iter + 1;
+  return p;
+}
+
+double StepEngine::LimitCheckDelay() const {
+  constexpr double kNever = std::numeric_limits<double>::infinity();
+  if (!last_ || !before_last_ || finished()) return kNever;
+  const double dt = last_->t_s - before_last_->t_s;
+  if (dt <= 0) return kNever;
+  // A rate across a setpoint change is the step response, not an approach.
+  if (before_last_->t_s <= applied_at_s_ + kEps) return kNever;
+  const double fast = plan_.edge_settle_s;
+  const double v = last_->voltage_v, dv = (last_->voltage_v - before_last_->voltage_v) / dt;
+  const double temp = last_->temperature_c, dtemp = (last_->temperature_c - before_last_->temperature_c) / dt;
+  double best = kNever;
+  // Half the predicted time to the limit at the present rate of approach: the
+  // interval shrinks geometrically down to the fastest reading as the limit
+  // nears, so the reading that crosses it comes at most one fast reading late.
+  auto approach = [&](double value, double rate, double limit, bool falling) {
+    const double margin = falling ? value - limit : limit - value;
+    const double speed = falling ? -rate : rate;
+    if (margin <= 0) {
+      best = std::min(best, fast);
+    } else if (speed > 0) {
+      best = std::min(best, 0.5 * margin / speed);
+    }
+  };
+  // Charge and energy grow at the present current and power.
+  const double dq_mah_per_s = std::abs(last_->current_a) / 3.6;
+  const double de_wh_per_s = std::abs(last_->current_a * last_->voltage_v) / 3600.0;
+  auto conditions = [&](const EndConditions& e, double charge_mah, double energy_wh) {
+    if (e.voltage_below_v) approach(v, dv, *e.voltage_below_v, true);
+    if (e.voltage_above_v) approach(v, dv, *e.voltage_above_v, false);
+    if (e.temperature_above_c) approach(temp, dtemp, *e.temperature_above_c, false);
+    if (e.charge_mah) approach(std::abs(charge_mah), dq_mah_per_s, *e.charge_mah, false);
+    if (e.energy_wh) approach(std::abs(energy_wh), de_wh_per_s, *e.energy_wh, false);
+  };
+  const Step& step = plan_.steps[static_cast<size_t>(step_)];
+  if (step.kind != StepKind::kResistanceTest) conditions(step.end, step_charge_mah_, step_energy_wh_);
+  for (size_t li = 0; li < plan_.loops.size(); ++li) {
+    const Loop& l = plan_.loops[li];
+    if (l.count == 0 && l.first_step <= step_ && step_ <= l.last_step) conditions(l.until, loops_[li].charge_mah, loops_[li].energy_wh);
+  }
+  const SafetyLimits& lim = plan_.limits;
+  if (lim.min_voltage_v > 0) approach(v, dv, lim.min_voltage_v, true);
+  if (std::isfinite(lim.max_voltage_v)) approach(v, dv, lim.max_voltage_v, false);
+  if (std::isfinite(lim.max_temp_c)) approach(temp, dtemp, lim.max_temp_c, false);
+  return std::max(fast, best);
+}
+
+void StepEngine::CheckRegulation(const Reading& r, EngineOutput& out) {
+  if (!applied_ || !applied_->load_on || applied_->supply_on) {
+    low_since_s_.reset();
+    return;
+  }
+  // What the load should be drawing at this terminal voltage, against what it draws.
+  double want = 0.0, got = 0.0;
+  const char* unit = "A";
+  switch (applied_->mode) {
+    case LoadMode::kCurrent:
+      want = applied_->level, got = r.current_a;
+      break;
+    case LoadMode::kPower:
+      want = applied_->level, got = r.current_a * r.voltage_v, unit = "W";
+      break;
+    case LoadMode::kResistance:
+      want = applied_->level > 0 ? r.voltage_v / applied_->level : 0.0, got = r.current_a;
+      break;
+  }
+  const bool low = want > 1e-3 && got < 0.5 * want && want - got > 1e-3;
+  if (!low) {
+    low_since_s_.reset();
+    return;
+  }
+  if (!low_since_s_) low_since_s_ = r.t_s;
+  if (r.t_s - *low_since_s_ >= plan_.regulation_grace_s - kEps)
+    out.abort_reason = fmt::format(
+        "lost regulation in step {}: the load drew {:.4g} {} against {:.4g} {} commanded for {:.0f} s (the cell cannot hold "
+        "the level, a load protection clamped it, or a lead is open)",
+        step_ + 1, got, unit, want, unit, r.t_s - *low_since_s_);
+}
+
+void StepEngine::CompletePulseEdge(const Reading& r, EngineOutput& out) {
+  if (!pulse_edge_ || r.t_s < pulse_edge_->t_edge_s + plan_.dcir_delay_s - kEps) return;
+  StepResult res = *pulse_edge_;
+  pulse_edge_.reset();
+  res.u2_v = r.voltage_v;
+  res.i2_a = r.current_a;
+  res.t2_s = r.t_s;
+  const double di = res.i2_a - res.i1_a;
+  if (std::abs(di) < 0.5 * plan_.dcir_min_step_a) {
+    res.valid = false;
+    res.why_invalid = fmt::format("measured currents differ by {:.4f} A only", di);
+  } else {
+    res.value = (res.u1_v - res.u2_v) / di;
+    res.detail = fmt::format("R_dc = {:.6g} Ohm = ({:.6f} V - {:.6f} V) / ({:.6f} A - {:.6f} A) at t = {:.3f} s and {:.3f} s",
+                             res.value, res.u1_v, res.u2_v, res.i2_a, res.i1_a, res.t1_s, res.t2_s);
+  }
+  out.results.push_back(std::move(res));
 }
 
 bool StepEngine::Contains(size_t outer, size_t inner) const {
@@ -93,7 +202,10 @@ void StepEngine::PlaceSegment(double t_s) {
 void StepEngine::Schedule(double t_s, bool changed_now) {
   if (finished()) return;
   const Step& step = plan_.steps[static_cast<size_t>(step_)];
-  double next = t_s + step.sample_period_s;
+  double next = next_regular_s_;
+  next = std::min(next, t_s + LimitCheckDelay());
+  if (pulse_edge_) next = std::min(next, pulse_edge_->t_edge_s + plan_.dcir_delay_s);
+  if (low_since_s_) next = std::min(next, *low_since_s_ + plan_.regulation_grace_s);
   if (changed_now) next = std::min(next, t_s + plan_.edge_settle_s);
   if (HasSegments(step.kind)) next = std::min(next, seg_start_s_ + step.segments[seg_].duration_s);
   if (step.end.time_s) {
@@ -106,9 +218,11 @@ void StepEngine::Schedule(double t_s, bool changed_now) {
 void StepEngine::EnterStep(int index, double t_s, int looped_back, EngineOutput& out) {
   step_ = index;
   step_start_s_ = t_s;
+  now_s_ = t_s;
   step_charge_mah_ = 0.0;
   step_energy_wh_ = 0.0;
   dcir_.reset();
+  pulse_edge_.reset();
   if (finished()) {
     out.finished = true;
     Emit(Setpoint{}, out);
@@ -120,9 +234,14 @@ void StepEngine::EnterStep(int index, double t_s, int looped_back, EngineOutput&
     if (looped_back >= 0 && Contains(li, static_cast<size_t>(looped_back))) continue;
     loops_[li] = LoopState{0, t_s, 0.0, 0.0};
   }
+  const Step& entered = plan_.steps[static_cast<size_t>(step_)];
+  const bool charge = entered.kind == StepKind::kCharge;
+  if (charge && !last_was_charge_) ++cycle_;
+  last_was_charge_ = charge;
+  next_regular_s_ = t_s + entered.sample_period_s;
   PlaceSegment(t_s);
   std::optional<Setpoint> before = applied_;
-  Emit(SetpointFor(plan_.steps[static_cast<size_t>(step_)]), out);
+  Emit(SetpointFor(entered), out);
   Schedule(t_s, !before || !(*before == *applied_));
 }
 
@@ -150,8 +269,13 @@ EngineOutput StepEngine::Start(double t_s, const std::optional<Reading>& initial
   EngineOutput out;
   out.changes.push_back({-1, 0, "start"});
   last_ = initial;
+  before_last_.reset();
+  cycle_ = 0;
+  last_was_charge_ = false;
   EnterStep(0, t_s, -1, out);
   if (out.finished) out.changes.back().started_step = -1;
+  out.changes.back().pass = pass();
+  out.changes.back().cycle = cycle_;
   return out;
 }
 
@@ -187,14 +311,34 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     return out;
   }
   Integrate(r);
+  now_s_ = r.t_s;
   const Step& step = plan_.steps[static_cast<size_t>(step_)];
+  if (r.t_s >= next_regular_s_ - kEps) {
+    out.log = true;
+    next_regular_s_ = r.t_s + step.sample_period_s;
+  } else if (r.t_s - applied_at_s_ <= plan_.edge_settle_s + kEps) {
+    // The reading just after an edge is stored and restarts the period.
+    out.log = true;
+    next_regular_s_ = r.t_s + step.sample_period_s;
+  }
+  CompletePulseEdge(r, out);
 
   auto end_step = [&](int ended, int exited_loop, const std::string& reason) {
+    if (pulse_edge_) {
+      StepResult res = *pulse_edge_;
+      res.valid = false;
+      res.why_invalid = "the step ended before U2 was due";
+      out.results.push_back(std::move(res));
+      pulse_edge_.reset();
+    }
     int looped_back = -1;
     int next = NextIndex(ended, exited_loop, looped_back);
     int was = step_;
     EnterStep(next, r.t_s, looped_back, out);
-    out.changes.push_back({was, finished() ? -1 : step_, reason});
+    StepChange c{was, finished() ? -1 : step_, reason};
+    c.pass = finished() ? 0 : pass();
+    c.cycle = cycle_;
+    out.changes.push_back(std::move(c));
   };
 
   // Repeat-until loops, outermost first.
@@ -216,16 +360,20 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
         StepResult res;
         res.step = step_;
         res.name = "dc-resistance";
+        res.source = "dcir step";
+        res.t_edge_s = seg_end;
         res.u1_v = r.voltage_v;
         res.i1_a = r.current_a;
         res.t1_s = r.t_s;
         dcir_ = res;
         seg_ = 1;
         seg_start_s_ = seg_end;
+        out.log = true;
         Emit(SegmentSetpoint(step.segments[1]), out);
         Schedule(r.t_s, true);
         return out;
       }
+      out.log = true;
       StepResult res = dcir_.value_or(StepResult{});
       res.u2_v = r.voltage_v;
       res.i2_a = r.current_a;
@@ -236,11 +384,13 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
         res.value = (res.u1_v - res.u2_v) / di;
         res.detail = fmt::format("R_dc = {:.6g} Ohm = ({:.6f} V - {:.6f} V) / ({:.6f} A - {:.6f} A) at t = {:.3f} s and {:.3f} s",
                                  res.value, res.u1_v, res.u2_v, res.i2_a, res.i1_a, res.t1_s, res.t2_s);
-        out.results.push_back(res);
         reason = fmt::format("resistance measured: {:.2f} mOhm", res.value * 1000.0);
       } else {
+        res.valid = false;
+        res.why_invalid = "the two currents read the same";
         reason = "resistance not measured: the two currents read the same";
       }
+      out.results.push_back(res);
       end_step(step_, -1, reason);
       return out;
     }
@@ -249,16 +399,57 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     return out;
   }
 
+  CheckRegulation(r, out);
+  if (out.abort_reason) {
+    Schedule(r.t_s, false);  // the caller stops; the engine stays consistent
+    return out;
+  }
+
   bool changed = false;
   if (HasSegments(step.kind)) {
     // Edges due by now: this reading was the one just before the edge.
+    size_t from = seg_;
+    double edge_t = seg_start_s_;
     while (r.t_s >= seg_start_s_ + step.segments[seg_].duration_s - kEps) {
+      from = seg_;
       seg_start_s_ += step.segments[seg_].duration_s;
+      edge_t = seg_start_s_;
       seg_ = (seg_ + 1) % step.segments.size();
       changed = true;
     }
-    if (changed) Emit(SegmentSetpoint(step.segments[seg_]), out);
+    if (changed) {
+      Emit(SegmentSetpoint(step.segments[seg_]), out);
+      // Two-current DC-IR at the edge: U1 is this reading (the end of the
+      // level before the edge), U2 is read dcir_delay_s after it.
+      const Segment& a = step.segments[from];
+      const Segment& b = step.segments[seg_];
+      if (a.mode == LoadMode::kCurrent && b.mode == LoadMode::kCurrent &&
+          std::abs(b.level - a.level) >= plan_.dcir_min_step_a - kEps) {
+        StepResult res;
+        res.step = step_;
+        res.name = "dc-resistance";
+        res.source = "pulse edge";
+        res.t_edge_s = edge_t;
+        res.u1_v = r.voltage_v;
+        res.i1_a = r.current_a;
+        res.t1_s = r.t_s;
+        if (r.t_s - edge_t > plan_.edge_settle_s + kEps) {
+          res.valid = false;
+          res.why_invalid = fmt::format("no reading at the edge (the nearest came {:.3f} s later)", r.t_s - edge_t);
+          out.results.push_back(std::move(res));
+        } else if (b.duration_s < plan_.dcir_delay_s - kEps) {
+          res.valid = false;
+          res.why_invalid =
+              fmt::format("the level after the edge lasts {:g} s, shorter than the {:g} s delay", b.duration_s, plan_.dcir_delay_s);
+          out.results.push_back(std::move(res));
+        } else {
+          pulse_edge_ = res;
+          out.log = true;
+        }
+      }
+    }
   }
+  if (!out.results.empty()) out.log = true;
   Schedule(r.t_s, changed);
   return out;
 }
@@ -266,6 +457,7 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
 void StepEngine::Integrate(const Reading& r) {
   if (finished()) return;
   if (last_ && r.t_s > last_->t_s) {
+    before_last_ = last_;
     double dt_h = (r.t_s - last_->t_s) / 3600.0;
     double dq = 0.5 * (r.current_a + last_->current_a) * dt_h * 1000.0;
     double de = 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
@@ -283,8 +475,8 @@ void StepEngine::Integrate(const Reading& r) {
 }
 
 std::string StepEngine::Snapshot(double t_s) const {
-  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g}", step_, t_s - step_start_s_,
-                              step_charge_mah_, step_energy_wh_);
+  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g} cycle={}", step_, t_s - step_start_s_,
+                              step_charge_mah_, step_energy_wh_, cycle_);
   if (dcir_) s += fmt::format(" u1={:.17g} i1={:.17g} t1={:.17g}", dcir_->u1_v, dcir_->i1_a, dcir_->t1_s - t_s);
   for (size_t i = 0; i < loops_.size(); ++i)
     s += fmt::format(" loop{}={}:{:.17g}:{:.17g}:{:.17g}", i, loops_[i].iter, t_s - loops_[i].start_s, loops_[i].charge_mah,
@@ -345,7 +537,18 @@ Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) 
   EngineOutput out;
   applied_.reset();
   last_.reset();
+  before_last_.reset();
   int index = static_cast<int>(step);
+  // The cycle the step belonged to (snapshots before cycles were recorded: 0).
+  double cycle = 0;
+  if (num("cycle", cycle) && cycle >= 0 && cycle <= 1e9 && cycle == std::floor(cycle)) {
+    cycle_ = static_cast<int>(cycle);
+  } else {
+    cycle_ = 0;
+  }
+  // Entering a charge step must not open another cycle here.
+  last_was_charge_ = index < static_cast<int>(plan_.steps.size()) &&
+                     plan_.steps[static_cast<size_t>(index)].kind == StepKind::kCharge;
   // Enter the step, then put the saved loop state back.
   EnterStep(index, t_s - elapsed, -1, out);
   loops_ = loops;
@@ -363,6 +566,8 @@ Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) 
   }
   if (!finished()) {
     PlaceSegment(t_s);
+    next_regular_s_ = t_s + plan_.steps[static_cast<size_t>(step_)].sample_period_s;
+    now_s_ = t_s;
     applied_.reset();
     out.setpoint.reset();
     Emit(SetpointFor(plan_.steps[static_cast<size_t>(step_)]), out);

@@ -41,16 +41,30 @@ struct StepChange {
   int ended_step = -1;    // -1 at start
   int started_step = -1;  // -1 when the plan finished
   std::string reason;     // "voltage 2.748 V <= 2.750 V"
+  // The started step instance: its pass of the innermost loop around it
+  // (1-based; 0 outside loops) and its cycle (0 before the first charge step;
+  // each charge step that follows a non-charge step opens the next cycle).
+  int pass = 0;
+  int cycle = 0;
 };
 
-// A figure a step measured (the DC resistance of a dcir step).
+// A figure a step measured: the DC resistance of a dcir step (U1 at the end
+// of the first current, U2 at the end of the second), or of an edge inside a
+// pulse train or duty cycle (U1 at the edge, U2 Plan::dcir_delay_s after it).
+// A point that cannot meet the method (the level after the edge is shorter
+// than the delay, the measured currents do not differ) has valid = false and
+// says why; it is recorded but never counted as a resistance.
 struct StepResult {
   int step = -1;
   std::string name;                           // "dc-resistance"
+  std::string source;                         // "dcir step" or "pulse edge"
   double value = 0.0;                         // SI base unit (Ohm)
   std::string detail;                         // the readings it came from, human-readable
+  double t_edge_s = 0.0;                      // the commanded edge
   double u1_v = 0.0, i1_a = 0.0, t1_s = 0.0;  // reading at the end of the first current
   double u2_v = 0.0, i2_a = 0.0, t2_s = 0.0;  // reading at the end of the second current
+  bool valid = true;
+  std::string why_invalid;
 };
 
 struct EngineOutput {
@@ -58,6 +72,12 @@ struct EngineOutput {
   std::optional<Setpoint> setpoint;  // set when the load or supply must change
   std::vector<StepResult> results;
   bool finished = false;
+  // The reading is one to store: a regular reading of the step's sample
+  // period, or one a measurement used (U1/U2). Readings taken only to check
+  // limits between logs are not (edges and step ends are stored anyway).
+  bool log = false;
+  // Set when the run must stop: the load could not hold the commanded level.
+  std::optional<std::string> abort_reason;
 };
 
 class StepEngine {
@@ -93,6 +113,10 @@ class StepEngine {
   double step_energy_wh() const { return step_energy_wh_; }
   // Completed passes of loop `i` (Plan::loops order) in its current run.
   int loop_iteration(size_t i) const { return loops_[i].iter; }
+  // The cycle the current step belongs to (see StepChange::cycle).
+  int cycle() const { return cycle_; }
+  // Pass of the innermost loop around the current step (1-based; 0 outside loops).
+  int pass() const;
 
  private:
   struct LoopState {
@@ -112,6 +136,11 @@ class StepEngine {
   double MinPeriod() const;  // the current step's sample period
   Setpoint SegmentSetpoint(const Segment& g) const;
   void Schedule(double t_s, bool changed_now);
+  // How soon the next reading is due to judge the limits that are being
+  // approached (voltage and temperature end conditions, safety limits).
+  double LimitCheckDelay() const;
+  void CheckRegulation(const Reading& r, EngineOutput& out);
+  void CompletePulseEdge(const Reading& r, EngineOutput& out);
 
   const Plan& plan_;
   int step_ = -1;
@@ -124,7 +153,15 @@ class StepEngine {
   std::optional<StepResult> dcir_;  // first half of a resistance test
   std::vector<LoopState> loops_;
   std::optional<Reading> last_;
+  std::optional<Reading> before_last_;  // for the approach rate of a limit
   std::optional<Setpoint> applied_;
+  double applied_at_s_ = 0.0;
+  double now_s_ = 0.0;
+  double next_regular_s_ = 0.0;
+  int cycle_ = 0;
+  bool last_was_charge_ = false;
+  std::optional<double> low_since_s_;     // lost regulation: first low reading
+  std::optional<StepResult> pulse_edge_;  // an edge waiting for its U2
 };
 
 }  // namespace kp

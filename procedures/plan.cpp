@@ -29,6 +29,8 @@ const char* StepKindName(StepKind kind) {
   return "?";
 }
 
+bool IsDischargeKind(StepKind kind) { return kind != StepKind::kRest && kind != StepKind::kCharge; }
+
 double Step::CycleSeconds() const {
   double s = 0.0;
   for (const Segment& g : segments) s += g.duration_s;

@@ -129,8 +129,23 @@ struct Plan {
   std::vector<Loop> loops;  // outer loops before the inner ones they contain
   // After every setpoint change the engine takes a reading this soon, so charge
   // counting follows the edges (at least the rig's fastest sample period).
+  // It is also the fastest limit-check rate: between logged samples the engine
+  // takes extra readings as an end condition or safety limit approaches.
   double edge_settle_s = 0.05;
+  // Two-current DC-IR at the edges inside pulse trains and duty cycles: U2 is
+  // read this long after the edge (IEC 61960-3 clause 7.7 reads U2 after 1 s;
+  // secondary source); edges whose commanded current changes by less than
+  // dcir_min_step_a are not measured.
+  double dcir_delay_s = 1.0;
+  double dcir_min_step_a = 0.05;
+  // Lost regulation: the load is on, the measured current (or power) stays
+  // below half of what was commanded for this long: the run aborts.
+  double regulation_grace_s = 10.0;
 };
+
+// True for the steps that take charge out of the cell (CC, CP, CR, pulse
+// train, duty cycle, DC-IR test).
+bool IsDischargeKind(StepKind kind);
 
 // What a rig can do at most, from its rig file (or the simulator's options).
 // Procedures ask; the rig caps.

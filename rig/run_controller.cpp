@@ -11,6 +11,40 @@
 
 namespace kp {
 
+const char* StepModeName(const Step& s) {
+  switch (s.kind) {
+    case StepKind::kRest:
+      return "off";
+    case StepKind::kConstantCurrent:
+      return "current";
+    case StepKind::kConstantPower:
+      return "power";
+    case StepKind::kConstantResistance:
+      return "resistance";
+    case StepKind::kCharge:
+      return "charge";
+    default:
+      return "segments";
+  }
+}
+
+std::optional<double> StepLevel(const Step& s) {
+  switch (s.kind) {
+    case StepKind::kConstantCurrent:
+      return s.current_a;
+    case StepKind::kConstantPower:
+      return s.power_w;
+    case StepKind::kConstantResistance:
+      return s.resistance_ohm;
+    case StepKind::kCharge:
+      return s.charge_current_a;
+    case StepKind::kRest:
+      return 0.0;
+    default:
+      return std::nullopt;
+  }
+}
+
 bool PlanNeedsSupply(const Plan& plan) {
   for (const Step& s : plan.steps)
     if (s.kind == StepKind::kCharge) return true;
@@ -100,7 +134,10 @@ class RunSession {
   RunResult Finish(Outcome outcome, std::string reason, std::string_view kind);
   // Reads, integrates delivered charge.
   Result<Reading> TakeReading();
-  Status LogSample(const Reading& r, int step, bool force);
+  // Stores the reading when forced (edges, measurements, step ends, holds) or
+  // when it is a regular reading of the step's period (under log-on-change,
+  // only when the voltage moved enough or the longest gap passed).
+  Status LogSample(const Reading& r, int step, bool force, bool regular = true);
   Status Handle(const EngineOutput& out);
   // Logs a "retry" event when any instrument session had to repeat an
   // exchange since the last check (the run went on; the trace has details).
@@ -109,7 +146,12 @@ class RunSession {
   // Records where the run stands; committed with the next batch so a killed
   // run resumes from exactly its last committed sample.
   void NoteProgress(const std::string& snapshot) {
-    rc_.store_.SetProgress(run_id_, {snapshot, t_s_, delivered_mah_, delivered_wh_});
+    RunProgress p = discharge_;
+    p.engine_snapshot = snapshot;
+    p.t_s = t_s_;
+    p.delivered_mah = delivered_mah_;
+    p.delivered_wh = delivered_wh_;
+    rc_.store_.SetProgress(run_id_, std::move(p));
   }
   // Acts on control requests from other processes. Returns a finished
   // RunResult when the run ended (abort, or ended while paused).
@@ -133,6 +175,7 @@ class RunSession {
   double t_s_ = 0.0;
   double delivered_mah_ = 0.0;
   double delivered_wh_ = 0.0;
+  RunProgress discharge_;  // discharge_mah / discharge_wh / charged_mah / discharge_open only
   std::optional<Reading> prev_;
   std::optional<Sample> last_logged_;
   int last_logged_step_ = -1;
@@ -179,18 +222,33 @@ Result<Reading> RunSession::TakeReading() {
   KP_ASSIGN_OR_RETURN(Reading r, rc_.Read(t_s_));
   if (prev_ && r.t_s > prev_->t_s) {
     double dt = r.t_s - prev_->t_s;
-    delivered_mah_ += 0.5 * (r.current_a + prev_->current_a) * dt / 3.6;
-    delivered_wh_ += 0.5 * (r.current_a * r.voltage_v + prev_->current_a * prev_->voltage_v) * dt / 3600.0;
+    const double dq = 0.5 * (r.current_a + prev_->current_a) * dt / 3.6;
+    const double de = 0.5 * (r.current_a * r.voltage_v + prev_->current_a * prev_->voltage_v) * dt / 3600.0;
+    delivered_mah_ += dq;
+    delivered_wh_ += de;
+    // The interval belongs to the step that was running during it.
+    if (const Step* s = engine_.current_step()) {
+      if (s->kind == StepKind::kCharge) {
+        discharge_.charged_mah += std::max(0.0, -dq);
+        discharge_.discharge_open = false;
+      } else if (IsDischargeKind(s->kind) || discharge_.discharge_open) {
+        if (!discharge_.discharge_open) discharge_.discharge_mah = discharge_.discharge_wh = 0.0;
+        discharge_.discharge_open = true;
+        discharge_.discharge_mah += dq;
+        discharge_.discharge_wh += de;
+      }
+    }
   }
   prev_ = r;
   if (options_.on_sample) options_.on_sample(r, delivered_mah_);
   return r;
 }
 
-Status RunSession::LogSample(const Reading& r, int step, bool force) {
+Status RunSession::LogSample(const Reading& r, int step, bool force, bool regular) {
   const Step* s = step >= 0 && step < static_cast<int>(plan_.steps.size()) ? &plan_.steps[static_cast<size_t>(step)] : nullptr;
-  bool log = force || s == nullptr || !s->log_change_v || !last_logged_ || last_logged_step_ != step ||
-             std::abs(r.voltage_v - last_logged_->voltage_v) >= *s->log_change_v || r.t_s - last_logged_->t_s >= s->log_max_gap_s;
+  bool log = force || (regular && (s == nullptr || !s->log_change_v || !last_logged_ || last_logged_step_ != step ||
+                                   std::abs(r.voltage_v - last_logged_->voltage_v) >= *s->log_change_v ||
+                                   r.t_s - last_logged_->t_s >= s->log_max_gap_s));
   if (!log) return Status::Ok();
   Sample smp{r.t_s, r.voltage_v, r.current_a, r.temperature_c, std::max(step, 0)};
   last_logged_ = smp;
@@ -204,14 +262,29 @@ Status RunSession::Handle(const EngineOutput& out) {
   Store& store = rc_.store_;
   // Setpoint first: an edge is applied as close to its time as possible.
   if (out.setpoint) KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
-  for (const StepResult& res : out.results)
-    KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "result", res.name + ": " + res.detail));
+  for (const StepResult& res : out.results) {
+    DcirRow row;
+    row.source = res.source;
+    row.t_edge_s = res.t_edge_s;
+    row.u1_v = res.u1_v, row.i1_a = res.i1_a, row.t1_s = res.t1_s;
+    if (res.t2_s > 0) row.u2_v = res.u2_v, row.i2_a = res.i2_a, row.t2_s = res.t2_s;
+    row.resistance_ohm = res.value;
+    row.valid = res.valid;
+    row.why_invalid = res.why_invalid;
+    KP_RETURN_IF_ERROR(store.AddDcirPoint(run_id_, row));
+    // A dcir step's figure is also an event; edges inside pulse trains are
+    // too many for the event list (they are in dcir_points).
+    if (res.source == "dcir step")
+      KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "result",
+                                        res.valid ? res.name + ": " + res.detail : res.name + " not measured: " + res.why_invalid));
+  }
   for (const StepChange& c : out.changes) {
     if (c.ended_step >= 0) KP_RETURN_IF_ERROR(store.EndStep(run_id_, t_s_, c.reason));
     if (c.ended_step >= 0 || c.started_step < 0) last_reason_ = c.reason;
     if (c.started_step >= 0) {
       const Step& s = plan_.steps[static_cast<size_t>(c.started_step)];
-      KP_RETURN_IF_ERROR(store.BeginStep(run_id_, c.started_step, StepKindName(s.kind), s.label, t_s_));
+      NewStep ns{c.started_step, StepKindName(s.kind), s.label, StepModeName(s), StepLevel(s), c.pass, c.cycle};
+      KP_RETURN_IF_ERROR(store.BeginStep(run_id_, ns, t_s_));
       std::string msg = c.ended_step < 0 ? fmt::format("step {}: {}", c.started_step + 1, s.label)
                                          : fmt::format("{}; step {}: {}", c.reason, c.started_step + 1, s.label);
       KP_RETURN_IF_ERROR(store.AddEvent(run_id_, t_s_, "step", msg));
@@ -305,6 +378,8 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     }
   }
+  if (Status st = rc_.store_.NoteStepHeld(run_id_, t_s_ - held_since); !st.ok())
+    return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
   Result<EngineOutput> out = engine_.Restore(snapshot, t_s_);
   if (!out.ok()) return Finish(Outcome::kAborted, "could not resume: " + out.status().ToString(), "fault");
   engine_.Integrate(*prev_);  // integration restarts from the held, load-off reading
@@ -322,6 +397,10 @@ Result<RunResult> RunSession::Run() {
     t_s_ = reopened_->progress->t_s + reopened_->gap_s;
     delivered_mah_ = reopened_->progress->delivered_mah;
     delivered_wh_ = reopened_->progress->delivered_wh;
+    discharge_.discharge_mah = reopened_->progress->discharge_mah;
+    discharge_.discharge_wh = reopened_->progress->discharge_wh;
+    discharge_.charged_mah = reopened_->progress->charged_mah;
+    discharge_.discharge_open = reopened_->progress->discharge_mah != 0.0;
   }
   t0_ = rc_.clock_.Now() - Seconds(t_s_);
   retries_seen_ = TotalRetries(rc_.roles_);  // sessions outlive runs: count this run's only
@@ -406,12 +485,20 @@ Result<RunResult> RunSession::Run() {
       }
 
       out = engine_.OnReading(r);
+      if (out.abort_reason) {
+        rc_.SafeOff();  // off first; then the reading that showed it is kept
+        if (Status st = LogSample(r, step_before, true); !st.ok())
+          return Finish(Outcome::kAborted, *out.abort_reason + "; database write failed: " + st.ToString(), "abort");
+        return Finish(Outcome::kAborted, *out.abort_reason, "abort");
+      }
       // Readings on both sides of every edge are stored even under log-on-change,
-      // so the stored samples alone count the charge right.
+      // so the stored samples alone count the charge right; so are the
+      // readings a measurement used. Readings taken only to judge a limit
+      // between logs are not stored unless they end the step.
       bool edge = out.setpoint.has_value() || !out.changes.empty();
       bool after_edge = after_edge_;
       after_edge_ = edge;
-      if (Status st = LogSample(r, step_before, edge || after_edge); !st.ok())
+      if (Status st = LogSample(r, step_before, edge || after_edge || !out.results.empty(), out.log); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
       NoteProgress(engine_.Snapshot(t_s_));
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
@@ -446,6 +533,7 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
   } else {
     NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
     KP_ASSIGN_OR_RETURN(run_id, store_.BeginRun(nr));
+    KP_RETURN_IF_ERROR(store_.SetThermometerTolerance(run_id, roles_.thermometer_tolerance_c));
   }
   RunSession session(*this, plan, options, run_id, std::move(reopened));
   return session.Run();

@@ -34,6 +34,10 @@ struct RigRoles {
   ThermometerDriver* thermometer = nullptr;  // required for safety
   SupplyDriver* supply = nullptr;            // optional: needed by charge steps
   std::string description;                   // "sim", "rig.toml"
+  // Measurement tolerance of the thermometer (± degC), stored with the run:
+  // verdicts judge the start temperature with it. 0.5 degC is a usual
+  // thermistor-probe accuracy (common practice, no source).
+  double thermometer_tolerance_c = 0.5;
 };
 
 class ControlChannel;  // rig/control_channel.h
@@ -96,5 +100,11 @@ class RunController {
 
 // True when some step of `plan` needs a supply role (charge steps).
 bool PlanNeedsSupply(const Plan& plan);
+// What a step commands, as stored with its step record: the mode name
+// ("current", "power", "resistance", "charge", "segments", "off") and the
+// commanded level (A, W, Ohm; the charge current; 0 for a rest; none for
+// pulse trains, duty cycles and DC-IR tests, whose levels are their segments).
+const char* StepModeName(const Step& step);
+std::optional<double> StepLevel(const Step& step);
 
 }  // namespace kp

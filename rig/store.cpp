@@ -91,8 +91,48 @@ Status MigrateTo2(sql::Db& db) {
   )sql");
 }
 
+// v3: the commanded structure. Every step instance records its mode and
+// commanded level, loop pass, cycle and the time it was held; DC-IR points
+// the engine measured at commanded edges get their own table; the runs row
+// carries the discharge figures (what the cell delivered in its latest
+// discharge, and what was charged in) beside the net charge of the record,
+// which keeps its value under the name net_mah. Old rows: the cycle is
+// derived from the step kinds, mode and level are left NULL (the report
+// takes them from the stored procedure) and `record` says 'migrated'.
+Status MigrateTo3(sql::Db& db) {
+  return db.Exec(R"sql(
+    ALTER TABLE steps ADD COLUMN mode TEXT;
+    ALTER TABLE steps ADD COLUMN level REAL;
+    ALTER TABLE steps ADD COLUMN loop_pass INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE steps ADD COLUMN cycle INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE steps ADD COLUMN held_s REAL NOT NULL DEFAULT 0;
+    ALTER TABLE steps ADD COLUMN record TEXT NOT NULL DEFAULT 'migrated';
+    UPDATE steps SET cycle = (
+      SELECT COUNT(*) FROM steps c WHERE c.run_id = steps.run_id AND c.seq <= steps.seq AND c.kind = 'charge'
+        AND NOT EXISTS (SELECT 1 FROM steps p WHERE p.run_id = c.run_id AND p.seq = c.seq - 1 AND p.kind = 'charge'));
+    CREATE TABLE dcir_points(
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      seq INTEGER NOT NULL,
+      step_seq INTEGER NOT NULL,
+      source TEXT NOT NULL,
+      t_edge_s REAL NOT NULL,
+      u1_v REAL NOT NULL, i1_a REAL NOT NULL, t1_s REAL NOT NULL,
+      u2_v REAL, i2_a REAL, t2_s REAL,
+      resistance_ohm REAL,
+      valid INTEGER NOT NULL,
+      why_invalid TEXT NOT NULL DEFAULT '',
+      PRIMARY KEY(run_id, seq)) WITHOUT ROWID;
+    ALTER TABLE runs RENAME COLUMN delivered_mah TO net_mah;
+    ALTER TABLE runs RENAME COLUMN delivered_wh TO net_wh;
+    ALTER TABLE runs ADD COLUMN delivered_mah REAL;
+    ALTER TABLE runs ADD COLUMN delivered_wh REAL;
+    ALTER TABLE runs ADD COLUMN charged_mah REAL;
+    ALTER TABLE runs ADD COLUMN thermometer_tolerance_c REAL;
+  )sql");
+}
+
 using Migration = Status (*)(sql::Db&);
-constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2};
+constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3};
 static_assert(std::size(kMigrations) == kSchemaVersion);
 
 // Heartbeats are calendar time (they must compare across processes), with
@@ -237,12 +277,14 @@ Status Store::Commit() {
   if (seq_run_ >= 0) {
     auto hb = db_->Prepare(
         "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
-        " delivered_mah=COALESCE(?5, delivered_mah), delivered_wh=COALESCE(?6, delivered_wh) WHERE id=?2");
+        " net_mah=COALESCE(?5, net_mah), net_wh=COALESCE(?6, net_wh), delivered_mah=COALESCE(?7, delivered_mah),"
+        " delivered_wh=COALESCE(?8, delivered_wh), charged_mah=COALESCE(?9, charged_mah) WHERE id=?2");
     st = hb.status();
     if (st.ok()) {
       hb->Bind(1, UnixSeconds()).Bind(2, seq_run_);
       if (progress_) {
         hb->Bind(3, progress_->engine_snapshot).Bind(4, progress_->t_s).Bind(5, progress_->delivered_mah).Bind(6, progress_->delivered_wh);
+        hb->Bind(7, progress_->discharge_mah).Bind(8, progress_->discharge_wh).Bind(9, progress_->charged_mah);
       }
       st = hb->Run();
     }
@@ -398,18 +440,74 @@ Status Store::StageSample(int64_t run_id, const Sample& s) {
   return Status::Ok();
 }
 
-Status Store::BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s) {
+Status Store::BeginStep(int64_t run_id, const NewStep& step, double t_s) {
   KP_RETURN_IF_ERROR(EnsureBatch());
-  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO steps(run_id, seq, idx, kind, label, started_s) VALUES(?1,?2,?3,?4,?5,?6)"));
-  KP_RETURN_IF_ERROR(ins.Bind(1, run_id).Bind(2, step_seq_).Bind(3, index).Bind(4, kind).Bind(5, label).Bind(6, t_s).Run());
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO steps(run_id, seq, idx, kind, label, started_s, mode, level, loop_pass,"
+                                             " cycle, record) VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,'engine')"));
+  ins.Bind(1, run_id).Bind(2, step_seq_).Bind(3, step.index).Bind(4, step.kind).Bind(5, step.label).Bind(6, t_s).Bind(7, step.mode);
+  if (step.level) ins.Bind(8, *step.level);
+  KP_RETURN_IF_ERROR(ins.Bind(9, static_cast<int64_t>(step.pass)).Bind(10, static_cast<int64_t>(step.cycle)).Run());
   ++step_seq_;
   return Commit();
+}
+
+Status Store::NoteStepHeld(int64_t run_id, double held_s) {
+  if (step_seq_ == 0) return Status::Ok();
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE steps SET held_s=held_s+?1 WHERE run_id=?2 AND seq=?3"));
+  return up.Bind(1, held_s).Bind(2, run_id).Bind(3, step_seq_ - 1).Run();
+}
+
+Status Store::AddDcirPoint(int64_t run_id, const DcirRow& p) {
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO dcir_points(run_id, seq, step_seq, source, t_edge_s, u1_v, i1_a, t1_s,"
+                                             " u2_v, i2_a, t2_s, resistance_ohm, valid, why_invalid)"
+                                             " VALUES(?1,(SELECT COALESCE(MAX(seq)+1,0) FROM dcir_points WHERE run_id=?1),"
+                                             " ?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13)"));
+  ins.Bind(1, run_id).Bind(2, step_seq_ > 0 ? step_seq_ - 1 : 0).Bind(3, p.source).Bind(4, p.t_edge_s);
+  ins.Bind(5, p.u1_v).Bind(6, p.i1_a).Bind(7, p.t1_s);
+  if (p.t2_s) ins.Bind(8, p.u2_v).Bind(9, p.i2_a).Bind(10, *p.t2_s);
+  if (p.valid) ins.Bind(11, p.resistance_ohm);
+  return ins.Bind(12, static_cast<int64_t>(p.valid ? 1 : 0)).Bind(13, p.why_invalid).Run();
+}
+
+Result<std::vector<DcirRow>> Store::LoadDcirPoints(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT step_seq, source, t_edge_s, u1_v, i1_a, t1_s, u2_v, i2_a, t2_s, resistance_ohm,"
+                                           " valid, why_invalid FROM dcir_points WHERE run_id=?1 ORDER BY seq"));
+  q.Bind(1, run_id);
+  std::vector<DcirRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    DcirRow p;
+    p.step_seq = q.Int(0);
+    p.source = q.Text(1);
+    p.t_edge_s = q.Real(2);
+    p.u1_v = q.Real(3);
+    p.i1_a = q.Real(4);
+    p.t1_s = q.Real(5);
+    if (!q.IsNull(8)) {
+      p.u2_v = q.Real(6);
+      p.i2_a = q.Real(7);
+      p.t2_s = q.Real(8);
+    }
+    p.valid = q.Int(10) != 0;
+    if (p.valid && !q.IsNull(9)) p.resistance_ohm = q.Real(9);
+    p.why_invalid = q.Text(11);
+    out.push_back(std::move(p));
+  }
+  return out;
+}
+
+Status Store::SetThermometerTolerance(int64_t run_id, double tolerance_c) {
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET thermometer_tolerance_c=?1 WHERE id=?2"));
+  return up.Bind(1, tolerance_c).Bind(2, run_id).Run();
 }
 
 Status Store::EndStep(int64_t run_id, double t_s, std::string_view reason) {
   if (step_seq_ == 0) return Status::Ok();
   KP_RETURN_IF_ERROR(EnsureBatch());
-  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE steps SET ended_s=?1, end_reason=?2 WHERE run_id=?3 AND seq=?4"));
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE steps SET ended_s=?1, end_reason=?2 WHERE run_id=?3 AND seq=?4 AND ended_s IS NULL"));
   KP_RETURN_IF_ERROR(up.Bind(1, t_s).Bind(2, reason).Bind(3, run_id).Bind(4, step_seq_ - 1).Run());
   return Commit();
 }
@@ -574,7 +672,8 @@ Result<std::vector<EventRow>> Store::LoadEvents(int64_t run_id) {
 
 Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(
-                                  "SELECT seq, idx, kind, label, started_s, ended_s, COALESCE(end_reason,'') FROM steps"
+                                  "SELECT seq, idx, kind, label, started_s, ended_s, COALESCE(end_reason,''), mode, level,"
+                                  " loop_pass, cycle, held_s, record FROM steps"
                                   " WHERE run_id=?1 ORDER BY seq"));
   q.Bind(1, run_id);
   std::vector<StepRow> out;
@@ -589,18 +688,29 @@ Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
     s.started_s = q.Real(4);
     if (!q.IsNull(5)) s.ended_s = q.Real(5);
     s.end_reason = q.Text(6);
+    if (!q.IsNull(7)) s.mode = q.Text(7);
+    if (!q.IsNull(8)) s.level = q.Real(8);
+    s.pass = static_cast<int>(q.Int(9));
+    s.cycle = static_cast<int>(q.Int(10));
+    s.held_s = q.Real(11);
+    s.migrated = q.Text(12) != "engine";
     out.push_back(std::move(s));
   }
   return out;
 }
 
 Result<std::optional<RunProgress>> Store::LoadProgress(int64_t run_id) {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT engine_snapshot, progress_t_s, delivered_mah, delivered_wh FROM runs WHERE id=?1"));
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT engine_snapshot, progress_t_s, net_mah, net_wh, delivered_mah, delivered_wh,"
+                                           " charged_mah FROM runs WHERE id=?1"));
   q.Bind(1, run_id);
   KP_ASSIGN_OR_RETURN(bool row, q.Step());
   if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
   if (q.IsNull(0)) return std::optional<RunProgress>();
-  return std::optional<RunProgress>(RunProgress{q.Text(0), q.Real(1), q.Real(2), q.Real(3)});
+  RunProgress p{q.Text(0), q.Real(1), q.Real(2), q.Real(3)};
+  if (!q.IsNull(4)) p.discharge_mah = q.Real(4);
+  if (!q.IsNull(5)) p.discharge_wh = q.Real(5);
+  if (!q.IsNull(6)) p.charged_mah = q.Real(6);
+  return std::optional<RunProgress>(p);
 }
 
 Result<std::vector<Sample>> Store::LatestSamples(int64_t run_id, int n) {

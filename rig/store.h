@@ -25,7 +25,7 @@
 
 namespace kp {
 
-inline constexpr int kSchemaVersion = 2;
+inline constexpr int kSchemaVersion = 3;
 
 enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
 const char* OutcomeName(Outcome o);
@@ -60,8 +60,14 @@ struct RunRow {
 struct RunProgress {
   std::string engine_snapshot;  // StepEngine::Snapshot after the latest sample
   double t_s = 0.0;             // run time of that sample
-  double delivered_mah = 0.0;   // since the run started, all segments
-  double delivered_wh = 0.0;
+  double delivered_mah = 0.0;   // net since the run started (charging counts negative): runs.net_mah
+  double delivered_wh = 0.0;    // runs.net_wh
+  // The discharge under way or last completed (from the first discharge-kind
+  // step after a charge, or the run start): runs.delivered_mah / delivered_wh.
+  double discharge_mah = 0.0;
+  double discharge_wh = 0.0;
+  double charged_mah = 0.0;  // charged into the cell in the whole run: runs.charged_mah
+  bool discharge_open = false;  // a discharge-kind step ran since the last charge
 };
 
 // What a reopened (resumed) run continues from.
@@ -91,12 +97,43 @@ struct RequestRow {
 
 struct StepRow {
   int64_t seq = 0;
-  int index = 0;
+  int index = 0;  // 0-based plan index; the step number users see is index + 1
   std::string kind;
   std::string label;
   double started_s = 0.0;
   std::optional<double> ended_s;
   std::string end_reason;
+  std::string mode;             // "current", "power", "resistance", "segments", "charge", "off"; empty when migrated
+  std::optional<double> level;  // commanded A, W or Ohm (charge: A); empty for segments, rests and migrated rows
+  int pass = 0;                 // pass of the innermost loop around the step (1-based; 0 outside loops)
+  int cycle = 0;                // 0 before the first charge; +1 at each charge that follows a non-charge step
+  double held_s = 0.0;          // time the step was held (heat, operator pause, lost link)
+  bool migrated = false;        // recorded before schema v3: mode, level and pass are unknown
+};
+
+// What the runner records when a step instance starts.
+struct NewStep {
+  int index = 0;
+  std::string kind;
+  std::string label;
+  std::string mode;
+  std::optional<double> level;
+  int pass = 0;
+  int cycle = 0;
+};
+
+// A DC-IR point the engine measured at a commanded edge (dcir step or an edge
+// inside a pulse train or duty cycle), valid or with the reason it is not.
+struct DcirRow {
+  int64_t step_seq = 0;
+  std::string source;  // "dcir step", "pulse edge"
+  double t_edge_s = 0.0;
+  double u1_v = 0.0, i1_a = 0.0, t1_s = 0.0;
+  double u2_v = 0.0, i2_a = 0.0;
+  std::optional<double> t2_s;
+  double resistance_ohm = 0.0;
+  bool valid = false;
+  std::string why_invalid;
 };
 
 class Store {
@@ -128,7 +165,15 @@ class Store {
   Result<ReopenedRun> ReopenRun(int64_t run_id);
   // Samples committed so far in this store's current run (for crash tests and progress displays).
   int64_t committed_samples() const { return committed_seq_; }
-  Status BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s);
+  Status BeginStep(int64_t run_id, const NewStep& step, double t_s);
+  Status BeginStep(int64_t run_id, int index, std::string_view kind, std::string_view label, double t_s) {
+    return BeginStep(run_id, NewStep{index, std::string(kind), std::string(label), "", std::nullopt, 0, 0}, t_s);
+  }
+  // Adds held time to the open step instance (written with the next commit).
+  Status NoteStepHeld(int64_t run_id, double held_s);
+  // Written with the next commit.
+  Status AddDcirPoint(int64_t run_id, const DcirRow& point);
+  Status SetThermometerTolerance(int64_t run_id, double tolerance_c);
   Status EndStep(int64_t run_id, double t_s, std::string_view reason);
   // Events commit the open batch with them.
   Status AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message);
@@ -153,6 +198,7 @@ class Store {
   Status ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn);
   Result<std::vector<EventRow>> LoadEvents(int64_t run_id);
   Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
+  Result<std::vector<DcirRow>> LoadDcirPoints(int64_t run_id);
   // The progress last committed with the run's samples, if any.
   Result<std::optional<RunProgress>> LoadProgress(int64_t run_id);
   // The latest `n` samples of a run, oldest first (live displays).

@@ -42,10 +42,11 @@ TEST(StepEngine, EndsOnCutoffAndSwitchesOff) {
   out = e.OnReading({p.edge_settle_s, 3.9, 0.5, 25});
   EXPECT_FALSE(out.finished);
   EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s + 1.0);
-  out = e.OnReading({1.0, 3.9, 0.5, 25});
+  out = e.OnReading({p.edge_settle_s + 1.0, 3.9, 0.5, 25});
   EXPECT_FALSE(out.finished);
-  EXPECT_DOUBLE_EQ(e.NextWakeup(), 2.0);
-  out = e.OnReading({2.0, 2.749, 0.5, 25});
+  EXPECT_TRUE(out.log);  // a regular reading of the period
+  EXPECT_DOUBLE_EQ(e.NextWakeup(), p.edge_settle_s + 2.0);
+  out = e.OnReading({p.edge_settle_s + 2.0, 2.749, 0.5, 25});
   EXPECT_TRUE(out.finished);
   ASSERT_TRUE(out.setpoint.has_value());
   EXPECT_FALSE(out.setpoint->load_on);

@@ -58,7 +58,7 @@ TEST(Migration, Version1DatabaseIsUpgradedKeepingItsData) {
   SteadyClock wall;
   auto store = Store::Open(dir.File("v1.db"), wall);
   ASSERT_TRUE(store.ok()) << store.status().ToString();
-  EXPECT_EQ(*(*store)->SchemaVersion(), 2);
+  EXPECT_EQ(*(*store)->SchemaVersion(), kSchemaVersion);
   auto run = (*store)->GetRun(1);
   ASSERT_TRUE(run.ok());
   EXPECT_EQ(run->cell, "old-cell");

@@ -114,12 +114,14 @@ Outcomes RunOverLink(const char* listen, const sim::FaultOptions& faults = {}, c
 }
 
 // No sample went missing: after the open-circuit reading at t = 0 and the one
-// just after the load switches on, one every 10 s to the last.
+// just after the load switches on, one every 10 s; the last is the reading
+// that reached the cutoff, taken between logs by the limit checks.
 void ExpectNoGaps(const std::vector<Sample>& s) {
   ASSERT_GE(s.size(), 3u);
   EXPECT_EQ(s[0].t_s, 0.0);
   EXPECT_LT(s[1].t_s, 1.0);
-  for (size_t i = 2; i < s.size(); ++i) ASSERT_NEAR(s[i].t_s - s[i - 1].t_s, 10.0, 1e-6) << "gap before sample " << i;
+  for (size_t i = 2; i + 1 < s.size(); ++i) ASSERT_NEAR(s[i].t_s - s[i - 1].t_s, 10.0, 1e-6) << "gap before sample " << i;
+  EXPECT_LE(s.back().t_s - s[s.size() - 2].t_s, 10.0 + 1e-6);
 }
 
 TEST(RemoteRun, TcpAndPtyStoreTheSameChargeAsInProcess) {
@@ -133,6 +135,10 @@ TEST(RemoteRun, TcpAndPtyStoreTheSameChargeAsInProcess) {
     EXPECT_EQ(remote.result.outcome, Outcome::kCompleted) << remote.result.reason;
     EXPECT_FALSE(remote.load_on_after);
     ExpectNoGaps(remote.samples);
+    // Logged every 10 s, yet the limit checks between logs end the discharge
+    // within 10 mV of the cutoff.
+    EXPECT_LE(remote.samples.back().voltage_v, Cell2500().cutoff_v);
+    EXPECT_GT(remote.samples.back().voltage_v, Cell2500().cutoff_v - 0.010);
     // Required: within 0.5 %. With the shared clock and confirmed writes the
     // exchanges happen at the same simulated instants, so the samples match
     // exactly; a difference would mean a command took effect late.
