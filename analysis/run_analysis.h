@@ -1,11 +1,29 @@
-// Every figure of one run in one call: totals, per-step figures, gaps, the
-// capacity verdict, DC-IR points, pulse metrics and temperature. Pure, no I/O:
-// the caller (rig/run_report) gathers the samples and the run's context from
-// the store.
+// Every figure of one run in one call, analysed by what the procedure
+// commanded: the step instances the engine recorded (kind, commanded level,
+// loop pass, cycle, start and end), never by structure re-inferred from the
+// samples. Pure, no I/O: the caller (rig/run_report) gathers the samples, the
+// step records and the engine's DC-IR points from the store.
+//
+// Definitions (also in README, "How the figures are defined"):
+// - A step instance owns the samples whose time lies in (start, end]: the
+//   reading that ends a step was taken before the next setpoint went out, so
+//   it belongs to the step that ends there; the open-circuit reading at t = 0
+//   belongs to no step. Each interval between two samples belongs to the
+//   instance that owns its closing sample (trapezoid), so instance sums add up
+//   to the whole record.
+// - A discharge runs from the first discharge-kind instance (CC, CP, CR,
+//   pulse train, duty cycle, DC-IR test) after a charge, or the run start, to
+//   the instance that reached a voltage cutoff or else the last discharge-kind
+//   instance before the next charge. Rests inside it belong to it; a trailing
+//   rest never does.
+// - A cycle starts at each charge instance that follows a non-charge one
+//   (cycle 0 is what ran before the first charge).
 #pragma once
 
 #include <optional>
 #include <string>
+#include <string_view>
+#include <utility>
 #include <vector>
 
 #include "analysis/dcir.h"
@@ -17,38 +35,104 @@
 
 namespace kp {
 
-// A step as the run recorded it (from the store's steps table).
-struct StepBoundary {
-  int index = 0;
-  std::string kind;  // "rest", "constant-current discharge", ...
+enum class StepClass { kRest, kConstantCurrent, kConstantPower, kConstantResistance, kPulseTrain, kDutyCycle, kDcir, kCharge, kUnknown };
+// From the kind names the engine stores ("rest", "constant-current discharge", ...).
+StepClass StepClassFromKind(std::string_view kind);
+bool IsDischargeClass(StepClass c);
+
+// A step instance as the run recorded it.
+struct StepRecord {
+  int index = 0;     // 0-based plan index; users see index + 1
+  std::string kind;  // stored kind name
   double started_s = 0.0;
-  std::optional<double> ended_s;
+  std::optional<double> ended_s;  // empty while running or when the run died in it
+  std::string end_reason;
+  std::string mode;             // "current", "power", "resistance", "charge", "segments", "off"
+  std::optional<double> level;  // commanded A, W or Ohm (charge: A)
+  int pass = 0;
+  int cycle = 0;
+  double held_s = 0.0;
+  // The commanded constant-current segments of a pulse train or duty cycle in
+  // run time; empty when unknown or when the step was held (phase lost).
+  std::vector<CommandedSegment> segments;
 };
 
 struct RunContext {
   double rated_mah = 0.0;
   std::string chemistry;
-  std::optional<double> cutoff_v;          // end voltage, for time to cutoff
-  std::vector<StepBoundary> steps;         // may be empty
-  std::vector<CommandedSegment> segments;  // commanded pulse/duty segments; empty when unknown
-  std::vector<Gap> recorded_gaps;          // gaps the runner logged as events
+  std::optional<double> cutoff_v;  // end voltage, for time to cutoff
+  std::vector<StepRecord> steps;   // may be empty (then the record is one block)
+  std::vector<Gap> recorded_gaps;  // gaps the runner logged as events
   DcirOptions dcir;
   std::optional<double> brownout_v;
-  double segment_tolerance_a = 0.005;  // for segments reconstructed from samples
+  // DC-IR points the engine measured at commanded edges. When
+  // `dcir_recorded` is false (runs logged before the engine measured them),
+  // points are taken from the samples at the commanded edges inside dcir,
+  // pulse and duty steps only.
+  bool dcir_recorded = false;
+  std::vector<DcirPoint> engine_dcir;
+  std::vector<std::string> dcir_invalid;  // the reasons of the points left out, one per point
+  double temperature_tolerance_c = 0.5;   // of the thermometer, for the start-temperature condition
+  // IEC 61960-3 allows up to five charge/discharge cycles to reach the rated
+  // capacity, stopping at the first that passes (from memory).
+  int max_attempts = 5;
+};
+
+// Figures of one step instance.
+struct InstanceFigures {
+  StepFigures f;  // step (plan index), times, charge, energy, means, min V, samples
+  int number = 0;  // index + 1
+  std::string kind;
+  StepClass cls = StepClass::kUnknown;
+  int pass = 0, cycle = 0;
+  double started_s = 0.0, ended_s = 0.0;  // commanded start and recorded end
+  std::string end_reason;
+  double held_s = 0.0;
+  std::optional<double> level;
+  std::string mode;
+  IntegrationMethod method = IntegrationMethod::kSampleTrapezoid;
+};
+
+struct DischargeFigures {
+  size_t first = 0, last = 0;  // instance indices, inclusive
+  int cycle = 0;
+  double start_s = 0.0, end_s = 0.0;
+  double charge_mah = 0.0, energy_wh = 0.0;
+  double mean_voltage_v = 0.0, mid_voltage_v = 0.0, min_voltage_v = 0.0;
+  double average_current_a = 0.0, peak_current_a = 0.0;
+  std::optional<double> time_to_cutoff_s;
+  bool reached_cutoff = false;
+  bool pulsed = false;         // contains a pulse train or duty cycle
+  size_t judged = 0;           // the instance judged by the capacity method (reached the cutoff, else the largest)
+  std::string description;     // "constant current 0.500 A (0.20 It)", "constant resistance 6.0 Ohm", "pulsed"
+  double start_temperature_c = 0.0;
+  IntegrationMethod method = IntegrationMethod::kSampleTrapezoid;  // per-segment if any instance used it
+  CapacityJudgement judgement;
+};
+
+struct CycleFigures {
+  int cycle = 0;
+  double charge_in_mah = 0.0, charge_in_wh = 0.0;
+  std::optional<size_t> discharge;  // index into RunAnalysis::discharges
+  double discharge_mah = 0.0, discharge_wh = 0.0;
+  std::optional<double> coulombic_efficiency, energy_efficiency;  // discharge / charge
+  std::optional<double> retention;                                 // discharge / first cycle's discharge
 };
 
 struct RunAnalysis {
   RunFigures totals;  // whole record, sample trapezoid
-  std::vector<StepFigures> steps;
-  std::vector<Gap> gaps;  // found in the samples plus those recorded
-  IntegrationMethod method = IntegrationMethod::kSampleTrapezoid;
-  // The discharge: the run of consecutive non-charging steps, starting and
-  // ending with a discharging step, that delivered the most charge (a plain
-  // discharge step, or a pulse train / duty cycle written as several steps).
-  double discharge_charge_mah = 0.0;  // by `method`
+  std::vector<StepFigures> steps;          // per step instance (same order as `instances`)
+  std::vector<InstanceFigures> instances;  // per step instance, with its record
+  std::vector<DischargeFigures> discharges;
+  std::vector<CycleFigures> cycles;  // empty for a run without a charge step
+  std::optional<size_t> main_discharge;  // the one the headline figures describe
+  std::vector<Gap> gaps;                 // found in the samples plus those recorded
+  IntegrationMethod method = IntegrationMethod::kSampleTrapezoid;  // of the main discharge
+  // The main discharge (the attempt the verdict judged; else the largest).
+  double discharge_charge_mah = 0.0;
   double discharge_energy_wh = 0.0;
-  int main_discharge_step = -1;  // first step of the discharge
-  int last_discharge_step = -1;
+  int main_discharge_step = -1;  // plan index of its first instance
+  int last_discharge_step = -1;  // plan index of its last instance
   double discharge_start_s = 0.0;
   double discharge_duration_s = 0.0;
   double mean_voltage_v = 0.0;             // time-weighted over the discharge
@@ -57,13 +141,21 @@ struct RunAnalysis {
   double average_current_a = 0.0;          // charge / duration of the discharge
   double peak_current_a = 0.0;
   bool pulsed = false;
+  bool constant_current = false;  // the discharge is one constant-current level (Peukert-eligible)
+  std::string discharge_description;
   std::vector<DcirPoint> dcir;
+  std::vector<std::pair<std::string, int>> dcir_left_out;  // reason, count
   std::vector<PulseFigures> pulses;
   std::optional<Brownout> brownout;
   double start_temperature_c = 0.0, max_temperature_c = 0.0, temperature_rise_c = 0.0;
   CapacityJudgement verdict;
+  std::vector<size_t> attempts;  // discharges judged as capacity attempts (indices into `discharges`)
 };
 
 RunAnalysis AnalyseRun(SampleSpan samples, const RunContext& context);
+
+// True when a step's end reason says a voltage fell to its limit ("voltage
+// 2.748 V <= 2.750 V", or a repeat loop that ended on one).
+bool ReachedVoltageCutoff(std::string_view end_reason);
 
 }  // namespace kp

@@ -56,10 +56,16 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
                                      : fmt::format("{:.3f} A ({} It) ± {:.0f} %", want_a, m.rate_it, m.current_tolerance * 100.0),
                           fmt::format("mean {:.4f} A, largest deviation {:.4f} A", r.mean_current_a, r.max_current_deviation_a),
                           mean_ok && r.max_current_deviation_a <= tol_a});
-  j.conditions.push_back({"temperature", fmt::format("{:.0f} to {:.0f} degC at the start", m.temp_min_c, m.temp_max_c),
-                          fmt::format("{:.1f} degC at the start, {:.1f} to {:.1f} degC during the discharge",
+  // The reading counts when the band and the reading's tolerance overlap: the
+  // cell may have been inside the band. Printed to 0.01 degC so a reading of
+  // 25.04 degC is not shown as 25.0 beside a NO.
+  const double tol_c = std::max(0.0, r.temperature_tolerance_c);
+  j.conditions.push_back({"temperature",
+                          fmt::format("{:.0f} to {:.0f} degC at the start (thermometer ± {:.2f} degC)", m.temp_min_c,
+                                      m.temp_max_c, tol_c),
+                          fmt::format("{:.2f} degC at the start, {:.2f} to {:.2f} degC during the discharge",
                                       r.start_temperature_c, r.min_temperature_c, r.max_temperature_c),
-                          r.start_temperature_c >= m.temp_min_c && r.start_temperature_c <= m.temp_max_c});
+                          r.start_temperature_c >= m.temp_min_c - tol_c && r.start_temperature_c <= m.temp_max_c + tol_c});
   if (m.rest_required)
     j.conditions.push_back(
         {"rest before discharge", fmt::format("{:.0f} to {:.0f} h", m.rest_min_s / 3600.0, m.rest_max_s / 3600.0),
@@ -75,14 +81,17 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
   std::string unmet;
   for (const ConditionCheck& c : j.conditions)
     if (!c.met) unmet += (unmet.empty() ? "" : ", ") + c.name;
-  double rate_it = it_a > 0 ? r.mean_current_a / it_a : 0.0;
+  const double judged_a = r.commanded_current_a.value_or(r.mean_current_a);
+  double rate_it = it_a > 0 ? judged_a / it_a : 0.0;
   if (r.rated_mah <= 0) {
     j.not_judged_why = "no rated capacity";
   } else if (r.pulsed) {
     j.not_judged_why = "pulsed discharge";
-  } else if (r.mean_current_a <= 0.0) {
+  } else if (!r.not_constant_current.empty()) {
+    j.not_judged_why = r.not_constant_current;
+  } else if (r.mean_current_a <= 0.0 || judged_a <= 0.0) {
     j.not_judged_why = "no discharge recorded";
-  } else if (!m.any_rate && std::abs(r.mean_current_a - want_a) > kJudgedRateWindow * want_a) {
+  } else if (!m.any_rate && std::abs(judged_a - want_a) > kJudgedRateWindow * want_a) {
     j.not_judged_why = fmt::format("constant current at {:.2f} It", rate_it);
   }
   j.judged = j.not_judged_why.empty();

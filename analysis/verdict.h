@@ -48,6 +48,14 @@ struct DischargeConditions {
   std::optional<double> rest_before_s;  // rest step right before the discharge
   double end_voltage_v = 0.0;           // last sample of the discharge
   bool pulsed = false;                  // a pulse train or duty cycle, not one constant current
+  // What the procedure commanded for the judged step; the rate (which test
+  // this is) comes from it, the current condition from the measured mean.
+  std::optional<double> commanded_current_a;
+  // Non-empty when the discharge is not one constant current for another
+  // reason than pulses: "constant-resistance discharge", "several levels".
+  std::string not_constant_current;
+  // Thermometer tolerance (±): a start temperature within it of the band counts.
+  double temperature_tolerance_c = 0.0;
 };
 
 struct ConditionCheck {

@@ -31,6 +31,40 @@ const char* StepKindName(StepKind kind) {
 
 bool IsDischargeKind(StepKind kind) { return kind != StepKind::kRest && kind != StepKind::kCharge; }
 
+const char* StepModeName(const Step& s) {
+  switch (s.kind) {
+    case StepKind::kRest:
+      return "off";
+    case StepKind::kConstantCurrent:
+      return "current";
+    case StepKind::kConstantPower:
+      return "power";
+    case StepKind::kConstantResistance:
+      return "resistance";
+    case StepKind::kCharge:
+      return "charge";
+    default:
+      return "segments";
+  }
+}
+
+std::optional<double> StepLevel(const Step& s) {
+  switch (s.kind) {
+    case StepKind::kConstantCurrent:
+      return s.current_a;
+    case StepKind::kConstantPower:
+      return s.power_w;
+    case StepKind::kConstantResistance:
+      return s.resistance_ohm;
+    case StepKind::kCharge:
+      return s.charge_current_a;
+    case StepKind::kRest:
+      return 0.0;
+    default:
+      return std::nullopt;
+  }
+}
+
 double Step::CycleSeconds() const {
   double s = 0.0;
   for (const Segment& g : segments) s += g.duration_s;

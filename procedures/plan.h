@@ -146,6 +146,12 @@ struct Plan {
 // True for the steps that take charge out of the cell (CC, CP, CR, pulse
 // train, duty cycle, DC-IR test).
 bool IsDischargeKind(StepKind kind);
+// What a step commands, as stored with its step record: the mode name
+// ("current", "power", "resistance", "charge", "segments", "off") and the
+// commanded level (A, W, Ohm; the charge current; 0 for a rest; none for
+// pulse trains, duty cycles and DC-IR tests, whose levels are their segments).
+const char* StepModeName(const Step& step);
+std::optional<double> StepLevel(const Step& step);
 
 // What a rig can do at most, from its rig file (or the simulator's options).
 // Procedures ask; the rig caps.

@@ -34,4 +34,32 @@ std::vector<CommandedSegment> CommandedSegmentsFor(const Plan& plan, const std::
   return out;
 }
 
+std::vector<CommandedSegment> SegmentsOfInstance(const Step& step, const StepRow& row, const std::vector<EventRow>& events) {
+  std::vector<CommandedSegment> out;
+  if (!row.ended_s || row.held_s > 0) return out;
+  if (step.kind != StepKind::kPulseTrain && step.kind != StepKind::kDutyCycle && step.kind != StepKind::kResistanceTest) return out;
+  bool current_only = !step.segments.empty() && std::all_of(step.segments.begin(), step.segments.end(), [](const Segment& s) {
+    return s.mode == LoadMode::kCurrent && s.duration_s > 0;
+  });
+  if (!current_only) return out;
+  // Rows from before step records kept the hold time: the events tell.
+  bool held = std::any_of(events.begin(), events.end(), [&](const EventRow& e) {
+    return (e.kind == "pause" || e.kind == "control" || e.kind == "gap") && e.t_s >= row.started_s && e.t_s <= *row.ended_s;
+  });
+  if (held) return out;
+  double t = row.started_s;
+  const double end = *row.ended_s;
+  const bool once = step.kind == StepKind::kResistanceTest;
+  while (t < end) {
+    for (const Segment& seg : step.segments) {
+      if (t >= end) break;
+      double stop = std::min(end, t + seg.duration_s);
+      out.push_back({t, stop, seg.level});
+      t = stop;
+    }
+    if (once) break;
+  }
+  return out;
+}
+
 }  // namespace kp

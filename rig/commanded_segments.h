@@ -21,4 +21,10 @@ namespace kp {
 std::vector<CommandedSegment> CommandedSegmentsFor(const Plan& plan, const std::vector<StepRow>& steps,
                                                    const std::vector<EventRow>& events);
 
+// The commanded segments of one step instance (pulse train, duty cycle or
+// DC-IR test with constant-current segments), from its start to its recorded
+// end; empty for other steps, for a step that was held (its phase after the
+// hold is not the commanded one) and for one without a recorded end.
+std::vector<CommandedSegment> SegmentsOfInstance(const Step& step, const StepRow& row, const std::vector<EventRow>& events);
+
 }  // namespace kp

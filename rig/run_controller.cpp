@@ -11,40 +11,6 @@
 
 namespace kp {
 
-const char* StepModeName(const Step& s) {
-  switch (s.kind) {
-    case StepKind::kRest:
-      return "off";
-    case StepKind::kConstantCurrent:
-      return "current";
-    case StepKind::kConstantPower:
-      return "power";
-    case StepKind::kConstantResistance:
-      return "resistance";
-    case StepKind::kCharge:
-      return "charge";
-    default:
-      return "segments";
-  }
-}
-
-std::optional<double> StepLevel(const Step& s) {
-  switch (s.kind) {
-    case StepKind::kConstantCurrent:
-      return s.current_a;
-    case StepKind::kConstantPower:
-      return s.power_w;
-    case StepKind::kConstantResistance:
-      return s.resistance_ohm;
-    case StepKind::kCharge:
-      return s.charge_current_a;
-    case StepKind::kRest:
-      return 0.0;
-    default:
-      return std::nullopt;
-  }
-}
-
 bool PlanNeedsSupply(const Plan& plan) {
   for (const Step& s : plan.steps)
     if (s.kind == StepKind::kCharge) return true;
@@ -532,8 +498,12 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
     run_id = options.resume->run_id;
   } else {
     NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
-    KP_ASSIGN_OR_RETURN(run_id, store_.BeginRun(nr));
-    KP_RETURN_IF_ERROR(store_.SetThermometerTolerance(run_id, roles_.thermometer_tolerance_c));
+    nr.thermometer_tolerance_c = roles_.thermometer_tolerance_c;
+    StepEngine at_start(plan);
+    (void)at_start.Start(0.0);
+    RunProgress initial;
+    initial.engine_snapshot = at_start.Snapshot(0.0);
+    KP_ASSIGN_OR_RETURN(run_id, store_.BeginRun(nr, initial));
   }
   RunSession session(*this, plan, options, run_id, std::move(reopened));
   return session.Run();

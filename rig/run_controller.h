@@ -100,11 +100,6 @@ class RunController {
 
 // True when some step of `plan` needs a supply role (charge steps).
 bool PlanNeedsSupply(const Plan& plan);
-// What a step commands, as stored with its step record: the mode name
-// ("current", "power", "resistance", "charge", "segments", "off") and the
-// commanded level (A, W, Ohm; the charge current; 0 for a rest; none for
-// pulse trains, duty cycles and DC-IR tests, whose levels are their segments).
-const char* StepModeName(const Step& step);
-std::optional<double> StepLevel(const Step& step);
+
 
 }  // namespace kp

@@ -43,6 +43,8 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   KP_ASSIGN_OR_RETURN(rep.samples, store.LoadSamples(run_id));
   KP_ASSIGN_OR_RETURN(rep.steps, store.LoadSteps(run_id));
   KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run_id));
+  KP_ASSIGN_OR_RETURN(rep.totals, store.LoadRunTotals(run_id));
+  KP_ASSIGN_OR_RETURN(std::vector<DcirRow> dcir_rows, store.LoadDcirPoints(run_id));
   rep.figures = ComputeRunFigures(rep.samples);
 
   RunContext ctx;
@@ -50,9 +52,52 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   ctx.chemistry = rep.run.chemistry;
   ctx.dcir = options.dcir;
   ctx.brownout_v = options.brownout_v;
+  if (rep.totals.thermometer_tolerance_c) ctx.temperature_tolerance_c = *rep.totals.thermometer_tolerance_c;
+  // The procedure stored with the run: commanded levels of rows recorded
+  // before step records, the pulse / duty-cycle timelines, the end voltage.
+  ParseOutput parsed = ParseProcedure(rep.run.procedure_text, rep.run.procedure_name);
+  const Plan* plan = parsed.ok() ? &parsed.plan : nullptr;
+  bool migrated = false;
   for (const StepRow& s : rep.steps) {
-    ctx.steps.push_back({s.index, s.kind, s.started_s, s.ended_s});
-    if (!ctx.cutoff_v) ctx.cutoff_v = CutoffFromReason(s.end_reason);
+    StepRecord r;
+    r.index = s.index;
+    r.kind = s.kind;
+    r.started_s = s.started_s;
+    r.ended_s = s.ended_s;
+    r.end_reason = s.end_reason;
+    r.mode = s.mode;
+    r.level = s.level;
+    r.pass = s.pass;
+    r.cycle = s.cycle;
+    r.held_s = s.held_s;
+    migrated = migrated || s.migrated;
+    if (plan != nullptr && s.index >= 0 && s.index < static_cast<int>(plan->steps.size())) {
+      const Step& st = plan->steps[static_cast<size_t>(s.index)];
+      if (s.migrated) {
+        r.mode = StepModeName(st);
+        r.level = StepLevel(st);
+      }
+      r.segments = SegmentsOfInstance(st, s, events);
+    }
+    if (!ctx.cutoff_v && ReachedVoltageCutoff(s.end_reason)) ctx.cutoff_v = CutoffFromReason(s.end_reason);
+    ctx.steps.push_back(std::move(r));
+  }
+  if (!ctx.cutoff_v && plan != nullptr && plan->cell.cutoff_v > 0) ctx.cutoff_v = plan->cell.cutoff_v;
+  // DC-IR points the engine measured (runs recorded with step records).
+  ctx.dcir_recorded = !rep.steps.empty() && !migrated;
+  for (const DcirRow& p : dcir_rows) {
+    if (!p.valid) {
+      ctx.dcir_invalid.push_back(fmt::format("{}: {}", p.source, p.why_invalid));
+      continue;
+    }
+    DcirPoint d;
+    d.t_edge_s = p.t_edge_s;
+    d.u1_v = p.u1_v, d.i1_a = p.i1_a;
+    d.u2_v = p.u2_v, d.i2_a = p.i2_a;
+    d.t_u2_s = p.t2_s.value_or(p.t_edge_s);
+    d.resistance_ohm = p.resistance_ohm;
+    rep.dcir_sources.push_back(p.source);
+    ctx.engine_dcir.push_back(d);
   }
   // Gaps the runner logged (e.g. on resume): the sample interval holding the event.
   const auto& smp = rep.samples;
@@ -62,14 +107,8 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
     if (it == smp.begin() || it == smp.end()) continue;
     ctx.recorded_gaps.push_back({(it - 1)->t_s, it->t_s, it->step});
   }
-  // The procedure stored with the run gives the commanded pulse / duty-cycle
-  // timeline (and the end voltage when no step ended on it).
-  ParseOutput parsed = ParseProcedure(rep.run.procedure_text, rep.run.procedure_name);
-  if (parsed.ok()) {
-    ctx.segments = CommandedSegmentsFor(parsed.plan, rep.steps, events);
-    if (!ctx.cutoff_v && parsed.plan.cell.cutoff_v > 0) ctx.cutoff_v = parsed.plan.cell.cutoff_v;
-  }
   rep.analysis = AnalyseRun(rep.samples, ctx);
+  if (!ctx.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
   return rep;
 }

@@ -31,7 +31,15 @@ struct RunReport {
   std::vector<StepRow> steps;
   std::vector<Sample> samples;  // kept for the plots
   ReportOptions options;
+  Store::RunTotalsRow totals;            // what the runner kept on the runs row
+  std::vector<std::string> dcir_sources;  // per analysis.dcir point: "dcir step", "pulse edge", ...
 };
+
+// Version of the `report --json` / `compare --json` layout. 2: schema_version,
+// per-instance step records (number, pass, cycle, method), discharges, cycles,
+// attempts, DC-IR sources and left-out points. Keys of version 1 keep their
+// names and meanings.
+inline constexpr int kReportSchemaVersion = 2;
 
 Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptions& options = {});
 

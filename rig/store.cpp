@@ -323,13 +323,18 @@ Result<int64_t> Store::EnsureCell(const NewRun& run) {
   return static_cast<int64_t>(sqlite3_last_insert_rowid(db_->raw()));
 }
 
-Result<int64_t> Store::BeginRun(const NewRun& run) {
+Result<int64_t> Store::BeginRun(const NewRun& run) { return BeginRunWith(run, std::nullopt); }
+
+Result<int64_t> Store::BeginRun(const NewRun& run, const RunProgress& initial) { return BeginRunWith(run, initial); }
+
+Result<int64_t> Store::BeginRunWith(const NewRun& run, const std::optional<RunProgress>& initial) {
   KP_RETURN_IF_ERROR(Commit());
   KP_RETURN_IF_ERROR(EnsureBatch());
   KP_ASSIGN_OR_RETURN(int64_t cell_id, EnsureCell(run));
   KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare(
-                                    "INSERT INTO runs(cell_id, procedure_name, procedure_text, rig, rated_mah, started_at, outcome)"
-                                    " VALUES(?1,?2,?3,?4,?5,?6,'running')"));
+                                    "INSERT INTO runs(cell_id, procedure_name, procedure_text, rig, rated_mah, started_at, outcome,"
+                                    " thermometer_tolerance_c) VALUES(?1,?2,?3,?4,?5,?6,'running',?7)"));
+  if (run.thermometer_tolerance_c) ins.Bind(7, *run.thermometer_tolerance_c);
   KP_RETURN_IF_ERROR(ins.Bind(1, cell_id)
                          .Bind(2, run.procedure_name)
                          .Bind(3, run.procedure_text)
@@ -343,7 +348,7 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
   next_seq_ = 0;
   committed_seq_ = 0;
   step_seq_ = 0;
-  progress_.reset();
+  progress_ = initial;
   committed_progress_.reset();
   KP_RETURN_IF_ERROR(Commit());
   return id;
@@ -499,10 +504,23 @@ Result<std::vector<DcirRow>> Store::LoadDcirPoints(int64_t run_id) {
   return out;
 }
 
-Status Store::SetThermometerTolerance(int64_t run_id, double tolerance_c) {
-  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET thermometer_tolerance_c=?1 WHERE id=?2"));
-  return up.Bind(1, tolerance_c).Bind(2, run_id).Run();
+Result<Store::RunTotalsRow> Store::LoadRunTotals(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT net_mah, net_wh, delivered_mah, delivered_wh, charged_mah,"
+                                           " thermometer_tolerance_c FROM runs WHERE id=?1"));
+  q.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool row, q.Step());
+  if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  RunTotalsRow r;
+  r.net_mah = q.Real(0);
+  r.net_wh = q.Real(1);
+  auto opt = [&](int c) { return q.IsNull(c) ? std::optional<double>() : std::optional<double>(q.Real(c)); };
+  r.delivered_mah = opt(2);
+  r.delivered_wh = opt(3);
+  r.charged_mah = opt(4);
+  r.thermometer_tolerance_c = opt(5);
+  return r;
 }
+
 
 Status Store::EndStep(int64_t run_id, double t_s, std::string_view reason) {
   if (step_seq_ == 0) return Status::Ok();

@@ -38,6 +38,7 @@ struct NewRun {
   std::string procedure_name;
   std::string procedure_text;
   std::string rig;  // rig description ("sim", rig file path...)
+  std::optional<double> thermometer_tolerance_c;  // ± degC, stored with the run
 };
 
 struct RunRow {
@@ -152,6 +153,10 @@ class Store {
 
   // --- writer side ---
   Result<int64_t> BeginRun(const NewRun& run);
+  // Same, with the progress a run has before its first reading (the engine at
+  // the start of step 1), committed with the run row: a runner killed before
+  // its first sample leaves a run that resumes from the start.
+  Result<int64_t> BeginRun(const NewRun& run, const RunProgress& initial);
   // Buffered into the open batch; commits when the batch is a second old.
   Status AppendSample(int64_t run_id, const Sample& s);
   // Buffers a sample without ever committing; pair with SetProgress +
@@ -173,7 +178,6 @@ class Store {
   Status NoteStepHeld(int64_t run_id, double held_s);
   // Written with the next commit.
   Status AddDcirPoint(int64_t run_id, const DcirRow& point);
-  Status SetThermometerTolerance(int64_t run_id, double tolerance_c);
   Status EndStep(int64_t run_id, double t_s, std::string_view reason);
   // Events commit the open batch with them.
   Status AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message);
@@ -199,6 +203,14 @@ class Store {
   Result<std::vector<EventRow>> LoadEvents(int64_t run_id);
   Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
   Result<std::vector<DcirRow>> LoadDcirPoints(int64_t run_id);
+  // The figures the runner keeps on the runs row (schema v3): net charge of
+  // the record, the latest discharge, the charge put in, the thermometer's
+  // tolerance. Empty optionals for runs recorded before v3.
+  struct RunTotalsRow {
+    double net_mah = 0.0, net_wh = 0.0;
+    std::optional<double> delivered_mah, delivered_wh, charged_mah, thermometer_tolerance_c;
+  };
+  Result<RunTotalsRow> LoadRunTotals(int64_t run_id);
   // The progress last committed with the run's samples, if any.
   Result<std::optional<RunProgress>> LoadProgress(int64_t run_id);
   // The latest `n` samples of a run, oldest first (live displays).
@@ -211,6 +223,7 @@ class Store {
  private:
   Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options);
   Status Migrate();
+  Result<int64_t> BeginRunWith(const NewRun& run, const std::optional<RunProgress>& initial);
   Status EnsureBatch();
   Status ClaimRunner(int64_t run_id);
   Result<int64_t> EnsureCell(const NewRun& run);

@@ -35,13 +35,16 @@ Plan SteppedPlan(const CellSpec& cell) {
     Step low = base;
     low.label = "0.2 It";
     low.end.time_s = 1800.0;
-    Step high = base;
-    high.label = "1 It";
-    high.current_a = cell.CRateToAmps(1.0);
-    high.sample_period_s = 0.5;
-    high.end.time_s = 10.0;
+    // IEC 61960-3 clause 7.7 two-current test (secondary source): 0.2 It for
+    // 10 s, then 1 It for 1 s.
+    Step dcir;
+    dcir.kind = StepKind::kResistanceTest;
+    dcir.label = "DC-IR";
+    dcir.sample_period_s = 0.5;
+    dcir.segments = {{"I1", LoadMode::kCurrent, cell.CRateToAmps(0.2), 10.0, 10.0},
+                     {"I2", LoadMode::kCurrent, cell.CRateToAmps(1.0), 1.0, 1.0}};
     p.steps.push_back(low);
-    p.steps.push_back(high);
+    p.steps.push_back(dcir);
   }
   p.steps.push_back(base);
   p.limits.max_current_a = cell.CRateToAmps(1.2);
@@ -120,20 +123,25 @@ TEST(ReportHtml, SteppedRunHasResistanceVersusDepthOfDischarge) {
   auto rep = BuildRunReport(*f.store, id, o);
   ASSERT_TRUE(rep.ok()) << rep.status().ToString();
   const RunAnalysis& a = rep->analysis;
-  // 6 steps up and 6 down, plus the rest-to-discharge edge.
-  EXPECT_EQ(a.dcir.size(), 13u);
+  // One point per dcir step, none at the step boundaries (rest to discharge,
+  // discharge to DC-IR test), all positive.
+  ASSERT_EQ(a.dcir.size(), 6u);
   for (const DcirPoint& p : a.dcir) {
     EXPECT_GT(p.resistance_ohm, 0.0);
     EXPECT_LT(p.resistance_ohm, 1.0);
-    // Each point is exactly the two-current formula on its samples (IEC 61960-3 7.7, secondary).
+    // Each point is exactly the two-current formula on its readings (IEC 61960-3 7.7, secondary).
     EXPECT_DOUBLE_EQ(p.resistance_ohm, (p.u1_v - p.u2_v) / (p.i2_a - p.i1_a));
+    EXPECT_NEAR(p.i1_a, cell.CRateToAmps(0.2), 1e-6);
+    EXPECT_NEAR(p.i2_a, cell.CRateToAmps(1.0), 1e-6);
+    EXPECT_NEAR(p.t_u2_s - p.t_edge_s, 1.0, 1e-6);  // U2 at the end of the 1 s second current
   }
   RecordProperty("dcir_first_mohm", std::to_string(a.dcir.front().resistance_ohm * 1000));
   RecordProperty("dcir_last_mohm", std::to_string(a.dcir.back().resistance_ohm * 1000));
   RecordProperty("dcir_last_dod", std::to_string(a.dcir.back().depth_of_discharge));
-  for (size_t k = 1; k < a.dcir.size(); ++k) EXPECT_GE(a.dcir[k].depth_of_discharge, a.dcir[k - 1].depth_of_discharge);
-  // The 1 It steps are pulses over the 0.2 It base.
-  EXPECT_TRUE(a.pulsed);
+  for (size_t k = 1; k < a.dcir.size(); ++k) EXPECT_GT(a.dcir[k].depth_of_discharge, a.dcir[k - 1].depth_of_discharge);
+  // A discharge with DC-IR tests in it is not pulsed, and not the capacity test.
+  EXPECT_FALSE(a.pulsed);
+  EXPECT_FALSE(a.verdict.judged) << a.verdict.text;
   // Charge per discharge = sum of the discharging steps.
   double sum = 0;
   for (const StepFigures& s : a.steps)
@@ -144,7 +152,6 @@ TEST(ReportHtml, SteppedRunHasResistanceVersusDepthOfDischarge) {
   ExpectFiguresMatchJson(html, j, 40);
   auto ids = SvgIds(html);
   EXPECT_NE(std::find(ids.begin(), ids.end(), "plot-resistance-dod"), ids.end());
-  EXPECT_NE(std::find(ids.begin(), ids.end(), "plot-pulses"), ids.end());
 
   // Compared with a continuous run: side-by-side table and overlays.
   int64_t id2 = f.Run(RatedCapacityPlan(cell));
