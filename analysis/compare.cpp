@@ -28,7 +28,7 @@ std::vector<RatioFigures> PulsedVersusContinuous(std::span<const RunSummary> run
 std::vector<RatePoint> RatePointsFromRuns(std::span<const RunSummary> runs) {
   std::vector<RatePoint> pts;
   for (const RunSummary& r : runs)
-    if (!r.pulsed && r.average_current_a > 0 && r.duration_s > 0) pts.push_back({r.average_current_a, r.duration_s / 3600.0});
+    if (!r.pulsed && r.constant_current && r.average_current_a > 0 && r.duration_s > 0) pts.push_back({r.average_current_a, r.duration_s / 3600.0});
   return pts;
 }
 

@@ -24,6 +24,9 @@ struct RunSummary {
   std::optional<double> resistance_ohm;  // median DC-IR, when measured
   std::string verdict;        // the full verdict line
   std::string verdict_brief;  // "PASS 101 %", "not judged: pulsed discharge"
+  // One constant-current level throughout the discharge (CP, CR and mixed
+  // discharges are not: they give no Peukert rate point).
+  bool constant_current = true;
 };
 
 struct RatioFigures {
@@ -38,7 +41,7 @@ struct RatioFigures {
 // within tolerance of its peak current; one ratio per match.
 std::vector<RatioFigures> PulsedVersusContinuous(std::span<const RunSummary> runs, double tolerance = 0.05);
 
-// Rate points (current, hours) of the continuous runs, one per run.
+// Rate points (current, hours) of the constant-current runs, one per run.
 std::vector<RatePoint> RatePointsFromRuns(std::span<const RunSummary> runs);
 
 }  // namespace kp

@@ -166,13 +166,28 @@ nlohmann::json RunReportJson(const RunReport& rep) {
   for (const ConditionCheck& c : a.verdict.conditions)
     conds.push_back({{"name", c.name}, {"required", c.required}, {"observed", c.observed}, {"met", c.met}});
   j["conditions"] = conds;
+  j["schema_version"] = kReportSchemaVersion;
+  j["net_charge_mAh"] = rep.totals.net_mah;
+  j["net_energy_Wh"] = rep.totals.net_wh;
+  j["charged_mAh"] = Optional(rep.totals.charged_mah);
+  j["discharge_description"] = a.discharge_description;
+  j["constant_current"] = a.constant_current;
+  j["main_discharge"] = a.main_discharge ? json(*a.main_discharge) : json(nullptr);
   json steps = json::array();
-  for (const StepFigures& s : a.steps) {
-    std::string kind;
-    for (const StepRow& r : rep.steps)
-      if (r.index == s.step) kind = r.kind;
+  for (const InstanceFigures& g : a.instances) {
+    const StepFigures& s = g.f;
     steps.push_back({{"step", s.step},
-                     {"kind", kind},
+                     {"number", g.number},
+                     {"kind", g.kind},
+                     {"mode", g.mode},
+                     {"level", Optional(g.level)},
+                     {"pass", g.pass},
+                     {"cycle", g.cycle},
+                     {"started_s", g.started_s},
+                     {"ended_s", g.ended_s},
+                     {"end_reason", g.end_reason},
+                     {"held_s", g.held_s},
+                     {"integration_method", IntegrationMethodName(g.method)},
                      {"start_s", s.t_start_s},
                      {"end_s", s.t_end_s},
                      {"charge_mAh", s.charge_mah},
@@ -183,11 +198,61 @@ nlohmann::json RunReportJson(const RunReport& rep) {
                      {"samples", s.samples}});
   }
   j["steps"] = steps;
+  json discharges = json::array();
+  for (size_t k = 0; k < a.discharges.size(); ++k) {
+    const DischargeFigures& d = a.discharges[k];
+    json conds = json::array();
+    for (const ConditionCheck& c : d.judgement.conditions)
+      conds.push_back({{"name", c.name}, {"required", c.required}, {"observed", c.observed}, {"met", c.met}});
+    discharges.push_back({{"index", k},
+                          {"first_step_number", a.instances[d.first].number},
+                          {"last_step_number", a.instances[d.last].number},
+                          {"judged_step_number", a.instances[d.judged].number},
+                          {"cycle", d.cycle},
+                          {"start_s", d.start_s},
+                          {"end_s", d.end_s},
+                          {"charge_mAh", d.charge_mah},
+                          {"energy_Wh", d.energy_wh},
+                          {"mean_voltage_V", d.mean_voltage_v},
+                          {"mid_voltage_V", d.mid_voltage_v},
+                          {"min_voltage_V", d.min_voltage_v},
+                          {"average_current_A", d.average_current_a},
+                          {"peak_current_A", d.peak_current_a},
+                          {"time_to_cutoff_s", Optional(d.time_to_cutoff_s)},
+                          {"reached_cutoff", d.reached_cutoff},
+                          {"pulsed", d.pulsed},
+                          {"description", d.description},
+                          {"integration_method", IntegrationMethodName(d.method)},
+                          {"percent_of_rated", d.judgement.percent_of_rated},
+                          {"judged", d.judgement.judged},
+                          {"pass", d.judgement.judged && d.judgement.capacity_pass},
+                          {"conditions_met", d.judgement.conditions_met},
+                          {"verdict", d.judgement.text},
+                          {"conditions", conds}});
+  }
+  j["discharges"] = discharges;
+  j["attempts"] = a.attempts;
+  json cycles = json::array();
+  for (const CycleFigures& c : a.cycles)
+    cycles.push_back({{"cycle", c.cycle},
+                      {"charge_in_mAh", c.charge_in_mah},
+                      {"charge_in_Wh", c.charge_in_wh},
+                      {"discharge", c.discharge ? json(*c.discharge) : json(nullptr)},
+                      {"discharge_mAh", c.discharge_mah},
+                      {"discharge_Wh", c.discharge_wh},
+                      {"coulombic_efficiency", Optional(c.coulombic_efficiency)},
+                      {"energy_efficiency", Optional(c.energy_efficiency)},
+                      {"retention", Optional(c.retention)}});
+  j["cycles"] = cycles;
+  json left = json::array();
+  for (const auto& [why, n] : a.dcir_left_out) left.push_back({{"reason", why}, {"count", n}});
+  j["dcir_left_out"] = left;
   json gaps = json::array();
   for (const Gap& g : a.gaps) gaps.push_back({{"start_s", g.t_start_s}, {"end_s", g.t_end_s}, {"step", g.step}});
   j["gaps"] = gaps;
   json dcir = json::array();
-  for (const DcirPoint& p : a.dcir)
+  for (size_t k = 0; k < a.dcir.size(); ++k) {
+    const DcirPoint& p = a.dcir[k];
     dcir.push_back({{"t_s", p.t_edge_s},
                     {"U1_V", p.u1_v},
                     {"I1_A", p.i1_a},
@@ -195,8 +260,12 @@ nlohmann::json RunReportJson(const RunReport& rep) {
                     {"U2_t_s", p.t_u2_s},
                     {"I2_A", p.i2_a},
                     {"resistance_ohm", p.resistance_ohm},
+                    {"resistance_mOhm", p.resistance_ohm * 1000.0},
+                    {"source", k < rep.dcir_sources.size() ? rep.dcir_sources[k] : std::string()},
                     {"delivered_mAh", p.delivered_mah},
-                    {"depth_of_discharge", p.depth_of_discharge}});
+                    {"depth_of_discharge", p.depth_of_discharge},
+                    {"depth_of_discharge_pct", p.depth_of_discharge * 100.0}});
+  }
   j["dcir"] = dcir;
   json pulses = json::array();
   for (const PulseFigures& p : a.pulses)
@@ -228,6 +297,14 @@ std::string RunReportText(const RunReport& rep) {
   out += fmt::format("  outcome          {} ({})\n", OutcomeName(rep.run.outcome), rep.run.reason);
   out += fmt::format("  delivered        {:.1f} mAh   {:.3f} Wh   ({})\n", a.discharge_charge_mah, a.discharge_energy_wh,
                      IntegrationMethodName(a.method));
+  if (a.main_discharge) {
+    const DischargeFigures& d = a.discharges[*a.main_discharge];
+    out += fmt::format("  discharge        steps {} to {}{}, {:.0f} s to {:.0f} s{}\n", a.instances[d.first].number,
+                       a.instances[d.last].number, d.description.empty() ? "" : ": " + d.description, d.start_s, d.end_s,
+                       d.reached_cutoff ? ", to the cutoff" : "");
+  }
+  if (rep.totals.charged_mah && *rep.totals.charged_mah > 0)
+    out += fmt::format("  charged in       {:.1f} mAh (net of the record {:.1f} mAh)\n", *rep.totals.charged_mah, rep.totals.net_mah);
   out += fmt::format("  voltage          mean {:.3f} V, mid-point {:.3f} V, min {:.3f} V\n",
                      a.main_discharge_step >= 0 ? a.mean_voltage_v : f.mean_voltage_v, a.mid_voltage_v, f.min_voltage_v);
   out += fmt::format("  duration         {} ({} samples)", cli::FormatDuration(f.duration_s), f.sample_count);
@@ -245,6 +322,20 @@ std::string RunReportText(const RunReport& rep) {
     for (const DcirPoint& p : a.dcir) lo = std::min(lo, p.resistance_ohm), hi = std::max(hi, p.resistance_ohm);
     out += fmt::format("  DC-IR            {} points, {:.1f} to {:.1f} mOhm\n", a.dcir.size(), lo * 1000, hi * 1000);
   }
+  for (const auto& [why, n] : a.dcir_left_out) out += fmt::format("  DC-IR left out   {} ({})\n", n, why);
+  if (a.attempts.size() > 1) {
+    for (size_t n = 0; n < a.attempts.size(); ++n) {
+      const DischargeFigures& d = a.discharges[a.attempts[n]];
+      out += fmt::format("  attempt {:<8} cycle {}: {:.1f} mAh, {}\n", n + 1, d.cycle, d.charge_mah, d.judgement.brief);
+    }
+  }
+  if (!a.cycles.empty()) {
+    out += "  cycle   charged mAh   discharged mAh   coulombic   energy eff.   retention\n";
+    auto pct = [](const std::optional<double>& v) { return v ? fmt::format("{:.1f} %", *v * 100.0) : std::string("-"); };
+    for (const CycleFigures& c : a.cycles)
+      out += fmt::format("  {:>5}   {:>11.1f}   {:>14.1f}   {:>9}   {:>11}   {:>9}\n", c.cycle, c.charge_in_mah, c.discharge_mah,
+                         pct(c.coulombic_efficiency), pct(c.energy_efficiency), pct(c.retention));
+  }
   if (a.pulsed) out += fmt::format("  pulses           {}\n", a.pulses.size());
   if (a.brownout)
     out += fmt::format("  brown-out        pulse {} at {:.1f} mAh (min {:.3f} V)\n", a.brownout->pulse_index + 1,
@@ -254,13 +345,18 @@ std::string RunReportText(const RunReport& rep) {
 }
 
 std::string RunReportStepsCsv(const RunReport& rep) {
-  std::string out = "step,kind,start_s,end_s,charge_mAh,energy_Wh,mean_current_A,mean_voltage_V,min_voltage_V,samples\n";
-  for (const StepFigures& s : rep.analysis.steps) {
-    std::string kind;
-    for (const StepRow& r : rep.steps)
-      if (r.index == s.step) kind = r.kind;
-    out += fmt::format("{},\"{}\",{:.3f},{:.3f},{:.6f},{:.6f},{:.6f},{:.6f},{:.6f},{}\n", s.step, kind, s.t_start_s, s.t_end_s,
-                       s.charge_mah, s.energy_wh, s.mean_current_a, s.mean_voltage_v, s.min_voltage_v, s.samples);
+  // Full precision (shortest round-trip form): a microamp run keeps its figures.
+  std::string out =
+      "step,kind,start_s,end_s,charge_mAh,energy_Wh,mean_current_A,mean_voltage_V,min_voltage_V,samples,"
+      "number,pass,cycle,integration_method,end_reason\n";
+  for (const InstanceFigures& g : rep.analysis.instances) {
+    const StepFigures& s = g.f;
+    std::string reason = g.end_reason;
+    std::string quoted;
+    for (char c : reason) quoted += c == '"' ? std::string("\"\"") : std::string(1, c);
+    out += fmt::format("{},\"{}\",{},{},{},{},{},{},{},{},{},{},{},{},\"{}\"\n", s.step, g.kind, s.t_start_s, s.t_end_s, s.charge_mah,
+                       s.energy_wh, s.mean_current_a, s.mean_voltage_v, s.min_voltage_v, s.samples, g.number, g.pass, g.cycle,
+                       IntegrationMethodName(g.method), quoted);
   }
   return out;
 }
@@ -301,13 +397,22 @@ std::vector<double> Hours(const std::vector<Sample>& s) {
   return x;
 }
 
-// Voltage against cumulative delivered charge (trapezoid), in mAh.
-void VoltageVersusCharge(const std::vector<Sample>& s, std::vector<double>& q_mah, std::vector<double>& v) {
+// Voltage against the charge delivered since the start of the main
+// discharge (trapezoid), in mAh: the reading at its start, then its own samples.
+void VoltageVersusCharge(const RunReport& rep, std::vector<double>& q_mah, std::vector<double>& v) {
+  const RunAnalysis& a = rep.analysis;
+  if (!a.main_discharge) return;
+  const DischargeFigures& d = a.discharges[*a.main_discharge];
+  const std::vector<Sample>& s = rep.samples;
   double as = 0;
-  for (size_t i = 0; i < s.size(); ++i) {
-    if (i) as += 0.5 * (s[i].current_a + s[i - 1].current_a) * (s[i].t_s - s[i - 1].t_s);
+  const Sample* prev = nullptr;
+  for (const Sample& x : s) {
+    if (x.t_s > d.end_s + 1e-9) break;
+    if (x.t_s < d.start_s - 1e-9) continue;
+    if (prev != nullptr) as += 0.5 * (x.current_a + prev->current_a) * (x.t_s - prev->t_s);
+    prev = &x;
     q_mah.push_back(as / 3.6);
-    v.push_back(s[i].voltage_v);
+    v.push_back(x.voltage_v);
   }
 }
 
@@ -344,21 +449,68 @@ std::string RunReportHtml(const RunReport& rep) {
   for (const ConditionCheck& c : a.verdict.conditions)
     ct.rows.push_back({TextCell(c.name), TextCell(c.required), TextCell(c.observed), TextCell(c.met ? "yes" : "NO")});
   ver.tables.push_back(ct);
+  if (a.attempts.size() > 1) {
+    HtmlTable at;
+    at.caption = "Capacity attempts (IEC 61960-3 allows up to five cycles, stopping at the first that passes; from memory)";
+    at.header = {"attempt", "cycle", "charge (mAh)", "percent of rated", "verdict"};
+    for (size_t n = 0; n < a.attempts.size(); ++n) {
+      const DischargeFigures& d = a.discharges[a.attempts[n]];
+      std::string p = fmt::format("/discharges/{}/", a.attempts[n]);
+      at.rows.push_back({TextCell(std::to_string(n + 1)), TextCell(std::to_string(d.cycle)),
+                         FigureCell(p + "charge_mAh", d.charge_mah, 1), FigureCell(p + "percent_of_rated", d.judgement.percent_of_rated, 1, "%"),
+                         TextCell(d.judgement.brief)});
+    }
+    ver.tables.push_back(at);
+  }
   sections.push_back(ver);
+
+  if (!a.cycles.empty()) {
+    HtmlSection cy;
+    cy.title = "Cycles";
+    cy.paragraphs.push_back(
+        "A cycle starts at each charge step that follows a non-charge step (cycle 0 is what ran before the first charge). "
+        "Coulombic efficiency = discharged / charged charge, energy efficiency = discharged / charged energy, retention = "
+        "discharged charge / that of the first cycle.");
+    HtmlTable ctab;
+    ctab.header = {"cycle", "charged (mAh)", "discharged (mAh)", "discharged (Wh)", "coulombic efficiency", "energy efficiency",
+                   "retention"};
+    PlotSeries cap{"discharged", {}, {}, false, true};
+    for (size_t k = 0; k < a.cycles.size(); ++k) {
+      const CycleFigures& c = a.cycles[k];
+      std::string p = fmt::format("/cycles/{}/", k);
+      auto pct = [&](const char* key, const std::optional<double>& v) {
+        return v ? FigureCell(p + key, *v, 3) : TextCell("-");
+      };
+      ctab.rows.push_back({TextCell(std::to_string(c.cycle)), FigureCell(p + "charge_in_mAh", c.charge_in_mah, 1),
+                           FigureCell(p + "discharge_mAh", c.discharge_mah, 1), FigureCell(p + "discharge_Wh", c.discharge_wh, 3),
+                           pct("coulombic_efficiency", c.coulombic_efficiency), pct("energy_efficiency", c.energy_efficiency),
+                           pct("retention", c.retention)});
+      if (c.discharge) cap.x.push_back(c.cycle), cap.y.push_back(c.discharge_mah);
+    }
+    cy.tables.push_back(ctab);
+    if (cap.x.size() >= 1)
+      cy.plots.push_back({"plot-capacity-cycle", "Discharged capacity versus cycle", "cycle", "discharged (mAh)", "", {cap}});
+    sections.push_back(cy);
+  }
 
   HtmlSection st;
   st.title = "Steps";
   HtmlTable stt;
-  stt.header = {"step", "kind", "start (s)", "end (s)", "charge (mAh)", "energy (Wh)", "mean current (A)", "mean voltage (V)"};
-  for (size_t i = 0; i < a.steps.size(); ++i) {
-    const StepFigures& s = a.steps[i];
+  stt.header = {"step", "kind", "pass", "cycle", "start (s)", "end (s)", "charge (mAh)", "energy (Wh)", "mean current (A)",
+                "mean voltage (V)", "method", "ended by"};
+  for (size_t i = 0; i < a.instances.size() && i < 500; ++i) {
+    const InstanceFigures& g = a.instances[i];
+    const StepFigures& s = g.f;
     std::string p = fmt::format("/steps/{}/", i);
-    stt.rows.push_back({TextCell(std::to_string(s.step + 1)), TextCell(j["steps"][i]["kind"].get<std::string>()),
-                        FigureCell(p + "start_s", s.t_start_s, 0), FigureCell(p + "end_s", s.t_end_s, 0),
-                        FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
-                        FigureCell(p + "mean_current_A", s.mean_current_a, 4),
-                        FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3)});
+    stt.rows.push_back({TextCell(std::to_string(g.number)), TextCell(g.kind), TextCell(g.pass ? std::to_string(g.pass) : "-"),
+                        TextCell(std::to_string(g.cycle)), FigureCell(p + "started_s", g.started_s, 0),
+                        FigureCell(p + "ended_s", g.ended_s, 0), FigureCell(p + "charge_mAh", s.charge_mah, 1),
+                        FigureCell(p + "energy_Wh", s.energy_wh, 3), FigureCell(p + "mean_current_A", s.mean_current_a, 4),
+                        FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), TextCell(IntegrationMethodName(g.method)),
+                        TextCell(g.end_reason + (g.held_s > 0 ? fmt::format(" (held {:.0f} s)", g.held_s) : ""))});
   }
+  if (a.instances.size() > 500)
+    st.paragraphs.push_back(fmt::format("The first 500 of {} step instances; all are in the JSON.", a.instances.size()));
   st.tables.push_back(stt);
   sections.push_back(st);
 
@@ -366,7 +518,7 @@ std::string RunReportHtml(const RunReport& rep) {
   plots.title = "Plots";
   std::vector<double> th = Hours(rep.samples), v, i, temp, q, vq;
   for (const Sample& s : rep.samples) v.push_back(s.voltage_v), i.push_back(s.current_a), temp.push_back(s.temperature_c);
-  VoltageVersusCharge(rep.samples, q, vq);
+  VoltageVersusCharge(rep, q, vq);
   plots.plots.push_back({"plot-voltage-current-time",
                          "Voltage and current versus time",
                          "time (h)",
@@ -374,7 +526,7 @@ std::string RunReportHtml(const RunReport& rep) {
                          "current (A)",
                          {{"voltage", th, v, false, false}, {"current", th, i, true, false}}});
   plots.plots.push_back({"plot-voltage-charge",
-                         "Voltage versus delivered charge",
+                         "Voltage versus charge delivered in the discharge",
                          "delivered charge (mAh)",
                          "voltage (V)",
                          "",
@@ -409,11 +561,13 @@ std::string RunReportHtml(const RunReport& rep) {
   if (!a.dcir.empty()) {
     HtmlSection dc;
     dc.title = "DC internal resistance";
-    dc.paragraphs.push_back(fmt::format(
-        "Two-current method (IEC 61960-3 clause 7.7): R = (U1 - U2) / (I2 - I1), U1 and I1 from the last sample before each "
-        "current edge, U2 and I2 from the first sample {:.2f} s after it, or from the last sample before the next edge when "
-        "that comes sooner (the end of t2).",
-        rep.options.dcir.delay_s));
+    dc.paragraphs.push_back(
+        "Two-current method (IEC 61960-3 clause 7.7): R = (U1 - U2) / (I2 - I1). Points come only from commanded edges: in a "
+        "dcir step U1 is read at the end of the first current and U2 at the end of the second; at an edge inside a pulse "
+        "train or duty cycle the engine reads U1 at the edge and U2 the set delay after it. Step boundaries (rest, charge, "
+        "another step) are never used.");
+    for (const auto& [why, n] : a.dcir_left_out)
+      dc.paragraphs.push_back(fmt::format("Left out: {} point{} ({}).", n, n == 1 ? "" : "s", why));
     HtmlTable t;
     t.header = {"edge (s)", "U1 (V)", "I1 (A)", "U2 (V)", "U2 read at (s)", "I2 (A)", "R (mOhm)", "DoD (%)"};
     for (size_t k = 0; k < a.dcir.size() && k < 200; ++k) {
@@ -422,8 +576,8 @@ std::string RunReportHtml(const RunReport& rep) {
       t.rows.push_back({FigureCell(ptr + "t_s", p.t_edge_s, 1), FigureCell(ptr + "U1_V", p.u1_v, 4),
                         FigureCell(ptr + "I1_A", p.i1_a, 4), FigureCell(ptr + "U2_V", p.u2_v, 4),
                         FigureCell(ptr + "U2_t_s", p.t_u2_s, 2),
-                        FigureCell(ptr + "I2_A", p.i2_a, 4), FigureCell(ptr + "resistance_ohm", p.resistance_ohm, 4, "Ohm"),
-                        FigureCell(ptr + "depth_of_discharge", p.depth_of_discharge, 3)});
+                        FigureCell(ptr + "I2_A", p.i2_a, 4), FigureCell(ptr + "resistance_mOhm", p.resistance_ohm * 1000.0, 2),
+                        FigureCell(ptr + "depth_of_discharge_pct", p.depth_of_discharge * 100.0, 1)});
     }
     dc.tables.push_back(t);
     sections.push_back(dc);
@@ -453,6 +607,7 @@ RunSummary SummariseRun(const RunReport& rep) {
   s.peak_current_a = a.peak_current_a;
   s.duration_s = a.time_to_cutoff_s.value_or(a.discharge_duration_s);
   s.pulsed = a.pulsed;
+  s.constant_current = a.constant_current;
   if (!a.dcir.empty()) {
     std::vector<double> r;
     for (const DcirPoint& p : a.dcir) r.push_back(p.resistance_ohm);
@@ -506,6 +661,7 @@ nlohmann::json CompareReportJson(const CompareReport& c) {
     j["peukert"] = {{"exponent_k", f.exponent_k},
                     {"capacity_constant_Ak_h", f.capacity_constant},
                     {"r_squared", f.r_squared},
+                    {"r_squared_meaningful", f.points > 2},
                     {"points", f.points}};
     if (c.predict_at_a)
       j["peukert"]["prediction"] = {{"current_A", *c.predict_at_a},
@@ -530,8 +686,10 @@ std::string CompareReportText(const CompareReport& c) {
                      r.continuous_label, r.basis, r.capacity_ratio, r.energy_ratio);
   if (c.peukert.fit) {
     const PeukertFit& f = *c.peukert.fit;
-    o += fmt::format("Peukert fit (C_p = I^k t, Peukert 1897) over {} runs: k = {:.4f}, C_p = {:.4f} A^k h, R^2 = {:.4f}\n",
-                     f.points, f.exponent_k, f.capacity_constant, f.r_squared);
+    o += fmt::format("Peukert fit (C_p = I^k t, Peukert 1897) over {} runs: k = {:.4f}, C_p = {:.4f} A^k h, {}\n", f.points,
+                     f.exponent_k, f.capacity_constant,
+                     f.points > 2 ? fmt::format("R^2 = {:.4f}", f.r_squared)
+                                  : std::string("R^2 not meaningful (two points always lie on the line)"));
     if (c.predict_at_a)
       o += fmt::format("  predicted at {:.4g} A: {:.2f} h, {:.0f} mAh\n", *c.predict_at_a, f.HoursAt(*c.predict_at_a),
                        f.CapacityMahAt(*c.predict_at_a));
@@ -580,9 +738,11 @@ std::string CompareReportHtml(const CompareReport& c) {
     PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false};
     PlotSeries tt{q.name, {}, {}, false, false};
     double as = 0;
+    const double t_end = t0 + a.discharge_duration_s;
     for (size_t i = 0; i < r.samples.size(); ++i) {
       const Sample& s = r.samples[i];
       if (s.t_s < t0) continue;
+      if (s.t_s > t_end + 1e-9) break;
       if (i && r.samples[i - 1].t_s >= t0)
         as += 0.5 * (s.current_a + r.samples[i - 1].current_a) * (s.t_s - r.samples[i - 1].t_s);
       q.x.push_back(as / 3.6), q.y.push_back(s.voltage_v);
@@ -619,7 +779,8 @@ std::string CompareReportHtml(const CompareReport& c) {
     ft.header = {"figure", "value"};
     ft.rows = {{TextCell("exponent k"), FigureCell("/peukert/exponent_k", f.exponent_k, 4)},
                {TextCell("capacity constant C_p (A^k h)"), FigureCell("/peukert/capacity_constant_Ak_h", f.capacity_constant, 4)},
-               {TextCell("R² (log-log)"), FigureCell("/peukert/r_squared", f.r_squared, 4)}};
+               {TextCell("R² (log-log)"), f.points > 2 ? FigureCell("/peukert/r_squared", f.r_squared, 4)
+                                                        : TextCell("not meaningful with two runs")}};
     if (c.predict_at_a) {
       ft.rows.push_back({TextCell(fmt::format("predicted time at {:.4g} A", *c.predict_at_a)),
                          FigureCell("/peukert/prediction/hours", f.HoursAt(*c.predict_at_a), 2, "h")});
