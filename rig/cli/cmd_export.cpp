@@ -19,12 +19,29 @@ struct ExportOptions {
   std::string json_path;
 };
 
-// JSON: {"run": {...}, "events": [...], "samples": [[t_s, V, A, degC, step], ...]}
+// The cycle of the step instance that owns a sample (t in (start, end]),
+// walking the instances in time order as the samples stream by.
+class CycleOf {
+ public:
+  explicit CycleOf(std::vector<StepRow> steps) : steps_(std::move(steps)) {}
+  int operator()(double t_s) {
+    while (k_ + 1 < steps_.size() && t_s > steps_[k_ + 1].started_s + 1e-12) ++k_;
+    return steps_.empty() ? 0 : steps_[k_].cycle;
+  }
+
+ private:
+  std::vector<StepRow> steps_;
+  size_t k_ = 0;
+};
+
+// JSON: {"run": {...}, "events": [...], "samples": [[t_s, V, A, degC, step, step_number, cycle], ...]}
 // written piece by piece; numbers in shortest round-trip form.
 Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std::string& path) {
   auto check = [&]() { return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path)); };
   out << "{\"run\":" << RunRowJson(run).dump()
-      << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\"],\n";
+      << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\",\"step_number\",\"cycle\"],\n";
+  KP_ASSIGN_OR_RETURN(auto steps, store.LoadSteps(run.id));
+  CycleOf cycle(std::move(steps));
   KP_ASSIGN_OR_RETURN(auto events, store.LoadEvents(run.id));
   nlohmann::json ev = nlohmann::json::array();
   for (const EventRow& e : events)
@@ -32,7 +49,8 @@ Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std:
   out << "\"events\":" << ev.dump() << ",\n\"samples\":[";
   bool first = true;
   KP_RETURN_IF_ERROR(store.ForEachSample(run.id, [&](const Sample& s) {
-    out << (first ? "\n" : ",\n") << fmt::format("[{},{},{},{},{}]", s.t_s, s.voltage_v, s.current_a, s.temperature_c, s.step);
+    out << (first ? "\n" : ",\n")
+        << fmt::format("[{},{},{},{},{},{},{}]", s.t_s, s.voltage_v, s.current_a, s.temperature_c, s.step, s.step + 1, cycle(s.t_s));
     first = false;
     return check();
   }));
@@ -40,10 +58,13 @@ Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std:
   return check();
 }
 
+// Every number in shortest round-trip form: a 1.5 uA run exports 1.5e-06, not 0.000002.
 Status WriteCsv(Store& store, int64_t run_id, std::ofstream& out, const std::string& path) {
-  out << "t_s,voltage_V,current_A,temperature_C,step\n";
+  out << "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle\n";
+  KP_ASSIGN_OR_RETURN(auto steps, store.LoadSteps(run_id));
+  CycleOf cycle(std::move(steps));
   return store.ForEachSample(run_id, [&](const Sample& s) {
-    out << fmt::format("{:.3f},{:.6f},{:.6f},{:.3f},{}\n", s.t_s, s.voltage_v, s.current_a, s.temperature_c, s.step);
+    out << fmt::format("{},{},{},{},{},{},{}\n", s.t_s, s.voltage_v, s.current_a, s.temperature_c, s.step, s.step + 1, cycle(s.t_s));
     return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path));
   });
 }
@@ -73,7 +94,7 @@ void RegisterExport(CliRegistry& r) {
   CLI::App* exp = r.Add("export", "Write a run's samples as CSV or JSON (streamed)", [] { return RunExport(opt); });
   exp->add_option("RUN", opt.run_id, "Run id")->required();
   exp->add_option("--db", opt.db_path, "Database file")->capture_default_str();
-  exp->add_option("--csv", opt.csv_path, "Output CSV file (t_s, voltage_V, current_A, temperature_C, step)");
+  exp->add_option("--csv", opt.csv_path, "Output CSV file (t_s, voltage_V, current_A, temperature_C, step, step_number, cycle)");
   exp->add_option("--json", opt.json_path, "Output JSON file (run record, events, sample rows)");
 }
 
