@@ -141,6 +141,9 @@ struct Plan {
   // Lost regulation: the load is on, the measured current (or power) stays
   // below half of what was commanded for this long: the run aborts.
   double regulation_grace_s = 10.0;
+  // What the parser found legal but probably not meant ("line N:col: ..."):
+  // `check` and `run` print them.
+  std::vector<std::string> warnings;
 };
 
 // True for the steps that take charge out of the cell (CC, CP, CR, pulse

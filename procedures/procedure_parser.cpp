@@ -174,6 +174,10 @@ class Parser {
 
  private:
   void Error(int line, int col, std::string message) { out_.errors.push_back({line, col, std::move(message)}); }
+  void Warn(int line, int col, std::string message) {
+    plan_.warnings.push_back(fmt::format("line {}:{}: {}", line, col, message));
+    out_.warnings.push_back({line, col, std::move(message)});
+  }
 
   // ---- token helpers ----
   const Tok& Peek() const { return toks_[at_]; }
@@ -667,7 +671,15 @@ class Parser {
       most_a = std::max({most_a, s.current_a, s.charge_current_a});
       for (const Segment& g : s.segments)
         if (g.mode == LoadMode::kCurrent) most_a = std::max(most_a, g.level);
-      if (s.kind == StepKind::kConstantPower) most_a = std::max(most_a, s.power_w / std::max(0.5, c.cutoff_v));
+      // Constant power draws most at the lowest voltage the run may reach;
+      // constant resistance at the highest.
+      if (s.kind == StepKind::kConstantPower) most_a = std::max(most_a, s.power_w / std::max(0.5, l.min_voltage_v));
+      if (s.kind == StepKind::kConstantResistance && s.resistance_ohm > 0)
+        most_a = std::max(most_a, (c.max_v > 0 ? c.max_v : l.max_voltage_v) / s.resistance_ohm);
+      for (const Segment& g : s.segments) {
+        if (g.mode == LoadMode::kPower) most_a = std::max(most_a, g.level / std::max(0.5, l.min_voltage_v));
+        if (g.mode == LoadMode::kResistance && g.level > 0) most_a = std::max(most_a, c.max_v / g.level);
+      }
     }
     if (!set_.max_i) l.max_current_a = std::max(0.1, 1.25 * most_a);
     if (l.over_temp_action == OverTempAction::kPause) {
@@ -691,6 +703,22 @@ class Parser {
         Error(s.source_line, site.keyword_col,
               fmt::format("the step's voltage end {:g} V is below the safety min-voltage {:g} V: it would abort before it ends",
                           *s.end.voltage_below_v, l.min_voltage_v));
+      else if (s.end.voltage_below_v && c.cutoff_v > 0 && *s.end.voltage_below_v < c.cutoff_v - 1e-9)
+        Warn(s.source_line, site.keyword_col,
+             fmt::format("the step discharges to {:g} V, below the cell's cutoff {:g} V", *s.end.voltage_below_v, c.cutoff_v));
+      // End conditions a healthy cell meets at once.
+      if (IsDischargeKind(s.kind) && s.end.voltage_below_v && c.max_v > 0 && *s.end.voltage_below_v >= c.max_v)
+        Warn(s.source_line, site.keyword_col,
+             fmt::format("'voltage<={:g}V' is already true at the start: a full cell reads at most {:g} V", *s.end.voltage_below_v,
+                         c.max_v));
+      if (s.kind == StepKind::kCharge && s.end.voltage_above_v && c.cutoff_v > 0 && *s.end.voltage_above_v <= c.cutoff_v)
+        Warn(s.source_line, site.keyword_col,
+             fmt::format("'voltage>={:g}V' is already true when the charge starts: an empty cell still reads its cutoff {:g} V",
+                         *s.end.voltage_above_v, c.cutoff_v));
+      // 20 degC: a usual laboratory ambient (common practice, no source).
+      if (s.end.temperature_above_c && *s.end.temperature_above_c <= 20.0)
+        Warn(s.source_line, site.keyword_col,
+             fmt::format("'temperature>={:g}degC' is already true in a laboratory at room temperature", *s.end.temperature_above_c));
     }
     for (const std::string& p : ApplyRigLimits(plan_, rig_)) {
       // "line N: message"

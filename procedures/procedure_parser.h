@@ -23,8 +23,9 @@ struct Diagnostic {
 };
 
 struct ParseOutput {
-  Plan plan;                       // meaningful only when errors is empty
-  std::vector<Diagnostic> errors;  // in line order
+  Plan plan;                         // meaningful only when errors is empty
+  std::vector<Diagnostic> errors;    // in line order
+  std::vector<Diagnostic> warnings;  // legal but probably not meant (also in Plan::warnings)
   bool ok() const { return errors.empty(); }
 };
 

@@ -1,6 +1,8 @@
 // `check FILE`: validates a procedure without a rig and prints the expanded
 // plan with estimated duration and charge per step. Exit 2 on errors, each as
 // "file:line:col: message".
+#include <fmt/format.h>
+
 #include <iostream>
 
 #include "procedures/estimate.h"
@@ -23,7 +25,17 @@ int RunCheck(const CheckOptions& opt) {
     std::cerr << plan.status().message() << "\n";
     return ExitCodeFor(plan.status());
   }
-  std::cout << DescribePlan(*plan, EstimatePlan(*plan));
+  PlanEstimate est = EstimatePlan(*plan);
+  std::cout << DescribePlan(*plan, est);
+  for (const std::string& w : plan->warnings) std::cerr << opt.file << ":" << w.substr(5) << " (warning)\n";
+  // A plan that cannot finish before its own max-time would abort every night
+  // (an incomplete estimate is a lower bound).
+  if (est.total_s > plan->limits.max_total_s) {
+    std::cerr << fmt::format("{}:1:1: the estimated duration {} exceeds the safety max-time {}: raise max-time= or shorten the "
+                             "procedure\n",
+                             opt.file, FormatDuration(est.total_s), FormatDuration(plan->limits.max_total_s));
+    return kExitBadInput;
+  }
   std::cout << opt.file << ": ok\n";
   return kExitOk;
 }

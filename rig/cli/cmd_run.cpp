@@ -70,6 +70,7 @@ int RunRun(const RunCmdOptions& opt) {
     std::cerr << plan.status().message() << "\n";
     return ExitCodeFor(plan.status());
   }
+  for (const std::string& w : plan->warnings) std::cerr << opt.file << ":" << w.substr(5) << " (warning)\n";
   std::string cell = opt.cell;
   if (cell.empty()) {
     if (opt.rig != "sim")

@@ -532,5 +532,31 @@ TEST(Figures, StartTemperatureHasATolerance) {
   EXPECT_NE(j.conditions[1].observed.find("25.20"), std::string::npos);
 }
 
+// `check`: the default current limit covers constant resistance (max voltage
+// / R) and constant power (P / min voltage); cutoffs below the cell's warn;
+// a plan longer than its max-time is refused.
+TEST(Figures, CheckCoversResistancePowerAndMaxTime) {
+  auto cr = ParseProcedure(std::string(kCell) + "discharge 1Ohm until voltage<=2.75V\n", "t");
+  ASSERT_TRUE(cr.ok());
+  EXPECT_GE(cr.plan.limits.max_current_a, 4.2 / 1.0);  // a full cell (4.2 V) into 1 Ohm
+  auto cp = ParseProcedure(std::string(kCell) + "discharge 10W until voltage<=2.75V\n", "t");
+  ASSERT_TRUE(cp.ok());
+  EXPECT_GE(cp.plan.limits.max_current_a, 10.0 / cp.plan.limits.min_voltage_v);
+  auto low = ParseProcedure(std::string(kCell) + "discharge 0.2C until voltage<=2.6V\n", "t");
+  ASSERT_TRUE(low.ok());
+  ASSERT_EQ(low.warnings.size(), 1u);
+  EXPECT_EQ(low.warnings[0].line, 2);
+  EXPECT_NE(low.warnings[0].message.find("below the cell's cutoff"), std::string::npos);
+  auto below_min = ParseProcedure(std::string(kCell) + "safety min-voltage=2.5V\ndischarge 0.2C until voltage<=2.4V\n", "t");
+  EXPECT_FALSE(below_min.ok());
+
+  testing::TempDir dir;
+  std::string f = dir.File("long.kpp");
+  std::ofstream(f) << kCell << "safety max-time=2h\ndischarge 0.2C until time>=5h\n";
+  EXPECT_EQ(testing::RunKneepoint({"check", f}), 2);  // 5 h at 0.2C cannot fit in 2 h
+  std::ofstream(f, std::ios::trunc) << kCell << "safety max-time=6h\ndischarge 0.2C until time>=5h\n";
+  EXPECT_EQ(testing::RunKneepoint({"check", f}), 0);
+}
+
 }  // namespace
 }  // namespace kp
