@@ -361,6 +361,16 @@ std::string RunReportStepsCsv(const RunReport& rep) {
   return out;
 }
 
+std::string RunReportCyclesCsv(const RunReport& rep) {
+  std::string out =
+      "cycle,charge_in_mAh,charge_in_Wh,discharge_mAh,discharge_Wh,coulombic_efficiency,energy_efficiency,retention\n";
+  auto opt = [](const std::optional<double>& v) { return v ? fmt::format("{}", *v) : std::string(); };
+  for (const CycleFigures& c : rep.analysis.cycles)
+    out += fmt::format("{},{},{},{},{},{},{},{}\n", c.cycle, c.charge_in_mah, c.charge_in_wh, c.discharge_mah, c.discharge_wh,
+                       opt(c.coulombic_efficiency), opt(c.energy_efficiency), opt(c.retention));
+  return out;
+}
+
 namespace {
 
 HtmlTable SummaryTable(const RunReport& rep) {

@@ -52,6 +52,9 @@ nlohmann::json RunRowJson(const RunRow& run);
 std::string RunReportText(const RunReport& report);
 // Per-step figures as CSV (one header row, one row per step).
 std::string RunReportStepsCsv(const RunReport& report);
+// Per-cycle figures as CSV (one header row, one row per cycle; empty cells
+// where a figure does not exist, e.g. no charge in cycle 0).
+std::string RunReportCyclesCsv(const RunReport& report);
 // Self-contained XHTML page with inline SVG plots.
 std::string RunReportHtml(const RunReport& report);
 

@@ -37,10 +37,10 @@ void RegisterReport(CliRegistry& r) {
   static std::string db_path = "kneepoint.db";
   static bool json = false;
   static int64_t run_id = 0;
-  static std::string html_path, csv_path;
+  static std::string html_path, csv_path, cycles_csv_path;
   static ReportOptions options;
   static double brownout_v = 0.0;
-  db_path = "kneepoint.db", json = false, run_id = 0, html_path.clear(), csv_path.clear();
+  db_path = "kneepoint.db", json = false, run_id = 0, html_path.clear(), csv_path.clear(), cycles_csv_path.clear();
   options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     SteadyClock wall;
@@ -55,12 +55,16 @@ void RegisterReport(CliRegistry& r) {
     if (!csv_path.empty()) {
       if (Status st = WriteTextFile(csv_path, RunReportStepsCsv(*rep)); !st.ok()) return Fail(st);
     }
+    if (!cycles_csv_path.empty()) {
+      if (Status st = WriteTextFile(cycles_csv_path, RunReportCyclesCsv(*rep)); !st.ok()) return Fail(st);
+    }
     if (json) {
       std::cout << RunReportJson(*rep).dump(2) << "\n";
     } else {
       std::cout << RunReportText(*rep);
       if (!html_path.empty()) std::cout << fmt::format("HTML report written to {}\n", html_path);
       if (!csv_path.empty()) std::cout << fmt::format("per-step CSV written to {}\n", csv_path);
+      if (!cycles_csv_path.empty()) std::cout << fmt::format("per-cycle CSV written to {}\n", cycles_csv_path);
     }
     return kExitOk;
   });
@@ -69,6 +73,7 @@ void RegisterReport(CliRegistry& r) {
   report->add_flag("--json", json, "Machine-readable output");
   report->add_option("--html", html_path, "Also write a self-contained HTML report (inline SVG plots) to this file");
   report->add_option("--csv", csv_path, "Also write the per-step figures as CSV to this file");
+  report->add_option("--cycles-csv", cycles_csv_path, "Also write the per-cycle figures as CSV to this file");
   AddReportOptions(report, options, brownout_v);
 }
 

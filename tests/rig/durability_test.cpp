@@ -52,6 +52,35 @@ void MakeVersion1Db(const std::string& path, const std::string& extra_sql = "") 
   if (!extra_sql.empty()) ASSERT_OK((*db)->Exec(extra_sql));
 }
 
+// Step rows written before step records: the cycle is derived from the kinds
+// (a charge opens cycle 1), mode and level stay unknown and the rows say so.
+TEST(Migration, OldStepRowsGetTheirCycleAndAreMarkedMigrated) {
+  testing::TempDir dir;
+  MakeVersion1Db(dir.File("v1.db"), R"sql(
+    INSERT INTO steps VALUES(1, 0, 0, 'constant-current discharge', 'pre', 0, 10, 'time'),
+                            (1, 1, 1, 'charge', 'charge', 10, 20, 'current'),
+                            (1, 2, 2, 'charge', 'top up', 20, 25, 'current'),
+                            (1, 3, 3, 'rest', 'rest', 25, 30, 'time'),
+                            (1, 4, 4, 'constant-current discharge', 'main', 30, 40, 'voltage 2.749 V <= 2.750 V'),
+                            (1, 5, 5, 'charge', 'again', 40, 50, 'current');
+  )sql");
+  SteadyClock wall;
+  auto store = Store::Open(dir.File("v1.db"), wall);
+  ASSERT_TRUE(store.ok()) << store.status().ToString();
+  auto steps = (*store)->LoadSteps(1);
+  ASSERT_TRUE(steps.ok());
+  ASSERT_EQ(steps->size(), 6u);
+  const int cycles[] = {0, 1, 1, 1, 1, 2};
+  for (size_t k = 0; k < 6; ++k) {
+    EXPECT_EQ((*steps)[k].cycle, cycles[k]) << "row " << k;
+    EXPECT_TRUE((*steps)[k].migrated);
+    EXPECT_FALSE((*steps)[k].level.has_value());
+  }
+  auto totals = (*store)->LoadRunTotals(1);
+  ASSERT_TRUE(totals.ok());
+  EXPECT_FALSE(totals->delivered_mah.has_value());  // not known for old runs
+}
+
 TEST(Migration, Version1DatabaseIsUpgradedKeepingItsData) {
   testing::TempDir dir;
   MakeVersion1Db(dir.File("v1.db"));

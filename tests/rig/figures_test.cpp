@@ -392,6 +392,9 @@ TEST(Figures, ConstantCurrentCyclingHasACycleTable) {
   EXPECT_EQ(j["steps"][3]["cycle"], 2);
   EXPECT_EQ(j["steps"][3]["number"], 1);
   EXPECT_EQ(j["cycles"].size(), 2u);
+  std::string cycles_csv = RunReportCyclesCsv(rep);
+  EXPECT_EQ(std::count(cycles_csv.begin(), cycles_csv.end(), '\n'), 3);
+  EXPECT_NE(cycles_csv.find(fmt::format("\n2,{},", a.cycles[1].charge_in_mah)), std::string::npos) << cycles_csv;
   EXPECT_NE(RunReportHtml(rep).find("plot-capacity-cycle"), std::string::npos);
 }
 
