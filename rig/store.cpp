@@ -91,8 +91,21 @@ Status MigrateTo2(sql::Db& db) {
   )sql");
 }
 
+// v3: reserved for the step records (analysis branch)
+Status MigrateTo3(sql::Db&) { return Status::Ok(); }
+
+// v4: the number of committed samples on the runs row, kept in the same
+// transaction as every batch, so listing or looking up a run costs the same
+// whatever its length. Back-filled for the runs already stored.
+Status MigrateTo4(sql::Db& db) {
+  return db.Exec(R"sql(
+    ALTER TABLE runs ADD COLUMN sample_count INTEGER NOT NULL DEFAULT 0;
+    UPDATE runs SET sample_count = (SELECT COUNT(*) FROM samples s WHERE s.run_id = runs.id);
+  )sql");
+}
+
 using Migration = Status (*)(sql::Db&);
-constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2};
+constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3, &MigrateTo4};
 static_assert(std::size(kMigrations) == kSchemaVersion);
 
 // Heartbeats are calendar time (they must compare across processes), with
@@ -235,16 +248,30 @@ Status Store::Commit() {
   // So does the run's progress, which therefore always matches the samples.
   Status st = Status::Ok();
   if (seq_run_ >= 0) {
-    auto hb = db_->Prepare(
-        "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
-        " delivered_mah=COALESCE(?5, delivered_mah), delivered_wh=COALESCE(?6, delivered_wh) WHERE id=?2");
-    st = hb.status();
-    if (st.ok()) {
-      hb->Bind(1, UnixSeconds()).Bind(2, seq_run_);
-      if (progress_) {
-        hb->Bind(3, progress_->engine_snapshot).Bind(4, progress_->t_s).Bind(5, progress_->delivered_mah).Bind(6, progress_->delivered_wh);
+    if (!has_heartbeat_) {
+      auto hb = db_->Prepare(
+          "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
+          " delivered_mah=COALESCE(?5, delivered_mah), delivered_wh=COALESCE(?6, delivered_wh),"
+          " sample_count=sample_count+?7 WHERE id=?2");
+      st = hb.status();
+      if (st.ok()) {
+        heartbeat_ = std::move(*hb);
+        has_heartbeat_ = true;
       }
-      st = hb->Run();
+    }
+    if (st.ok()) {
+      // The engine snapshot is formatted here, once per commit, not per sample.
+      if (progress_ && snapshot_fn_) progress_->engine_snapshot = snapshot_fn_();
+      snapshot_fn_ = nullptr;
+      heartbeat_.Bind(1, UnixSeconds()).Bind(2, seq_run_).Bind(7, next_seq_ - committed_seq_);
+      if (progress_) {
+        heartbeat_.Bind(3, progress_->engine_snapshot)
+            .Bind(4, progress_->t_s)
+            .Bind(5, progress_->delivered_mah)
+            .Bind(6, progress_->delivered_wh);
+      }
+      st = heartbeat_.Run();
+      if (!st.ok()) heartbeat_.Reset();
     }
   }
   if (st.ok()) st = db_->Exec("COMMIT");
@@ -256,6 +283,7 @@ Status Store::Commit() {
     // rolled-back progress with the older samples.
     next_seq_ = committed_seq_;
     progress_ = committed_progress_;
+    snapshot_fn_ = nullptr;
     return st.WithContext("committing samples");
   }
   in_batch_ = false;
@@ -303,6 +331,7 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
   step_seq_ = 0;
   progress_.reset();
   committed_progress_.reset();
+  snapshot_fn_ = nullptr;
   KP_RETURN_IF_ERROR(Commit());
   return id;
 }
@@ -347,7 +376,10 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     steps.Bind(1, run_id);
     KP_RETURN_IF_ERROR(steps.Step().status());
     const int64_t step_seq = steps.Int(0);
-    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='running', reason='', ended_at=NULL, resumes=resumes+1 WHERE id=?1"));
+    // The count is re-taken from the samples once per resume, so the run
+    // continues from a count that matches its rows whatever wrote them.
+    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='running', reason='', ended_at=NULL, resumes=resumes+1,"
+                                              " sample_count=(SELECT COUNT(*) FROM samples s WHERE s.run_id=?1) WHERE id=?1"));
     KP_RETURN_IF_ERROR(up.Bind(1, run_id).Run());
     KP_RETURN_IF_ERROR(ClaimRunner(run_id));
     seq_run_ = run_id;
@@ -356,6 +388,7 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     step_seq_ = step_seq;
     progress_ = out.progress;
     committed_progress_ = out.progress;
+    snapshot_fn_ = nullptr;
     return out;
   };
   Result<ReopenedRun> r = body();
@@ -370,7 +403,18 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
 }
 
 void Store::SetProgress(int64_t run_id, RunProgress progress) {
-  if (run_id == seq_run_) progress_ = std::move(progress);
+  if (run_id != seq_run_) return;
+  progress_ = std::move(progress);
+  snapshot_fn_ = nullptr;
+}
+
+void Store::SetProgress(int64_t run_id, const ProgressFigures& figures, std::function<std::string()> snapshot) {
+  if (run_id != seq_run_) return;
+  if (!progress_) progress_.emplace();
+  progress_->t_s = figures.t_s;
+  progress_->delivered_mah = figures.delivered_mah;
+  progress_->delivered_wh = figures.delivered_wh;
+  snapshot_fn_ = std::move(snapshot);
 }
 
 Status Store::AppendSample(int64_t run_id, const Sample& s) {
@@ -441,15 +485,25 @@ Result<int64_t> Store::AddRequest(int64_t run_id, std::string_view action, std::
 }
 
 Result<std::vector<RequestRow>> Store::PendingRequests(int64_t run_id) {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, run_id, action, requested_by, requested_at FROM requests"
-                                           " WHERE run_id=?1 AND handled_at IS NULL ORDER BY id"));
+  // Prepared once and kept: a runner asks several times a second.
+  if (!has_pending_requests_) {
+    KP_ASSIGN_OR_RETURN(pending_requests_, db_->Prepare("SELECT id, run_id, action, requested_by, requested_at FROM requests"
+                                                        " WHERE run_id=?1 AND handled_at IS NULL ORDER BY id"));
+    has_pending_requests_ = true;
+  }
+  sql::Stmt& q = pending_requests_;
   q.Bind(1, run_id);
   std::vector<RequestRow> out;
   for (;;) {
-    KP_ASSIGN_OR_RETURN(bool row, q.Step());
-    if (!row) break;
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
     out.push_back({q.Int(0), q.Int(1), q.Text(2), q.Text(3), q.Text(4)});
   }
+  q.Reset();  // ends the statement's read so the snapshot does not pin the WAL
   return out;
 }
 
@@ -498,8 +552,7 @@ Result<int> Store::ReconcileOrphans() {
 namespace {
 constexpr const char* kRunColumns =
     "SELECT r.id, c.name, c.chemistry, r.rated_mah, r.procedure_name, r.procedure_text, r.rig, r.started_at,"
-    " COALESCE(r.ended_at,''), r.outcome, r.reason,"
-    " (SELECT COUNT(*) FROM samples s WHERE s.run_id=r.id) FROM runs r JOIN cells c ON c.id=r.cell_id";
+    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count FROM runs r JOIN cells c ON c.id=r.cell_id";
 
 RunRow ReadRun(const sql::Stmt& q) {
   RunRow r;

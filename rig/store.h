@@ -25,7 +25,7 @@
 
 namespace kp {
 
-inline constexpr int kSchemaVersion = 2;
+inline constexpr int kSchemaVersion = 4;
 
 enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
 const char* OutcomeName(Outcome o);
@@ -52,7 +52,7 @@ struct RunRow {
   std::string ended_at;  // empty while running
   Outcome outcome = Outcome::kRunning;
   std::string reason;
-  int64_t sample_count = 0;
+  int64_t sample_count = 0;  // committed samples (schema v4 column, kept with every batch)
 };
 
 // Where a run stands, written in the same transaction as the samples it
@@ -61,6 +61,13 @@ struct RunProgress {
   std::string engine_snapshot;  // StepEngine::Snapshot after the latest sample
   double t_s = 0.0;             // run time of that sample
   double delivered_mah = 0.0;   // since the run started, all segments
+  double delivered_wh = 0.0;
+};
+
+// The cheap part of RunProgress, known after every sample.
+struct ProgressFigures {
+  double t_s = 0.0;
+  double delivered_mah = 0.0;
   double delivered_wh = 0.0;
 };
 
@@ -122,6 +129,11 @@ class Store {
   Status StageSample(int64_t run_id, const Sample& s);
   // Remembers where the run stands; written with the next commit.
   void SetProgress(int64_t run_id, RunProgress progress);
+  // Same, with the engine snapshot produced only when a commit writes it
+  // (once per batch instead of once per sample). `snapshot` is called at most
+  // once, inside the next commit, so whatever it reads must not change
+  // before then (the next SetProgress replaces it).
+  void SetProgress(int64_t run_id, const ProgressFigures& figures, std::function<std::string()> snapshot);
   // Takes over an interrupted run as this process's run: outcome back to
   // running, this process as runner, sample numbering continued. Refuses a run
   // that is not interrupted.
@@ -180,8 +192,13 @@ class Store {
   int64_t committed_seq_ = 0;
   std::optional<RunProgress> progress_;
   std::optional<RunProgress> committed_progress_;  // what the database holds
+  std::function<std::string()> snapshot_fn_;        // fills progress_'s snapshot at the next commit
   bool has_insert_ = false;
   sql::Stmt insert_sample_;
+  bool has_heartbeat_ = false;
+  sql::Stmt heartbeat_;
+  bool has_pending_requests_ = false;
+  sql::Stmt pending_requests_;
 };
 
 }  // namespace kp

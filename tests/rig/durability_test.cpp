@@ -58,7 +58,7 @@ TEST(Migration, Version1DatabaseIsUpgradedKeepingItsData) {
   SteadyClock wall;
   auto store = Store::Open(dir.File("v1.db"), wall);
   ASSERT_TRUE(store.ok()) << store.status().ToString();
-  EXPECT_EQ(*(*store)->SchemaVersion(), 2);
+  EXPECT_EQ(*(*store)->SchemaVersion(), kSchemaVersion);
   auto run = (*store)->GetRun(1);
   ASSERT_TRUE(run.ok());
   EXPECT_EQ(run->cell, "old-cell");
@@ -125,7 +125,7 @@ Plan TimedPlan(double seconds) {
 
 TEST(Control, PauseHoldsTheLoadOffAndStopsTheStepClock) {
   Bench b;
-  ControlChannel channel(*b.store);
+  ControlChannel channel(*b.store, b.clock);  // polls once per simulated 0.25 s: every 1 s sample
   RunController rc(*b.store, b.clock, b.rig->roles());
   RunOptions o;
   o.control = &channel;
@@ -170,7 +170,7 @@ TEST(Control, PauseHoldsTheLoadOffAndStopsTheStepClock) {
 
 TEST(Control, AbortActsWithinOneSamplePeriodAndNamesWhoAsked) {
   Bench b;
-  ControlChannel channel(*b.store);
+  ControlChannel channel(*b.store, b.clock);  // polls once per simulated 0.25 s: every 1 s sample
   RunController rc(*b.store, b.clock, b.rig->roles());
   RunOptions o;
   o.control = &channel;

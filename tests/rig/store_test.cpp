@@ -130,3 +130,125 @@ TEST(Store, ControlRequestsQueueAndHandle) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+int64_t CountedRows(Store& store, int64_t run) {
+  auto q = store.db().Prepare("SELECT COUNT(*) FROM samples WHERE run_id=?1");
+  EXPECT_TRUE(q.ok());
+  q->Bind(1, run);
+  EXPECT_TRUE(*q->Step());
+  return q->Int(0);
+}
+
+TEST(StoreSampleCount, KeptWithEveryCommittedBatchAndOnlyThen) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  Store::Options slow;
+  slow.commit_interval_s = 3600;  // only explicit commits and events
+  auto writer = Store::Open(dir.File("n.db"), wall, slow);
+  ASSERT_TRUE(writer.ok());
+  auto other = Store::Open(dir.File("n.db"), wall);
+  ASSERT_TRUE(other.ok());
+  auto first = (*writer)->BeginRun(DemoRun());
+  ASSERT_TRUE(first.ok());
+  for (int i = 0; i < 7; ++i) ASSERT_OK((*writer)->AppendSample(*first, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+  EXPECT_EQ((*other)->GetRun(*first)->sample_count, 0);  // staged, not committed
+  ASSERT_OK((*writer)->Commit());
+  EXPECT_EQ((*other)->GetRun(*first)->sample_count, 7);
+  for (int i = 7; i < 12; ++i) ASSERT_OK((*writer)->AppendSample(*first, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+  ASSERT_OK((*writer)->AddEvent(*first, 12.0, "note", "commits the batch"));
+  EXPECT_EQ((*other)->GetRun(*first)->sample_count, 12);
+  ASSERT_OK((*writer)->FinishRun(*first, Outcome::kCompleted, "done"));
+  // A second run counts its own samples only; the listing agrees with the rows.
+  auto second = (*writer)->BeginRun(DemoRun());
+  ASSERT_TRUE(second.ok());
+  for (int i = 0; i < 3; ++i) ASSERT_OK((*writer)->AppendSample(*second, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+  ASSERT_OK((*writer)->FinishRun(*second, Outcome::kAborted, "stop"));
+  auto runs = (*other)->ListRuns();
+  ASSERT_TRUE(runs.ok());
+  ASSERT_EQ(runs->size(), 2u);
+  EXPECT_EQ((*runs)[0].sample_count, 12);
+  EXPECT_EQ((*runs)[1].sample_count, 3);
+  for (const RunRow& r : *runs) EXPECT_EQ(r.sample_count, CountedRows(**other, r.id)) << "run " << r.id;
+}
+
+TEST(StoreSampleCount, ReopenedRunCountsFromItsRows) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  int64_t run = 0;
+  {
+    auto writer = Store::Open(dir.File("r.db"), wall);
+    ASSERT_TRUE(writer.ok());
+    auto r = (*writer)->BeginRun(DemoRun());
+    ASSERT_TRUE(r.ok());
+    run = *r;
+    for (int i = 0; i < 10; ++i) {
+      ASSERT_OK((*writer)->StageSample(run, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+      (*writer)->SetProgress(run, {"v1 step=0 elapsed=0 charge=0 energy=0", i * 1.0, 0, 0});
+    }
+    ASSERT_OK((*writer)->Commit());
+  }
+  // As if the runner died, and the count had been lost (a database written by hand).
+  {
+    auto db = sql::Db::Open(dir.File("r.db"), false);
+    ASSERT_TRUE(db.ok());
+    ASSERT_OK((*db)->Exec("UPDATE runs SET outcome='interrupted', sample_count=0"));
+  }
+  auto store = Store::Open(dir.File("r.db"), wall);
+  ASSERT_TRUE(store.ok());
+  auto reopened = (*store)->ReopenRun(run);
+  ASSERT_TRUE(reopened.ok()) << reopened.status().ToString();
+  EXPECT_EQ(reopened->next_seq, 10);
+  EXPECT_EQ((*store)->GetRun(run)->sample_count, 10);
+  for (int i = 10; i < 15; ++i) ASSERT_OK((*store)->AppendSample(run, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+  ASSERT_OK((*store)->FinishRun(run, Outcome::kCompleted, "done"));
+  EXPECT_EQ((*store)->GetRun(run)->sample_count, 15);
+  EXPECT_EQ(CountedRows(**store, run), 15);
+}
+
+TEST(StoreProgress, SnapshotIsProducedOnlyByTheCommitThatWritesIt) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  Store::Options slow;
+  slow.commit_interval_s = 3600;
+  auto store = Store::Open(dir.File("p.db"), wall, slow);
+  ASSERT_TRUE(store.ok());
+  auto run = (*store)->BeginRun(DemoRun());
+  ASSERT_TRUE(run.ok());
+  int produced = 0;
+  for (int i = 0; i < 100; ++i) {
+    ASSERT_OK((*store)->StageSample(*run, {i * 1.0, 4.1, 0.5, 25.0, 0}));
+    (*store)->SetProgress(*run, ProgressFigures{i * 1.0, i * 0.1, i * 0.01}, [&produced, i] {
+      ++produced;
+      return "snapshot after sample " + std::to_string(i);
+    });
+    ASSERT_OK((*store)->MaybeCommit());
+  }
+  EXPECT_EQ(produced, 0);  // nothing committed yet: nothing formatted
+  ASSERT_OK((*store)->Commit());
+  EXPECT_EQ(produced, 1);  // only the latest producer, once
+  auto p = (*store)->LoadProgress(*run);
+  ASSERT_TRUE(p.ok() && p->has_value());
+  EXPECT_EQ((*p)->engine_snapshot, "snapshot after sample 99");
+  EXPECT_DOUBLE_EQ((*p)->t_s, 99.0);
+  EXPECT_DOUBLE_EQ((*p)->delivered_mah, 9.9);
+  // A commit with no new progress leaves the stored snapshot as it was.
+  ASSERT_OK((*store)->AddEvent(*run, 99.0, "note", "x"));
+  EXPECT_EQ(produced, 1);
+  EXPECT_EQ((*(*store)->LoadProgress(*run))->engine_snapshot, "snapshot after sample 99");
+  // An eager snapshot replaces a pending producer.
+  (*store)->SetProgress(*run, ProgressFigures{100.0, 10.0, 1.0}, [&produced] {
+    ++produced;
+    return std::string("lazy");
+  });
+  (*store)->SetProgress(*run, RunProgress{"eager", 100.0, 10.0, 1.0});
+  ASSERT_OK((*store)->Commit());
+  ASSERT_OK((*store)->AddEvent(*run, 100.0, "note", "y"));
+  EXPECT_EQ(produced, 1);
+  EXPECT_EQ((*(*store)->LoadProgress(*run))->engine_snapshot, "eager");
+}
+
+}  // namespace
+}  // namespace kp
