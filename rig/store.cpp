@@ -14,6 +14,53 @@
 namespace kp {
 namespace {
 
+constexpr const char* kPutBlockSql =
+    "INSERT OR REPLACE INTO sample_blocks VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,"
+    "?22,?23,?24,?25,?26,?27)";
+
+Status PutBlock(sql::Stmt& put, int64_t run_id, int64_t block, const SampleSummary& s) {
+  put.Bind(1, run_id).Bind(2, block).Bind(3, s.count);
+  put.Bind(4, s.first.t_s).Bind(5, s.first.voltage_v).Bind(6, s.first.current_a).Bind(7, s.first.temperature_c).Bind(8, s.first.step);
+  put.Bind(9, s.last.t_s).Bind(10, s.last.voltage_v).Bind(11, s.last.current_a).Bind(12, s.last.temperature_c).Bind(13, s.last.step);
+  put.Bind(14, s.net_mah).Bind(15, s.discharged_mah).Bind(16, s.charged_mah).Bind(17, s.since_charge_mah);
+  put.Bind(18, static_cast<int64_t>(s.has_charge ? 1 : 0)).Bind(19, s.net_wh).Bind(20, s.discharged_wh).Bind(21, s.voltage_time_vs);
+  put.Bind(22, s.min_voltage_v).Bind(23, s.max_voltage_v).Bind(24, s.min_current_a).Bind(25, s.max_current_a);
+  put.Bind(26, s.min_temperature_c).Bind(27, s.max_temperature_c);
+  Status st = put.Run();
+  if (!st.ok()) put.Reset();
+  return st;
+}
+
+constexpr const char* kBlockColumns =
+    "SELECT block, sample_count, first_t_s, first_voltage_v, first_current_a, first_temperature_c, first_step,"
+    " last_t_s, last_voltage_v, last_current_a, last_temperature_c, last_step, net_mah, discharged_mah, charged_mah,"
+    " since_charge_mah, has_charge, net_wh, discharged_wh, voltage_time_vs, min_voltage_v, max_voltage_v, min_current_a,"
+    " max_current_a, min_temperature_c, max_temperature_c FROM sample_blocks";
+
+SampleBlock ReadBlock(const sql::Stmt& q) {
+  SampleBlock b;
+  b.index = q.Int(0);
+  SampleSummary& s = b.summary;
+  s.count = q.Int(1);
+  s.first = Sample{q.Real(2), q.Real(3), q.Real(4), q.Real(5), static_cast<int>(q.Int(6))};
+  s.last = Sample{q.Real(7), q.Real(8), q.Real(9), q.Real(10), static_cast<int>(q.Int(11))};
+  s.net_mah = q.Real(12);
+  s.discharged_mah = q.Real(13);
+  s.charged_mah = q.Real(14);
+  s.since_charge_mah = q.Real(15);
+  s.has_charge = q.Int(16) != 0;
+  s.net_wh = q.Real(17);
+  s.discharged_wh = q.Real(18);
+  s.voltage_time_vs = q.Real(19);
+  s.min_voltage_v = q.Real(20);
+  s.max_voltage_v = q.Real(21);
+  s.min_current_a = q.Real(22);
+  s.max_current_a = q.Real(23);
+  s.min_temperature_c = q.Real(24);
+  s.max_temperature_c = q.Real(25);
+  return b;
+}
+
 // Schema migrations, one function per version step. Each runs inside the
 // transaction that also bumps PRAGMA user_version.
 Status MigrateTo1(sql::Db& db) {
@@ -96,12 +143,50 @@ Status MigrateTo3(sql::Db&) { return Status::Ok(); }
 
 // v4: the number of committed samples on the runs row, kept in the same
 // transaction as every batch, so listing or looking up a run costs the same
-// whatever its length. Back-filled for the runs already stored.
+// whatever its length; and a summary of every kSamplesPerBlock samples
+// (sample_blocks: first and last sample, integrals, channel ranges; see
+// rig/sample_summary.h), kept with the batches too, from which the panel
+// draws and counts a run without reading its samples. Both back-filled for
+// the runs already stored.
 Status MigrateTo4(sql::Db& db) {
-  return db.Exec(R"sql(
+  KP_RETURN_IF_ERROR(db.Exec(R"sql(
     ALTER TABLE runs ADD COLUMN sample_count INTEGER NOT NULL DEFAULT 0;
     UPDATE runs SET sample_count = (SELECT COUNT(*) FROM samples s WHERE s.run_id = runs.id);
-  )sql");
+    CREATE TABLE sample_blocks(
+      run_id INTEGER NOT NULL,
+      block INTEGER NOT NULL,
+      sample_count INTEGER NOT NULL,
+      first_t_s REAL NOT NULL, first_voltage_v REAL NOT NULL, first_current_a REAL NOT NULL,
+      first_temperature_c REAL NOT NULL, first_step INTEGER NOT NULL,
+      last_t_s REAL NOT NULL, last_voltage_v REAL NOT NULL, last_current_a REAL NOT NULL,
+      last_temperature_c REAL NOT NULL, last_step INTEGER NOT NULL,
+      net_mah REAL NOT NULL, discharged_mah REAL NOT NULL, charged_mah REAL NOT NULL, since_charge_mah REAL NOT NULL,
+      has_charge INTEGER NOT NULL, net_wh REAL NOT NULL, discharged_wh REAL NOT NULL, voltage_time_vs REAL NOT NULL,
+      min_voltage_v REAL NOT NULL, max_voltage_v REAL NOT NULL, min_current_a REAL NOT NULL, max_current_a REAL NOT NULL,
+      min_temperature_c REAL NOT NULL, max_temperature_c REAL NOT NULL,
+      PRIMARY KEY(run_id, block)) WITHOUT ROWID;
+  )sql"));
+  KP_ASSIGN_OR_RETURN(auto put, db.Prepare(kPutBlockSql));
+  KP_ASSIGN_OR_RETURN(auto q, db.Prepare("SELECT run_id, seq, t_s, voltage_v, current_a, temperature_c, step FROM samples ORDER BY run_id, seq"));
+  int64_t run = -1, block = -1;
+  SampleSummary sum;
+  auto flush = [&]() -> Status {
+    if (sum.empty()) return Status::Ok();
+    return PutBlock(put, run, block, sum);
+  };
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    const int64_t r = q.Int(0), b = q.Int(1) / kSamplesPerBlock;
+    if (r != run || b != block) {
+      KP_RETURN_IF_ERROR(flush());
+      sum = SampleSummary{};
+      run = r;
+      block = b;
+    }
+    sum.Add(Sample{q.Real(2), q.Real(3), q.Real(4), q.Real(5), static_cast<int>(q.Int(6))});
+  }
+  return flush();
 }
 
 using Migration = Status (*)(sql::Db&);
@@ -247,7 +332,8 @@ Status Store::Commit() {
   // A heartbeat in the same transaction tells readers the runner is alive.
   // So does the run's progress, which therefore always matches the samples.
   Status st = Status::Ok();
-  if (seq_run_ >= 0) {
+  if (seq_run_ >= 0 && block_dirty_) st = WriteBlock();
+  if (st.ok() && seq_run_ >= 0) {
     if (!has_heartbeat_) {
       auto hb = db_->Prepare(
           "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
@@ -284,12 +370,17 @@ Status Store::Commit() {
     next_seq_ = committed_seq_;
     progress_ = committed_progress_;
     snapshot_fn_ = nullptr;
+    block_ = committed_block_;
+    block_index_ = committed_block_index_;
+    block_dirty_ = false;
     return st.WithContext("committing samples");
   }
   in_batch_ = false;
   if (seq_run_ >= 0) {
     committed_seq_ = next_seq_;
     committed_progress_ = progress_;
+    committed_block_ = block_;
+    committed_block_index_ = block_index_;
   }
   return Status::Ok();
 }
@@ -332,6 +423,9 @@ Result<int64_t> Store::BeginRun(const NewRun& run) {
   progress_.reset();
   committed_progress_.reset();
   snapshot_fn_ = nullptr;
+  block_ = committed_block_ = SampleSummary{};
+  block_index_ = committed_block_index_ = -1;
+  block_dirty_ = false;
   KP_RETURN_IF_ERROR(Commit());
   return id;
 }
@@ -389,6 +483,17 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     progress_ = out.progress;
     committed_progress_ = out.progress;
     snapshot_fn_ = nullptr;
+    // The block the next sample falls in continues from its stored summary.
+    block_ = SampleSummary{};
+    block_index_ = -1;
+    block_dirty_ = false;
+    KP_ASSIGN_OR_RETURN(auto blocks, LoadBlocks(run_id, out.next_seq / kSamplesPerBlock, 1));
+    if (!blocks.empty() && blocks[0].index == out.next_seq / kSamplesPerBlock) {
+      block_ = blocks[0].summary;
+      block_index_ = blocks[0].index;
+    }
+    committed_block_ = block_;
+    committed_block_index_ = block_index_;
     return out;
   };
   Result<ReopenedRun> r = body();
@@ -430,6 +535,15 @@ Status Store::StageSample(int64_t run_id, const Sample& s) {
                                                      " VALUES(?1,?2,?3,?4,?5,?6,?7)"));
     has_insert_ = true;
   }
+  const int64_t block = next_seq_ / kSamplesPerBlock;
+  if (block != block_index_) {
+    // The previous block is complete: its summary goes into this batch.
+    if (block_index_ >= 0 && block_dirty_) KP_RETURN_IF_ERROR(WriteBlock());
+    block_ = SampleSummary{};
+    block_index_ = block;
+  }
+  block_.Add(s);
+  block_dirty_ = true;
   KP_RETURN_IF_ERROR(insert_sample_.Bind(1, run_id)
                          .Bind(2, next_seq_)
                          .Bind(3, s.t_s)
@@ -439,6 +553,16 @@ Status Store::StageSample(int64_t run_id, const Sample& s) {
                          .Bind(7, s.step)
                          .Run());
   ++next_seq_;
+  return Status::Ok();
+}
+
+Status Store::WriteBlock() {
+  if (!has_put_block_) {
+    KP_ASSIGN_OR_RETURN(put_block_, db_->Prepare(kPutBlockSql));
+    has_put_block_ = true;
+  }
+  KP_RETURN_IF_ERROR(PutBlock(put_block_, seq_run_, block_index_, block_));
+  block_dirty_ = false;
   return Status::Ok();
 }
 
@@ -572,23 +696,48 @@ RunRow ReadRun(const sql::Stmt& q) {
 }
 }  // namespace
 
+// Listing and lookups run several times a second in the panel: their
+// statements are prepared once and reset after each use (so no read snapshot
+// stays open).
 Result<std::vector<RunRow>> Store::ListRuns() {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
+  if (!has_list_runs_) {
+    KP_ASSIGN_OR_RETURN(list_runs_, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
+    has_list_runs_ = true;
+  }
+  sql::Stmt& q = list_runs_;
   std::vector<RunRow> out;
   for (;;) {
-    KP_ASSIGN_OR_RETURN(bool row, q.Step());
-    if (!row) break;
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
     out.push_back(ReadRun(q));
   }
+  q.Reset();
   return out;
 }
 
 Result<RunRow> Store::GetRun(int64_t run_id) {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
+  if (!has_get_run_) {
+    KP_ASSIGN_OR_RETURN(get_run_, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
+    has_get_run_ = true;
+  }
+  sql::Stmt& q = get_run_;
   q.Bind(1, run_id);
-  KP_ASSIGN_OR_RETURN(bool row, q.Step());
-  if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
-  return ReadRun(q);
+  Result<bool> row = q.Step();
+  if (!row.ok()) {
+    q.Reset();
+    return row.status();
+  }
+  if (!*row) {
+    q.Reset();
+    return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  }
+  RunRow out = ReadRun(q);
+  q.Reset();
+  return out;
 }
 
 Status Store::ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn) {
@@ -654,6 +803,41 @@ Result<std::optional<RunProgress>> Store::LoadProgress(int64_t run_id) {
   if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
   if (q.IsNull(0)) return std::optional<RunProgress>();
   return std::optional<RunProgress>(RunProgress{q.Text(0), q.Real(1), q.Real(2), q.Real(3)});
+}
+
+Result<std::vector<SampleBlock>> Store::LoadBlocks(int64_t run_id, int64_t from_block, int64_t max_blocks) {
+  if (!has_load_blocks_) {
+    KP_ASSIGN_OR_RETURN(load_blocks_, db_->Prepare(std::string(kBlockColumns) + " WHERE run_id=?1 AND block>=?2 ORDER BY block LIMIT ?3"));
+    has_load_blocks_ = true;
+  }
+  sql::Stmt& q = load_blocks_;
+  q.Bind(1, run_id).Bind(2, from_block).Bind(3, max_blocks);
+  std::vector<SampleBlock> out;
+  for (;;) {
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
+    out.push_back(ReadBlock(q));
+  }
+  q.Reset();
+  return out;
+}
+
+Result<std::vector<Sample>> Store::LoadSampleRange(int64_t run_id, int64_t first_seq, int64_t end_seq) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, voltage_v, current_a, temperature_c, step FROM samples"
+                                           " WHERE run_id=?1 AND seq>=?2 AND seq<?3 ORDER BY seq"));
+  q.Bind(1, run_id).Bind(2, first_seq).Bind(3, end_seq);
+  std::vector<Sample> out;
+  out.reserve(static_cast<size_t>(std::max<int64_t>(0, std::min<int64_t>(end_seq - first_seq, 1 << 22))));
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back(Sample{q.Real(0), q.Real(1), q.Real(2), q.Real(3), static_cast<int>(q.Int(4))});
+  }
+  return out;
 }
 
 Result<std::vector<Sample>> Store::LatestSamples(int64_t run_id, int n) {

@@ -21,11 +21,15 @@
 #include "analysis/sample.h"
 #include "drivers/clock.h"
 #include "drivers/status.h"
+#include "rig/sample_summary.h"
 #include "rig/sqlite.h"
 
 namespace kp {
 
 inline constexpr int kSchemaVersion = 4;
+// Samples per stored block summary (sample_blocks, schema v4): a block's
+// samples are seq / kSamplesPerBlock.
+inline constexpr int64_t kSamplesPerBlock = 128;
 
 enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
 const char* OutcomeName(Outcome o);
@@ -69,6 +73,13 @@ struct ProgressFigures {
   double t_s = 0.0;
   double delivered_mah = 0.0;
   double delivered_wh = 0.0;
+};
+
+// The summary of samples [index * kSamplesPerBlock, (index + 1) * kSamplesPerBlock)
+// of a run, as committed so far (the last block of a live run grows).
+struct SampleBlock {
+  int64_t index = 0;
+  SampleSummary summary;
 };
 
 // What a reopened (resumed) run continues from.
@@ -167,6 +178,11 @@ class Store {
   Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
   // The progress last committed with the run's samples, if any.
   Result<std::optional<RunProgress>> LoadProgress(int64_t run_id);
+  // Block summaries of a run from block `from_block` on, at most `max_blocks`,
+  // in order: a run's overview and figures without reading its samples.
+  Result<std::vector<SampleBlock>> LoadBlocks(int64_t run_id, int64_t from_block, int64_t max_blocks);
+  // Samples with first_seq <= seq < end_seq, in order (a zoomed window).
+  Result<std::vector<Sample>> LoadSampleRange(int64_t run_id, int64_t first_seq, int64_t end_seq);
   // The latest `n` samples of a run, oldest first (live displays).
   Result<std::vector<Sample>> LatestSamples(int64_t run_id, int n);
 
@@ -178,6 +194,7 @@ class Store {
   Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options);
   Status Migrate();
   Status EnsureBatch();
+  Status WriteBlock();
   Status ClaimRunner(int64_t run_id);
   Result<int64_t> EnsureCell(const NewRun& run);
 
@@ -199,6 +216,20 @@ class Store {
   sql::Stmt heartbeat_;
   bool has_pending_requests_ = false;
   sql::Stmt pending_requests_;
+  // The summary of the block the run's samples are going into.
+  SampleSummary block_;
+  int64_t block_index_ = -1;
+  bool block_dirty_ = false;  // block_ holds samples not yet written
+  SampleSummary committed_block_;
+  int64_t committed_block_index_ = -1;
+  bool has_put_block_ = false;
+  sql::Stmt put_block_;
+  bool has_load_blocks_ = false;
+  sql::Stmt load_blocks_;
+  bool has_list_runs_ = false;
+  sql::Stmt list_runs_;
+  bool has_get_run_ = false;
+  sql::Stmt get_run_;
 };
 
 }  // namespace kp
