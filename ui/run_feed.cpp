@@ -260,8 +260,9 @@ void RunFeed::Loop() {
     }
     bool caught_up = false;
     bool read_ok = false;
+    bool throttled = false;
     if (store) {
-      Status st = Poll(*store, &caught_up, &news);
+      Status st = Poll(*store, &caught_up, &news, &throttled);
       read_ok = st.ok();
       if (!st.ok()) {
         std::lock_guard<std::mutex> lock(mu_);
@@ -279,7 +280,7 @@ void RunFeed::Loop() {
     }
     cv_.notify_all();
     if (news && options_.on_news) options_.on_news();
-    if (!caught_up && read_ok) continue;  // more to read: go on at once
+    if (!caught_up && read_ok && !throttled) continue;  // more to read: go on at once (Drain wakes a throttled worker)
     clock.SleepUntil(clock.Now() + Seconds(options_.poll_s), &wake_);
   }
 }
@@ -304,13 +305,13 @@ Status RunFeed::ReadBlocks(Store& store, const RunRow& run, BlockCursor& cursor,
   return Status::Ok();
 }
 
-Status RunFeed::Poll(Store& store, bool* caught_up, bool* news) {
+Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled) {
   std::set<int64_t> watch;
   std::vector<std::pair<int64_t, std::string>> requests;
   std::map<int64_t, std::pair<int64_t, int64_t>> window_asks;
-  // Watched runs whose block summaries wait for the UI beyond a few polls'
-  // worth: read no more of them until they are taken (bounds the memory a
-  // slow UI can make the worker hold).
+  // Watched runs with max_pending_blocks summaries waiting for the UI: read
+  // no more of them until they are taken (bounds the memory a slow UI can
+  // make the worker hold).
   std::set<int64_t> still_pending;
   {
     std::lock_guard<std::mutex> lock(mu_);
@@ -318,7 +319,7 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news) {
     requests.swap(requests_);
     window_asks.swap(window_asks_);
     for (const auto& [id, p] : pending_)
-      if (p.blocks.size() >= 4 * options_.max_rows_per_poll) still_pending.insert(id);
+      if (p.blocks.size() >= options_.max_pending_blocks) still_pending.insert(id);
   }
   for (auto& [run_id, action] : requests) {
     auto r = store.AddRequest(run_id, action, "panel");
@@ -343,7 +344,12 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news) {
     if (!watch_cursors_.count(id)) p.reset = true;
     WatchCursor& c = watch_cursors_[id];
     // Block summaries: at most one poll's worth waiting for the UI at a time.
-    if (!still_pending.count(id)) KP_RETURN_IF_ERROR(ReadBlocks(store, *found, c.blocks, &p.blocks, &more));
+    if (still_pending.count(id)) {
+      *throttled = true;  // more to read once the UI has taken what waits
+      more = true;
+    } else {
+      KP_RETURN_IF_ERROR(ReadBlocks(store, *found, c.blocks, &p.blocks, &more));
+    }
     // The newest raw samples.
     const int64_t keep = static_cast<int64_t>(options_.tail_samples);
     if (c.tail_seq == -2) c.tail_seq = std::max<int64_t>(-1, found->sample_count - keep - 1);

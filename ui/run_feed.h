@@ -121,8 +121,9 @@ class RunFeed {
   struct Options {
     std::string db_path;
     double poll_s = 0.25;             // at least twice a second
-    size_t max_rows_per_poll = 65536;  // block summaries per run and poll (bounds one poll's work)
+    size_t max_rows_per_poll = 32768;  // block summaries per run and poll (bounds one poll's work)
     size_t max_append_per_frame = 100000;  // block summaries per Drain (bounds a frame's work)
+    size_t max_pending_blocks = 65536;     // read no more of a run while this many wait for Drain
     size_t tail_samples = 20000;      // raw samples kept at the end of a watched run
     Clock* clock = nullptr;  // paces the polls; nullptr: a real-time SteadyClock
     // Called on the worker thread after a poll that found something new (to
@@ -149,8 +150,8 @@ class RunFeed {
   void Request(int64_t run_id, const std::string& action);
   // Blocks until a poll that began after this call has found nothing more to
   // read (or `timeout_s` wall seconds pass). For headless screenshots and tests.
-  // A run whose block summaries wait undrained beyond 4 x max_rows_per_poll
-  // is read on only after the next Drain.
+  // A run with max_pending_blocks block summaries waiting undrained is read
+  // on only after the next Drain (until then the worker is not caught up).
   bool WaitCaughtUp(double timeout_s);
 
  private:
@@ -180,7 +181,7 @@ class RunFeed {
     size_t meta_signature = 0;
   };
   void Loop();
-  Status Poll(Store& store, bool* caught_up, bool* news);
+  Status Poll(Store& store, bool* caught_up, bool* news, bool* throttled);
   // Reads the block summaries after `cursor`; `keep` receives them.
   Status ReadBlocks(Store& store, const RunRow& run, BlockCursor& cursor, std::vector<SampleBlock>* keep, bool* more);
 

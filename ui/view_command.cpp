@@ -124,6 +124,10 @@ int RunView(const ViewOptions& o) {
       win.Present();
       if (panel.state().Backlog() == 0) break;
     }
+    // The plots may have asked for the raw samples of what they show: take them in.
+    if (!feed.WaitCaughtUp(60.0)) return cli::Fail(TimeoutError("the database took too long to read"));
+    frame();
+    win.Present();
     for (int i = 0; i < o.frames; ++i) {
       frame();
       if (i + 1 < o.frames) win.Present();

@@ -110,7 +110,7 @@ void BM_LiveViewFrame(benchmark::State& state) {
   state.counters["raster_ms"] = raster / static_cast<double>(state.iterations());
   state.counters["samples"] = static_cast<double>(d.SampleCount());
 }
-BENCHMARK(BM_LiveViewFrame)->Arg(0)->Arg(2000000)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2.0);
+BENCHMARK(BM_LiveViewFrame)->Arg(0)->Arg(2000000)->Arg(10000000)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2.0);
 
 // While live: each frame the last block summary grows by two samples (1 Hz
 // sampling, 2 Hz polling) and is replaced; the pyramid recomputes only its tail.

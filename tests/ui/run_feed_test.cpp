@@ -186,6 +186,43 @@ TEST(RunFeed, FetchesRawSamplesOnlyForTheAskedWindow) {
   EXPECT_EQ(d.SampleCount(), written.size());
 }
 
+// A UI that does not drain holds the worker back (bounded memory), and the
+// worker says so: it is not caught up until the waiting summaries are taken,
+// and nothing is lost on the way.
+TEST(RunFeed, WaitsForTheUiBeyondThePendingBound) {
+  testing::TempDir dir;
+  VirtualClock clock;
+  auto store = Store::Open(dir.File("slow.db"), clock);
+  ASSERT_OK(store.status());
+  auto run = (*store)->BeginRun(LiveRun());
+  ASSERT_OK(run.status());
+  std::vector<Sample> written;
+  for (int k = 0; k < 2500; ++k) {
+    written.push_back(At(k));
+    ASSERT_OK((*store)->AppendSample(*run, written.back()));
+  }
+  ASSERT_OK((*store)->Commit());
+  RunFeed::Options o;
+  o.db_path = dir.File("slow.db");
+  o.max_rows_per_poll = 3;
+  o.max_pending_blocks = 5;
+  RunFeed feed(o);
+  feed.Watch({*run});
+  EXPECT_FALSE(feed.WaitCaughtUp(0.5));  // 20 blocks, at most 5 (+3) may wait
+  FeedState state;
+  int drains = 0;
+  while (state.watched[*run].SampleCount() < written.size() && drains < 100) {
+    feed.Drain(state);
+    ++drains;
+    feed.WaitCaughtUp(0.5);
+  }
+  EXPECT_GT(drains, 1);
+  const RunData& d = state.watched[*run];
+  ASSERT_EQ(d.SampleCount(), written.size());
+  EXPECT_EQ(d.overview.size(), 20u);
+  EXPECT_NEAR(d.figures.charge_mah(), ComputeRunFigures(written).charge_mah, 1e-9);
+}
+
 // Requests from the panel land in the database for the runner to act on.
 TEST(RunFeed, RequestsGoThroughTheStore) {
   testing::TempDir dir;
