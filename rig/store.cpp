@@ -706,6 +706,7 @@ Result<std::vector<RunRow>> Store::ListRuns() {
   }
   sql::Stmt& q = list_runs_;
   std::vector<RunRow> out;
+  out.reserve(listed_runs_ + 1);
   for (;;) {
     Result<bool> row = q.Step();
     if (!row.ok()) {
@@ -716,6 +717,7 @@ Result<std::vector<RunRow>> Store::ListRuns() {
     out.push_back(ReadRun(q));
   }
   q.Reset();
+  listed_runs_ = out.size();
   return out;
 }
 

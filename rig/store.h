@@ -227,6 +227,7 @@ class Store {
   bool has_load_blocks_ = false;
   sql::Stmt load_blocks_;
   bool has_list_runs_ = false;
+  size_t listed_runs_ = 0;  // rows of the last listing (to size the next)
   sql::Stmt list_runs_;
   bool has_get_run_ = false;
   sql::Stmt get_run_;
