@@ -117,9 +117,12 @@ void RunData::AppendTail(int64_t first_seq, const std::vector<Sample>& more, siz
   // A window that reaches the newest samples follows them (a live run seen
   // close up), up to twice the size it was asked at; past that the overview
   // has enough blocks to draw from.
-  if (window.first_seq >= 0 && window.end_seq() == first_seq) {
-    if (window.size() + more.size() <= std::max<size_t>(4 * keep, 1 << 19))
-      window.Append(more.data(), more.size());
+  // (The window may already hold some of them: it was read in its own transaction.)
+  const int64_t more_end = first_seq + static_cast<int64_t>(more.size());
+  if (window.first_seq >= 0 && window.end_seq() >= first_seq && window.end_seq() < more_end) {
+    const size_t skip = static_cast<size_t>(window.end_seq() - first_seq);
+    if (window.size() + more.size() - skip <= std::max<size_t>(4 * keep, 1 << 19))
+      window.Append(more.data() + skip, more.size() - skip);
     else
       window.Clear();
   }

@@ -223,6 +223,26 @@ TEST(RunFeed, WaitsForTheUiBeyondThePendingBound) {
   EXPECT_NEAR(d.figures.charge_mah(), ComputeRunFigures(written).charge_mah, 1e-9);
 }
 
+// The window and the tail are read in separate transactions: newer samples
+// that overlap the window's end extend it once each, in order.
+TEST(RunDataWindow, TailOverlappingTheWindowExtendsItOnce) {
+  std::vector<Sample> all;
+  for (int k = 0; k < 150; ++k) all.push_back(At(k));
+  RunData d;
+  d.SetWindow(0, std::vector<Sample>(all.begin(), all.begin() + 100));
+  ASSERT_EQ(d.window.size(), 100u);
+  d.AppendTail(90, std::vector<Sample>(all.begin() + 90, all.end()), 1000);
+  ASSERT_EQ(d.window.size(), 150u);
+  for (size_t i = 0; i < all.size(); ++i) ASSERT_DOUBLE_EQ(d.window.t_s[i], all[i].t_s) << i;
+  EXPECT_NEAR(d.window.charge_mah.back(), ComputeRunFigures(all).charge_mah, 1e-9);
+  EXPECT_EQ(d.tail.size(), 60u);
+  EXPECT_EQ(d.tail_end_seq, 150);
+  // Samples that do not continue it (a gap in what was read) leave it alone.
+  d.AppendTail(400, {At(400)}, 1000);
+  EXPECT_EQ(d.window.size(), 150u);
+  EXPECT_EQ(d.tail.size(), 1u);
+}
+
 // Requests from the panel land in the database for the runner to act on.
 TEST(RunFeed, RequestsGoThroughTheStore) {
   testing::TempDir dir;
