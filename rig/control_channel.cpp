@@ -21,6 +21,11 @@ const char* ControlActionName(ControlAction a) {
 }
 
 Result<std::vector<ControlRequest>> ControlChannel::Poll(int64_t run_id) {
+  const Seconds now = wall_.Now();
+  if (asked_ && (now - last_query_).count() < poll_interval_s_) return std::vector<ControlRequest>{};
+  asked_ = true;
+  last_query_ = now;
+  ++queries_;
   KP_ASSIGN_OR_RETURN(auto rows, store_.PendingRequests(run_id));
   std::vector<ControlRequest> out;
   for (const RequestRow& row : rows) {

@@ -110,7 +110,8 @@ class RunSession {
   Status NoteRetries();
 
   // Records where the run stands; committed with the next batch so a killed
-  // run resumes from exactly its last committed sample.
+  // run resumes from exactly its last committed sample. This form keeps a
+  // snapshot taken earlier (a hold freezes the step clock).
   void NoteProgress(const std::string& snapshot) {
     RunProgress p = discharge_;
     p.engine_snapshot = snapshot;
@@ -118,6 +119,15 @@ class RunSession {
     p.delivered_mah = delivered_mah_;
     p.delivered_wh = delivered_wh_;
     rc_.store_.SetProgress(run_id_, std::move(p));
+  }
+  // The engine as it stands at t_s_: its snapshot is formatted only by the
+  // commit that writes it. Call again after anything changes the engine
+  // (every path that does so calls one of the two forms before committing).
+  void NoteProgress() {
+    const double t_s = t_s_;
+    ProgressFigures f{t_s_, delivered_mah_, delivered_wh_, discharge_.discharge_mah, discharge_.discharge_wh,
+                      discharge_.charged_mah, discharge_.discharge_open};
+    rc_.store_.SetProgress(run_id_, f, [this, t_s] { return engine_.Snapshot(t_s); });
   }
   // Acts on control requests from other processes. Returns a finished
   // RunResult when the run ended (abort, or ended while paused).
@@ -405,7 +415,7 @@ Result<RunResult> RunSession::Run() {
       // Progress first: what follows commits the staged reading with it. The
       // setpoint goes out before the gap is recorded, so the load comes on
       // right after the reading that starts the resumed segment.
-      NoteProgress(engine_.Snapshot(t_s_));
+      NoteProgress();
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not resume: " + st.ToString(), "fault");
       Status st = rc_.store_.AddEvent(
           run_id_, t_s_, "gap",
@@ -414,7 +424,7 @@ Result<RunResult> RunSession::Run() {
       if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     } else {
       out = engine_.Start(t_s_, *ocv);
-      NoteProgress(engine_.Snapshot(t_s_));
+      NoteProgress();
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "could not start: " + st.ToString(), "fault");
     }
 
@@ -466,7 +476,7 @@ Result<RunResult> RunSession::Run() {
       after_edge_ = edge;
       if (Status st = LogSample(r, step_before, edge || after_edge || !out.results.empty(), out.log); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
-      NoteProgress(engine_.Snapshot(t_s_));
+      NoteProgress();
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
       if (Status st = NoteRetries(); !st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
       if (Status st = rc_.store_.MaybeCommit(); !st.ok())

@@ -14,6 +14,53 @@
 namespace kp {
 namespace {
 
+constexpr const char* kPutBlockSql =
+    "INSERT OR REPLACE INTO sample_blocks VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,"
+    "?22,?23,?24,?25,?26,?27)";
+
+Status PutBlock(sql::Stmt& put, int64_t run_id, int64_t block, const SampleSummary& s) {
+  put.Bind(1, run_id).Bind(2, block).Bind(3, s.count);
+  put.Bind(4, s.first.t_s).Bind(5, s.first.voltage_v).Bind(6, s.first.current_a).Bind(7, s.first.temperature_c).Bind(8, s.first.step);
+  put.Bind(9, s.last.t_s).Bind(10, s.last.voltage_v).Bind(11, s.last.current_a).Bind(12, s.last.temperature_c).Bind(13, s.last.step);
+  put.Bind(14, s.net_mah).Bind(15, s.discharged_mah).Bind(16, s.charged_mah).Bind(17, s.since_charge_mah);
+  put.Bind(18, static_cast<int64_t>(s.has_charge ? 1 : 0)).Bind(19, s.net_wh).Bind(20, s.discharged_wh).Bind(21, s.voltage_time_vs);
+  put.Bind(22, s.min_voltage_v).Bind(23, s.max_voltage_v).Bind(24, s.min_current_a).Bind(25, s.max_current_a);
+  put.Bind(26, s.min_temperature_c).Bind(27, s.max_temperature_c);
+  Status st = put.Run();
+  if (!st.ok()) put.Reset();
+  return st;
+}
+
+constexpr const char* kBlockColumns =
+    "SELECT block, sample_count, first_t_s, first_voltage_v, first_current_a, first_temperature_c, first_step,"
+    " last_t_s, last_voltage_v, last_current_a, last_temperature_c, last_step, net_mah, discharged_mah, charged_mah,"
+    " since_charge_mah, has_charge, net_wh, discharged_wh, voltage_time_vs, min_voltage_v, max_voltage_v, min_current_a,"
+    " max_current_a, min_temperature_c, max_temperature_c FROM sample_blocks";
+
+SampleBlock ReadBlock(const sql::Stmt& q) {
+  SampleBlock b;
+  b.index = q.Int(0);
+  SampleSummary& s = b.summary;
+  s.count = q.Int(1);
+  s.first = Sample{q.Real(2), q.Real(3), q.Real(4), q.Real(5), static_cast<int>(q.Int(6))};
+  s.last = Sample{q.Real(7), q.Real(8), q.Real(9), q.Real(10), static_cast<int>(q.Int(11))};
+  s.net_mah = q.Real(12);
+  s.discharged_mah = q.Real(13);
+  s.charged_mah = q.Real(14);
+  s.since_charge_mah = q.Real(15);
+  s.has_charge = q.Int(16) != 0;
+  s.net_wh = q.Real(17);
+  s.discharged_wh = q.Real(18);
+  s.voltage_time_vs = q.Real(19);
+  s.min_voltage_v = q.Real(20);
+  s.max_voltage_v = q.Real(21);
+  s.min_current_a = q.Real(22);
+  s.max_current_a = q.Real(23);
+  s.min_temperature_c = q.Real(24);
+  s.max_temperature_c = q.Real(25);
+  return b;
+}
+
 // Schema migrations, one function per version step. Each runs inside the
 // transaction that also bumps PRAGMA user_version.
 Status MigrateTo1(sql::Db& db) {
@@ -131,8 +178,56 @@ Status MigrateTo3(sql::Db& db) {
   )sql");
 }
 
+// v4: the number of committed samples on the runs row, kept in the same
+// transaction as every batch, so listing or looking up a run costs the same
+// whatever its length; and a summary of every kSamplesPerBlock samples
+// (sample_blocks: first and last sample, integrals, channel ranges; see
+// rig/sample_summary.h), kept with the batches too, from which the panel
+// draws and counts a run without reading its samples. Both back-filled for
+// the runs already stored.
+Status MigrateTo4(sql::Db& db) {
+  KP_RETURN_IF_ERROR(db.Exec(R"sql(
+    ALTER TABLE runs ADD COLUMN sample_count INTEGER NOT NULL DEFAULT 0;
+    UPDATE runs SET sample_count = (SELECT COUNT(*) FROM samples s WHERE s.run_id = runs.id);
+    CREATE TABLE sample_blocks(
+      run_id INTEGER NOT NULL,
+      block INTEGER NOT NULL,
+      sample_count INTEGER NOT NULL,
+      first_t_s REAL NOT NULL, first_voltage_v REAL NOT NULL, first_current_a REAL NOT NULL,
+      first_temperature_c REAL NOT NULL, first_step INTEGER NOT NULL,
+      last_t_s REAL NOT NULL, last_voltage_v REAL NOT NULL, last_current_a REAL NOT NULL,
+      last_temperature_c REAL NOT NULL, last_step INTEGER NOT NULL,
+      net_mah REAL NOT NULL, discharged_mah REAL NOT NULL, charged_mah REAL NOT NULL, since_charge_mah REAL NOT NULL,
+      has_charge INTEGER NOT NULL, net_wh REAL NOT NULL, discharged_wh REAL NOT NULL, voltage_time_vs REAL NOT NULL,
+      min_voltage_v REAL NOT NULL, max_voltage_v REAL NOT NULL, min_current_a REAL NOT NULL, max_current_a REAL NOT NULL,
+      min_temperature_c REAL NOT NULL, max_temperature_c REAL NOT NULL,
+      PRIMARY KEY(run_id, block)) WITHOUT ROWID;
+  )sql"));
+  KP_ASSIGN_OR_RETURN(auto put, db.Prepare(kPutBlockSql));
+  KP_ASSIGN_OR_RETURN(auto q, db.Prepare("SELECT run_id, seq, t_s, voltage_v, current_a, temperature_c, step FROM samples ORDER BY run_id, seq"));
+  int64_t run = -1, block = -1;
+  SampleSummary sum;
+  auto flush = [&]() -> Status {
+    if (sum.empty()) return Status::Ok();
+    return PutBlock(put, run, block, sum);
+  };
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    const int64_t r = q.Int(0), b = q.Int(1) / kSamplesPerBlock;
+    if (r != run || b != block) {
+      KP_RETURN_IF_ERROR(flush());
+      sum = SampleSummary{};
+      run = r;
+      block = b;
+    }
+    sum.Add(Sample{q.Real(2), q.Real(3), q.Real(4), q.Real(5), static_cast<int>(q.Int(6))});
+  }
+  return flush();
+}
+
 using Migration = Status (*)(sql::Db&);
-constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3};
+constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3, &MigrateTo4};
 static_assert(std::size(kMigrations) == kSchemaVersion);
 
 // Heartbeats are calendar time (they must compare across processes), with
@@ -274,19 +369,36 @@ Status Store::Commit() {
   // A heartbeat in the same transaction tells readers the runner is alive.
   // So does the run's progress, which therefore always matches the samples.
   Status st = Status::Ok();
-  if (seq_run_ >= 0) {
-    auto hb = db_->Prepare(
-        "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
-        " net_mah=COALESCE(?5, net_mah), net_wh=COALESCE(?6, net_wh), delivered_mah=COALESCE(?7, delivered_mah),"
-        " delivered_wh=COALESCE(?8, delivered_wh), charged_mah=COALESCE(?9, charged_mah) WHERE id=?2");
-    st = hb.status();
-    if (st.ok()) {
-      hb->Bind(1, UnixSeconds()).Bind(2, seq_run_);
-      if (progress_) {
-        hb->Bind(3, progress_->engine_snapshot).Bind(4, progress_->t_s).Bind(5, progress_->delivered_mah).Bind(6, progress_->delivered_wh);
-        hb->Bind(7, progress_->discharge_mah).Bind(8, progress_->discharge_wh).Bind(9, progress_->charged_mah);
+  if (seq_run_ >= 0 && block_dirty_) st = WriteBlock();
+  if (st.ok() && seq_run_ >= 0) {
+    if (!has_heartbeat_) {
+      auto hb = db_->Prepare(
+          "UPDATE runs SET heartbeat_at=?1, engine_snapshot=COALESCE(?3, engine_snapshot), progress_t_s=COALESCE(?4, progress_t_s),"
+          " net_mah=COALESCE(?5, net_mah), net_wh=COALESCE(?6, net_wh), sample_count=sample_count+?7,"
+          " delivered_mah=COALESCE(?8, delivered_mah), delivered_wh=COALESCE(?9, delivered_wh),"
+          " charged_mah=COALESCE(?10, charged_mah) WHERE id=?2");
+      st = hb.status();
+      if (st.ok()) {
+        heartbeat_ = std::move(*hb);
+        has_heartbeat_ = true;
       }
-      st = hb->Run();
+    }
+    if (st.ok()) {
+      // The engine snapshot is formatted here, once per commit, not per sample.
+      if (progress_ && snapshot_fn_) progress_->engine_snapshot = snapshot_fn_();
+      snapshot_fn_ = nullptr;
+      heartbeat_.Bind(1, UnixSeconds()).Bind(2, seq_run_).Bind(7, next_seq_ - committed_seq_);
+      if (progress_) {
+        heartbeat_.Bind(3, progress_->engine_snapshot)
+            .Bind(4, progress_->t_s)
+            .Bind(5, progress_->delivered_mah)
+            .Bind(6, progress_->delivered_wh)
+            .Bind(8, progress_->discharge_mah)
+            .Bind(9, progress_->discharge_wh)
+            .Bind(10, progress_->charged_mah);
+      }
+      st = heartbeat_.Run();
+      if (!st.ok()) heartbeat_.Reset();
     }
   }
   if (st.ok()) st = db_->Exec("COMMIT");
@@ -298,12 +410,18 @@ Status Store::Commit() {
     // rolled-back progress with the older samples.
     next_seq_ = committed_seq_;
     progress_ = committed_progress_;
+    snapshot_fn_ = nullptr;
+    block_ = committed_block_;
+    block_index_ = committed_block_index_;
+    block_dirty_ = false;
     return st.WithContext("committing samples");
   }
   in_batch_ = false;
   if (seq_run_ >= 0) {
     committed_seq_ = next_seq_;
     committed_progress_ = progress_;
+    committed_block_ = block_;
+    committed_block_index_ = block_index_;
   }
   return Status::Ok();
 }
@@ -350,6 +468,10 @@ Result<int64_t> Store::BeginRunWith(const NewRun& run, const std::optional<RunPr
   step_seq_ = 0;
   progress_ = initial;
   committed_progress_.reset();
+  snapshot_fn_ = nullptr;
+  block_ = committed_block_ = SampleSummary{};
+  block_index_ = committed_block_index_ = -1;
+  block_dirty_ = false;
   KP_RETURN_IF_ERROR(Commit());
   return id;
 }
@@ -394,7 +516,10 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     steps.Bind(1, run_id);
     KP_RETURN_IF_ERROR(steps.Step().status());
     const int64_t step_seq = steps.Int(0);
-    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='running', reason='', ended_at=NULL, resumes=resumes+1 WHERE id=?1"));
+    // The count is re-taken from the samples once per resume, so the run
+    // continues from a count that matches its rows whatever wrote them.
+    KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='running', reason='', ended_at=NULL, resumes=resumes+1,"
+                                              " sample_count=(SELECT COUNT(*) FROM samples s WHERE s.run_id=?1) WHERE id=?1"));
     KP_RETURN_IF_ERROR(up.Bind(1, run_id).Run());
     KP_RETURN_IF_ERROR(ClaimRunner(run_id));
     seq_run_ = run_id;
@@ -403,6 +528,18 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
     step_seq_ = step_seq;
     progress_ = out.progress;
     committed_progress_ = out.progress;
+    snapshot_fn_ = nullptr;
+    // The block the next sample falls in continues from its stored summary.
+    block_ = SampleSummary{};
+    block_index_ = -1;
+    block_dirty_ = false;
+    KP_ASSIGN_OR_RETURN(auto blocks, LoadBlocks(run_id, out.next_seq / kSamplesPerBlock, 1));
+    if (!blocks.empty() && blocks[0].index == out.next_seq / kSamplesPerBlock) {
+      block_ = blocks[0].summary;
+      block_index_ = blocks[0].index;
+    }
+    committed_block_ = block_;
+    committed_block_index_ = block_index_;
     return out;
   };
   Result<ReopenedRun> r = body();
@@ -417,7 +554,22 @@ Result<ReopenedRun> Store::ReopenRun(int64_t run_id) {
 }
 
 void Store::SetProgress(int64_t run_id, RunProgress progress) {
-  if (run_id == seq_run_) progress_ = std::move(progress);
+  if (run_id != seq_run_) return;
+  progress_ = std::move(progress);
+  snapshot_fn_ = nullptr;
+}
+
+void Store::SetProgress(int64_t run_id, const ProgressFigures& figures, std::function<std::string()> snapshot) {
+  if (run_id != seq_run_) return;
+  if (!progress_) progress_.emplace();
+  progress_->t_s = figures.t_s;
+  progress_->delivered_mah = figures.delivered_mah;
+  progress_->delivered_wh = figures.delivered_wh;
+  progress_->discharge_mah = figures.discharge_mah;
+  progress_->discharge_wh = figures.discharge_wh;
+  progress_->charged_mah = figures.charged_mah;
+  progress_->discharge_open = figures.discharge_open;
+  snapshot_fn_ = std::move(snapshot);
 }
 
 Status Store::AppendSample(int64_t run_id, const Sample& s) {
@@ -433,6 +585,15 @@ Status Store::StageSample(int64_t run_id, const Sample& s) {
                                                      " VALUES(?1,?2,?3,?4,?5,?6,?7)"));
     has_insert_ = true;
   }
+  const int64_t block = next_seq_ / kSamplesPerBlock;
+  if (block != block_index_) {
+    // The previous block is complete: its summary goes into this batch.
+    if (block_index_ >= 0 && block_dirty_) KP_RETURN_IF_ERROR(WriteBlock());
+    block_ = SampleSummary{};
+    block_index_ = block;
+  }
+  block_.Add(s);
+  block_dirty_ = true;
   KP_RETURN_IF_ERROR(insert_sample_.Bind(1, run_id)
                          .Bind(2, next_seq_)
                          .Bind(3, s.t_s)
@@ -442,6 +603,16 @@ Status Store::StageSample(int64_t run_id, const Sample& s) {
                          .Bind(7, s.step)
                          .Run());
   ++next_seq_;
+  return Status::Ok();
+}
+
+Status Store::WriteBlock() {
+  if (!has_put_block_) {
+    KP_ASSIGN_OR_RETURN(put_block_, db_->Prepare(kPutBlockSql));
+    has_put_block_ = true;
+  }
+  KP_RETURN_IF_ERROR(PutBlock(put_block_, seq_run_, block_index_, block_));
+  block_dirty_ = false;
   return Status::Ok();
 }
 
@@ -557,15 +728,25 @@ Result<int64_t> Store::AddRequest(int64_t run_id, std::string_view action, std::
 }
 
 Result<std::vector<RequestRow>> Store::PendingRequests(int64_t run_id) {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id, run_id, action, requested_by, requested_at FROM requests"
-                                           " WHERE run_id=?1 AND handled_at IS NULL ORDER BY id"));
+  // Prepared once and kept: a runner asks several times a second.
+  if (!has_pending_requests_) {
+    KP_ASSIGN_OR_RETURN(pending_requests_, db_->Prepare("SELECT id, run_id, action, requested_by, requested_at FROM requests"
+                                                        " WHERE run_id=?1 AND handled_at IS NULL ORDER BY id"));
+    has_pending_requests_ = true;
+  }
+  sql::Stmt& q = pending_requests_;
   q.Bind(1, run_id);
   std::vector<RequestRow> out;
   for (;;) {
-    KP_ASSIGN_OR_RETURN(bool row, q.Step());
-    if (!row) break;
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
     out.push_back({q.Int(0), q.Int(1), q.Text(2), q.Text(3), q.Text(4)});
   }
+  q.Reset();  // ends the statement's read so the snapshot does not pin the WAL
   return out;
 }
 
@@ -614,8 +795,7 @@ Result<int> Store::ReconcileOrphans() {
 namespace {
 constexpr const char* kRunColumns =
     "SELECT r.id, c.name, c.chemistry, r.rated_mah, r.procedure_name, r.procedure_text, r.rig, r.started_at,"
-    " COALESCE(r.ended_at,''), r.outcome, r.reason,"
-    " (SELECT COUNT(*) FROM samples s WHERE s.run_id=r.id) FROM runs r JOIN cells c ON c.id=r.cell_id";
+    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count FROM runs r JOIN cells c ON c.id=r.cell_id";
 
 RunRow ReadRun(const sql::Stmt& q) {
   RunRow r;
@@ -635,23 +815,50 @@ RunRow ReadRun(const sql::Stmt& q) {
 }
 }  // namespace
 
+// Listing and lookups run several times a second in the panel: their
+// statements are prepared once and reset after each use (so no read snapshot
+// stays open).
 Result<std::vector<RunRow>> Store::ListRuns() {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
+  if (!has_list_runs_) {
+    KP_ASSIGN_OR_RETURN(list_runs_, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
+    has_list_runs_ = true;
+  }
+  sql::Stmt& q = list_runs_;
   std::vector<RunRow> out;
+  out.reserve(listed_runs_ + 1);
   for (;;) {
-    KP_ASSIGN_OR_RETURN(bool row, q.Step());
-    if (!row) break;
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
     out.push_back(ReadRun(q));
   }
+  q.Reset();
+  listed_runs_ = out.size();
   return out;
 }
 
 Result<RunRow> Store::GetRun(int64_t run_id) {
-  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
+  if (!has_get_run_) {
+    KP_ASSIGN_OR_RETURN(get_run_, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
+    has_get_run_ = true;
+  }
+  sql::Stmt& q = get_run_;
   q.Bind(1, run_id);
-  KP_ASSIGN_OR_RETURN(bool row, q.Step());
-  if (!row) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
-  return ReadRun(q);
+  Result<bool> row = q.Step();
+  if (!row.ok()) {
+    q.Reset();
+    return row.status();
+  }
+  if (!*row) {
+    q.Reset();
+    return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  }
+  RunRow out = ReadRun(q);
+  q.Reset();
+  return out;
 }
 
 Status Store::ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn) {
@@ -729,6 +936,41 @@ Result<std::optional<RunProgress>> Store::LoadProgress(int64_t run_id) {
   if (!q.IsNull(5)) p.discharge_wh = q.Real(5);
   if (!q.IsNull(6)) p.charged_mah = q.Real(6);
   return std::optional<RunProgress>(p);
+}
+
+Result<std::vector<SampleBlock>> Store::LoadBlocks(int64_t run_id, int64_t from_block, int64_t max_blocks) {
+  if (!has_load_blocks_) {
+    KP_ASSIGN_OR_RETURN(load_blocks_, db_->Prepare(std::string(kBlockColumns) + " WHERE run_id=?1 AND block>=?2 ORDER BY block LIMIT ?3"));
+    has_load_blocks_ = true;
+  }
+  sql::Stmt& q = load_blocks_;
+  q.Bind(1, run_id).Bind(2, from_block).Bind(3, max_blocks);
+  std::vector<SampleBlock> out;
+  for (;;) {
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
+    out.push_back(ReadBlock(q));
+  }
+  q.Reset();
+  return out;
+}
+
+Result<std::vector<Sample>> Store::LoadSampleRange(int64_t run_id, int64_t first_seq, int64_t end_seq) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, voltage_v, current_a, temperature_c, step FROM samples"
+                                           " WHERE run_id=?1 AND seq>=?2 AND seq<?3 ORDER BY seq"));
+  q.Bind(1, run_id).Bind(2, first_seq).Bind(3, end_seq);
+  std::vector<Sample> out;
+  out.reserve(static_cast<size_t>(std::max<int64_t>(0, std::min<int64_t>(end_seq - first_seq, 1 << 22))));
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back(Sample{q.Real(0), q.Real(1), q.Real(2), q.Real(3), static_cast<int>(q.Int(4))});
+  }
+  return out;
 }
 
 Result<std::vector<Sample>> Store::LatestSamples(int64_t run_id, int n) {

@@ -21,11 +21,15 @@
 #include "analysis/sample.h"
 #include "drivers/clock.h"
 #include "drivers/status.h"
+#include "rig/sample_summary.h"
 #include "rig/sqlite.h"
 
 namespace kp {
 
-inline constexpr int kSchemaVersion = 3;
+inline constexpr int kSchemaVersion = 4;
+// Samples per stored block summary (sample_blocks, schema v4): a block's
+// samples are seq / kSamplesPerBlock.
+inline constexpr int64_t kSamplesPerBlock = 128;
 
 enum class Outcome { kRunning, kCompleted, kAborted, kInterrupted };
 const char* OutcomeName(Outcome o);
@@ -53,7 +57,7 @@ struct RunRow {
   std::string ended_at;  // empty while running
   Outcome outcome = Outcome::kRunning;
   std::string reason;
-  int64_t sample_count = 0;
+  int64_t sample_count = 0;  // committed samples (schema v4 column, kept with every batch)
 };
 
 // Where a run stands, written in the same transaction as the samples it
@@ -69,6 +73,25 @@ struct RunProgress {
   double discharge_wh = 0.0;
   double charged_mah = 0.0;  // charged into the cell in the whole run: runs.charged_mah
   bool discharge_open = false;  // a discharge-kind step ran since the last charge
+};
+
+// The cheap part of RunProgress, known after every sample.
+struct ProgressFigures {
+  double t_s = 0.0;
+  double delivered_mah = 0.0;  // net (runs.net_mah)
+  double delivered_wh = 0.0;   // net (runs.net_wh)
+  // The discharge under way or last completed, and the charge put in (see RunProgress).
+  double discharge_mah = 0.0;
+  double discharge_wh = 0.0;
+  double charged_mah = 0.0;
+  bool discharge_open = false;
+};
+
+// The summary of samples [index * kSamplesPerBlock, (index + 1) * kSamplesPerBlock)
+// of a run, as committed so far (the last block of a live run grows).
+struct SampleBlock {
+  int64_t index = 0;
+  SampleSummary summary;
 };
 
 // What a reopened (resumed) run continues from.
@@ -164,6 +187,11 @@ class Store {
   Status StageSample(int64_t run_id, const Sample& s);
   // Remembers where the run stands; written with the next commit.
   void SetProgress(int64_t run_id, RunProgress progress);
+  // Same, with the engine snapshot produced only when a commit writes it
+  // (once per batch instead of once per sample). `snapshot` is called at most
+  // once, inside the next commit, so whatever it reads must not change
+  // before then (the next SetProgress replaces it).
+  void SetProgress(int64_t run_id, const ProgressFigures& figures, std::function<std::string()> snapshot);
   // Takes over an interrupted run as this process's run: outcome back to
   // running, this process as runner, sample numbering continued. Refuses a run
   // that is not interrupted.
@@ -213,6 +241,11 @@ class Store {
   Result<RunTotalsRow> LoadRunTotals(int64_t run_id);
   // The progress last committed with the run's samples, if any.
   Result<std::optional<RunProgress>> LoadProgress(int64_t run_id);
+  // Block summaries of a run from block `from_block` on, at most `max_blocks`,
+  // in order: a run's overview and figures without reading its samples.
+  Result<std::vector<SampleBlock>> LoadBlocks(int64_t run_id, int64_t from_block, int64_t max_blocks);
+  // Samples with first_seq <= seq < end_seq, in order (a zoomed window).
+  Result<std::vector<Sample>> LoadSampleRange(int64_t run_id, int64_t first_seq, int64_t end_seq);
   // The latest `n` samples of a run, oldest first (live displays).
   Result<std::vector<Sample>> LatestSamples(int64_t run_id, int n);
 
@@ -225,6 +258,7 @@ class Store {
   Status Migrate();
   Result<int64_t> BeginRunWith(const NewRun& run, const std::optional<RunProgress>& initial);
   Status EnsureBatch();
+  Status WriteBlock();
   Status ClaimRunner(int64_t run_id);
   Result<int64_t> EnsureCell(const NewRun& run);
 
@@ -239,8 +273,28 @@ class Store {
   int64_t committed_seq_ = 0;
   std::optional<RunProgress> progress_;
   std::optional<RunProgress> committed_progress_;  // what the database holds
+  std::function<std::string()> snapshot_fn_;        // fills progress_'s snapshot at the next commit
   bool has_insert_ = false;
   sql::Stmt insert_sample_;
+  bool has_heartbeat_ = false;
+  sql::Stmt heartbeat_;
+  bool has_pending_requests_ = false;
+  sql::Stmt pending_requests_;
+  // The summary of the block the run's samples are going into.
+  SampleSummary block_;
+  int64_t block_index_ = -1;
+  bool block_dirty_ = false;  // block_ holds samples not yet written
+  SampleSummary committed_block_;
+  int64_t committed_block_index_ = -1;
+  bool has_put_block_ = false;
+  sql::Stmt put_block_;
+  bool has_load_blocks_ = false;
+  sql::Stmt load_blocks_;
+  bool has_list_runs_ = false;
+  size_t listed_runs_ = 0;  // rows of the last listing (to size the next)
+  sql::Stmt list_runs_;
+  bool has_get_run_ = false;
+  sql::Stmt get_run_;
 };
 
 }  // namespace kp

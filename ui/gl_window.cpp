@@ -57,6 +57,8 @@ void GlWindow::WaitEvents(double timeout_s) {
     glfwPollEvents();
 }
 
+void GlWindow::Wake() { glfwPostEmptyEvent(); }
+
 void GlWindow::BeginFrame() {
   ImGui_ImplOpenGL3_NewFrame();
   ImGui_ImplGlfw_NewFrame();

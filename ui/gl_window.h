@@ -29,6 +29,8 @@ class GlWindow {
   bool ShouldClose() const;
   // Waits for input at most `timeout_s` (0 = just poll).
   void WaitEvents(double timeout_s);
+  // Ends a WaitEvents early; callable from any thread (the feed's worker).
+  static void Wake();
   void BeginFrame();
   // Renders ImGui's draw data. Split so a benchmark can time the parts:
   // Render() builds the draw lists, Rasterise() draws them, Present() swaps.

@@ -269,7 +269,7 @@ void Panel::Headline(const RunData& d) {
   Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.discharged_mah()), theme_.tick_text);
   std::string remaining = "—";
   if (live) {
-    if (auto r = EstimateRemainingS(d.samples, f.discharged_since_charge_mah(), d.row.rated_mah, d.limits.cutoff_v))
+    if (auto r = EstimateRemainingS(d.tail, f.discharged_since_charge_mah(), d.row.rated_mah, d.limits.cutoff_v))
       remaining = "~" + Hms(*r);
   }
   ImGui::PushFont(fonts_.medium);
@@ -369,22 +369,31 @@ void Panel::LiveView() {
   }
   const RunData& d = it->second;
   if (d.BacklogSize() > 0) {
-    ImGui::TextColored(ImColor(theme_.caution), "loading run %lld: %zu samples shown, %zu to go…",
-                       static_cast<long long>(d.row.id), d.samples.size(), d.BacklogSize());
+    ImGui::TextColored(ImColor(theme_.caution), "loading run %lld: %zu samples shown, %zu blocks of %lld to go…",
+                       static_cast<long long>(d.row.id), d.SampleCount(), d.BacklogSize(),
+                       static_cast<long long>(kSamplesPerBlock));
   }
   Headline(d);
   ControlButtons(d);
 
-  Range data_x;
-  if (!d.t_s.empty()) {
-    data_x.Include(d.t_s.front());
-    data_x.Include(d.t_s.back());
+  Range data_x = d.DataX();
+  // Raw samples when the view shows fewer block summaries than pixels,
+  // the overview otherwise (see UseRaw).
+  const bool raw = UseRaw(d, ResolveX(live_x_, data_x), ImGui::GetContentRegionAvail().x);
+  const std::vector<double>* xs = raw ? &d.window.t_s : &d.overview.t_s;
+  const std::vector<double>* xs_end = raw ? nullptr : &d.overview.t_end_s;
+  const RunningFigures& f = d.figures;
+  std::optional<double> last_v, last_i, last_c;
+  if (f.count() > 0) {
+    last_v = f.last().voltage_v;
+    last_i = f.last().current_a;
+    last_c = f.last().temperature_c;
   }
   float avail_h = ImGui::GetContentRegionAvail().y;
   PlotSpec vspec;
   vspec.data_x = data_x;
   vspec.x_label = "time (h:mm)";
-  vspec.traces.push_back({&d.t_s, &d.voltage, theme_.voltage, "voltage", "V", 0});
+  vspec.traces.push_back({xs, raw ? &d.window.voltage : &d.overview.voltage, theme_.voltage, "voltage", "V", 0, xs_end, last_v});
   if (d.limits.cutoff_v) vspec.lines.push_back({*d.limits.cutoff_v, theme_.cutoff, "cutoff", 0, false, true});
   if (d.limits.min_voltage_v) vspec.lines.push_back({*d.limits.min_voltage_v, theme_.limit, "safety min", 0, true, true});
   if (d.limits.max_voltage_v) vspec.lines.push_back({*d.limits.max_voltage_v, theme_.limit, "safety max", 0, true, true});
@@ -395,13 +404,40 @@ void Panel::LiveView() {
   ispec.x_label = "time (h:mm)";
   ispec.y_label[0] = "A";
   ispec.y_label[1] = "°C";
-  ispec.traces.push_back({&d.t_s, &d.current, theme_.current, "current", "A", 0});
-  ispec.traces.push_back({&d.t_s, &d.temperature, theme_.temperature, "temperature", "°C", 1});
+  ispec.traces.push_back({xs, raw ? &d.window.current : &d.overview.current, theme_.current, "current", "A", 0, xs_end, last_i});
+  ispec.traces.push_back(
+      {xs, raw ? &d.window.temperature : &d.overview.temperature, theme_.temperature, "temperature", "°C", 1, xs_end, last_c});
   if (d.limits.max_temp_c) ispec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 1, true, true});
   DrawPlot("##current", ispec, live_x_, {0, avail_h * 0.28f}, theme_);
   ImGui::TextDisabled("wheel: zoom · drag: pan · double-click/Home: whole run · F: follow newest (%s)",
                       live_x_.follow ? "on" : "off");
   EventLog(d);
+}
+
+bool Panel::UseRaw(const RunData& d, Range x, float width_px) {
+  const Range data = d.DataX();
+  if (data.Empty() || d.overview.size() == 0) return false;
+  const double lo = std::max(x.lo, data.lo), hi = std::min(x.hi, data.hi);
+  IndexRange ir = VisibleIndices(d.overview.t_s, lo, hi);
+  const size_t blocks = ir.last - ir.first;
+  // Enough block summaries for every pixel column: the overview is exact to the pixel.
+  if (static_cast<float>(blocks) >= std::max(width_px, 1.0f)) return false;
+  if (d.window.Covers(lo, hi)) return true;
+  // Ask once for the raw samples of the blocks in view and as many again
+  // around them (for panning), from the last sample of the block before, so
+  // the window's charge continues the overview's.
+  const size_t pad = blocks / 2 + 1;
+  const size_t b0 = ir.first > pad ? ir.first - pad : 0;
+  const size_t b1 = std::min(d.overview.size(), ir.last + pad);
+  const int64_t first = std::max<int64_t>(0, static_cast<int64_t>(b0) * kSamplesPerBlock - 1);
+  const int64_t end = static_cast<int64_t>(b1) * kSamplesPerBlock;
+  auto key = std::make_pair(first, end);
+  auto asked = asked_windows_.find(d.row.id);
+  if (asked == asked_windows_.end() || asked->second != key) {
+    asked_windows_[d.row.id] = key;
+    feed_.FetchWindow(d.row.id, first, end);
+  }
+  return false;
 }
 
 void Panel::CompareView() {
@@ -424,13 +460,20 @@ void Panel::CompareView() {
   for (const RunData* d : runs) {
     ImU32 c = theme_.Series(k++);
     std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
-    by_q.traces.push_back({&d->charge_mah, &d->voltage, c, name, "V", 0});
-    by_t.traces.push_back({&d->t_s, &d->voltage, c, name, "V", 0});
-    if (!d->t_s.empty()) {
-      by_t.data_x.Include(d->t_s.front());
-      by_t.data_x.Include(d->t_s.back());
+    const Range whole = d->DataX();
+    const bool raw = UseRaw(*d, whole, half_w);
+    if (raw) {
+      by_q.traces.push_back({&d->window.charge_mah, &d->window.voltage, c, name, "V", 0});
+      by_t.traces.push_back({&d->window.t_s, &d->window.voltage, c, name, "V", 0});
+    } else {
+      by_q.traces.push_back({&d->overview.charge_mah, &d->overview.voltage, c, name, "V", 0});
+      by_t.traces.push_back({&d->overview.t_s, &d->overview.voltage, c, name, "V", 0, &d->overview.t_end_s});
+    }
+    if (!whole.Empty()) {
+      by_t.data_x.Include(whole.lo);
+      by_t.data_x.Include(whole.hi);
       by_q.data_x.Include(0.0);
-      by_q.data_x.Include(d->charge_mah.back());
+      by_q.data_x.Include(d->figures.charge_mah());
     }
   }
   DrawPlot("##cmp_q", by_q, cmp_charge_x_, {half_w, avail_h * 0.58f}, theme_);

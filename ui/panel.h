@@ -8,6 +8,7 @@
 
 #include <cstdint>
 #include <future>
+#include <map>
 #include <optional>
 #include <set>
 #include <string>
@@ -42,6 +43,9 @@ class Panel {
   const Theme& theme() const { return theme_; }
   const FeedState& state() const { return state_; }
   std::optional<int64_t> selected() const { return selected_; }
+  // True while something outside the data feed may change what is drawn
+  // (a plan check running in a child process).
+  bool Waiting() const { return check_job_.valid(); }
 
  private:
   void Shortcuts();
@@ -56,6 +60,9 @@ class Panel {
   void EventLog(const RunData& d);
   void ControlButtons(const RunData& d);
   void SetTheme(bool dark);
+  // True when `d`'s raw window covers `x` and the overview is coarser than
+  // `width_px` pixel columns there; asks the feed for that window otherwise.
+  bool UseRaw(const RunData& d, Range x, float width_px);
 
   RunFeed& feed_;
   PanelOptions options_;
@@ -69,6 +76,7 @@ class Panel {
   XView cmp_time_x_;
   XView cmp_charge_x_;
   PlotResult voltage_plot_;
+  std::map<int64_t, std::pair<int64_t, int64_t>> asked_windows_;  // run -> seq range last asked
   char filter_[128] = "";
   bool focus_filter_ = false;
   bool open_start_ = false;

@@ -84,23 +84,39 @@ double AxisMap::ToValue(double px) const {
 }
 
 void MinMaxPyramid::Clear() {
-  base_.clear();
+  base_min_.clear();
+  base_max_.clear();
   levels_.clear();
 }
 
-void MinMaxPyramid::Append(const float* values, size_t count) {
+void MinMaxPyramid::Truncate(size_t n) {
+  if (n >= size()) return;
+  base_min_.resize(n);
+  base_max_.resize(n);
+  Rebuild(n);
+}
+
+void MinMaxPyramid::Append(const float* values, size_t count) { AppendBands(values, values, count); }
+
+void MinMaxPyramid::AppendBands(const float* mins, const float* maxs, size_t count) {
   if (count == 0) return;
-  size_t dirty_from = base_.size();  // first index at the level below that changed
-  base_.insert(base_.end(), values, values + count);
-  // Rebuild upwards only from the block that held the old tail.
-  for (size_t l = 0;; ++l) {
-    size_t n_below = l == 0 ? base_.size() : levels_[l - 1].min.size();
+  size_t dirty_from = base_min_.size();
+  base_min_.insert(base_min_.end(), mins, mins + count);
+  base_max_.insert(base_max_.end(), maxs, maxs + count);
+  Rebuild(dirty_from);
+}
+
+void MinMaxPyramid::Rebuild(size_t dirty_from) {
+  // Recompute upwards only from the block that holds the first changed element.
+  size_t l = 0;
+  for (;; ++l) {
+    size_t n_below = l == 0 ? base_min_.size() : levels_[l - 1].min.size();
     if (n_below <= 1) break;
     size_t n = (n_below + kFanout - 1) / kFanout;
     if (levels_.size() <= l) levels_.emplace_back();
     Level& lv = levels_[l];
-    const float* bmin = l == 0 ? base_.data() : levels_[l - 1].min.data();
-    const float* bmax = l == 0 ? base_.data() : levels_[l - 1].max.data();
+    const float* bmin = l == 0 ? base_min_.data() : levels_[l - 1].min.data();
+    const float* bmax = l == 0 ? base_max_.data() : levels_[l - 1].max.data();
     lv.min.resize(n);
     lv.max.resize(n);
     size_t first_block = dirty_from / kFanout;
@@ -115,19 +131,29 @@ void MinMaxPyramid::Append(const float* values, size_t count) {
       lv.max[b] = mx;
     }
     dirty_from = first_block;
-    if (n == 1) break;
+    if (n == 1) {
+      ++l;
+      break;
+    }
   }
+  levels_.resize(l);
+}
+
+size_t MinMaxPyramid::Bytes() const {
+  size_t b = (base_min_.capacity() + base_max_.capacity()) * sizeof(float);
+  for (const Level& lv : levels_) b += (lv.min.capacity() + lv.max.capacity()) * sizeof(float);
+  return b;
 }
 
 bool MinMaxPyramid::Query(size_t begin, size_t end, float* min_out, float* max_out) const {
   end = std::min(end, size());
   if (begin >= end) return false;
-  float mn = base_[begin], mx = base_[begin];
+  float mn = base_min_[begin], mx = base_max_[begin];
   size_t lo = begin, hi = end;  // half-open range at the current level
-  // Level -1 is base_, level l >= 0 is levels_[l].
+  // Level -1 is the base, level l >= 0 is levels_[l].
   for (size_t depth = 0; lo < hi; ++depth) {
-    const float* vmin = depth == 0 ? base_.data() : levels_[depth - 1].min.data();
-    const float* vmax = depth == 0 ? base_.data() : levels_[depth - 1].max.data();
+    const float* vmin = depth == 0 ? base_min_.data() : levels_[depth - 1].min.data();
+    const float* vmax = depth == 0 ? base_max_.data() : levels_[depth - 1].max.data();
     bool top = depth == levels_.size();
     if (top) {
       for (size_t i = lo; i < hi; ++i) {

@@ -56,22 +56,33 @@ struct AxisMap {
 // Min/max over index ranges of an append-only series, answered in
 // O(kFanout · levels) from a pyramid of block minima and maxima. Appending only
 // recomputes the last block of every level (the new tail), never the whole series.
+// An element is a value (raw samples: min = max) or a band (a stored block
+// summary of many samples: its min and max).
 class MinMaxPyramid {
  public:
   static constexpr size_t kFanout = 8;
   void Clear();
   void Append(const float* values, size_t count);
-  size_t size() const { return base_.size(); }
-  float At(size_t i) const { return base_[i]; }
-  // min/max over values [begin, end); false when the range is empty.
+  void AppendBands(const float* mins, const float* maxs, size_t count);
+  // Drops the elements from `n` on (to replace a tail that grew).
+  void Truncate(size_t n);
+  size_t size() const { return base_min_.size(); }
+  // The value (the middle of a band).
+  float At(size_t i) const { return 0.5f * (base_min_[i] + base_max_[i]); }
+  float MinAt(size_t i) const { return base_min_[i]; }
+  float MaxAt(size_t i) const { return base_max_[i]; }
+  // min/max over elements [begin, end); false when the range is empty.
   bool Query(size_t begin, size_t end, float* min_out, float* max_out) const;
+  // Bytes held (capacity), for memory figures.
+  size_t Bytes() const;
 
  private:
   struct Level {
     std::vector<float> min, max;
   };
-  std::vector<float> base_;     // the raw values
-  std::vector<Level> levels_;   // levels_[l] holds blocks of kFanout^(l+1) values
+  void Rebuild(size_t dirty_from);
+  std::vector<float> base_min_, base_max_;  // the elements
+  std::vector<Level> levels_;               // levels_[l] holds blocks of kFanout^(l+1) elements
 };
 
 // One pixel column of a reduced series.

@@ -42,6 +42,17 @@ void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap&
   IndexRange ir = VisibleIndices(*t.xs, xm.value.lo, xm.value.hi);
   size_t count = ir.last - ir.first;
   if (count == 0) return;
+  if (count <= static_cast<size_t>(width) && t.xs_end != nullptr) {
+    // Few bands: a box per block from its first to its last sample time.
+    for (size_t i = ir.first; i < ir.last; ++i) {
+      float x0 = static_cast<float>(xm.ToPixel((*t.xs)[i]));
+      float x1 = std::max(x0 + 1.0f, static_cast<float>(xm.ToPixel((*t.xs_end)[i])));
+      float y_top = static_cast<float>(ym.ToPixel(t.ys->MaxAt(i))) - thick * 0.5f;
+      float y_bot = static_cast<float>(ym.ToPixel(t.ys->MinAt(i))) + thick * 0.5f;
+      dl->AddRectFilled({x0, y_top}, {x1, y_bot}, t.colour);
+    }
+    return;
+  }
   if (count <= static_cast<size_t>(width)) {
     // Few points: a real polyline, in chunks that keep 16-bit indices safe.
     constexpr size_t kChunk = 2000;
@@ -179,7 +190,10 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
   float ly = p0.y + fh * 0.3f, lx = p0.x + fh * 0.5f;
   for (const Trace& t : spec.traces) {
     std::string text = t.name;
-    if (t.ys && t.ys->size() > 0) text += fmt::format("  {:.3f} {}", t.ys->At(t.ys->size() - 1), t.unit);
+    if (t.latest)
+      text += fmt::format("  {:.3f} {}", *t.latest, t.unit);
+    else if (t.ys && t.ys->size() > 0)
+      text += fmt::format("  {:.3f} {}", t.ys->At(t.ys->size() - 1), t.unit);
     ImVec2 ts = ImGui::CalcTextSize(text.c_str());
     dl->AddRectFilled({lx - 4, ly - 2}, {lx + fh * 1.4f + ts.x + 4, ly + ts.y + 2}, (theme.plot_bg & 0x00FFFFFF) | 0xD0000000);
     dl->AddRectFilled({lx, ly + ts.y * 0.35f}, {lx + fh, ly + ts.y * 0.65f}, t.colour);

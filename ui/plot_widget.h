@@ -5,6 +5,7 @@
 // the duration of the call. UI thread only.
 #pragma once
 
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -22,6 +23,11 @@ struct Trace {
   std::string name;  // legend
   std::string unit;  // read-out
   int axis = 0;      // 0 left, 1 right
+  // Bands (one element per stored block summary): each element spans
+  // [xs[i], xs_end[i]] and its min..max; drawn as boxes when few are visible.
+  const std::vector<double>* xs_end = nullptr;
+  // The newest value for the legend (default: the last element's).
+  std::optional<double> latest;
 };
 
 struct HLine {

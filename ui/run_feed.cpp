@@ -11,16 +11,81 @@
 
 namespace kp::ui {
 
-void RunData::Append(const std::vector<Sample>& more) { Append(more.data(), more.size()); }
+void RunOverview::Put(const SampleBlock& b) {
+  const SampleSummary& s = b.summary;
+  if (s.count == 0) return;
+  if (b.index == last_index && !t_s.empty()) {
+    // The same block, grown: replace the last element.
+    const size_t keep = t_s.size() - 1;
+    t_s.resize(keep);
+    t_end_s.resize(keep);
+    charge_mah.resize(keep);
+    voltage.Truncate(keep);
+    current.Truncate(keep);
+    temperature.Truncate(keep);
+  } else {
+    done.Merge(last);
+  }
+  last = s;
+  last_index = b.index;
+  SampleSummary upto = done;
+  upto.Merge(s);
+  t_s.push_back(s.first.t_s);
+  t_end_s.push_back(s.last.t_s);
+  charge_mah.push_back(upto.net_mah);
+  const float vmin = static_cast<float>(s.min_voltage_v), vmax = static_cast<float>(s.max_voltage_v);
+  const float imin = static_cast<float>(s.min_current_a), imax = static_cast<float>(s.max_current_a);
+  const float cmin = static_cast<float>(s.min_temperature_c), cmax = static_cast<float>(s.max_temperature_c);
+  voltage.AppendBands(&vmin, &vmax, 1);
+  current.AppendBands(&imin, &imax, 1);
+  temperature.AppendBands(&cmin, &cmax, 1);
+}
+
+SampleSummary RunOverview::Total() const {
+  SampleSummary t = done;
+  t.Merge(last);
+  return t;
+}
+
+size_t RunOverview::Bytes() const {
+  return (t_s.capacity() + t_end_s.capacity() + charge_mah.capacity()) * sizeof(double) + voltage.Bytes() + current.Bytes() +
+         temperature.Bytes();
+}
+
+void RawWindow::Append(const Sample* more_data, size_t count) {
+  if (count == 0) return;
+  std::span<const Sample> more(more_data, count);
+  std::vector<float> v, i, temp;
+  v.reserve(count);
+  i.reserve(count);
+  temp.reserve(count);
+  for (const Sample& s : more) {
+    figures.Add(s);
+    t_s.push_back(s.t_s);
+    charge_mah.push_back(base_charge_mah + figures.charge_mah());
+    v.push_back(static_cast<float>(s.voltage_v));
+    i.push_back(static_cast<float>(s.current_a));
+    temp.push_back(static_cast<float>(s.temperature_c));
+  }
+  voltage.Append(v.data(), v.size());
+  current.Append(i.data(), i.size());
+  temperature.Append(temp.data(), temp.size());
+}
+
+size_t RawWindow::Bytes() const {
+  return (t_s.capacity() + charge_mah.capacity()) * sizeof(double) + voltage.Bytes() + current.Bytes() + temperature.Bytes();
+}
 
 size_t RunData::TakeBacklog(size_t budget) {
   size_t n = std::min(budget, BacklogSize());
-  Append(backlog.data() + backlog_pos, n);
+  for (size_t k = 0; k < n; ++k) overview.Put(backlog[backlog_pos + k]);
   backlog_pos += n;
   if (backlog_pos == backlog.size()) {
     backlog.clear();
+    backlog.shrink_to_fit();
     backlog_pos = 0;
   }
+  if (n > 0) figures = RunningFigures(overview.Total());
   return n;
 }
 
@@ -30,27 +95,53 @@ size_t FeedState::Backlog() const {
   return n;
 }
 
-void RunData::Append(const Sample* more_data, size_t count) {
-  if (count == 0) return;
-  std::span<const Sample> more(more_data, count);
-  // No exact reserve() on the long arrays: it would defeat geometric growth
-  // and copy the whole run on every small live append.
-  std::vector<float> v, i, temp;
-  v.reserve(count);
-  i.reserve(count);
-  temp.reserve(count);
-  for (const Sample& s : more) {
-    figures.Add(s);
-    samples.push_back(s);
-    t_s.push_back(s.t_s);
-    charge_mah.push_back(figures.charge_mah());
-    v.push_back(static_cast<float>(s.voltage_v));
-    i.push_back(static_cast<float>(s.current_a));
-    temp.push_back(static_cast<float>(s.temperature_c));
+Range RunData::DataX() const {
+  Range r;
+  if (overview.size() > 0) {
+    r.Include(overview.t_s.front());
+    r.Include(overview.t_end_s.back());
   }
-  voltage.Append(v.data(), v.size());
-  current.Append(i.data(), i.size());
-  temperature.Append(temp.data(), temp.size());
+  if (!tail.empty()) {
+    r.Include(tail.front().t_s);
+    r.Include(tail.back().t_s);
+  }
+  return r;
+}
+
+void RunData::AppendTail(int64_t first_seq, const std::vector<Sample>& more, size_t keep) {
+  if (more.empty()) return;
+  if (first_seq != tail_end_seq) tail.clear();  // not contiguous (a fresh start): keep only the new ones
+  tail.insert(tail.end(), more.begin(), more.end());
+  tail_end_seq = first_seq + static_cast<int64_t>(more.size());
+  if (tail.size() > 2 * keep) tail.erase(tail.begin(), tail.end() - static_cast<ptrdiff_t>(keep));
+  // A window that reaches the newest samples follows them (a live run seen
+  // close up), up to twice the size it was asked at; past that the overview
+  // has enough blocks to draw from.
+  // (The window may already hold some of them: it was read in its own transaction.)
+  const int64_t more_end = first_seq + static_cast<int64_t>(more.size());
+  if (window.first_seq >= 0 && window.end_seq() >= first_seq && window.end_seq() < more_end) {
+    const size_t skip = static_cast<size_t>(window.end_seq() - first_seq);
+    if (window.size() + more.size() - skip <= std::max<size_t>(4 * keep, 1 << 19))
+      window.Append(more.data() + skip, more.size() - skip);
+    else
+      window.Clear();
+  }
+}
+
+void RunData::SetWindow(int64_t first_seq, const std::vector<Sample>& samples) {
+  window.Clear();
+  if (samples.empty()) return;
+  window.first_seq = first_seq;
+  // Charge up to first_seq: the cumulative charge at the end of the block
+  // before, when the window starts on that block's last sample.
+  const int64_t block = (first_seq + 1) / kSamplesPerBlock;
+  if (first_seq > 0 && (first_seq + 1) % kSamplesPerBlock == 0 && block >= 1 && static_cast<size_t>(block - 1) < overview.size())
+    window.base_charge_mah = overview.charge_mah[static_cast<size_t>(block - 1)];
+  window.Append(samples.data(), samples.size());
+}
+
+size_t RunData::Bytes() const {
+  return overview.Bytes() + window.Bytes() + tail.capacity() * sizeof(Sample) + backlog.capacity() * sizeof(SampleBlock);
 }
 
 void RunData::Clear() {
@@ -84,27 +175,40 @@ void RunFeed::Request(int64_t run_id, const std::string& action) {
   wake_ = true;
 }
 
-void RunFeed::Drain(FeedState& state) {
+void RunFeed::FetchWindow(int64_t run_id, int64_t first_seq, int64_t end_seq) {
+  std::lock_guard<std::mutex> lock(mu_);
+  window_asks_[run_id] = {first_seq, end_seq};
+  wake_ = true;
+}
+
+bool RunFeed::Drain(FeedState& state) {
   std::map<int64_t, Pending> pending;
   std::vector<std::string> notes;
   std::set<int64_t> watch;
+  bool news = false;
   {
     std::lock_guard<std::mutex> lock(mu_);
     pending.swap(pending_);
+    if (!pending.empty()) wake_ = true;  // the worker may read on (see still_pending in Poll)
     notes.swap(notes_);
     if (runs_fresh_) {
       state.runs = runs_;
       runs_fresh_ = false;
+      news = true;
     }
+    news = news || news_ || state.connected != connected_;
+    news_ = false;
     state.connected = connected_;
     watch = watch_;
   }
   state.db_path = options_.db_path;
+  news = news || !notes.empty();
   for (auto& n : notes) state.notes.push_back(std::move(n));
   for (auto it = state.watched.begin(); it != state.watched.end();)
     it = watch.count(it->first) ? std::next(it) : state.watched.erase(it);
   for (auto& [id, p] : pending) {
     if (!watch.count(id)) continue;
+    news = true;
     RunData& d = state.watched[id];
     if (p.reset) d.Clear();
     if (p.has_meta) {
@@ -114,10 +218,17 @@ void RunFeed::Drain(FeedState& state) {
       d.requests = std::move(p.requests);
       d.limits = LimitsForRun(d.row.procedure_text, d.row.procedure_name, d.steps);
     }
-    d.backlog.insert(d.backlog.end(), p.samples.begin(), p.samples.end());
+    d.backlog.insert(d.backlog.end(), p.blocks.begin(), p.blocks.end());
+    if (p.has_window) d.SetWindow(p.window_first_seq, p.window);
+    d.AppendTail(p.tail_first_seq, p.tail, options_.tail_samples);
   }
   size_t budget = options_.max_append_per_frame;
-  for (auto& [id, d] : state.watched) budget -= d.TakeBacklog(budget);
+  for (auto& [id, d] : state.watched) {
+    size_t took = d.TakeBacklog(budget);
+    budget -= took;
+    news = news || took > 0;
+  }
+  return news;
 }
 
 bool RunFeed::WaitCaughtUp(double timeout_s) {
@@ -137,6 +248,7 @@ void RunFeed::Loop() {
       if (stop_) return;
     }
     wake_ = false;
+    bool news = false;
     if (!store) {
       auto opened = cli::OpenExistingDb(options_.db_path, clock);
       std::lock_guard<std::mutex> lock(mu_);
@@ -147,62 +259,77 @@ void RunFeed::Loop() {
         connected_ = false;
         notes_.push_back(fmt::format("cannot open {}: {}", options_.db_path, opened.status().message()));
       }
+      news = true;
     }
     bool caught_up = false;
     bool read_ok = false;
+    bool throttled = false;
     if (store) {
-      Status st = Poll(*store, &caught_up);
+      Status st = Poll(*store, &caught_up, &news, &throttled);
       read_ok = st.ok();
       if (!st.ok()) {
         std::lock_guard<std::mutex> lock(mu_);
         notes_.push_back("read failed: " + st.message());
         caught_up = false;
+        news = true;
       }
     }
     {
       std::lock_guard<std::mutex> lock(mu_);
       ++polls_done_;
       if (caught_up) caught_up_poll_ = polls_done_;
+      if (news) news_ = true;
       if (stop_) return;
     }
     cv_.notify_all();
-    if (!caught_up && read_ok) continue;  // more to read: go on at once
+    if (news && options_.on_news) options_.on_news();
+    if (!caught_up && read_ok && !throttled) continue;  // more to read: go on at once (Drain wakes a throttled worker)
     clock.SleepUntil(clock.Now() + Seconds(options_.poll_s), &wake_);
   }
 }
 
-Status RunFeed::ReadSince(Store& store, int64_t run_id, Cursor& cursor, std::vector<Sample>* keep, bool* more) {
-  KP_ASSIGN_OR_RETURN(auto q, store.db().Prepare(
-                                  "SELECT seq, t_s, voltage_v, current_a, temperature_c, step FROM samples"
-                                  " WHERE run_id=?1 AND seq>?2 ORDER BY seq LIMIT ?3"));
-  q.Bind(1, run_id).Bind(2, cursor.seq).Bind(3, static_cast<int64_t>(options_.max_rows_per_poll));
-  size_t n = 0;
-  for (;;) {
-    KP_ASSIGN_OR_RETURN(bool row, q.Step());
-    if (!row) break;
-    Sample s{q.Real(1), q.Real(2), q.Real(3), q.Real(4), static_cast<int>(q.Int(5))};
-    cursor.seq = q.Int(0);
-    cursor.figures.Add(s);
-    if (keep) keep->push_back(s);
-    ++n;
+Status RunFeed::ReadBlocks(Store& store, const RunRow& run, BlockCursor& cursor, std::vector<SampleBlock>* keep, bool* more) {
+  if (cursor.count_seen == run.sample_count) return Status::Ok();  // nothing committed since
+  const int64_t limit = static_cast<int64_t>(std::max<size_t>(options_.max_rows_per_poll, 2));
+  KP_ASSIGN_OR_RETURN(auto blocks, store.LoadBlocks(run.id, cursor.next_block, limit));
+  for (const SampleBlock& b : blocks) {
+    if (b.index != cursor.next_block) {
+      cursor.done.Merge(cursor.last);
+      cursor.next_block = b.index;
+    }
+    cursor.last = b.summary;
   }
-  if (n >= options_.max_rows_per_poll) *more = true;
+  if (keep) keep->insert(keep->end(), blocks.begin(), blocks.end());
+  if (static_cast<int64_t>(blocks.size()) >= limit) {
+    *more = true;  // the rest next poll (the last block read is read again)
+  } else {
+    cursor.count_seen = run.sample_count;
+  }
   return Status::Ok();
 }
 
-Status RunFeed::Poll(Store& store, bool* caught_up) {
+Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled) {
   std::set<int64_t> watch;
   std::vector<std::pair<int64_t, std::string>> requests;
+  std::map<int64_t, std::pair<int64_t, int64_t>> window_asks;
+  // Watched runs with max_pending_blocks summaries waiting for the UI: read
+  // no more of them until they are taken (bounds the memory a slow UI can
+  // make the worker hold).
+  std::set<int64_t> still_pending;
   {
     std::lock_guard<std::mutex> lock(mu_);
     watch = watch_;
     requests.swap(requests_);
+    window_asks.swap(window_asks_);
+    for (const auto& [id, p] : pending_)
+      if (p.blocks.size() >= options_.max_pending_blocks) still_pending.insert(id);
   }
   for (auto& [run_id, action] : requests) {
     auto r = store.AddRequest(run_id, action, "panel");
     std::lock_guard<std::mutex> lock(mu_);
     notes_.push_back(r.ok() ? fmt::format("{} requested for run {} (request {})", action, run_id, *r)
                             : fmt::format("{} request for run {} failed: {}", action, run_id, r.status().message()));
+    *news = true;
   }
 
   // A runner that died while the panel watched: mark its run interrupted
@@ -218,33 +345,67 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
     if (found == runs.end()) continue;
     Pending& p = out[id];
     if (!watch_cursors_.count(id)) p.reset = true;
-    Cursor& c = watch_cursors_[id];
-    KP_RETURN_IF_ERROR(ReadSince(store, id, c, &p.samples, &more));
-    p.has_meta = true;
+    WatchCursor& c = watch_cursors_[id];
+    // Block summaries: at most one poll's worth waiting for the UI at a time.
+    if (still_pending.count(id)) {
+      *throttled = true;  // more to read once the UI has taken what waits
+      more = true;
+    } else {
+      KP_RETURN_IF_ERROR(ReadBlocks(store, *found, c.blocks, &p.blocks, &more));
+    }
+    // The newest raw samples.
+    const int64_t keep = static_cast<int64_t>(options_.tail_samples);
+    if (c.tail_seq == -2) c.tail_seq = std::max<int64_t>(-1, found->sample_count - keep - 1);
+    if (c.tail_seq + 1 < found->sample_count) {
+      p.tail_first_seq = c.tail_seq + 1;
+      KP_ASSIGN_OR_RETURN(p.tail, store.LoadSampleRange(id, c.tail_seq + 1, c.tail_seq + 1 + keep));
+      c.tail_seq += static_cast<int64_t>(p.tail.size());
+      if (c.tail_seq + 1 < found->sample_count) more = true;
+    }
+    if (auto ask = window_asks.find(id); ask != window_asks.end()) {
+      p.has_window = true;
+      p.window_first_seq = ask->second.first;
+      KP_ASSIGN_OR_RETURN(p.window, store.LoadSampleRange(id, ask->second.first, ask->second.second));
+    }
     p.row = *found;
     KP_ASSIGN_OR_RETURN(p.events, store.LoadEvents(id));
     KP_ASSIGN_OR_RETURN(p.steps, store.LoadSteps(id));
     if (found->outcome == Outcome::kRunning) {
       KP_ASSIGN_OR_RETURN(p.requests, store.PendingRequests(id));
     }
+    // Metadata is handed over when it changed (or with the first read).
+    size_t sig = std::hash<std::string>{}(fmt::format("{}|{}|{}|{}|{}|{}|{}", OutcomeName(found->outcome), found->reason, found->ended_at,
+                                                      p.events.size(), p.steps.size(), p.requests.size(),
+                                                      p.steps.empty() ? 0.0 : p.steps.back().ended_s.value_or(-1.0)));
+    p.has_meta = p.reset || sig != c.meta_signature;
+    c.meta_signature = sig;
+    if (!p.has_meta && p.blocks.empty() && p.tail.empty() && !p.has_window) out.erase(id);
   }
-
 
   std::vector<RunListRow> rows;
+  std::vector<std::tuple<int64_t, int, int64_t, int64_t, std::string>> signature;
   for (const RunRow& run : runs) {
-    Cursor& c = list_cursors_[run.id];
-    // A watched run was just read from its start: its figures serve the list too.
-    if (auto w = watch_cursors_.find(run.id); w != watch_cursors_.end() && w->second.seq > c.seq) c = w->second;
-    // Finished runs are read once; running ones follow their tail.
-    KP_RETURN_IF_ERROR(ReadSince(store, run.id, c, nullptr, &more));
-    rows.push_back(MakeRunListRow(run, c.figures));
+    BlockCursor& c = list_cursors_[run.id];
+    // A watched run was just read: its summaries serve the list too.
+    if (auto w = watch_cursors_.find(run.id);
+        w != watch_cursors_.end() && w->second.blocks.count_seen == run.sample_count && c.count_seen != run.sample_count)
+      c = w->second.blocks;
+    KP_RETURN_IF_ERROR(ReadBlocks(store, run, c, nullptr, &more));
+    SampleSummary total = c.done;
+    total.Merge(c.last);
+    rows.push_back(MakeRunListRow(run, RunningFigures(total)));
+    signature.emplace_back(run.id, static_cast<int>(run.outcome), run.sample_count, total.count, run.reason);
   }
   std::sort(rows.begin(), rows.end(), [](const RunListRow& a, const RunListRow& b) { return a.id > b.id; });
-
+  const bool runs_changed = signature != runs_signature_;
+  runs_signature_ = std::move(signature);
 
   std::lock_guard<std::mutex> lock(mu_);
-  runs_ = std::move(rows);
-  runs_fresh_ = true;
+  if (runs_changed) {
+    runs_ = std::move(rows);
+    runs_fresh_ = true;
+  }
+  if (runs_changed || !out.empty()) *news = true;
   if (watch != watch_) more = true;  // the watch set changed meanwhile
   for (auto& [id, p] : out) {
     Pending& dst = pending_[id];
@@ -252,12 +413,23 @@ Status RunFeed::Poll(Store& store, bool* caught_up) {
       dst = std::move(p);
       continue;
     }
-    dst.samples.insert(dst.samples.end(), p.samples.begin(), p.samples.end());
-    dst.has_meta = true;
-    dst.row = std::move(p.row);
-    dst.events = std::move(p.events);
-    dst.steps = std::move(p.steps);
-    dst.requests = std::move(p.requests);
+    dst.blocks.insert(dst.blocks.end(), p.blocks.begin(), p.blocks.end());
+    if (!p.tail.empty()) {
+      if (dst.tail.empty()) dst.tail_first_seq = p.tail_first_seq;
+      dst.tail.insert(dst.tail.end(), p.tail.begin(), p.tail.end());
+    }
+    if (p.has_window) {
+      dst.has_window = true;
+      dst.window_first_seq = p.window_first_seq;
+      dst.window = std::move(p.window);
+    }
+    if (p.has_meta) {
+      dst.has_meta = true;
+      dst.row = std::move(p.row);
+      dst.events = std::move(p.events);
+      dst.steps = std::move(p.steps);
+      dst.requests = std::move(p.requests);
+    }
   }
   *caught_up = !more;
   return Status::Ok();

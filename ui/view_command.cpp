@@ -103,6 +103,7 @@ int RunView(const ViewOptions& o) {
 
   RunFeed::Options fo;
   fo.db_path = o.db;
+  if (!headless) fo.on_news = [] { GlWindow::Wake(); };  // new data ends the idle wait
   RunFeed feed(fo);
   Panel panel(feed, po, fonts);
 
@@ -123,6 +124,10 @@ int RunView(const ViewOptions& o) {
       win.Present();
       if (panel.state().Backlog() == 0) break;
     }
+    // The plots may have asked for the raw samples of what they show: take them in.
+    if (!feed.WaitCaughtUp(60.0)) return cli::Fail(TimeoutError("the database took too long to read"));
+    frame();
+    win.Present();
     for (int i = 0; i < o.frames; ++i) {
       frame();
       if (i + 1 < o.frames) win.Present();
@@ -139,10 +144,21 @@ int RunView(const ViewOptions& o) {
     std::cout << "wrote " << o.screenshot << " (" << w << "x" << h << ")\n";
     return cli::kExitOk;
   }
+  // Frames are drawn on input and when the feed brings something new (it
+  // wakes the wait), plus a few after each so ImGui settles hover and click
+  // states; otherwise the loop sleeps: an idle panel costs no redraws, so the
+  // software renderer stays off an idle bench PC. While a plan check runs in
+  // a child process the loop looks every 0.2 s for its result.
+  int settle_frames = 3;
   while (!win.ShouldClose()) {
-    // Redraws on input at once, otherwise 4 times a second (the data polls run at
-    // 4 Hz): the software renderer's cost stays off an idle bench PC.
-    win.WaitEvents(panel.state().Backlog() > 0 ? 0.0 : 0.25);  // a long run loads without waiting
+    const bool busy = panel.state().Backlog() > 0;  // a long run loads without waiting
+    if (busy || settle_frames > 0) {
+      win.WaitEvents(0.0);
+      if (!busy) --settle_frames;
+    } else {
+      win.WaitEvents(panel.Waiting() ? 0.2 : 30.0);
+      settle_frames = 3;
+    }
     frame();
     win.Present();
   }

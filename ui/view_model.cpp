@@ -14,34 +14,9 @@
 
 namespace kp::ui {
 
-void RunningFigures::Add(const Sample& s) {
-  if (count_ == 0) {
-    min_voltage_v_ = s.voltage_v;
-    max_temperature_c_ = s.temperature_c;
-    first_t_s_ = s.t_s;
-  } else {
-    double dt_h = (s.t_s - last_.t_s) / 3600.0;
-    double mean_a = 0.5 * (s.current_a + last_.current_a);
-    charge_mah_ += mean_a * dt_h * 1000.0;
-    discharged_mah_ += std::max(0.0, mean_a) * dt_h * 1000.0;
-    charged_mah_ += std::max(0.0, -mean_a) * dt_h * 1000.0;
-    // Rest readings (|I| under 1 mA) neither count as charging nor reset it.
-    if (mean_a < -0.001) since_charge_mah_ = 0.0;
-    else since_charge_mah_ += std::max(0.0, mean_a) * dt_h * 1000.0;
-    const double mean_w = 0.5 * (s.voltage_v * s.current_a + last_.voltage_v * last_.current_a);
-    energy_wh_ += mean_w * dt_h;
-    discharged_wh_ += std::max(0.0, mean_w) * dt_h;
-    voltage_time_vs_ += 0.5 * (s.voltage_v + last_.voltage_v) * (s.t_s - last_.t_s);
-    min_voltage_v_ = std::min(min_voltage_v_, s.voltage_v);
-    max_temperature_c_ = std::max(max_temperature_c_, s.temperature_c);
-  }
-  last_ = s;
-  ++count_;
-}
-
 double RunningFigures::mean_voltage_v() const {
-  double span = last_.t_s - first_t_s_;
-  return span > 0.0 ? voltage_time_vs_ / span : last_.voltage_v;
+  double span = s_.last.t_s - s_.first.t_s;
+  return span > 0.0 ? s_.voltage_time_vs / span : s_.last.voltage_v;
 }
 
 namespace {

@@ -10,49 +10,43 @@
 #include <vector>
 
 #include "analysis/sample.h"
+#include "rig/sample_summary.h"
 #include "rig/store.h"
 
 namespace kp::ui {
 
 // Delivered charge and energy integrated as samples arrive (trapezoidal over
 // the actual sample times, the same rule as analysis/metrics.h), so a live run
-// never needs a full recomputation.
+// never needs a full recomputation. Held as a SampleSummary, so the figures
+// of a run can also be put together from its stored block summaries.
 class RunningFigures {
  public:
-  void Add(const Sample& s);
+  RunningFigures() = default;
+  explicit RunningFigures(const SampleSummary& s) : s_(s) {}
+  void Add(const Sample& s) { s_.Add(s); }
   void Reset() { *this = RunningFigures{}; }
-  double charge_mah() const { return charge_mah_; }  // net: charging counts negative
+  double charge_mah() const { return s_.net_mah; }  // net: charging counts negative
   // Charge delivered by the cell only (intervals where it was discharging):
   // what the runs list shows, so a charge-then-discharge run reads right.
-  double discharged_mah() const { return discharged_mah_; }
-  double energy_wh() const { return energy_wh_; }  // net, like charge_mah()
-  double discharged_wh() const { return discharged_wh_; }  // energy the cell gave
-  double charged_mah() const { return charged_mah_; }      // charge put into the cell
+  double discharged_mah() const { return s_.discharged_mah; }
+  double energy_wh() const { return s_.net_wh; }  // net, like charge_mah()
+  double discharged_wh() const { return s_.discharged_wh; }  // energy the cell gave
+  double charged_mah() const { return s_.charged_mah; }      // charge put into the cell
   // Delivered since the cell was last charged (the whole run when it never
   // was): what the remaining-time estimate counts against the rating.
-  double discharged_since_charge_mah() const { return since_charge_mah_; }
-  double min_voltage_v() const { return min_voltage_v_; }
+  double discharged_since_charge_mah() const { return s_.since_charge_mah; }
+  double min_voltage_v() const { return s_.min_voltage_v; }
   // Time-weighted mean voltage (the last voltage while no time has passed).
   double mean_voltage_v() const;
-  double max_temperature_c() const { return max_temperature_c_; }
-  size_t count() const { return count_; }
+  double max_temperature_c() const { return s_.max_temperature_c; }
+  size_t count() const { return static_cast<size_t>(s_.count); }
   // Last sample added (valid when count() > 0).
-  const Sample& last() const { return last_; }
-  double first_t_s() const { return first_t_s_; }
+  const Sample& last() const { return s_.last; }
+  double first_t_s() const { return s_.first.t_s; }
+  const SampleSummary& summary() const { return s_; }
 
  private:
-  double charge_mah_ = 0.0;
-  double discharged_mah_ = 0.0;
-  double energy_wh_ = 0.0;
-  double discharged_wh_ = 0.0;
-  double charged_mah_ = 0.0;
-  double since_charge_mah_ = 0.0;
-  double voltage_time_vs_ = 0.0;  // ∫ V dt
-  double min_voltage_v_ = 0.0;
-  double max_temperature_c_ = 0.0;
-  double first_t_s_ = 0.0;
-  size_t count_ = 0;
-  Sample last_;
+  SampleSummary s_;
 };
 
 // Limits the plots draw, read from the procedure text stored with the run.

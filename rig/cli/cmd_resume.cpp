@@ -54,7 +54,7 @@ int RunResume(const ResumeOptions& opt) {
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());
   std::cout << SafetyCautions() << "\n" << fmt::format("Resuming run {} ({}): {}\n", opt.run_id, plan->name, point->checks);
-  ControlChannel control(**store);
+  ControlChannel control(**store, wall);
   RunOptions options;
   options.stop = InstallStopSignals();
   options.control = &control;

@@ -89,7 +89,7 @@ int RunRun(const RunCmdOptions& opt) {
   // instruments' lock.
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
   if (!lock.ok()) return Fail(lock.status());
-  ControlChannel control(**store);
+  ControlChannel control(**store, wall);
   RunController controller(**store, (*rig)->clock(), roles);
   RunOptions run;
   run.control = &control;

@@ -1,6 +1,7 @@
 // Simulator speed: the cell model alone, and whole discharges through the full
 // instrument stack (SimRig: SCPI sessions over in-process transports, role
-// drivers, RunController, Store in a temporary directory) in virtual time.
+// drivers, RunController with the control channel, Store in a temporary
+// directory) in virtual time.
 // The counter sim_per_wall is simulated seconds per wall second (target for
 // the 20-hour run at 1 s sampling: at least 100,000).
 #include <benchmark/benchmark.h>
@@ -8,6 +9,7 @@
 #include <filesystem>
 
 #include "drivers/sim/cell_file.h"
+#include "rig/control_channel.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "rig/store.h"
@@ -58,7 +60,9 @@ void FullStackDischarge(benchmark::State& state, double c_rate) {
     kp::VirtualClock clock;
     kp::SimRig rig(clock, kp::sim::DemoLiIonCell(2.56));
     kp::RunController rc(**store, clock, rig.roles());
+    kp::ControlChannel control(**store, wall);  // polled as `kneepoint run` polls it
     kp::RunOptions o;
+    o.control = &control;
     o.on_sample = [&](const kp::Reading&, double) { ++samples; };
     auto r = rc.Execute(plan, o);
     if (!r.ok() || r->outcome != kp::Outcome::kCompleted) {

@@ -43,11 +43,19 @@ kp::Sample Synthetic(size_t k, size_t n) {
   return {static_cast<double>(k), 4.15 - 0.9 * x - 0.4 * std::pow(x, 12) + noise, 0.5 + noise, 24.0 + 3.0 * x + noise * 50, 0};
 }
 
+// The overview of an n-sample synthetic run, as the feed builds it from the
+// stored block summaries.
 void FillRun(kp::ui::RunData& d, size_t n) {
-  std::vector<kp::Sample> s;
-  s.reserve(n);
-  for (size_t k = 0; k < n; ++k) s.push_back(Synthetic(k, n));
-  d.Append(s);
+  kp::SampleSummary block;
+  int64_t index = 0;
+  for (size_t k = 0; k < n; ++k) {
+    block.Add(Synthetic(k, n));
+    if (block.count == kp::kSamplesPerBlock || k + 1 == n) {
+      d.overview.Put({index++, block});
+      block = kp::SampleSummary{};
+    }
+  }
+  d.figures = kp::ui::RunningFigures(d.overview.Total());
   d.limits.cutoff_v = 2.75;
   d.limits.max_temp_c = 60.0;
 }
@@ -62,14 +70,11 @@ void DrawFrame(kp::ui::RunData& d, kp::ui::XView& view, const kp::ui::Theme& the
   ImGui::SetNextWindowPos(vp->WorkPos);
   ImGui::SetNextWindowSize(vp->WorkSize);
   ImGui::Begin("bench", nullptr, ImGuiWindowFlags_NoDecoration);
-  kp::ui::Range data_x;
-  if (!d.t_s.empty()) {
-    data_x.Include(d.t_s.front());
-    data_x.Include(d.t_s.back());
-  }
+  kp::ui::Range data_x = d.DataX();
+  const auto& o = d.overview;
   kp::ui::PlotSpec v;
   v.data_x = data_x;
-  v.traces.push_back({&d.t_s, &d.voltage, theme.voltage, "voltage", "V", 0});
+  v.traces.push_back({&o.t_s, &o.voltage, theme.voltage, "voltage", "V", 0, &o.t_end_s});
   v.lines.push_back({2.75, theme.cutoff, "cutoff", 0, false, true});
   float h = ImGui::GetContentRegionAvail().y;
   kp::ui::DrawPlot("##v", v, view, {0, h * 0.6f}, theme);
@@ -77,8 +82,8 @@ void DrawFrame(kp::ui::RunData& d, kp::ui::XView& view, const kp::ui::Theme& the
   c.data_x = data_x;
   c.y_label[0] = "A";
   c.y_label[1] = "°C";
-  c.traces.push_back({&d.t_s, &d.current, theme.current, "current", "A", 0});
-  c.traces.push_back({&d.t_s, &d.temperature, theme.temperature, "temperature", "°C", 1});
+  c.traces.push_back({&o.t_s, &o.current, theme.current, "current", "A", 0, &o.t_end_s});
+  c.traces.push_back({&o.t_s, &o.temperature, theme.temperature, "temperature", "°C", 1, &o.t_end_s});
   kp::ui::DrawPlot("##c", c, view, {0, 0}, theme);
   ImGui::End();
   g_window->Render();
@@ -103,12 +108,12 @@ void BM_LiveViewFrame(benchmark::State& state) {
   state.counters["build_ms"] = build / static_cast<double>(state.iterations());
   state.counters["build_cpu_ms"] = g_build_cpu_ms / static_cast<double>(state.iterations());
   state.counters["raster_ms"] = raster / static_cast<double>(state.iterations());
-  state.counters["samples"] = static_cast<double>(d.samples.size());
+  state.counters["samples"] = static_cast<double>(d.SampleCount());
 }
-BENCHMARK(BM_LiveViewFrame)->Arg(0)->Arg(2000000)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2.0);
+BENCHMARK(BM_LiveViewFrame)->Arg(0)->Arg(2000000)->Arg(10000000)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2.0);
 
-// While live: each frame appends the new samples (two per frame at 1 Hz and
-// 2 Hz polling) and redraws; the pyramid recomputes only its tail.
+// While live: each frame the last block summary grows by two samples (1 Hz
+// sampling, 2 Hz polling) and is replaced; the pyramid recomputes only its tail.
 void BM_LiveViewFrameGrowing(benchmark::State& state) {
   kp::ui::RunData d;
   size_t n = static_cast<size_t>(state.range(0));
@@ -118,9 +123,17 @@ void BM_LiveViewFrameGrowing(benchmark::State& state) {
   double build = 0, raster = 0;
   g_build_cpu_ms = 0.0;
   size_t k = n;
+  kp::SampleSummary last = d.overview.last;
+  int64_t index = d.overview.last_index;
   for (auto _ : state) {
-    d.Append({Synthetic(k, n), Synthetic(k + 1, n)});
-    k += 2;
+    for (size_t j = 0; j < 2; ++j, ++k) {
+      if (last.count == kp::kSamplesPerBlock) {
+        last = kp::SampleSummary{};
+        ++index;
+      }
+      last.Add(Synthetic(k, n));
+    }
+    d.overview.Put({index, last});
     DrawFrame(d, view, theme, &build, &raster);
   }
   state.counters["build_ms"] = build / static_cast<double>(state.iterations());
@@ -129,29 +142,30 @@ void BM_LiveViewFrameGrowing(benchmark::State& state) {
 }
 BENCHMARK(BM_LiveViewFrameGrowing)->Arg(2000000)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2.0);
 
-// The reduction alone, no window: 2M samples to 1,500 pixel columns.
+// The reduction alone, no window: 2M raw samples to 1,500 pixel columns.
 void BM_ReduceColumns(benchmark::State& state) {
-  kp::ui::RunData d;
-  FillRun(d, static_cast<size_t>(state.range(0)));
+  kp::ui::RawWindow w;
+  size_t n = static_cast<size_t>(state.range(0));
+  std::vector<kp::Sample> s;
+  for (size_t k = 0; k < n; ++k) s.push_back(Synthetic(k, n));
+  w.Append(s.data(), s.size());
   for (auto _ : state) {
-    auto cols = kp::ui::ReduceColumns(d.t_s, d.voltage, 0.0, d.t_s.back(), 1500);
+    auto cols = kp::ui::ReduceColumns(w.t_s, w.voltage, 0.0, w.t_s.back(), 1500);
     benchmark::DoNotOptimize(cols.data());
   }
 }
 BENCHMARK(BM_ReduceColumns)->Arg(2000000)->Unit(benchmark::kMicrosecond);
 
-// Appending a 2M-sample run in one go (the first load of a finished run).
-void BM_AppendWholeRun(benchmark::State& state) {
-  std::vector<kp::Sample> s;
+// Taking in the overview of a 2M-sample run in one go (the first load of a finished run).
+void BM_OverviewWholeRun(benchmark::State& state) {
   size_t n = static_cast<size_t>(state.range(0));
-  for (size_t k = 0; k < n; ++k) s.push_back(Synthetic(k, n));
   for (auto _ : state) {
     kp::ui::RunData d;
-    d.Append(s);
-    benchmark::DoNotOptimize(d.voltage.size());
+    FillRun(d, n);
+    benchmark::DoNotOptimize(d.overview.size());
   }
 }
-BENCHMARK(BM_AppendWholeRun)->Arg(2000000)->Unit(benchmark::kMillisecond);
+BENCHMARK(BM_OverviewWholeRun)->Arg(2000000)->Unit(benchmark::kMillisecond);
 
 }  // namespace
 

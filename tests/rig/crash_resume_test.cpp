@@ -289,7 +289,7 @@ TEST(CrossProcessControl, AbortFromAnotherProcessStopsTheRunner) {
     if (!store.ok()) _exit(10);
     SteadyClock clock(20.0);
     SimRig rig(clock, sim::DemoLiIonCell(kCapacityAh));
-    ControlChannel channel(**store);
+    ControlChannel channel(**store, wall);
     RunController rc(**store, clock, rig.roles());
     RunOptions o;
     o.control = &channel;

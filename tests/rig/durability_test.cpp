@@ -154,7 +154,7 @@ Plan TimedPlan(double seconds) {
 
 TEST(Control, PauseHoldsTheLoadOffAndStopsTheStepClock) {
   Bench b;
-  ControlChannel channel(*b.store);
+  ControlChannel channel(*b.store, b.clock);  // polls once per simulated 0.25 s: every 1 s sample
   RunController rc(*b.store, b.clock, b.rig->roles());
   RunOptions o;
   o.control = &channel;
@@ -199,7 +199,7 @@ TEST(Control, PauseHoldsTheLoadOffAndStopsTheStepClock) {
 
 TEST(Control, AbortActsWithinOneSamplePeriodAndNamesWhoAsked) {
   Bench b;
-  ControlChannel channel(*b.store);
+  ControlChannel channel(*b.store, b.clock);  // polls once per simulated 0.25 s: every 1 s sample
   RunController rc(*b.store, b.clock, b.rig->roles());
   RunOptions o;
   o.control = &channel;

@@ -98,7 +98,13 @@ TEST_F(HeadlessPanel, LiveViewPlotsTheWholeRun) {
   EXPECT_EQ(panel.state().runs[0].state, "aborted");
   auto it = panel.state().watched.find(run);
   ASSERT_NE(it, panel.state().watched.end());
-  EXPECT_EQ(it->second.samples.size(), static_cast<size_t>(n));
+  EXPECT_EQ(it->second.SampleCount(), static_cast<size_t>(n));
+  // Fewer block summaries than pixel columns: the panel asked for the raw
+  // samples and draws them once they are in.
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  DrawFrame(panel);
+  EXPECT_EQ(it->second.window.size(), static_cast<size_t>(n));
+  EXPECT_EQ(it->second.window.first_seq, 0);
 
   const PlotResult& p = panel.voltage_plot();
   EXPECT_GT(p.rect_max.x - p.rect_min.x, 200.0f);
@@ -130,8 +136,8 @@ TEST_F(HeadlessPanel, CompareTabDrawsTwoRuns) {
   EXPECT_EQ(panel.state().runs.size(), 2u);
   ASSERT_EQ(panel.state().watched.count(a), 1u);
   ASSERT_EQ(panel.state().watched.count(b), 1u);
-  EXPECT_EQ(panel.state().watched.at(a).samples.size(), 600u);
-  EXPECT_EQ(panel.state().watched.at(b).samples.size(), 900u);
+  EXPECT_EQ(panel.state().watched.at(a).SampleCount(), 600u);
+  EXPECT_EQ(panel.state().watched.at(b).SampleCount(), 900u);
 }
 
 }  // namespace

@@ -143,3 +143,53 @@ TEST(VisibleIndices, WidensByOne) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+// Bands (a block summary's min and max) and a tail replaced as it grows, as
+// the panel's overview uses them, against brute force.
+TEST(MinMaxPyramid, BandsAndReplacedTailMatchBruteForce) {
+  std::mt19937 rng(7);
+  std::uniform_real_distribution<float> u(-5.0f, 5.0f);
+  std::vector<float> lo, hi;
+  MinMaxPyramid p;
+  for (int round = 0; round < 300; ++round) {
+    // Replace the last element now and then, append 1..20 otherwise.
+    if (!lo.empty() && round % 3 == 0) {
+      lo.pop_back();
+      hi.pop_back();
+      p.Truncate(lo.size());
+    }
+    int add = 1 + round % 20;
+    std::vector<float> a, b;
+    for (int k = 0; k < add; ++k) {
+      float x = u(rng), y = u(rng);
+      a.push_back(std::min(x, y));
+      b.push_back(std::max(x, y));
+    }
+    p.AppendBands(a.data(), b.data(), a.size());
+    lo.insert(lo.end(), a.begin(), a.end());
+    hi.insert(hi.end(), b.begin(), b.end());
+    ASSERT_EQ(p.size(), lo.size());
+    for (int q = 0; q < 20; ++q) {
+      size_t i = rng() % lo.size(), j = i + 1 + rng() % (lo.size() - i);
+      float mn = 1e9f, mx = -1e9f;
+      for (size_t k = i; k < j; ++k) {
+        mn = std::min(mn, lo[k]);
+        mx = std::max(mx, hi[k]);
+      }
+      float qmn = 0, qmx = 0;
+      ASSERT_TRUE(p.Query(i, j, &qmn, &qmx));
+      ASSERT_EQ(qmn, mn) << round << " [" << i << "," << j << ")";
+      ASSERT_EQ(qmx, mx) << round << " [" << i << "," << j << ")";
+    }
+  }
+  p.Truncate(0);
+  EXPECT_EQ(p.size(), 0u);
+  float a = 0, b = 0;
+  EXPECT_FALSE(p.Query(0, 1, &a, &b));
+}
+
+}  // namespace
+}  // namespace kp::ui

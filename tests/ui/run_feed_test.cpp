@@ -41,7 +41,7 @@ TEST(RunFeed, FollowsALiveRunIncrementally) {
 
   RunFeed::Options o;
   o.db_path = dir.File("feed.db");
-  o.max_rows_per_poll = 700;  // several polls per batch: exercises the cursor
+  o.max_rows_per_poll = 7;  // block summaries per poll: several polls per batch exercise the cursor
   RunFeed feed(o);
   feed.Watch({*run});
   ASSERT_TRUE(feed.WaitCaughtUp(30.0));
@@ -50,7 +50,7 @@ TEST(RunFeed, FollowsALiveRunIncrementally) {
   ASSERT_EQ(state.runs.size(), 1u);
   EXPECT_EQ(state.runs[0].state, "running");
   ASSERT_EQ(state.watched.count(*run), 1u);
-  EXPECT_EQ(state.watched[*run].samples.size(), 3000u);
+  EXPECT_EQ(state.watched[*run].SampleCount(), 3000u);
   ASSERT_TRUE(state.watched[*run].limits.cutoff_v);
   EXPECT_DOUBLE_EQ(*state.watched[*run].limits.cutoff_v, 3.0);
 
@@ -62,18 +62,33 @@ TEST(RunFeed, FollowsALiveRunIncrementally) {
   ASSERT_TRUE(feed.WaitCaughtUp(30.0));
   feed.Drain(state);
   const RunData& d = state.watched[*run];
-  ASSERT_EQ(d.samples.size(), written.size());
-  for (size_t i = 0; i < written.size(); i += 997) EXPECT_DOUBLE_EQ(d.samples[i].t_s, written[i].t_s);
+  ASSERT_EQ(d.SampleCount(), written.size());
+  // The newest raw samples are all there (fewer than the tail keeps).
+  ASSERT_EQ(d.tail.size(), written.size());
+  EXPECT_EQ(d.tail_end_seq, static_cast<int64_t>(written.size()));
+  for (size_t i = 0; i < written.size(); i += 997) EXPECT_DOUBLE_EQ(d.tail[i].t_s, written[i].t_s);
   RunFigures batch = ComputeRunFigures(written);
   EXPECT_NEAR(d.figures.charge_mah(), batch.charge_mah, 1e-9);
   EXPECT_NEAR(state.runs[0].delivered_mah, batch.charge_mah, 1e-9);
-  EXPECT_EQ(d.voltage.size(), written.size());
+  // One overview element per block of samples, each band the block's range.
+  const size_t blocks = (written.size() + kSamplesPerBlock - 1) / kSamplesPerBlock;
+  ASSERT_EQ(d.overview.size(), blocks);
+  for (size_t b = 0; b < blocks; ++b) {
+    double lo = 1e9, hi = -1e9;
+    for (size_t i = b * kSamplesPerBlock; i < std::min(written.size(), (b + 1) * kSamplesPerBlock); ++i) {
+      lo = std::min(lo, written[i].voltage_v);
+      hi = std::max(hi, written[i].voltage_v);
+    }
+    EXPECT_FLOAT_EQ(d.overview.voltage.MinAt(b), static_cast<float>(lo)) << b;
+    EXPECT_FLOAT_EQ(d.overview.voltage.MaxAt(b), static_cast<float>(hi)) << b;
+    EXPECT_DOUBLE_EQ(d.overview.t_s[b], written[b * kSamplesPerBlock].t_s);
+  }
   ASSERT_EQ(d.events.size(), 1u);
   EXPECT_EQ(EventSeverity(d.events[0]), Severity::kAlarm);
 }
 
-// A long run is taken in over several frames: each Drain appends at most the
-// per-frame budget, and the rest arrives intact on later frames.
+// A long run is taken in over several frames: each Drain takes in at most the
+// per-frame budget of block summaries, and the rest arrives intact on later frames.
 TEST(RunFeed, BoundsTheWorkPerFrame) {
   testing::TempDir dir;
   VirtualClock clock;
@@ -85,20 +100,147 @@ TEST(RunFeed, BoundsTheWorkPerFrame) {
   ASSERT_OK((*store)->Commit());
   RunFeed::Options o;
   o.db_path = dir.File("long.db");
-  o.max_append_per_frame = 1000;
+  o.max_append_per_frame = 8;  // 2500 samples are 20 blocks of 128
   RunFeed feed(o);
   feed.Watch({*run});
   ASSERT_TRUE(feed.WaitCaughtUp(30.0));
   FeedState state;
   feed.Drain(state);
-  EXPECT_EQ(state.watched[*run].samples.size(), 1000u);
-  EXPECT_EQ(state.Backlog(), 1500u);
+  EXPECT_EQ(state.watched[*run].overview.size(), 8u);
+  EXPECT_EQ(state.watched[*run].SampleCount(), 8u * kSamplesPerBlock);
+  EXPECT_EQ(state.Backlog(), 12u);
   feed.Drain(state);
   feed.Drain(state);
   const RunData& d = state.watched[*run];
-  ASSERT_EQ(d.samples.size(), 2500u);
+  ASSERT_EQ(d.SampleCount(), 2500u);
   EXPECT_EQ(state.Backlog(), 0u);
-  for (int k = 0; k < 2500; k += 499) EXPECT_DOUBLE_EQ(d.samples[static_cast<size_t>(k)].voltage_v, At(k).voltage_v);
+  for (int k = 0; k < 2500; k += 499) {
+    const size_t b = static_cast<size_t>(k) / kSamplesPerBlock;
+    EXPECT_LE(d.overview.voltage.MinAt(b), static_cast<float>(At(k).voltage_v));
+    EXPECT_GE(d.overview.voltage.MaxAt(b), static_cast<float>(At(k).voltage_v));
+  }
+}
+
+// A zoomed window: the raw samples asked for, with the delivered charge
+// continuing the overview's; a window that reaches the newest sample follows
+// the live run; the panel's arrays stay a fraction of the samples.
+TEST(RunFeed, FetchesRawSamplesOnlyForTheAskedWindow) {
+  testing::TempDir dir;
+  VirtualClock clock;
+  auto store = Store::Open(dir.File("win.db"), clock);
+  ASSERT_OK(store.status());
+  auto run = (*store)->BeginRun(LiveRun());
+  ASSERT_OK(run.status());
+  std::vector<Sample> written;
+  for (int k = 0; k < 30000; ++k) {
+    written.push_back(At(k));
+    ASSERT_OK((*store)->AppendSample(*run, written.back()));
+  }
+  ASSERT_OK((*store)->Commit());
+  RunFeed::Options o;
+  o.db_path = dir.File("win.db");
+  o.tail_samples = 1000;
+  RunFeed feed(o);
+  feed.Watch({*run});
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  FeedState state;
+  feed.Drain(state);
+  const RunData& d = state.watched[*run];
+  ASSERT_EQ(d.SampleCount(), written.size());
+  EXPECT_EQ(d.window.size(), 0u);  // nothing raw but the tail until asked
+  EXPECT_EQ(d.tail.size(), 1000u);
+  EXPECT_DOUBLE_EQ(d.tail.front().t_s, written[29000].t_s);
+  // Memory: the overview and the tail, not the samples.
+  EXPECT_LT(d.Bytes(), written.size() * sizeof(double));
+
+  const int64_t first = 10 * kSamplesPerBlock - 1, end = 20 * kSamplesPerBlock;
+  feed.FetchWindow(*run, first, end);
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  feed.Drain(state);
+  ASSERT_EQ(d.window.first_seq, first);
+  ASSERT_EQ(d.window.size(), static_cast<size_t>(end - first));
+  EXPECT_DOUBLE_EQ(d.window.t_s.front(), written[static_cast<size_t>(first)].t_s);
+  EXPECT_DOUBLE_EQ(d.window.t_s.back(), written[static_cast<size_t>(end - 1)].t_s);
+  EXPECT_FLOAT_EQ(d.window.voltage.At(5), static_cast<float>(written[static_cast<size_t>(first) + 5].voltage_v));
+  std::vector<Sample> upto(written.begin(), written.begin() + end);
+  EXPECT_NEAR(d.window.charge_mah.back(), ComputeRunFigures(upto).charge_mah, 1e-9);
+  EXPECT_TRUE(d.window.Covers(written[1300].t_s, written[2500].t_s));
+  EXPECT_FALSE(d.window.Covers(written[100].t_s, written[2500].t_s));
+
+  // The newest stretch, then the run goes on: the window follows.
+  const int64_t newest = 226 * kSamplesPerBlock - 1;  // 28927: the last sample of block 225
+  feed.FetchWindow(*run, newest, 30000);
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  feed.Drain(state);
+  ASSERT_EQ(d.window.end_seq(), 30000);
+  for (int k = 30000; k < 30500; ++k) {
+    written.push_back(At(k));
+    ASSERT_OK((*store)->AppendSample(*run, written.back()));
+  }
+  ASSERT_OK((*store)->Commit());
+  ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+  feed.Drain(state);
+  EXPECT_EQ(d.window.end_seq(), 30500);
+  EXPECT_DOUBLE_EQ(d.window.t_s.back(), written.back().t_s);
+  EXPECT_NEAR(d.window.charge_mah.back(), ComputeRunFigures(written).charge_mah, 1e-9);
+  EXPECT_EQ(d.SampleCount(), written.size());
+}
+
+// A UI that does not drain holds the worker back (bounded memory), and the
+// worker says so: it is not caught up until the waiting summaries are taken,
+// and nothing is lost on the way.
+TEST(RunFeed, WaitsForTheUiBeyondThePendingBound) {
+  testing::TempDir dir;
+  VirtualClock clock;
+  auto store = Store::Open(dir.File("slow.db"), clock);
+  ASSERT_OK(store.status());
+  auto run = (*store)->BeginRun(LiveRun());
+  ASSERT_OK(run.status());
+  std::vector<Sample> written;
+  for (int k = 0; k < 2500; ++k) {
+    written.push_back(At(k));
+    ASSERT_OK((*store)->AppendSample(*run, written.back()));
+  }
+  ASSERT_OK((*store)->Commit());
+  RunFeed::Options o;
+  o.db_path = dir.File("slow.db");
+  o.max_rows_per_poll = 3;
+  o.max_pending_blocks = 5;
+  RunFeed feed(o);
+  feed.Watch({*run});
+  EXPECT_FALSE(feed.WaitCaughtUp(0.5));  // 20 blocks, at most 5 (+3) may wait
+  FeedState state;
+  int drains = 0;
+  while (state.watched[*run].SampleCount() < written.size() && drains < 100) {
+    feed.Drain(state);
+    ++drains;
+    feed.WaitCaughtUp(0.5);
+  }
+  EXPECT_GT(drains, 1);
+  const RunData& d = state.watched[*run];
+  ASSERT_EQ(d.SampleCount(), written.size());
+  EXPECT_EQ(d.overview.size(), 20u);
+  EXPECT_NEAR(d.figures.charge_mah(), ComputeRunFigures(written).charge_mah, 1e-9);
+}
+
+// The window and the tail are read in separate transactions: newer samples
+// that overlap the window's end extend it once each, in order.
+TEST(RunDataWindow, TailOverlappingTheWindowExtendsItOnce) {
+  std::vector<Sample> all;
+  for (int k = 0; k < 150; ++k) all.push_back(At(k));
+  RunData d;
+  d.SetWindow(0, std::vector<Sample>(all.begin(), all.begin() + 100));
+  ASSERT_EQ(d.window.size(), 100u);
+  d.AppendTail(90, std::vector<Sample>(all.begin() + 90, all.end()), 1000);
+  ASSERT_EQ(d.window.size(), 150u);
+  for (size_t i = 0; i < all.size(); ++i) ASSERT_DOUBLE_EQ(d.window.t_s[i], all[i].t_s) << i;
+  EXPECT_NEAR(d.window.charge_mah.back(), ComputeRunFigures(all).charge_mah, 1e-9);
+  EXPECT_EQ(d.tail.size(), 60u);
+  EXPECT_EQ(d.tail_end_seq, 150);
+  // Samples that do not continue it (a gap in what was read) leave it alone.
+  d.AppendTail(400, {At(400)}, 1000);
+  EXPECT_EQ(d.window.size(), 150u);
+  EXPECT_EQ(d.tail.size(), 1u);
 }
 
 // Requests from the panel land in the database for the runner to act on.
