@@ -180,6 +180,41 @@ std::string Describe(const std::vector<InstanceFigures>& in, size_t first, size_
 
 }  // namespace
 
+std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& recs, double record_end_s) {
+  std::vector<DischargeSpan> out;
+  auto cls = [&](size_t k) { return StepClassFromKind(recs[k].kind); };
+  auto end_of = [&](size_t k) {
+    return recs[k].ended_s ? *recs[k].ended_s : (k + 1 < recs.size() ? recs[k + 1].started_s : record_end_s);
+  };
+  for (size_t i = 0; i < recs.size();) {
+    if (cls(i) == StepClass::kCharge) {
+      ++i;
+      continue;
+    }
+    size_t j = i;
+    while (j < recs.size() && cls(j) != StepClass::kCharge) ++j;  // group [i, j)
+    std::optional<size_t> first, last;
+    for (size_t k = i; k < j; ++k) {
+      if (!IsDischargeClass(cls(k))) continue;
+      if (!first) first = k;
+      last = k;
+      if (ReachedVoltageCutoff(recs[k].end_reason)) break;
+    }
+    if (first) {
+      DischargeSpan d;
+      d.first = *first;
+      d.last = *last;
+      d.start_s = recs[*first].started_s;
+      d.end_s = end_of(*last);
+      d.cycle = recs[*first].cycle;
+      for (size_t k = *first; k <= *last; ++k) d.reached_cutoff = d.reached_cutoff || ReachedVoltageCutoff(recs[k].end_reason);
+      out.push_back(d);
+    }
+    i = j;
+  }
+  return out;
+}
+
 RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   RunAnalysis a;
   a.totals = ComputeRunFigures(s);
@@ -220,29 +255,17 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   // --- discharges, split at charges ---
   const CapacityMethod method = MethodForChemistry(ctx.chemistry);
   const std::vector<InstanceFigures>& in = a.instances;
-  for (size_t i = 0; i < in.size();) {
-    if (in[i].cls == StepClass::kCharge) {
-      ++i;
-      continue;
-    }
-    size_t j = i;
-    while (j < in.size() && in[j].cls != StepClass::kCharge) ++j;  // group [i, j)
-    std::optional<size_t> first, last;
-    for (size_t k = i; k < j; ++k) {
-      if (!IsDischargeClass(in[k].cls)) continue;
-      if (!first) first = k;
-      last = k;
-      if (ReachedVoltageCutoff(in[k].end_reason)) break;
-    }
-    if (first) {
+  for (const DischargeSpan& span : DischargeSpans(recs, s.back().t_s)) {
+    {
       DischargeFigures d;
-      d.first = *first;
-      d.last = *last;
-      d.cycle = in[*first].cycle;
-      d.start_s = in[*first].started_s;
-      d.end_s = in[*last].ended_s;
-      size_t judged = *first;
-      for (size_t k = *first; k <= *last; ++k) {
+      d.first = span.first;
+      d.last = span.last;
+      const size_t first_k = span.first, last_k = span.last;
+      d.cycle = in[first_k].cycle;
+      d.start_s = in[first_k].started_s;
+      d.end_s = in[last_k].ended_s;
+      size_t judged = first_k;
+      for (size_t k = first_k; k <= last_k; ++k) {
         const InstanceFigures& g = in[k];
         d.charge_mah += g.f.charge_mah;
         d.energy_wh += g.f.energy_wh;
@@ -251,7 +274,7 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
         if (IsDischargeClass(g.cls) && g.f.charge_mah > in[judged].f.charge_mah) judged = k;
         if (ReachedVoltageCutoff(g.end_reason)) d.reached_cutoff = true;
       }
-      if (ReachedVoltageCutoff(in[*last].end_reason)) judged = *last;
+      if (ReachedVoltageCutoff(in[last_k].end_reason)) judged = last_k;
       d.judged = judged;
       SampleSpan ds = Owned(s, d.start_s, d.end_s);
       const double dur = d.end_s - d.start_s;
@@ -273,7 +296,7 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
               break;
             }
         }
-        if (!d.time_to_cutoff_s && ReachedVoltageCutoff(in[*last].end_reason)) d.time_to_cutoff_s = dur;
+        if (!d.time_to_cutoff_s && ReachedVoltageCutoff(in[last_k].end_reason)) d.time_to_cutoff_s = dur;
       }
       d.average_current_a = dur > 0 ? d.charge_mah * 3.6 / dur : 0.0;
       if (const Sample* at = ReadingAt(s, d.start_s)) d.start_temperature_c = at->temperature_c;
@@ -313,7 +336,6 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
       d.judgement = JudgeCapacityByMethod(method, dc);
       a.discharges.push_back(std::move(d));
     }
-    i = j;
   }
 
   // --- capacity attempts and the main discharge ---

@@ -154,6 +154,17 @@ struct RunAnalysis {
 
 RunAnalysis AnalyseRun(SampleSpan samples, const RunContext& context);
 
+// The discharges of a run by the definition above, from its step records
+// alone (instances without a recorded end end where the next begins, the last
+// at `record_end_s`). Used by AnalyseRun and by the panel.
+struct DischargeSpan {
+  size_t first = 0, last = 0;  // indices into the records, inclusive
+  double start_s = 0.0, end_s = 0.0;
+  int cycle = 0;
+  bool reached_cutoff = false;
+};
+std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& records, double record_end_s);
+
 // True when a step's end reason says a voltage fell to its limit ("voltage
 // 2.748 V <= 2.750 V", or a repeat loop that ended on one).
 bool ReachedVoltageCutoff(std::string_view end_reason);

@@ -795,7 +795,8 @@ Result<int> Store::ReconcileOrphans() {
 namespace {
 constexpr const char* kRunColumns =
     "SELECT r.id, c.name, c.chemistry, r.rated_mah, r.procedure_name, r.procedure_text, r.rig, r.started_at,"
-    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count FROM runs r JOIN cells c ON c.id=r.cell_id";
+    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count, r.delivered_mah, r.delivered_wh, r.net_mah"
+    " FROM runs r JOIN cells c ON c.id=r.cell_id";
 
 RunRow ReadRun(const sql::Stmt& q) {
   RunRow r;
@@ -811,6 +812,9 @@ RunRow ReadRun(const sql::Stmt& q) {
   r.outcome = ParseOutcome(q.Text(9)).value_or(Outcome::kInterrupted);
   r.reason = q.Text(10);
   r.sample_count = q.Int(11);
+  if (!q.IsNull(12)) r.delivered_mah = q.Real(12);
+  if (!q.IsNull(13)) r.delivered_wh = q.Real(13);
+  r.net_mah = q.Real(14);
   return r;
 }
 }  // namespace

@@ -58,6 +58,10 @@ struct RunRow {
   Outcome outcome = Outcome::kRunning;
   std::string reason;
   int64_t sample_count = 0;  // committed samples (schema v4 column, kept with every batch)
+  // The latest discharge as the runner keeps it (schema v3; empty for older
+  // runs), and the net charge of the whole record.
+  std::optional<double> delivered_mah, delivered_wh;
+  double net_mah = 0.0;
 };
 
 // Where a run stands, written in the same transaction as the samples it

@@ -448,40 +448,46 @@ void Panel::CompareView() {
     ImGui::TextDisabled("Tick runs in the 'cmp' column to overlay them here.");
     return;
   }
+  // Each run is shown by its latest discharge (step records), aligned on the
+  // discharge's start: charge and time count from there, so a charge before it
+  // or a rest after it is not in the curves or the figures.
+  std::vector<DischargeOverlay> overlays;
+  std::vector<std::optional<DischargeSpan>> spans;
+  overlays.reserve(runs.size());
+  for (const RunData* d : runs) {
+    const Range whole = d->DataX();
+    spans.push_back(whole.Empty() ? std::nullopt : LatestDischarge(d->steps, whole.hi));
+    overlays.push_back(spans.back() ? OverlayOfDischarge(d->overview, spans.back()->start_s, spans.back()->end_s)
+                                    : DischargeOverlay{});
+  }
   float avail_h = ImGui::GetContentRegionAvail().y;
   float half_w = ImGui::GetContentRegionAvail().x * 0.5f - ImGui::GetStyle().ItemSpacing.x;
   PlotSpec by_q, by_t;
   by_q.time_x = false;
-  by_q.x_label = "delivered charge (mAh)";
+  by_q.x_label = "charge delivered in the discharge (mAh)";
   by_q.y_label[0] = "voltage (V)";
-  by_t.x_label = "time (h:mm)";
+  by_t.x_label = "time from the discharge start";
   by_t.y_label[0] = "voltage (V)";
   int k = 0;
-  for (const RunData* d : runs) {
+  for (size_t r = 0; r < runs.size(); ++r) {
+    const RunData* d = runs[r];
+    const DischargeOverlay& o = overlays[r];
     ImU32 c = theme_.Series(k++);
     std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
-    const Range whole = d->DataX();
-    const bool raw = UseRaw(*d, whole, half_w);
-    if (raw) {
-      by_q.traces.push_back({&d->window.charge_mah, &d->window.voltage, c, name, "V", 0});
-      by_t.traces.push_back({&d->window.t_s, &d->window.voltage, c, name, "V", 0});
-    } else {
-      by_q.traces.push_back({&d->overview.charge_mah, &d->overview.voltage, c, name, "V", 0});
-      by_t.traces.push_back({&d->overview.t_s, &d->overview.voltage, c, name, "V", 0, &d->overview.t_end_s});
-    }
-    if (!whole.Empty()) {
-      by_t.data_x.Include(whole.lo);
-      by_t.data_x.Include(whole.hi);
-      by_q.data_x.Include(0.0);
-      by_q.data_x.Include(d->figures.charge_mah());
-    }
+    if (o.t_s.empty()) continue;
+    by_q.traces.push_back({&o.charge_mah, &o.voltage, c, name, "V", 0});
+    by_t.traces.push_back({&o.t_s, &o.voltage, c, name, "V", 0, &o.t_end_s});
+    by_t.data_x.Include(0.0);
+    by_t.data_x.Include(o.t_end_s.back());
+    by_q.data_x.Include(0.0);
+    by_q.data_x.Include(o.charge_mah.back());
   }
   DrawPlot("##cmp_q", by_q, cmp_charge_x_, {half_w, avail_h * 0.58f}, theme_);
   ImGui::SameLine();
   DrawPlot("##cmp_t", by_t, cmp_time_x_, {0, avail_h * 0.58f}, theme_);
 
   ImGui::PushFont(fonts_.medium);
-  ImGui::TextUnformatted("Figures");
+  ImGui::TextUnformatted("Figures of the latest discharge");
   ImGui::PopFont();
   if (!ImGui::BeginTable("cmp_figs", 11, ImGuiTableFlags_RowBg | ImGuiTableFlags_BordersInner | ImGuiTableFlags_ScrollY))
     return;
@@ -489,8 +495,14 @@ void Panel::CompareView() {
     ImGui::TableSetupColumn(h);
   ImGui::TableHeadersRow();
   k = 0;
-  for (const RunData* d : runs) {
+  for (size_t r = 0; r < runs.size(); ++r) {
+    const RunData* d = runs[r];
     const RunningFigures& f = d->figures;
+    const DischargeOverlay& o = overlays[r];
+    // The runner keeps the latest discharge on the runs row (schema v3);
+    // older runs fall back to what the record discharged.
+    const double mah = d->row.delivered_mah.value_or(f.discharged_mah());
+    const double wh = d->row.delivered_wh.value_or(f.discharged_wh());
     ImGui::TableNextRow();
     ImGui::TableSetColumnIndex(0);
     ImGui::TextColored(ImColor(theme_.Series(k++)), "■ %lld", static_cast<long long>(d->row.id));
@@ -501,20 +513,23 @@ void Panel::CompareView() {
     ImGui::TableSetColumnIndex(3);
     ImGui::TextColored(ImColor(OutcomeColour(theme_, d->row.outcome)), "%s", OutcomeName(d->row.outcome));
     ImGui::TableSetColumnIndex(4);
-    ImGui::Text("%.0f", f.discharged_mah());
+    ImGui::Text("%.0f", mah);
     ImGui::TableSetColumnIndex(5);
-    ImGui::Text("%.3f", f.discharged_wh());
+    ImGui::Text("%.3f", wh);
     ImGui::TableSetColumnIndex(6);
-    ImGui::Text("%.3f", f.mean_voltage_v());
+    if (o.mean_voltage_v)
+      ImGui::Text("%.3f", *o.mean_voltage_v);
+    else
+      ImGui::TextDisabled("-");
     ImGui::TableSetColumnIndex(7);
     ImGui::Text("%.3f", f.min_voltage_v());
     ImGui::TableSetColumnIndex(8);
     ImGui::Text("%.1f", f.max_temperature_c());
     ImGui::TableSetColumnIndex(9);
-    ImGui::TextUnformatted(Hms(f.count() ? f.last().t_s - f.first_t_s() : 0.0).c_str());
+    ImGui::TextUnformatted(Hms(spans[r] ? o.duration_s : 0.0).c_str());
     ImGui::TableSetColumnIndex(10);
     if (d->row.rated_mah > 0)
-      ImGui::Text("%.1f %%", PercentOfRated(f.discharged_mah(), d->row.rated_mah));
+      ImGui::Text("%.1f %%", PercentOfRated(mah, d->row.rated_mah));
     else
       ImGui::TextDisabled("-");
   }

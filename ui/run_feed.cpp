@@ -20,6 +20,7 @@ void RunOverview::Put(const SampleBlock& b) {
     t_s.resize(keep);
     t_end_s.resize(keep);
     charge_mah.resize(keep);
+    voltage_time_vs.resize(keep);
     voltage.Truncate(keep);
     current.Truncate(keep);
     temperature.Truncate(keep);
@@ -33,6 +34,7 @@ void RunOverview::Put(const SampleBlock& b) {
   t_s.push_back(s.first.t_s);
   t_end_s.push_back(s.last.t_s);
   charge_mah.push_back(upto.net_mah);
+  voltage_time_vs.push_back(upto.voltage_time_vs);
   const float vmin = static_cast<float>(s.min_voltage_v), vmax = static_cast<float>(s.max_voltage_v);
   const float imin = static_cast<float>(s.min_current_a), imax = static_cast<float>(s.max_current_a);
   const float cmin = static_cast<float>(s.min_temperature_c), cmax = static_cast<float>(s.max_temperature_c);
@@ -47,9 +49,59 @@ SampleSummary RunOverview::Total() const {
   return t;
 }
 
+DischargeOverlay OverlayOfDischarge(const RunOverview& o, double start_s, double end_s) {
+  DischargeOverlay d;
+  d.duration_s = std::max(0.0, end_s - start_s);
+  const size_t n = o.size();
+  // Cumulative figures at the last block boundary at or before t.
+  auto at = [&](double t, const std::vector<double>& cum, double& boundary_t) -> double {
+    size_t k = static_cast<size_t>(std::upper_bound(o.t_end_s.begin(), o.t_end_s.end(), t) - o.t_end_s.begin());
+    if (k == 0) {
+      boundary_t = n ? o.t_s.front() : t;
+      return 0.0;
+    }
+    boundary_t = o.t_end_s[k - 1];
+    return cum[k - 1];
+  };
+  double q_t = 0;
+  const double q0 = at(start_s, o.charge_mah, q_t);
+  std::vector<float> lo, hi;
+  for (size_t i = 0; i < n; ++i) {
+    if (o.t_s[i] < start_s || o.t_end_s[i] > end_s) continue;
+    d.t_s.push_back(o.t_s[i] - start_s);
+    d.t_end_s.push_back(o.t_end_s[i] - start_s);
+    d.charge_mah.push_back(o.charge_mah[i] - q0);
+    lo.push_back(o.voltage.MinAt(i));
+    hi.push_back(o.voltage.MaxAt(i));
+  }
+  d.voltage.AppendBands(lo.data(), hi.data(), lo.size());
+  double t_a = 0, t_b = 0;
+  const double vs_a = at(start_s, o.voltage_time_vs, t_a);
+  const double vs_b = at(end_s, o.voltage_time_vs, t_b);
+  if (t_b > t_a && !d.t_s.empty()) d.mean_voltage_v = (vs_b - vs_a) / (t_b - t_a);
+  return d;
+}
+
+std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s) {
+  std::vector<StepRecord> recs;
+  for (const StepRow& s : steps) {
+    StepRecord r;
+    r.index = s.index;
+    r.kind = s.kind;
+    r.started_s = s.started_s;
+    r.ended_s = s.ended_s;
+    r.end_reason = s.end_reason;
+    r.cycle = s.cycle;
+    recs.push_back(std::move(r));
+  }
+  std::vector<DischargeSpan> spans = DischargeSpans(recs, record_end_s);
+  if (spans.empty()) return std::nullopt;
+  return spans.back();
+}
+
 size_t RunOverview::Bytes() const {
-  return (t_s.capacity() + t_end_s.capacity() + charge_mah.capacity()) * sizeof(double) + voltage.Bytes() + current.Bytes() +
-         temperature.Bytes();
+  return (t_s.capacity() + t_end_s.capacity() + charge_mah.capacity() + voltage_time_vs.capacity()) * sizeof(double) +
+         voltage.Bytes() + current.Bytes() + temperature.Bytes();
 }
 
 void RawWindow::Append(const Sample* more_data, size_t count) {

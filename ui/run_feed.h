@@ -31,6 +31,7 @@
 
 #include "drivers/clock.h"
 #include "drivers/status.h"
+#include "analysis/run_analysis.h"
 #include "rig/store.h"
 #include "ui/plot_math.h"
 #include "ui/view_model.h"
@@ -43,6 +44,7 @@ struct RunOverview {
   std::vector<double> t_s;         // time of each block's first sample (ascending)
   std::vector<double> t_end_s;     // time of its last sample
   std::vector<double> charge_mah;  // net charge delivered up to its last sample
+  std::vector<double> voltage_time_vs;  // integral of V dt up to its last sample
   MinMaxPyramid voltage, current, temperature;  // bands: each block's min and max
   SampleSummary done;              // every block before the last, merged
   SampleSummary last;              // the last block as last read
@@ -53,6 +55,23 @@ struct RunOverview {
   SampleSummary Total() const;
   size_t Bytes() const;
 };
+
+// A run's overview cut to one discharge and aligned on its start, for the
+// compare view: times from the discharge's start, charge delivered since it,
+// the voltage bands, and the time-weighted mean voltage over the blocks
+// inside it (block summaries hold 128 samples: the discharge's first and last
+// partial blocks are left out of the mean, the bands and the curve).
+struct DischargeOverlay {
+  std::vector<double> t_s, t_end_s, charge_mah;
+  MinMaxPyramid voltage;
+  std::optional<double> mean_voltage_v;
+  double duration_s = 0.0;
+};
+DischargeOverlay OverlayOfDischarge(const RunOverview& overview, double start_s, double end_s);
+
+// The discharge the compare view shows for a run: its latest, by the step
+// records (the definition of analysis/run_analysis.h); nullopt before one starts.
+std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s);
 
 // Raw samples of a stretch of a run (the zoomed window), drawn instead of the
 // overview when it covers the visible range.

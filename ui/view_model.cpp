@@ -149,7 +149,8 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   r.procedure = run.procedure_name;
   r.started_at = run.started_at;
   r.elapsed_s = figures.count() > 0 ? figures.last().t_s - figures.first_t_s() : 0.0;
-  r.delivered_mah = figures.discharged_mah();
+  // The latest discharge as the runner kept it (schema v3), else what the record discharged.
+  r.delivered_mah = run.delivered_mah.value_or(figures.discharged_mah());
   r.rated_mah = run.rated_mah;
   r.reason = run.reason;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
@@ -157,7 +158,7 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
     r.verdict = std::string("-");
   } else {
-    r.verdict = ListVerdict(run, figures.discharged_mah());
+    r.verdict = ListVerdict(run, r.delivered_mah);
   }
   return r;
 }

@@ -296,3 +296,68 @@ TEST(RunFeed, MissingDatabaseIsReportedNotCreated) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+// The compare view's overlay: a charge, a rest, a discharge and a rest after
+// it, one sample a second. The overlay holds the discharge's whole blocks
+// only, charge counted from its start, and the mean voltage of those blocks
+// equals a batch trapezoid over their samples (written here).
+TEST(DischargeOverlay, CutsTheLatestDischargeOutOfTheOverview) {
+  std::vector<Sample> s;
+  auto add = [&](double t, double v, double i, int step) { s.push_back({t, v, i, 25.0, step}); };
+  double t = 0;
+  for (; t < 3000; t += 1) add(t, 4.0 + t * 1e-5, -1.0, 0);      // charge at 1 A
+  for (; t < 4000; t += 1) add(t, 4.1, 0.0, 1);                  // rest
+  for (; t < 9000; t += 1) add(t, 4.0 - (t - 4000) * 1e-4, 0.5, 2);  // discharge at 0.5 A
+  for (; t < 10000; t += 1) add(t, 3.7, 0.0, 3);                 // rest after it
+  RunOverview o;
+  for (size_t b = 0; b * kSamplesPerBlock < s.size(); ++b) {
+    SampleBlock blk;
+    blk.index = static_cast<int64_t>(b);
+    for (size_t k = b * kSamplesPerBlock; k < std::min(s.size(), (b + 1) * kSamplesPerBlock); ++k) blk.summary.Add(s[k]);
+    o.Put(blk);
+  }
+  std::vector<StepRow> steps(4);
+  const char* kinds[] = {"charge", "rest", "constant-current discharge", "rest"};
+  const double starts[] = {0, 2999, 3999, 8999}, ends[] = {2999, 3999, 8999, 9999};
+  for (int k = 0; k < 4; ++k) {
+    steps[k].seq = k;
+    steps[k].index = k;
+    steps[k].kind = kinds[k];
+    steps[k].started_s = starts[k];
+    steps[k].ended_s = ends[k];
+    steps[k].cycle = 1;
+  }
+  steps[2].end_reason = "voltage 3.500 V <= 3.500 V";
+  auto span = LatestDischarge(steps, 9999);
+  ASSERT_TRUE(span.has_value());
+  EXPECT_DOUBLE_EQ(span->start_s, 3999);
+  EXPECT_DOUBLE_EQ(span->end_s, 8999);  // the rest after it is not the discharge
+  DischargeOverlay d = OverlayOfDischarge(o, span->start_s, span->end_s);
+  ASSERT_FALSE(d.t_s.empty());
+  EXPECT_GE(d.t_s.front(), 0.0);
+  EXPECT_LE(d.t_end_s.back(), 5000.0);
+  // Charge from the discharge's start: never the charge phase's negative net.
+  EXPECT_GT(d.charge_mah.front(), 0.0);
+  EXPECT_NEAR(d.charge_mah.back(), 0.5 * d.t_end_s.back() / 3.6, 0.5 * 2 * kSamplesPerBlock / 3.6);
+  // Mean voltage between the block boundaries at or before each end.
+  double a = 0, b = 0;
+  for (size_t k = 0; k < o.size(); ++k) {
+    if (o.t_end_s[k] <= 3999) a = o.t_end_s[k];
+    if (o.t_end_s[k] <= 8999) b = o.t_end_s[k];
+  }
+  double vs = 0, span_s = 0;
+  for (size_t k = 1; k < s.size(); ++k)
+    if (s[k].t_s > a && s[k].t_s <= b) {
+      vs += 0.5 * (s[k].voltage_v + s[k - 1].voltage_v) * (s[k].t_s - s[k - 1].t_s);
+      span_s += s[k].t_s - s[k - 1].t_s;
+    }
+  ASSERT_TRUE(d.mean_voltage_v.has_value());
+  EXPECT_NEAR(*d.mean_voltage_v, vs / span_s, 1e-9);
+  EXPECT_LT(*d.mean_voltage_v, 4.0);  // not lifted by the charge phase's 4.0+ V
+}
+
+}  // namespace
+}  // namespace kp::ui
