@@ -330,6 +330,42 @@ void Panel::ControlButtons(const RunData& d) {
   }
 }
 
+void Panel::CycleTable(const RunData& d) {
+  const Range whole = d.DataX();
+  if (whole.Empty()) return;
+  std::vector<CycleRow> rows = CycleRows(d.overview, d.steps, whole.hi);
+  if (rows.empty()) return;
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Cycles");
+  ImGui::PopFont();
+  ImGui::SameLine();
+  ImGui::TextDisabled("(from the step records; the report gives them to the sample)");
+  const float h = ImGui::GetTextLineHeightWithSpacing() * static_cast<float>(std::min<size_t>(rows.size(), 6) + 1.5f);
+  if (!ImGui::BeginTable("cycles", 6, ImGuiTableFlags_RowBg | ImGuiTableFlags_BordersInner | ImGuiTableFlags_ScrollY, {0, h}))
+    return;
+  for (const char* c : {"cycle", "charged mAh", "discharged mAh", "coulombic", "retention", "capacity"}) ImGui::TableSetupColumn(c);
+  ImGui::TableHeadersRow();
+  double most = 0;
+  for (const CycleRow& r : rows) most = std::max(most, r.discharged_mah);
+  for (const CycleRow& r : rows) {
+    ImGui::TableNextRow();
+    ImGui::TableSetColumnIndex(0);
+    ImGui::Text("%d", r.cycle);
+    ImGui::TableSetColumnIndex(1);
+    ImGui::Text("%.1f", r.charged_mah);
+    ImGui::TableSetColumnIndex(2);
+    ImGui::Text("%.1f", r.discharged_mah);
+    ImGui::TableSetColumnIndex(3);
+    if (r.coulombic) ImGui::Text("%.1f %%", *r.coulombic * 100.0); else ImGui::TextDisabled("-");
+    ImGui::TableSetColumnIndex(4);
+    if (r.retention) ImGui::Text("%.1f %%", *r.retention * 100.0); else ImGui::TextDisabled("-");
+    ImGui::TableSetColumnIndex(5);
+    // Capacity versus cycle, as a bar against the largest cycle.
+    ImGui::ProgressBar(most > 0 ? static_cast<float>(r.discharged_mah / most) : 0.0f, {-1, 0}, "");
+  }
+  ImGui::EndTable();
+}
+
 void Panel::EventLog(const RunData& d) {
   ImGui::PushFont(fonts_.medium);
   ImGui::TextUnformatted("Events");
@@ -411,6 +447,7 @@ void Panel::LiveView() {
   DrawPlot("##current", ispec, live_x_, {0, avail_h * 0.28f}, theme_);
   ImGui::TextDisabled("wheel: zoom · drag: pan · double-click/Home: whole run · F: follow newest (%s)",
                       live_x_.follow ? "on" : "off");
+  CycleTable(d);
   EventLog(d);
 }
 

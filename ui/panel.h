@@ -58,6 +58,7 @@ class Panel {
   void FileBrowser(char* path, size_t size, const char* id);
   void Headline(const RunData& d);
   void EventLog(const RunData& d);
+  void CycleTable(const RunData& d);
   void ControlButtons(const RunData& d);
   void SetTheme(bool dark);
   // True when `d`'s raw window covers `x` and the overview is coarser than

@@ -1,6 +1,9 @@
 #include "ui/run_feed.h"
 
 #include <algorithm>
+#include <map>
+
+#include <algorithm>
 #include <chrono>
 #include <span>
 
@@ -80,6 +83,50 @@ DischargeOverlay OverlayOfDischarge(const RunOverview& o, double start_s, double
   const double vs_b = at(end_s, o.voltage_time_vs, t_b);
   if (t_b > t_a && !d.t_s.empty()) d.mean_voltage_v = (vs_b - vs_a) / (t_b - t_a);
   return d;
+}
+
+namespace {
+// Net charge at the last block boundary at or before t (0 before the first).
+double ChargeAt(const RunOverview& o, double t) {
+  size_t k = static_cast<size_t>(std::upper_bound(o.t_end_s.begin(), o.t_end_s.end(), t) - o.t_end_s.begin());
+  return k == 0 ? 0.0 : o.charge_mah[k - 1];
+}
+}  // namespace
+
+std::vector<CycleRow> CycleRows(const RunOverview& o, const std::vector<StepRow>& steps, double record_end_s) {
+  std::vector<CycleRow> out;
+  if (std::none_of(steps.begin(), steps.end(), [](const StepRow& s) { return s.kind == "charge"; })) return out;
+  std::map<int, CycleRow> by;
+  for (size_t k = 0; k < steps.size(); ++k) {
+    const StepRow& s = steps[k];
+    CycleRow& c = by[s.cycle];
+    c.cycle = s.cycle;
+    if (s.kind != "charge") continue;
+    const double end = s.ended_s ? *s.ended_s : (k + 1 < steps.size() ? steps[k + 1].started_s : record_end_s);
+    c.charged_mah += std::max(0.0, ChargeAt(o, s.started_s) - ChargeAt(o, end));
+  }
+  std::vector<StepRecord> recs;
+  for (const StepRow& s : steps) {
+    StepRecord r;
+    r.index = s.index, r.kind = s.kind, r.started_s = s.started_s, r.ended_s = s.ended_s, r.end_reason = s.end_reason;
+    r.cycle = s.cycle;
+    recs.push_back(std::move(r));
+  }
+  for (const DischargeSpan& d : DischargeSpans(recs, record_end_s)) {
+    CycleRow& c = by[d.cycle];
+    c.cycle = d.cycle;
+    c.discharged_mah = ChargeAt(o, d.end_s) - ChargeAt(o, d.start_s);
+  }
+  std::optional<double> first;
+  for (auto& [n, c] : by) {
+    if (c.charged_mah > 0 && c.discharged_mah > 0) c.coulombic = c.discharged_mah / c.charged_mah;
+    if (c.cycle >= 1 && c.discharged_mah > 0) {
+      if (!first) first = c.discharged_mah;
+      c.retention = c.discharged_mah / *first;
+    }
+    out.push_back(c);
+  }
+  return out;
 }
 
 std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s) {

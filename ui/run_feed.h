@@ -69,6 +69,18 @@ struct DischargeOverlay {
 };
 DischargeOverlay OverlayOfDischarge(const RunOverview& overview, double start_s, double end_s);
 
+// Per-cycle figures of a run for the panel, from its step records and the
+// overview's cumulative charge at block boundaries (to within one block of
+// 128 samples at each step edge): charge put in by its charge steps,
+// charge delivered by its discharge, coulombic efficiency, retention against
+// the first cycle. Empty when the run has no charge step.
+struct CycleRow {
+  int cycle = 0;
+  double charged_mah = 0.0, discharged_mah = 0.0;
+  std::optional<double> coulombic, retention;
+};
+std::vector<CycleRow> CycleRows(const RunOverview& overview, const std::vector<StepRow>& steps, double record_end_s);
+
 // The discharge the compare view shows for a run: its latest, by the step
 // records (the definition of analysis/run_analysis.h); nullopt before one starts.
 std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s);

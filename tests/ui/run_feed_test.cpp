@@ -361,3 +361,50 @@ TEST(DischargeOverlay, CutsTheLatestDischargeOutOfTheOverview) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+// Per-cycle rows from the step records and the overview: two cycles of a
+// 1 A charge for 2000 s then a 0.5 A discharge for 3000 s (Q = I·t, common
+// practice, no source), to within one block of samples at each edge.
+TEST(CycleRows, ChargeAndDischargePerCycle) {
+  std::vector<Sample> s;
+  std::vector<StepRow> steps;
+  double t = 0;
+  for (int cyc = 1; cyc <= 2; ++cyc) {
+    for (int part = 0; part < 2; ++part) {
+      StepRow r;
+      r.seq = static_cast<int64_t>(steps.size());
+      r.index = part;
+      r.kind = part == 0 ? "charge" : "constant-current discharge";
+      r.started_s = t;
+      r.cycle = cyc;
+      const double len = part == 0 ? 2000 : 3000;
+      for (double e = t + len; t < e; t += 1) s.push_back({t + 1, 3.8, part == 0 ? -1.0 : 0.5, 25.0, part});
+      r.ended_s = t;
+      steps.push_back(r);
+    }
+  }
+  RunOverview o;
+  for (size_t b = 0; b * kSamplesPerBlock < s.size(); ++b) {
+    SampleBlock blk;
+    blk.index = static_cast<int64_t>(b);
+    for (size_t k = b * kSamplesPerBlock; k < std::min(s.size(), (b + 1) * kSamplesPerBlock); ++k) blk.summary.Add(s[k]);
+    o.Put(blk);
+  }
+  auto rows = CycleRows(o, steps, t);
+  ASSERT_EQ(rows.size(), 2u);
+  const double block_mah = kSamplesPerBlock * 1.0 / 3.6;
+  for (const CycleRow& r : rows) {
+    EXPECT_NEAR(r.charged_mah, 2000 / 3.6, 2 * block_mah);
+    EXPECT_NEAR(r.discharged_mah, 0.5 * 3000 / 3.6, 2 * block_mah);
+    ASSERT_TRUE(r.coulombic.has_value());
+    EXPECT_NEAR(*r.coulombic, r.discharged_mah / r.charged_mah, 1e-12);
+  }
+  EXPECT_DOUBLE_EQ(*rows[0].retention, 1.0);
+  EXPECT_TRUE(CycleRows(o, {steps[1]}, t).empty());  // no charge step: no cycle table
+}
+
+}  // namespace
+}  // namespace kp::ui
