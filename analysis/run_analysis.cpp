@@ -417,8 +417,13 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
     }
     std::optional<double> first_mah;
     for (auto& [n, c] : by) {
-      if (c.charge_in_mah > 0 && c.discharge) c.coulombic_efficiency = c.discharge_mah / c.charge_in_mah;
-      if (c.charge_in_wh > 0 && c.discharge) c.energy_efficiency = c.discharge_wh / c.charge_in_wh;
+      // Efficiencies only when the cycle put in a charge worth comparing (at
+      // least 1 % of what it gave back): a charge step that found the cell
+      // full puts in next to nothing, and a ratio over it means nothing.
+      if (c.discharge && c.charge_in_mah > 0.01 * c.discharge_mah) {
+        c.coulombic_efficiency = c.discharge_mah / c.charge_in_mah;
+        if (c.charge_in_wh > 0) c.energy_efficiency = c.discharge_wh / c.charge_in_wh;
+      }
       if (c.discharge && c.cycle >= 1) {
         if (!first_mah && c.discharge_mah > 0) first_mah = c.discharge_mah;
         if (first_mah) c.retention = c.discharge_mah / *first_mah;

@@ -115,7 +115,7 @@ struct CycleFigures {
   double charge_in_mah = 0.0, charge_in_wh = 0.0;
   std::optional<size_t> discharge;  // index into RunAnalysis::discharges
   double discharge_mah = 0.0, discharge_wh = 0.0;
-  std::optional<double> coulombic_efficiency, energy_efficiency;  // discharge / charge
+  std::optional<double> coulombic_efficiency, energy_efficiency;  // discharge / charge; empty when under 1 % went in
   std::optional<double> retention;                                 // discharge / first cycle's discharge
 };
 

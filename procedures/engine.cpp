@@ -221,6 +221,7 @@ void StepEngine::EnterStep(int index, double t_s, int looped_back, EngineOutput&
   now_s_ = t_s;
   step_charge_mah_ = 0.0;
   step_energy_wh_ = 0.0;
+  step_vs_ = 0.0;
   dcir_.reset();
   pulse_edge_.reset();
   if (finished()) {
@@ -334,8 +335,12 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     int looped_back = -1;
     int next = NextIndex(ended, exited_loop, looped_back);
     int was = step_;
+    const double q = step_charge_mah_, e = step_energy_wh_, vs = step_vs_;
     EnterStep(next, r.t_s, looped_back, out);
     StepChange c{was, finished() ? -1 : step_, reason};
+    c.ended_charge_mah = q;
+    c.ended_energy_wh = e;
+    c.ended_voltage_time_vs = vs;
     c.pass = finished() ? 0 : pass();
     c.cycle = cycle_;
     out.changes.push_back(std::move(c));
@@ -463,6 +468,7 @@ void StepEngine::Integrate(const Reading& r) {
     double de = 0.5 * (r.current_a * r.voltage_v + last_->current_a * last_->voltage_v) * dt_h;
     step_charge_mah_ += dq;
     step_energy_wh_ += de;
+    step_vs_ += 0.5 * (r.voltage_v + last_->voltage_v) * (r.t_s - last_->t_s);
     for (size_t li = 0; li < loops_.size(); ++li) {
       const Loop& l = plan_.loops[li];
       if (l.first_step <= step_ && step_ <= l.last_step) {
@@ -475,8 +481,8 @@ void StepEngine::Integrate(const Reading& r) {
 }
 
 std::string StepEngine::Snapshot(double t_s) const {
-  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g} cycle={}", step_, t_s - step_start_s_,
-                              step_charge_mah_, step_energy_wh_, cycle_);
+  std::string s = fmt::format("v2 step={} elapsed={:.17g} charge={:.17g} energy={:.17g} cycle={} vs={:.17g}", step_,
+                              t_s - step_start_s_, step_charge_mah_, step_energy_wh_, cycle_, step_vs_);
   if (dcir_) s += fmt::format(" u1={:.17g} i1={:.17g} t1={:.17g}", dcir_->u1_v, dcir_->i1_a, dcir_->t1_s - t_s);
   for (size_t i = 0; i < loops_.size(); ++i)
     s += fmt::format(" loop{}={}:{:.17g}:{:.17g}:{:.17g}", i, loops_[i].iter, t_s - loops_[i].start_s, loops_[i].charge_mah,
@@ -554,6 +560,8 @@ Result<EngineOutput> StepEngine::Restore(std::string_view snapshot, double t_s) 
   loops_ = loops;
   step_charge_mah_ = charge;
   step_energy_wh_ = energy;
+  double vs = 0;
+  step_vs_ = num("vs", vs) ? vs : 0.0;
   double u1 = 0, i1 = 0, t1 = 0;
   if (num("u1", u1) && num("i1", i1) && num("t1", t1)) {
     StepResult res;

@@ -46,6 +46,11 @@ struct StepChange {
   // each charge step that follows a non-charge step opens the next cycle).
   int pass = 0;
   int cycle = 0;
+  // What the ended step delivered, integrated over every reading it took
+  // (trapezoid): charge (> 0 discharged), energy, and the integral of V dt.
+  double ended_charge_mah = 0.0;
+  double ended_energy_wh = 0.0;
+  double ended_voltage_time_vs = 0.0;
 };
 
 // A figure a step measured: the DC resistance of a dcir step (U1 at the end
@@ -111,6 +116,7 @@ class StepEngine {
   // Charge and energy delivered in the current step (trapezoidal, from readings).
   double step_charge_mah() const { return step_charge_mah_; }
   double step_energy_wh() const { return step_energy_wh_; }
+  double step_voltage_time_vs() const { return step_vs_; }
   // Completed passes of loop `i` (Plan::loops order) in its current run.
   int loop_iteration(size_t i) const { return loops_[i].iter; }
   // The cycle the current step belongs to (see StepChange::cycle).
@@ -148,6 +154,7 @@ class StepEngine {
   double next_wakeup_s_ = 0.0;
   double step_charge_mah_ = 0.0;
   double step_energy_wh_ = 0.0;
+  double step_vs_ = 0.0;  // integral of V dt in the step
   size_t seg_ = 0;
   double seg_start_s_ = 0.0;
   std::optional<StepResult> dcir_;  // first half of a resistance test

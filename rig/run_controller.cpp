@@ -183,7 +183,8 @@ RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_vi
   result_.outcome = outcome;
   result_.reason = std::move(reason);
   Store& store = rc_.store_;
-  Status st = store.EndStep(run_id_, t_s_, result_.reason);
+  Status st = store.EndStep(run_id_, t_s_, result_.reason,
+                            {engine_.step_charge_mah(), engine_.step_energy_wh(), engine_.step_voltage_time_vs()});
   if (st.ok()) st = store.AddEvent(run_id_, t_s_, kind, result_.reason);
   if (st.ok()) st = store.FinishRun(run_id_, outcome, result_.reason);
   if (!st.ok()) {
@@ -255,7 +256,8 @@ Status RunSession::Handle(const EngineOutput& out) {
                                         res.valid ? res.name + ": " + res.detail : res.name + " not measured: " + res.why_invalid));
   }
   for (const StepChange& c : out.changes) {
-    if (c.ended_step >= 0) KP_RETURN_IF_ERROR(store.EndStep(run_id_, t_s_, c.reason));
+    if (c.ended_step >= 0)
+      KP_RETURN_IF_ERROR(store.EndStep(run_id_, t_s_, c.reason, {c.ended_charge_mah, c.ended_energy_wh, c.ended_voltage_time_vs}));
     if (c.ended_step >= 0 || c.started_step < 0) last_reason_ = c.reason;
     if (c.started_step >= 0) {
       const Step& s = plan_.steps[static_cast<size_t>(c.started_step)];

@@ -154,6 +154,9 @@ Status MigrateTo3(sql::Db& db) {
     ALTER TABLE steps ADD COLUMN cycle INTEGER NOT NULL DEFAULT 0;
     ALTER TABLE steps ADD COLUMN held_s REAL NOT NULL DEFAULT 0;
     ALTER TABLE steps ADD COLUMN record TEXT NOT NULL DEFAULT 'migrated';
+    ALTER TABLE steps ADD COLUMN charge_mah REAL;
+    ALTER TABLE steps ADD COLUMN energy_wh REAL;
+    ALTER TABLE steps ADD COLUMN voltage_time_vs REAL;
     UPDATE steps SET cycle = (
       SELECT COUNT(*) FROM steps c WHERE c.run_id = steps.run_id AND c.seq <= steps.seq AND c.kind = 'charge'
         AND NOT EXISTS (SELECT 1 FROM steps p WHERE p.run_id = c.run_id AND p.seq = c.seq - 1 AND p.kind = 'charge'));
@@ -701,6 +704,16 @@ Status Store::EndStep(int64_t run_id, double t_s, std::string_view reason) {
   return Commit();
 }
 
+Status Store::EndStep(int64_t run_id, double t_s, std::string_view reason, const StepTotals& totals) {
+  if (step_seq_ == 0) return Status::Ok();
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE steps SET ended_s=?1, end_reason=?2, charge_mah=?5, energy_wh=?6,"
+                                            " voltage_time_vs=?7 WHERE run_id=?3 AND seq=?4 AND ended_s IS NULL"));
+  up.Bind(1, t_s).Bind(2, reason).Bind(3, run_id).Bind(4, step_seq_ - 1);
+  KP_RETURN_IF_ERROR(up.Bind(5, totals.charge_mah).Bind(6, totals.energy_wh).Bind(7, totals.voltage_time_vs).Run());
+  return Commit();
+}
+
 Status Store::AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message) {
   KP_RETURN_IF_ERROR(EnsureBatch());
   KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at) VALUES(?1,?2,?3,?4,?5)"));
@@ -902,7 +915,7 @@ Result<std::vector<EventRow>> Store::LoadEvents(int64_t run_id) {
 Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(
                                   "SELECT seq, idx, kind, label, started_s, ended_s, COALESCE(end_reason,''), mode, level,"
-                                  " loop_pass, cycle, held_s, record FROM steps"
+                                   " loop_pass, cycle, held_s, record, charge_mah, energy_wh, voltage_time_vs FROM steps"
                                   " WHERE run_id=?1 ORDER BY seq"));
   q.Bind(1, run_id);
   std::vector<StepRow> out;
@@ -923,6 +936,9 @@ Result<std::vector<StepRow>> Store::LoadSteps(int64_t run_id) {
     s.cycle = static_cast<int>(q.Int(10));
     s.held_s = q.Real(11);
     s.migrated = q.Text(12) != "engine";
+    if (!q.IsNull(13)) s.charge_mah = q.Real(13);
+    if (!q.IsNull(14)) s.energy_wh = q.Real(14);
+    if (!q.IsNull(15)) s.voltage_time_vs = q.Real(15);
     out.push_back(std::move(s));
   }
   return out;

@@ -137,6 +137,9 @@ struct StepRow {
   int cycle = 0;                // 0 before the first charge; +1 at each charge that follows a non-charge step
   double held_s = 0.0;          // time the step was held (heat, operator pause, lost link)
   bool migrated = false;        // recorded before schema v3: mode, level and pass are unknown
+  // What the step delivered, as the engine integrated it over every reading
+  // (not only the stored ones); empty until the step ended, and for old rows.
+  std::optional<double> charge_mah, energy_wh, voltage_time_vs;
 };
 
 // What the runner records when a step instance starts.
@@ -211,6 +214,11 @@ class Store {
   // Written with the next commit.
   Status AddDcirPoint(int64_t run_id, const DcirRow& point);
   Status EndStep(int64_t run_id, double t_s, std::string_view reason);
+  // Same, with what the step delivered as the engine integrated it.
+  struct StepTotals {
+    double charge_mah = 0.0, energy_wh = 0.0, voltage_time_vs = 0.0;
+  };
+  Status EndStep(int64_t run_id, double t_s, std::string_view reason, const StepTotals& totals);
   // Events commit the open batch with them.
   Status AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message);
   Status FinishRun(int64_t run_id, Outcome outcome, std::string_view reason);

@@ -494,8 +494,7 @@ void Panel::CompareView() {
   for (const RunData* d : runs) {
     const Range whole = d->DataX();
     spans.push_back(whole.Empty() ? std::nullopt : LatestDischarge(d->steps, whole.hi));
-    overlays.push_back(spans.back() ? OverlayOfDischarge(d->overview, spans.back()->start_s, spans.back()->end_s)
-                                    : DischargeOverlay{});
+    overlays.push_back(spans.back() ? OverlayOfDischarge(*d, *spans.back()) : DischargeOverlay{});
   }
   float avail_h = ImGui::GetContentRegionAvail().y;
   float half_w = ImGui::GetContentRegionAvail().x * 0.5f - ImGui::GetStyle().ItemSpacing.x;
@@ -513,7 +512,7 @@ void Panel::CompareView() {
     std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
     if (o.t_s.empty()) continue;
     by_q.traces.push_back({&o.charge_mah, &o.voltage, c, name, "V", 0});
-    by_t.traces.push_back({&o.t_s, &o.voltage, c, name, "V", 0, &o.t_end_s});
+    by_t.traces.push_back({&o.t_s, &o.voltage, c, name, "V", 0, o.raw ? nullptr : &o.t_end_s});
     by_t.data_x.Include(0.0);
     by_t.data_x.Include(o.t_end_s.back());
     by_q.data_x.Include(0.0);

@@ -96,14 +96,19 @@ double ChargeAt(const RunOverview& o, double t) {
 std::vector<CycleRow> CycleRows(const RunOverview& o, const std::vector<StepRow>& steps, double record_end_s) {
   std::vector<CycleRow> out;
   if (std::none_of(steps.begin(), steps.end(), [](const StepRow& s) { return s.kind == "charge"; })) return out;
+  auto end_of = [&](size_t k) {
+    return steps[k].ended_s ? *steps[k].ended_s : (k + 1 < steps.size() ? steps[k + 1].started_s : record_end_s);
+  };
+  // Net charge a step delivered (> 0 discharged): its record, else the overview.
+  auto delivered = [&](size_t k) {
+    if (steps[k].charge_mah) return *steps[k].charge_mah;
+    return ChargeAt(o, end_of(k)) - ChargeAt(o, steps[k].started_s);
+  };
   std::map<int, CycleRow> by;
   for (size_t k = 0; k < steps.size(); ++k) {
-    const StepRow& s = steps[k];
-    CycleRow& c = by[s.cycle];
-    c.cycle = s.cycle;
-    if (s.kind != "charge") continue;
-    const double end = s.ended_s ? *s.ended_s : (k + 1 < steps.size() ? steps[k + 1].started_s : record_end_s);
-    c.charged_mah += std::max(0.0, ChargeAt(o, s.started_s) - ChargeAt(o, end));
+    CycleRow& c = by[steps[k].cycle];
+    c.cycle = steps[k].cycle;
+    if (steps[k].kind == "charge") c.charged_mah += std::max(0.0, -delivered(k));
   }
   std::vector<StepRecord> recs;
   for (const StepRow& s : steps) {
@@ -115,11 +120,12 @@ std::vector<CycleRow> CycleRows(const RunOverview& o, const std::vector<StepRow>
   for (const DischargeSpan& d : DischargeSpans(recs, record_end_s)) {
     CycleRow& c = by[d.cycle];
     c.cycle = d.cycle;
-    c.discharged_mah = ChargeAt(o, d.end_s) - ChargeAt(o, d.start_s);
+    c.discharged_mah = 0.0;
+    for (size_t k = d.first; k <= d.last; ++k) c.discharged_mah += delivered(k);
   }
   std::optional<double> first;
   for (auto& [n, c] : by) {
-    if (c.charged_mah > 0 && c.discharged_mah > 0) c.coulombic = c.discharged_mah / c.charged_mah;
+    if (c.discharged_mah > 0 && c.charged_mah > 0.01 * c.discharged_mah) c.coulombic = c.discharged_mah / c.charged_mah;
     if (c.cycle >= 1 && c.discharged_mah > 0) {
       if (!first) first = c.discharged_mah;
       c.retention = c.discharged_mah / *first;
@@ -127,6 +133,52 @@ std::vector<CycleRow> CycleRows(const RunOverview& o, const std::vector<StepRow>
     out.push_back(c);
   }
   return out;
+}
+
+DischargeOverlay OverlayOfDischarge(const RunData& run, const DischargeSpan& span) {
+  DischargeOverlay d;
+  const std::vector<Sample>& tail = run.tail;
+  if (!tail.empty() && tail.front().t_s <= span.start_s) {
+    // The newest raw samples reach back to the discharge's start: draw them.
+    d.raw = true;
+    d.duration_s = std::max(0.0, span.end_s - span.start_s);
+    std::vector<float> v;
+    double q_as = 0.0, vs = 0.0, t_span = 0.0;
+    const Sample* prev = nullptr;
+    for (const Sample& x : tail) {
+      if (x.t_s > span.end_s + 1e-9) break;
+      if (x.t_s < span.start_s - 1e-9) continue;
+      if (prev != nullptr) {
+        const double dt = x.t_s - prev->t_s;
+        q_as += 0.5 * (x.current_a + prev->current_a) * dt;
+        vs += 0.5 * (x.voltage_v + prev->voltage_v) * dt;
+        t_span += dt;
+      }
+      prev = &x;
+      d.t_s.push_back(x.t_s - span.start_s);
+      d.t_end_s.push_back(x.t_s - span.start_s);
+      d.charge_mah.push_back(q_as / 3.6);
+      v.push_back(static_cast<float>(x.voltage_v));
+    }
+    d.voltage.Append(v.data(), v.size());
+    if (t_span > 0) d.mean_voltage_v = vs / t_span;
+  } else {
+    d = OverlayOfDischarge(run.overview, span.start_s, span.end_s);
+  }
+  // The mean voltage from the step records when every step of the discharge has ended with its integral.
+  double vs = 0.0, t_span = 0.0;
+  bool all = span.last < run.steps.size();
+  for (size_t k = span.first; all && k <= span.last; ++k) {
+    const StepRow& s = run.steps[k];
+    if (!s.voltage_time_vs || !s.ended_s) {
+      all = false;
+      break;
+    }
+    vs += *s.voltage_time_vs;
+    t_span += *s.ended_s - s.started_s - s.held_s;
+  }
+  if (all && t_span > 0) d.mean_voltage_v = vs / t_span;
+  return d;
 }
 
 std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s) {

@@ -56,24 +56,26 @@ struct RunOverview {
   size_t Bytes() const;
 };
 
-// A run's overview cut to one discharge and aligned on its start, for the
-// compare view: times from the discharge's start, charge delivered since it,
-// the voltage bands, and the time-weighted mean voltage over the blocks
-// inside it (block summaries hold 128 samples: the discharge's first and last
-// partial blocks are left out of the mean, the bands and the curve).
+// One discharge of a run, aligned on its start, for the compare view: times
+// from the discharge's start, charge delivered since it, the voltage (bands
+// from the block summaries, or the raw samples when the run's newest raw
+// samples cover the discharge), and its mean voltage: from the step records
+// (each ended step's integral of V dt, as the engine took it) when they have
+// it, else over the whole 128-sample blocks inside it.
 struct DischargeOverlay {
   std::vector<double> t_s, t_end_s, charge_mah;
   MinMaxPyramid voltage;
   std::optional<double> mean_voltage_v;
   double duration_s = 0.0;
+  bool raw = false;  // drawn from raw samples
 };
 DischargeOverlay OverlayOfDischarge(const RunOverview& overview, double start_s, double end_s);
-
-// Per-cycle figures of a run for the panel, from its step records and the
-// overview's cumulative charge at block boundaries (to within one block of
-// 128 samples at each step edge): charge put in by its charge steps,
-// charge delivered by its discharge, coulombic efficiency, retention against
-// the first cycle. Empty when the run has no charge step.
+// Per-cycle figures of a run for the panel: charge put in by its charge
+// steps and delivered by its discharge, from the step records (each ended
+// step's charge as the engine integrated it); a step still running, or one
+// recorded before steps carried their charge, from the overview's cumulative
+// charge at block boundaries. Coulombic efficiency when at least 1 % went in,
+// retention against the first cycle. Empty when the run has no charge step.
 struct CycleRow {
   int cycle = 0;
   double charged_mah = 0.0, discharged_mah = 0.0;
@@ -135,6 +137,8 @@ struct RunData {
   size_t Bytes() const;
   void Clear();
 };
+
+DischargeOverlay OverlayOfDischarge(const RunData& run, const DischargeSpan& span);
 
 // What the panel knows, refreshed by RunFeed::Drain once per frame.
 struct FeedState {

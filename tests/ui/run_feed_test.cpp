@@ -404,6 +404,13 @@ TEST(CycleRows, ChargeAndDischargePerCycle) {
   }
   EXPECT_DOUBLE_EQ(*rows[0].retention, 1.0);
   EXPECT_TRUE(CycleRows(o, {steps[1]}, t).empty());  // no charge step: no cycle table
+  // With the charge each ended step recorded, the rows take it exactly.
+  for (StepRow& r : steps) r.charge_mah = r.kind == "charge" ? -2000 / 3.6 : 0.5 * 3000 / 3.6;
+  rows = CycleRows(o, steps, t);
+  ASSERT_EQ(rows.size(), 2u);
+  EXPECT_DOUBLE_EQ(rows[1].charged_mah, 2000 / 3.6);
+  EXPECT_DOUBLE_EQ(rows[1].discharged_mah, 0.5 * 3000 / 3.6);
+  EXPECT_DOUBLE_EQ(*rows[1].coulombic, 0.75);
 }
 
 }  // namespace
