@@ -169,6 +169,13 @@ TEST_F(DemoCampaignTest, DcirPointsSpanTheDischargeAndRiseTowardsEmpty) {
   for (const EventRow& e : *events)
     if (e.kind == "result") engine_ohm.push_back(std::stod(e.message.substr(e.message.find("= ") + 2)));
   ASSERT_EQ(engine_ohm.size(), f.dcir.size());
+  // One point per dcir step the run recorded: none at the charge, rest or
+  // discharge boundaries.
+  auto steps = store_->LoadSteps(RunById(f.runs[4].run_id).run_id);
+  ASSERT_TRUE(steps.ok());
+  size_t dcir_steps = 0;
+  for (const StepRow& s : *steps) dcir_steps += s.kind == "dc resistance";
+  EXPECT_EQ(dcir_steps, f.dcir.size());
   for (size_t i = 0; i < f.dcir.size(); ++i) EXPECT_NEAR(f.dcir[i].resistance_ohm, engine_ohm[i], 0.02 * engine_ohm[i]) << i;
   EXPECT_LT(f.dcir.front().depth_of_discharge, 0.05);
   EXPECT_GT(f.dcir.back().depth_of_discharge, 0.8);
