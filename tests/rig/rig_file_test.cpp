@@ -24,6 +24,7 @@ address = "tcp:192.0.2.10:5025"
 profile = "generic-scpi-load-4wire"
 roles = ["load"]
 remote_sense = true
+unguarded = ["overpower", "watchdog"]
 current_offset_a = -0.002
 current_gain = 1.001
 
