@@ -35,6 +35,7 @@
 
 #include <algorithm>
 #include <atomic>
+#include <cerrno>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
@@ -74,7 +75,7 @@ bool Ended(pid_t pid) {
 }
 double Since(Clk::time_point t0) { return std::chrono::duration<double>(Clk::now() - t0).count(); }
 
-enum class Kill { kSigkill, kSegv, kSighup, kSigpipe, kHang, kLinkFault, kHostile };
+enum class Kill { kSigkill, kSegv, kSighup, kSigpipe, kHang, kLinkFault, kHostile, kFullDisk };
 const char* KillName(Kill k) {
   switch (k) {
     case Kill::kSigkill: return "SIGKILL";
@@ -84,6 +85,7 @@ const char* KillName(Kill k) {
     case Kill::kHang: return "hang";
     case Kill::kLinkFault: return "link fault";
     case Kill::kHostile: return "hostile reply";
+    case Kill::kFullDisk: return "full disk";
   }
   return "?";
 }
@@ -161,12 +163,15 @@ class ReadingClock final : public LineDevice {
 // link is waited for 30 s of run time (1.5 s at 20x) with 0.5 s timeouts and
 // 2 retries per reading.
 constexpr double kFaultBoundS = 10.0;
+// Once its disk is full a runner fails its next commit (at most a second later).
+constexpr double kFullDiskBoundS = 5.0;
 
 struct Config {
   int trials = 150;
   uint64_t seed = 1;
   double budget_s = 540.0;
   double speed = 20.0;
+  std::string only;  // one kind of trial (its KillName), for reproducing one
 };
 
 struct TrialResult {
@@ -243,7 +248,7 @@ class Trial {
   }
   ~Trial() {
     server_.reset();
-    if (mounted_) umount2(dir_.c_str(), MNT_DETACH);
+    if (mounted_) umount2((dir_ / "disk").c_str(), MNT_DETACH);
     std::error_code ec;
     std::filesystem::remove_all(dir_, ec);
   }
@@ -326,8 +331,10 @@ class Trial {
 TrialResult Trial::Run() {
   // What this trial does, all from the seed.
   const int kind = Pick(100);
-  Kill kill = kind < 35 ? Kill::kSigkill : kind < 55 ? Kill::kSegv : kind < 67 ? Kill::kSighup : kind < 77 ? Kill::kSigpipe
-              : kind < 82 ? Kill::kHang : kind < 91 ? Kill::kLinkFault : Kill::kHostile;
+  Kill kill = kind < 32 ? Kill::kSigkill : kind < 52 ? Kill::kSegv : kind < 64 ? Kill::kSighup : kind < 74 ? Kill::kSigpipe
+              : kind < 79 ? Kill::kHang : kind < 88 ? Kill::kLinkFault : kind < 96 ? Kill::kHostile : Kill::kFullDisk;
+  for (int k = 0; !cfg_.only.empty() && k <= static_cast<int>(Kill::kFullDisk); ++k)
+    if (cfg_.only == KillName(static_cast<Kill>(k))) kill = static_cast<Kill>(k);
   r_.kill = kill;
   r_.link = Pick(3) == 0 ? "pty" : "tcp";
   sim::FaultOptions faults;
@@ -348,19 +355,26 @@ TrialResult Trial::Run() {
     hostile = static_cast<Hostility>(1 + Pick(5));
     r_.fault = HostilityName(hostile);
   }
-  r_.locked_db = kill != Kill::kSighup && kill != Kill::kLinkFault && kill != Kill::kHostile && Pick(8) == 0;
-  // A full disk: the database on a 192 KiB tmpfs (root only).
-  if (kill == Kill::kSigkill && Pick(10) == 0) {
-    if (geteuid() == 0 && mount("kp-campaign", dir_.c_str(), "tmpfs", 0, "size=192k") == 0) {
+  r_.locked_db = (kill == Kill::kSigkill || kill == Kill::kSegv || kill == Kill::kSigpipe || kill == Kill::kHang) && Pick(8) == 0;
+  // A full disk: the database alone on a 2 MiB tmpfs (when this user may
+  // mount one), filled up by another file at a random moment; the runner must
+  // end the run itself with the load off. The reason cannot be stored on a
+  // full disk: it is taken from the runner's stderr.
+  db_ = File("campaign.db");
+  if (kill == Kill::kFullDisk) {
+    std::filesystem::path disk = dir_ / "disk";
+    std::filesystem::create_directories(disk);
+    if (mount("kp-campaign", disk.c_str(), "tmpfs", 0, "size=2m") == 0) {
       mounted_ = true;
       r_.full_disk = true;
+      db_ = (disk / "campaign.db").string();
     } else {
-      r_.note = "full-disk variant skipped: cannot mount a tmpfs here (needs root)";
+      r_.note = fmt::format("full disk skipped: cannot mount a tmpfs here ({}); SIGKILL instead; ", std::strerror(errno));
+      kill = r_.kill = Kill::kSigkill;
     }
   }
 
   // The bench and its server.
-  db_ = File("campaign.db");
   clock_ = std::make_unique<SteadyClock>(cfg_.speed);
   bench_ = std::make_unique<sim::SimBench>(sim::DemoLiIonCell(2.56), *clock_);
   load_clock_ = std::make_unique<ReadingClock>(bench_->load(), *clock_);
@@ -412,15 +426,27 @@ TrialResult Trial::Run() {
     info = {};
     return waitid(P_PID, static_cast<id_t>(pid), &info, WEXITED | WNOHANG | WNOWAIT) == 0 && info.si_pid == pid;
   };
-  if (kill == Kill::kLinkFault || kill == Kill::kHostile) {
-    // The runner ends it by itself within kFaultBoundS, or copes (retries,
-    // a held step, a reconnect) and is killed then. A hostile reply must
-    // never be coped with.
-    while (!dead() && Since(t_start) < kFaultBoundS) std::this_thread::sleep_for(std::chrono::milliseconds(10));
+  const std::string filler = (dir_ / "disk" / "filler").string();
+  if (kill == Kill::kLinkFault || kill == Kill::kHostile || kill == Kill::kFullDisk) {
+    // The runner ends it by itself within its bound, or copes (retries, a
+    // held step, a reconnect) and is killed then. A hostile reply and a full
+    // disk must never be coped with.
+    Clk::time_point from = t_start;
+    double bound_s = kFaultBoundS;
+    if (kill == Kill::kFullDisk) {
+      std::this_thread::sleep_for(std::chrono::duration<double>(wait_s));
+      std::ofstream fill(filler, std::ios::binary);
+      std::string block(4096, '\0');
+      while (fill.write(block.data(), static_cast<std::streamsize>(block.size())) && fill.flush()) {
+      }
+      from = Clk::now();
+      bound_s = kFullDiskBoundS;
+    }
+    while (!dead() && Since(from) < bound_s) std::this_thread::sleep_for(std::chrono::milliseconds(10));
     t_signal = Clk::now();
     if (!dead()) {
       r_.note += "runner coped; SIGKILL";
-      if (kill == Kill::kHostile) r_.past_bound = true;
+      if (kill != Kill::kLinkFault) r_.past_bound = true;
       SendSignal(pid, SIGKILL);
     }
   } else {
@@ -471,7 +497,8 @@ TrialResult Trial::Run() {
   load_clock_->Freeze();
   // The record (the guardian may wait for a locked database).
   std::optional<RunRow> run;
-  for (Clk::time_point t0 = Clk::now(); Since(t0) < 20.0;) {
+  // (On a full disk the end cannot be recorded: no use waiting for it.)
+  for (Clk::time_point t0 = Clk::now(); Since(t0) < (r_.full_disk ? 1.0 : 20.0);) {
     run = Newest();
     if (run && run->outcome != Outcome::kRunning) break;
     std::this_thread::sleep_for(std::chrono::milliseconds(20));
@@ -479,6 +506,16 @@ TrialResult Trial::Run() {
   int status = 0;
   waitpid(pid, &status, 0);
   locker.reset();
+  if (r_.full_disk) {
+    std::filesystem::remove(filler);  // room again, for the checks and the resume
+    if (run && run->outcome == Outcome::kRunning) {
+      std::ifstream in(File("run.log"));
+      std::string line, reason;
+      while (std::getline(in, line))
+        if (line.rfind("kneepoint: run ", 0) == 0) reason = line;
+      run->reason = "(stderr only, the disk was full) " + reason;
+    }
+  }
   if (run) {
     r_.outcome = OutcomeName(run->outcome);
     r_.reason = run->reason;
@@ -496,18 +533,29 @@ TrialResult Trial::Run() {
     }
   }
   // Resume continues an interrupted run.
-  if (run && run->outcome == Outcome::kInterrupted && !r_.full_disk) {
+  // (A run whose end could not be recorded on a full disk is marked
+  // interrupted by the next open, resume's included.)
+  if (run && (run->outcome == Outcome::kInterrupted || (r_.full_disk && run->outcome == Outcome::kRunning))) {
     double before_t = 0;
     int64_t before = Samples(run->id, &before_t);
-    pid_t again = Start({"resume", std::to_string(run->id), "--db", db_, "--rig", File("rig.toml")}, "", -1, "resume.log");
+    // A second try, as an operator would, when the first was refused (a
+    // reply the faulty link delayed past the dead runner can still be on
+    // its way and answer the resume's *IDN?).
     int64_t now = before;
-    for (Clk::time_point t0 = Clk::now(); Since(t0) < 10.0 && now <= before;) {
-      std::this_thread::sleep_for(std::chrono::milliseconds(20));
-      now = Samples(run->id);
-      if (Ended(again)) break;
+    for (int attempt = 0; attempt < 2 && now <= before; ++attempt) {
+      if (attempt > 0) {
+        std::this_thread::sleep_for(std::chrono::milliseconds(500));
+        r_.note += " resume needed a second try;";
+      }
+      pid_t again = Start({"resume", std::to_string(run->id), "--db", db_, "--rig", File("rig.toml")}, "", -1, "resume.log");
+      for (Clk::time_point t0 = Clk::now(); Since(t0) < 10.0 && now <= before;) {
+        std::this_thread::sleep_for(std::chrono::milliseconds(20));
+        now = Samples(run->id);
+        if (Ended(again)) break;
+      }
+      SendSignal(again, SIGTERM);
+      waitpid(again, nullptr, 0);
     }
-    SendSignal(again, SIGTERM);
-    waitpid(again, nullptr, 0);
     r_.resumed = now > before ? "yes" : "no";
     if (r_.resumed == "no") {
       std::ifstream in(File("resume.log"));
@@ -534,8 +582,9 @@ int main(int argc, char** argv) {
     else if (k == "--seed") cfg.seed = std::strtoull(argv[i + 1], nullptr, 10);
     else if (k == "--budget-s") cfg.budget_s = std::atof(argv[i + 1]);
     else if (k == "--speed") cfg.speed = std::atof(argv[i + 1]);
+    else if (k == "--only") cfg.only = argv[i + 1];
     else {
-      std::fprintf(stderr, "usage: %s [--trials N] [--seed S] [--budget-s SECONDS] [--speed K]\n", argv[0]);
+      std::fprintf(stderr, "usage: %s [--trials N] [--seed S] [--budget-s SECONDS] [--speed K] [--only KIND]\n", argv[0]);
       return 2;
     }
   }
@@ -563,7 +612,7 @@ int main(int argc, char** argv) {
   std::vector<double> offs;
   double worst_lost = 0;
   for (const TrialResult& r : results) {
-    const bool fault_trial = r.kill == Kill::kLinkFault || r.kill == Kill::kHostile;
+    const bool fault_trial = r.kill == Kill::kLinkFault || r.kill == Kill::kHostile || r.kill == Kill::kFullDisk;
     const bool ended_abnormally = r.died_abnormally || r.kill == Kill::kSighup;
     if (ended_abnormally) {
       ++abnormal;
@@ -597,7 +646,8 @@ int main(int argc, char** argv) {
   }
   std::printf(")\n  load and supply read off within 2 s of the runner's end: %d of %d (median %.3f s, worst %.3f s)\n", off_2s, abnormal,
               pct(0.5), offs.empty() ? -1.0 : offs.back());
-  std::printf("  link faults and hostile replies ended by the runner: %d, with the load off and a stored reason: %d\n", faults, faults_ok);
+  std::printf("  link faults, hostile replies and full disks ended by the runner: %d, with the load off and a stored reason: %d\n", faults,
+              faults_ok);
   std::printf("  interrupted runs resumed: %d, continuing: %d\n", interrupted, resumed);
   std::printf("  databases failing integrity_check: %d\n", corrupt);
   std::printf("  samples lost at a kill: worst %.2f s of wall time (%.0f s of run time); kills over one commit window: %d\n", worst_lost,
