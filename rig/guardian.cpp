@@ -282,10 +282,12 @@ class RunBook {
     return true;
   }
   // Newest run claimed by the runner: id, heartbeat (0 when none).
-  bool Find(int64_t& run_id, int64_t& heartbeat) {
+  // `running` is false for a run not (or no longer) under way: its
+  // heartbeat says nothing about the runner.
+  bool Find(int64_t& run_id, int64_t& heartbeat, bool* running = nullptr) {
     if (!Open()) return false;
     auto q = db_->Prepare(
-        "SELECT id, COALESCE(heartbeat_at, 0) FROM runs WHERE runner_pid=?1 AND runner_host=?2 AND id>=?3"
+        "SELECT id, COALESCE(heartbeat_at, 0), outcome = 'running' FROM runs WHERE runner_pid=?1 AND runner_host=?2 AND id>=?3"
         " AND outcome IN ('running', 'interrupted') AND (?4 = 0 OR id = ?4) ORDER BY id DESC LIMIT 1");
     if (!q.ok()) return false;
     q->Bind(1, static_cast<int64_t>(runner_)).Bind(2, host_).Bind(3, first_new_id_).Bind(4, resume_run_id_);
@@ -293,6 +295,7 @@ class RunBook {
     if (!row.ok() || !*row) return false;
     run_id = q->Int(0);
     heartbeat = q->Int(1);
+    if (running != nullptr) *running = q->Int(2) != 0;
     return true;
   }
   // Runs created from now on are this runner's (a resumed run is named).
@@ -406,7 +409,8 @@ struct ChildPlan {
     if (hung && MonoNow() - last_change - hung_for_s > 5.0) break;
     if (hung || clean) continue;
     int64_t id = 0, beat = 0;
-    if (book.Find(id, beat)) {
+    bool running = false;
+    if (book.Find(id, beat, &running) && running) {
       if (id != run_id || beat != last_beat) {
         run_id = id;
         last_beat = beat;

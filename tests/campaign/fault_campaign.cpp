@@ -610,7 +610,7 @@ int main(int argc, char** argv) {
   int abnormal = 0, off_2s = 0, corrupt = 0, over_window = 0, faults = 0, faults_ok = 0, past = 0, interrupted = 0, resumed = 0;
   std::map<std::string, int> by_kind;
   std::vector<double> offs;
-  double worst_lost = 0;
+  double worst_lost = 0, worst_lost_locked = 0;
   for (const TrialResult& r : results) {
     const bool fault_trial = r.kill == Kill::kLinkFault || r.kill == Kill::kHostile || r.kill == Kill::kFullDisk;
     const bool ended_abnormally = r.died_abnormally || r.kill == Kill::kSighup;
@@ -626,11 +626,15 @@ int main(int argc, char** argv) {
       if (r.off_after_s >= 0 && r.off_after_s <= 2.0 && !r.reason.empty()) ++faults_ok;
     }
     if (!r.integrity_ok) ++corrupt;
-    // Kills on a sound link: one commit window (1 s wall) plus one sample's slack.
-    if (r.died_abnormally && !fault_trial) {
+    // Kills on a sound link and an unlocked database: one commit window (1 s
+    // wall) plus one sample's slack. While another process holds the
+    // database, nothing can be committed: what was staged meanwhile is lost
+    // too, reported apart.
+    if (r.died_abnormally && !fault_trial && !r.locked_db) {
       if (r.lost_wall_s > 1.0 + 0.25) ++over_window;
       worst_lost = std::max(worst_lost, r.lost_wall_s);
     }
+    if (r.died_abnormally && r.locked_db) worst_lost_locked = std::max(worst_lost_locked, r.lost_wall_s);
     if (r.past_bound) ++past;
     if (r.resumed != "-") ++interrupted;
     if (r.resumed == "yes") ++resumed;
@@ -652,6 +656,8 @@ int main(int argc, char** argv) {
   std::printf("  databases failing integrity_check: %d\n", corrupt);
   std::printf("  samples lost at a kill: worst %.2f s of wall time (%.0f s of run time); kills over one commit window: %d\n", worst_lost,
               worst_lost * cfg.speed, over_window);
+  std::printf("  samples lost at a kill while the database was locked by another process: worst %.2f s of wall time\n",
+              worst_lost_locked);
   std::printf("  trials past their bound: %d\n", past);
   const bool ok = off_2s == abnormal && corrupt == 0 && over_window == 0 && faults_ok == faults && past == 0 && resumed == interrupted;
   std::printf("%s\n", ok ? "all targets met" : "TARGETS MISSED");
