@@ -10,6 +10,7 @@
 #include <cstdio>
 #include <cstring>
 #include <ctime>
+#include <filesystem>
 #include <vector>
 
 #include <fcntl.h>
@@ -576,7 +577,27 @@ void InstallFatalSignalNotice() {
   for (int sig : {SIGSEGV, SIGABRT, SIGBUS, SIGFPE, SIGILL}) ::sigaction(sig, &sa, nullptr);
 }
 
+// Whether this process has `db` (or its journal files) open: the guardian is
+// a fork, and SQLite keeps per-file lock bookkeeping process-wide, which a
+// child must not inherit for the file it opens itself.
+bool DatabaseOpenHere(const std::string& db) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  fs::path base = fs::weakly_canonical(fs::absolute(db, ec), ec);
+  if (ec) return false;
+  for (const auto& entry : fs::directory_iterator("/proc/self/fd", ec)) {
+    fs::path target = fs::read_symlink(entry.path(), ec);
+    if (ec) continue;
+    for (const char* suffix : {"", "-wal", "-shm", "-journal"})
+      if (target == fs::path(base.string() + suffix)) return true;
+  }
+  return false;
+}
+
 Result<std::unique_ptr<Guardian>> Guardian::Start(const RigFileSpec& rig, const GuardianOptions& options) {
+  if (DatabaseOpenHere(options.db_path))
+    return InternalError(fmt::format("{} is open in this process; the guardian must be started before the database is opened",
+                                     options.db_path));
   ChildPlan plan;
   KP_ASSIGN_OR_RETURN(plan.targets, PrepareTargets(rig));
   plan.options = options;

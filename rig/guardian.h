@@ -67,6 +67,8 @@ double DefaultHangLimitS(double link_grace_s, double longest_sample_period_s, do
 class Guardian {
  public:
   // Forks and arms the guardian for the load and supply roles of `rig`.
+  // Refused while this process has the database open (the child opens its
+  // own connection; SQLite's process-wide lock state must not be inherited).
   static Result<std::unique_ptr<Guardian>> Start(const RigFileSpec& rig, const GuardianOptions& options);
   // Calls CleanEnd().
   ~Guardian();

@@ -40,6 +40,7 @@ int RunResume(const ResumeOptions& opt) {
   SteadyClock wall;
   auto store = OpenExistingDb(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());
+  std::unique_ptr<Guardian> guardian;
   // Database-only checks first, then the rig: nothing touches an instrument
   // before this process holds the rig's lock.
   auto run = (*store)->GetRun(opt.run_id);
@@ -49,9 +50,18 @@ int RunResume(const ResumeOptions& opt) {
         InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
   auto plan = ResumablePlan(**store, opt.run_id, RebuildStoredPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
-  // A rig file's outputs are watched by a guardian before any is opened.
-  auto guardian = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id);
-  if (!guardian.ok()) return Fail(guardian.status());
+  // A rig file's outputs are watched by a guardian before any is opened. The
+  // guardian is a fork: it must not inherit an open SQLite connection (its
+  // own would share that connection's lock bookkeeping), so the database is
+  // closed around its start.
+  if (opt.rig != "sim") {
+    store->reset();
+    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id);
+    if (!started.ok()) return Fail(started.status());
+    guardian = std::move(*started);
+    store = OpenExistingDb(opt.db_path, wall);
+    if (!store.ok()) return Fail(store.status());
+  }
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
   auto rig = OpenRig(opt.rig, ro);

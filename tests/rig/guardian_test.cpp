@@ -7,7 +7,9 @@
 // (SIGPIPE) are checked too. The full seeded campaign is
 // tests/campaign/fault_campaign.sh.
 #include <gtest/gtest.h>
+#include <netinet/in.h>
 #include <signal.h>
+#include <sys/socket.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -29,6 +31,8 @@
 #include "drivers/sim/sim_server.h"
 #include "drivers/stream_transport.h"
 #include "rig/cli/cli.h"
+#include "rig/guardian.h"
+#include "rig/rig_file.h"
 #include "rig/store.h"
 #include "tests/support/test_support.h"
 
@@ -282,6 +286,91 @@ TEST(Guardian, ClosedStdoutDoesNotEndTheRun) {
   RunRow run = store->ListRuns()->back();
   EXPECT_EQ(run.outcome, Outcome::kCompleted) << run.reason;
   EXPECT_TRUE(g.LoadReadsOff());
+}
+
+// The guardian is a fork and opens its own connection: starting it with the
+// database already open in this process is refused.
+TEST(Guardian, RefusesToStartWithTheDatabaseOpen) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  auto store = Store::Open(dir.File("open.db"), wall);
+  ASSERT_TRUE(store.ok());
+  RigFileSpec spec;
+  GuardianOptions go;
+  go.db_path = dir.File("open.db");
+  auto g = Guardian::Start(spec, go);
+  ASSERT_FALSE(g.ok());
+  EXPECT_NE(g.status().message().find("must be started before the database is opened"), std::string::npos) << g.status().message();
+}
+
+// A load that never answers (a listener that accepts nothing): the guardian
+// tries for its give-up time, then records the output as NOT verified off,
+// and names the runner's exit status.
+TEST(Guardian, ALoadThatNeverAnswersIsRecordedAsNotVerified) {
+  testing::TempDir dir;
+  int listener = socket(AF_INET, SOCK_STREAM, 0);
+  sockaddr_in sa{};
+  sa.sin_family = AF_INET;
+  sa.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+  ASSERT_EQ(bind(listener, reinterpret_cast<sockaddr*>(&sa), sizeof sa), 0);
+  ASSERT_EQ(listen(listener, 8), 0);
+  socklen_t len = sizeof sa;
+  getsockname(listener, reinterpret_cast<sockaddr*>(&sa), &len);
+  RigFileSpec spec;
+  spec.path = dir.File("silent.toml");
+  InstrumentSpec load;
+  load.name = "mute load";
+  load.address = fmt::format("tcp:127.0.0.1:{}", ntohs(sa.sin_port));
+  load.roles = {"load"};
+  load.timeout_s = 0.2;
+  spec.instruments.push_back(load);
+  const std::string db = dir.File("silent.db");
+  std::fflush(nullptr);
+  pid_t runner = fork();
+  if (runner == 0) {
+    // A runner with a run under way, then gone without a clean end.
+    GuardianOptions go;
+    go.db_path = db;
+    go.give_up_s = 1.0;
+    auto guardian = Guardian::Start(spec, go);
+    if (!guardian.ok()) _exit(11);
+    SteadyClock wall;
+    auto store = Store::Open(db, wall);
+    if (!store.ok()) _exit(10);
+    if (!(*store)->BeginRun(NewRun{"mute-cell", "li-ion", 2500, "p", "p", spec.path}).ok()) _exit(12);
+    _exit(3);
+  }
+  int status = 0;
+  ASSERT_EQ(waitpid(runner, &status, 0), runner);
+  ASSERT_TRUE(WIFEXITED(status));
+  ASSERT_EQ(WEXITSTATUS(status), 3);
+  // Reaped already: the guardian cannot read the exit status any more, and says so.
+  RunRow run;
+  std::string faults;
+  for (int i = 0; i < 200 && run.outcome != Outcome::kInterrupted; ++i) {
+    std::this_thread::sleep_for(25ms);
+    SteadyClock wall;
+    Store::Options o;
+    o.create = false;
+    auto store = Store::Open(db, wall, o);
+    if (!store.ok()) continue;
+    auto r = (*store)->GetRun(1);
+    if (r.ok()) run = *r;
+    auto ev = (*store)->LoadEvents(1);
+    faults.clear();
+    if (ev.ok())
+      for (const EventRow& e : *ev)
+        if (e.kind == "fault") faults += e.message;
+  }
+  close(listener);
+  EXPECT_EQ(run.outcome, Outcome::kInterrupted);
+  EXPECT_NE(run.reason.find("could NOT verify every output off"), std::string::npos) << run.reason;
+  EXPECT_TRUE(run.reason.find("exited with status 3") != std::string::npos ||
+              run.reason.find("its exit status was already collected") != std::string::npos)
+      << run.reason;
+  EXPECT_NE(faults.find("load input 'mute load'"), std::string::npos) << faults;
+  EXPECT_NE(faults.find("NOT verified off after 1 s"), std::string::npos) << faults;
+  EXPECT_NE(faults.find("no state reply to INP?"), std::string::npos) << faults;
 }
 
 }  // namespace
