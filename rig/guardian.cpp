@@ -36,6 +36,8 @@ std::atomic<int> g_guardian_fd{-1};
 constexpr char kCleanEnd = 'E';
 constexpr char kFatal = 'F';
 constexpr char kArmed = 'R';
+// Wall seconds spent checking the outputs after a clean end.
+constexpr double kCleanEndCheckS = 5.0;
 
 // One output to switch off, everything prepared before the fork.
 struct Target {
@@ -299,6 +301,36 @@ class RunBook {
     if (running != nullptr) *running = q->Int(2) != 0;
     return true;
   }
+  // Newest run of the runner whatever its outcome (after a clean end).
+  bool FindAny(int64_t& run_id, int64_t& heartbeat) {
+    if (!Open()) return false;
+    auto q = db_->Prepare(
+        "SELECT id, COALESCE(heartbeat_at, 0) FROM runs WHERE runner_pid=?1 AND runner_host=?2 AND id>=?3"
+        " AND (?4 = 0 OR id = ?4) ORDER BY id DESC LIMIT 1");
+    if (!q.ok()) return false;
+    q->Bind(1, static_cast<int64_t>(runner_)).Bind(2, host_).Bind(3, first_new_id_).Bind(4, resume_run_id_);
+    Result<bool> row = q->Step();
+    if (!row.ok() || !*row) return false;
+    run_id = q->Int(0);
+    heartbeat = q->Int(1);
+    return true;
+  }
+  // Adds events to a run without changing its outcome.
+  Status Note(int64_t run_id, const std::vector<std::pair<std::string, std::string>>& events, const std::string& wall_at) {
+    if (!Open()) return Unavailable(fmt::format("cannot open {}", path_));
+    KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
+    auto body = [&]() -> Status {
+      for (const auto& [kind, message] : events) {
+        KP_ASSIGN_OR_RETURN(auto ev, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at)"
+                                                  " SELECT id, COALESCE(progress_t_s, 0), ?1, ?2, ?3 FROM runs WHERE id=?4"));
+        KP_RETURN_IF_ERROR(ev.Bind(1, kind).Bind(2, message).Bind(3, wall_at).Bind(4, run_id).Run());
+      }
+      return db_->Exec("COMMIT");
+    };
+    Status st = body();
+    if (!st.ok()) (void)db_->Exec("ROLLBACK");
+    return st;
+  }
   // Runs created from now on are this runner's (a resumed run is named).
   void NoteBaseline() {
     if (resume_run_id_ != 0 || !Open()) return;
@@ -344,6 +376,34 @@ struct ChildPlan {
   GuardianOptions options;
   pid_t runner = 0;
 };
+
+// Outputs found on (or not verifiable) after the runner had ended its run
+// itself: switched off all the same, and noted on the run, whose outcome
+// stays what the runner recorded.
+[[noreturn]] void RecordAfterCleanEnd(const ChildPlan& plan, RunBook& book, const TargetResult* results, size_t n) {
+  SteadyClock wall;
+  std::vector<std::pair<std::string, std::string>> events;
+  bool all_off = true;
+  for (size_t i = 0; i < n; ++i) {
+    const Target& t = plan.targets[i];
+    const TargetResult& res = results[i];
+    all_off = all_off && res.verified;
+    if (res.verified && res.found != 1) continue;
+    const char* found = res.found == 1 ? "found ON" : "state not read";
+    std::string msg = res.verified ? fmt::format("after the runner's own end, {} '{}' ({}) was {}; switched off, verified off by {} {:.2f} s later",
+                                                 t.what, t.name, t.address, found, t.query, res.verified_after_s)
+                                   : fmt::format("after the runner's own end, {} '{}' ({}): {}; NOT verified off: {}", t.what, t.name, t.address,
+                                                 found, res.error);
+    Say(fmt::format("kneepoint guardian: {}\n", msg).c_str());
+    events.emplace_back(res.verified ? "guardian" : "fault", msg);
+  }
+  int64_t id = 0, beat = 0;
+  if (book.FindAny(id, beat)) {
+    Status st = book.Note(id, events, wall.WallTimeIso());
+    if (!st.ok()) Say(fmt::format("kneepoint guardian: could not record on run {}: {}\n", id, st.ToString()).c_str());
+  }
+  ::_exit(all_off ? 0 : 1);
+}
 
 [[noreturn]] void GuardianMain(const ChildPlan& plan, int from_runner, int to_runner) {
   ::setsid();
@@ -428,15 +488,22 @@ struct ChildPlan {
     }
   }
   const double ended_at = MonoNow();
-  if (clean) ::_exit(0);
 
   // --- the path that matters: no allocation until every output is verified off ---
+  // After a clean end too: the runner has closed its links by then, and an
+  // off command it sent may have been lost on the way. Silent when all was off.
   int exit_code = 0;
-  const bool code_known = RunnerExitCode(plan.runner, exit_code);
+  const bool code_known = !clean && RunnerExitCode(plan.runner, exit_code);
   TargetResult results[16];
   const size_t n_targets = std::min<size_t>(plan.targets.size(), 16);
-  const double give_up = ended_at + plan.options.give_up_s;
+  const double give_up = ended_at + (clean ? std::min(plan.options.give_up_s, kCleanEndCheckS) : plan.options.give_up_s);
   for (size_t i = 0; i < n_targets; ++i) SwitchOff(plan.targets[i], ended_at, give_up, results[i]);
+  if (clean) {
+    bool all_found_off = true;
+    for (size_t i = 0; i < n_targets; ++i) all_found_off = all_found_off && results[i].verified && results[i].found != 1;
+    if (all_found_off) ::_exit(0);
+    RecordAfterCleanEnd(plan, book, results, n_targets);
+  }
   for (size_t i = 0; i < n_targets; ++i) {
     char msg[320];
     std::snprintf(msg, sizeof msg, "kneepoint guardian: %s '%s' (%s): %s\n", plan.targets[i].what.c_str(), plan.targets[i].name.c_str(),

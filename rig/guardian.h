@@ -14,8 +14,11 @@
 //     (setsid: a terminal hang-up or Ctrl-C does not reach it) and ignores
 //     SIGINT, SIGHUP, SIGQUIT, SIGTERM and SIGPIPE. Start returns once the
 //     guardian says it is armed.
-//   - The runner holds the write end of a pipe. CleanEnd() sends "clean end"
-//     and the guardian exits without touching anything. End of file without
+//   - The runner holds the write end of a pipe. CleanEnd() sends "clean end";
+//     once the runner has closed its links the guardian still asks every
+//     load and supply for its state (an off command may have been lost) and
+//     exits silently when all were off; one found on is switched off and
+//     noted on the run, whose outcome stays the runner's. End of file without
 //     it means the runner is gone (the kernel closes the pipe however a
 //     process dies). A fatal signal handler (InstallFatalSignalNotice) adds
 //     the signal's number first.

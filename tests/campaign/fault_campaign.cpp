@@ -353,6 +353,10 @@ TrialResult Trial::Run() {
     }
   } else if (kill == Kill::kHostile) {
     hostile = static_cast<Hostility>(1 + Pick(5));
+    // The simulator serves every pty from one thread: an endless line that
+    // nobody reads any more fills the pty and stalls the other instruments
+    // with it, which separate instruments would not do. Over TCP only.
+    if (hostile == Hostility::kEndless) r_.link = "tcp";
     r_.fault = HostilityName(hostile);
   }
   r_.locked_db = (kill == Kill::kSigkill || kill == Kill::kSegv || kill == Kill::kSigpipe || kill == Kill::kHang) && Pick(8) == 0;

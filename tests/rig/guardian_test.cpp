@@ -373,5 +373,54 @@ TEST(Guardian, ALoadThatNeverAnswersIsRecordedAsNotVerified) {
   EXPECT_NE(faults.find("no state reply to INP?"), std::string::npos) << faults;
 }
 
+// A clean end with the load still on (the runner's off command lost on the
+// way): the guardian's own check after the runner has closed its links finds
+// it on, switches it off and notes it; the outcome stays the runner's.
+TEST(Guardian, ALoadLeftOnAtACleanEndIsFoundAndSwitchedOff) {
+  GuardedBench g("tcp:127.0.0.1:0");
+  auto spec = LoadRigFile(g.rig);
+  ASSERT_TRUE(spec.ok()) << spec.status().ToString();
+  std::fflush(nullptr);
+  pid_t runner = fork();
+  if (runner == 0) {
+    GuardianOptions go;
+    go.db_path = g.db;
+    auto guardian = Guardian::Start(*spec, go);
+    if (!guardian.ok()) _exit(11);
+    {
+      SteadyClock wall;
+      auto store = Store::Open(g.db, wall);
+      if (!store.ok()) _exit(10);
+      auto id = (*store)->BeginRun(NewRun{"left-on", "li-ion", 2500, "p", "p", g.rig});
+      if (!id.ok()) _exit(12);
+      auto t = OpenTransport(g.server->client_addresses()[0]);
+      if (!t.ok()) _exit(13);
+      ScpiSession s(std::move(*t), wall);
+      if (!s.Write("CURR 0.5").ok() || !s.Write("INP ON").ok()) _exit(14);
+      auto on = s.Query("INP?");
+      if (!on.ok() || *on != "1") _exit(14);
+      if (!(*store)->FinishRun(*id, Outcome::kCompleted, "procedure complete").ok()) _exit(15);
+    }  // links and database closed, the load still on
+    (*guardian)->CleanEnd();
+    _exit(0);
+  }
+  int status = 0;
+  ASSERT_EQ(waitpid(runner, &status, 0), runner);
+  ASSERT_TRUE(WIFEXITED(status));
+  ASSERT_EQ(WEXITSTATUS(status), 0);
+  EXPECT_GE(g.SecondsUntilLoadOff(2.0), 0.0) << "the load was left on";
+  std::string notes;
+  for (int i = 0; i < 100 && notes.empty(); ++i) {
+    std::this_thread::sleep_for(25ms);
+    notes = g.Events(1, "guardian");
+  }
+  EXPECT_NE(notes.find("after the runner's own end, load input 'sim load'"), std::string::npos) << notes;
+  EXPECT_NE(notes.find("was found ON; switched off, verified off by INP?"), std::string::npos) << notes;
+  EXPECT_EQ(notes.find("supply"), std::string::npos) << "the supply was off: nothing to note";
+  auto store = g.OpenDb();
+  ASSERT_TRUE(store);
+  EXPECT_EQ(store->GetRun(1)->outcome, Outcome::kCompleted);
+}
+
 }  // namespace
 }  // namespace kp
