@@ -282,6 +282,9 @@ class RunBook {
     auto db = sql::Db::Open(path_, /*create=*/false);
     if (!db.ok()) return false;
     db_ = std::move(*db);
+    // Watching must not wait on the runner's locks: a heartbeat read that
+    // cannot be had at once is simply tried again a second later.
+    sqlite3_busy_timeout(db_->raw(), 100);
     return true;
   }
   // Newest run claimed by the runner: id, heartbeat (0 when none).
@@ -318,6 +321,7 @@ class RunBook {
   // Adds events to a run without changing its outcome.
   Status Note(int64_t run_id, const std::vector<std::pair<std::string, std::string>>& events, const std::string& wall_at) {
     if (!Open()) return Unavailable(fmt::format("cannot open {}", path_));
+    sqlite3_busy_timeout(db_->raw(), 5000);
     KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
     auto body = [&]() -> Status {
       for (const auto& [kind, message] : events) {
@@ -344,6 +348,7 @@ class RunBook {
   Status Record(int64_t run_id, const std::string& reason, const std::vector<std::pair<std::string, std::string>>& events,
                 const std::string& wall_at) {
     if (!Open()) return Unavailable(fmt::format("cannot open {}", path_));
+    sqlite3_busy_timeout(db_->raw(), 5000);
     KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
     auto body = [&]() -> Status {
       KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET outcome='interrupted', reason=?1 WHERE id=?2"
