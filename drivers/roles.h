@@ -90,6 +90,13 @@ class LoadDriver {
   Result<double> ReadGuard(LoadGuard g);
   // The input's state as the load reports it.
   Result<bool> InputState();
+  // The watchdog guard is armed only on loads reached over a link (rig
+  // files): a simulated load in this process dies with it. The instrument
+  // counts in its own seconds: wall seconds on hardware, simulated ones on
+  // `kneepoint sim --speed K` (K of them per wall second, the rig file's
+  // clock_speed). 0: not armed (the default).
+  void EnableWatchdog(double instrument_seconds_per_wall_second) { watchdog_scale_ = instrument_seconds_per_wall_second; }
+  double watchdog_scale() const { return watchdog_scale_; }
   const LoadCommands& commands() const { return cmd_; }
   Status SetRemoteSense(bool on);
   Result<double> MeasureVoltage();
@@ -118,6 +125,7 @@ class LoadDriver {
   LoadMode mode_ = LoadMode::kCurrent;
   Calibration cal_v_, cal_i_;
   double max_current_a_ = 0.0, max_power_w_ = 0.0;
+  double watchdog_scale_ = 0.0;
 };
 
 struct MeterCommands {

@@ -8,7 +8,7 @@
 
 namespace kp {
 
-std::vector<GuardSetting> GuardSettingsFor(const Plan& plan) {
+std::vector<GuardSetting> GuardSettingsFor(const Plan& plan, double watchdog_scale) {
   std::vector<GuardSetting> out;
   const SafetyLimits& l = plan.limits;
   // Under-voltage: below the lowest voltage the procedure itself stops at.
@@ -38,17 +38,26 @@ std::vector<GuardSetting> GuardSettingsFor(const Plan& plan) {
   else
     op.why_unset = "the procedure sets no max-current or max-voltage";
   out.push_back(op);
-  out.push_back({LoadGuard::kWatchdog, std::max(kWatchdogMinS, kWatchdogPeriods * longest_period_s), ""});
+  GuardSetting wd{LoadGuard::kWatchdog, std::nullopt, ""};
+  if (watchdog_scale > 0)
+    wd.value = std::max(kWatchdogMinS * watchdog_scale, kWatchdogPeriods * longest_period_s);
+  else
+    wd.why_unset = "not used: the simulated load lives in this process";
+  out.push_back(wd);
   return out;
 }
 
 GuardReport ArmLoadGuards(LoadDriver& load, const Plan& plan) {
   GuardReport rep;
-  for (const GuardSetting& g : GuardSettingsFor(plan)) {
+  for (const GuardSetting& g : GuardSettingsFor(plan, load.watchdog_scale())) {
     const char* name = LoadGuardName(g.guard);
     const char* unit = LoadGuardUnit(g.guard);
     if (!load.HasGuard(g.guard)) {
       rep.missing.push_back(fmt::format("the load has no {} protection (acknowledged in the rig file)", name));
+      continue;
+    }
+    if (g.guard == LoadGuard::kWatchdog && load.watchdog_scale() <= 0) {
+      rep.armed.push_back(fmt::format("{} {}", name, g.why_unset));
       continue;
     }
     if (!g.value) {

@@ -9,9 +9,10 @@
 //   overcurrent   the procedure's max-current times LoadGuardHeadroom
 //   overpower     max-current times max-voltage times LoadGuardHeadroom
 //   watchdog      input off when no command reached the load for the longer of
-//                 kWatchdogMinS and kWatchdogPeriods sample periods (run-clock
-//                 seconds; the run queries the load every sample period while
-//                 its input is on)
+//                 kWatchdogMinS wall seconds and kWatchdogPeriods sample
+//                 periods (the run queries the load every sample period while
+//                 its input is on); only on loads reached over a link
+//                 (LoadDriver::EnableWatchdog), in the instrument's seconds
 #pragma once
 
 #include <optional>
@@ -34,8 +35,10 @@ struct GuardSetting {
   std::string why_unset;
 };
 
-// What each guard should be set to for `plan`.
-std::vector<GuardSetting> GuardSettingsFor(const Plan& plan);
+// What each guard should be set to for `plan`. `watchdog_scale`: the
+// instrument's seconds per wall second (LoadDriver::watchdog_scale); 0 leaves
+// the watchdog unset.
+std::vector<GuardSetting> GuardSettingsFor(const Plan& plan, double watchdog_scale = 1.0);
 
 struct GuardReport {
   std::vector<std::string> armed;    // "undervoltage 2.400 V (read back 2.400 V)"

@@ -66,6 +66,7 @@ int RunResume(const ResumeOptions& opt) {
   ro.sim_speed = opt.speed;
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
+  if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());

@@ -77,6 +77,7 @@ int RunRun(const RunCmdOptions& opt) {
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
+  if (Status st = EnableWatchdogFor(opt.rig, *roles.load); !st.ok()) return Fail(st);
   // What this rig can do; a rig file may tighten these further.
   auto plan = LoadProcedure(opt.file, PlanLimitsFor(**rig));
   if (!plan.ok()) {

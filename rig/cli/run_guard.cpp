@@ -30,6 +30,13 @@ Result<std::unique_ptr<Guardian>> StartGuardianFor(const std::string& rig, const
   return Guardian::Start(spec, go);
 }
 
+Status EnableWatchdogFor(const std::string& rig, LoadDriver& load) {
+  if (rig == "sim") return Status::Ok();
+  KP_ASSIGN_OR_RETURN(RigFileSpec spec, LoadRigFile(rig));
+  load.EnableWatchdog(spec.clock_speed);
+  return Status::Ok();
+}
+
 void AddHangLimitOption(CLI::App* c, double& hang_limit_s) {
   c->add_option("--hang-limit", hang_limit_s,
                 "Rig files: wall seconds without a heartbeat after which the guardian takes this runner as hung, kills it and "

@@ -21,6 +21,10 @@ namespace kp::cli {
 Result<std::unique_ptr<Guardian>> StartGuardianFor(const std::string& rig, const std::string& db, double link_grace_s,
                                                    double hang_limit_s, double longest_period_s, int64_t resume_run_id);
 
+// A rig file's load gets the watchdog guard, counted in the instruments'
+// seconds (the file's clock_speed per wall second); nothing for "sim".
+Status EnableWatchdogFor(const std::string& rig, LoadDriver& load);
+
 // Longest sample period of a plan's steps (run-clock seconds).
 double LongestSamplePeriodS(const Plan& plan);
 

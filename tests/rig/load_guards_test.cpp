@@ -55,6 +55,7 @@ TEST(LoadGuards, APlanWithoutMinVoltageStillStaysBelowItsCutoffs) {
   p.steps.push_back(st);
   EXPECT_NEAR(SettingOf(GuardSettingsFor(p), LoadGuard::kUnderVoltage), 3.0 - kLoadGuardMarginV, 1e-9);
   EXPECT_NEAR(SettingOf(GuardSettingsFor(p), LoadGuard::kWatchdog), kWatchdogMinS, 1e-9);
+  EXPECT_LT(SettingOf(GuardSettingsFor(p, 0.0), LoadGuard::kWatchdog), 0.0) << "0: no watchdog";
   p.steps[0].end.voltage_below_v.reset();
   auto s = GuardSettingsFor(p);
   EXPECT_LT(SettingOf(s, LoadGuard::kUnderVoltage), 0.0) << "nothing to set it from";
@@ -65,11 +66,19 @@ TEST(LoadGuards, ArmedOnTheSimulatedLoadAndReadBack) {
   VirtualClock clock;
   SimRig rig(clock, sim::DemoLiIonCell(2.56));
   Plan p = RatedCapacityPlan(testing::Cell2500());
+  // In this process the simulated load needs no watchdog: not armed, and said so.
+  GuardReport in_process = ArmLoadGuards(*rig.roles().load, p);
+  ASSERT_EQ(in_process.armed.size(), 4u);
+  EXPECT_EQ(in_process.armed[3], "watchdog not used: the simulated load lives in this process");
+  EXPECT_DOUBLE_EQ(*rig.roles().load->ReadGuard(LoadGuard::kWatchdog), 0.0);
+  // Over a link (a rig file at clock_speed 20): 60 wall seconds are 1200 of the simulator's.
+  rig.roles().load->EnableWatchdog(20.0);
   GuardReport rep = ArmLoadGuards(*rig.roles().load, p);
   EXPECT_EQ(rep.failure, "");
   EXPECT_EQ(rep.missing.size(), 0u);
   ASSERT_EQ(rep.armed.size(), 4u);
   EXPECT_EQ(rep.armed[0].rfind("undervoltage 2.400 V", 0), 0u) << rep.armed[0];
+  EXPECT_NEAR(*rig.roles().load->ReadGuard(LoadGuard::kWatchdog), kWatchdogMinS * 20.0, 1e-6);
   EXPECT_NEAR(*rig.roles().load->ReadGuard(LoadGuard::kUnderVoltage), p.limits.min_voltage_v - kLoadGuardMarginV, 1e-6);
   EXPECT_EQ(MissingGuardsWarning(*rig.roles().load), "");
 }
