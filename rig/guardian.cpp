@@ -725,6 +725,11 @@ void Guardian::CleanEnd() {
   }
 }
 
+bool Guardian::Alive() {
+  if (to_guardian_ < 0) return false;
+  return ::waitpid(pid_, nullptr, WNOHANG) == 0;
+}
+
 Guardian::~Guardian() { CleanEnd(); }
 
 }  // namespace kp

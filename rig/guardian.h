@@ -81,6 +81,8 @@ class Guardian {
   // The runner has ended its run itself (everything off, the end recorded):
   // tells the guardian, which exits, and reaps it (waits at most 5 s).
   void CleanEnd();
+  // False once the guardian process has ended (it is then reaped).
+  bool Alive();
   pid_t pid() const { return pid_; }
 
  private:

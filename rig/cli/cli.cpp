@@ -80,6 +80,8 @@ const std::atomic<bool>* InstallStopSignals() {
 
 int StopSignal() { return g_stop_signal.load(); }
 
+void RequestStop() { g_stop.store(true); }
+
 std::string StopSignalReason(int signo) {
   switch (signo) {
     case SIGINT: return "stopped by SIGINT (Ctrl-C)";

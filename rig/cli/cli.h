@@ -53,6 +53,8 @@ const char* SafetyCautions();
 const std::atomic<bool>* InstallStopSignals();
 // The signal that set the stop flag (0: none yet).
 int StopSignal();
+// Sets the stop flag from the program itself (no signal).
+void RequestStop();
 // "stopped by SIGHUP (...)": what a run stopped by a signal records.
 std::string StopSignalReason(int signo);
 

@@ -78,6 +78,7 @@ int RunResume(const ResumeOptions& opt) {
   options.control = &control;
   options.resume = &*point;
   options.link_grace_s = opt.link_grace_s;
+  options.on_sample = [&](const Reading&, double) { StopIfGuardianGone(guardian.get(), options); };
   RunController controller(**store, (*rig)->clock(), (*rig)->roles());
   auto result = controller.Execute(*plan, options);
   if (!result.ok()) return Fail(result.status());

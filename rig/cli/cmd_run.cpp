@@ -116,8 +116,10 @@ int RunRun(const RunCmdOptions& opt) {
   CrashInjection crash = CrashInjectionFromEnv();
   run.link_grace_s = opt.link_grace_s;
   double next_report = 0.0;
+  Guardian* watcher = guardian->get();
   run.on_sample = [&](const Reading& r, double mah) {
     crash.OnSample();
+    StopIfGuardianGone(watcher, run);
     if (r.t_s < next_report) return;
     next_report = r.t_s + opt.progress_s;
     std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,

@@ -44,6 +44,13 @@ void AddHangLimitOption(CLI::App* c, double& hang_limit_s) {
       ->check(CLI::Range(0.0, 86400.0));
 }
 
+void StopIfGuardianGone(Guardian* guardian, RunOptions& run) {
+  if (guardian == nullptr || guardian->Alive()) return;
+  // Read by the run loop, on this thread, when it sees the stop.
+  run.stop_reason = "stopped: the guardian process ended, and a run does not go on unwatched";
+  RequestStop();
+}
+
 void NoteStopSignal(Store& store, const RunResult& result) {
   int signo = StopSignal();
   if (signo == 0 || result.outcome != Outcome::kAborted) return;

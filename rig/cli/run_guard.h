@@ -31,6 +31,10 @@ double LongestSamplePeriodS(const Plan& plan);
 // `--hang-limit SECONDS`.
 void AddHangLimitOption(CLI::App* c, double& hang_limit_s);
 
+// Call once per sample: when the guardian has ended (killed, crashed), the
+// run is stopped through its safe-off path rather than go on unwatched.
+void StopIfGuardianGone(Guardian* guardian, RunOptions& run);
+
 // When a stop signal ended the run, records which one (event kind `signal`).
 void NoteStopSignal(Store& store, const RunResult& result);
 

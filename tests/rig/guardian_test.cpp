@@ -423,5 +423,26 @@ TEST(Guardian, ALoadLeftOnAtACleanEndIsFoundAndSwitchedOff) {
   EXPECT_EQ(store->GetRun(1)->outcome, Outcome::kCompleted);
 }
 
+// The guardian itself killed: the runner does not go on unwatched but stops
+// the run through its own safe-off path.
+TEST(Guardian, ARunWhoseGuardianDiesStopsWithTheLoadOff) {
+  GuardedBench g("tcp:127.0.0.1:0");
+  pid_t pid = g.StartRun();
+  int64_t run_id = g.WaitForSamples(20);
+  ASSERT_NE(run_id, 0);
+  std::ifstream children(fmt::format("/proc/{}/task/{}/children", pid, pid));
+  pid_t guardian = 0;
+  children >> guardian;
+  ASSERT_GT(guardian, 0) << "no guardian process under the runner";
+  kill(guardian, SIGKILL);
+  int status = 0;
+  ASSERT_EQ(waitpid(pid, &status, 0), pid);
+  ASSERT_TRUE(WIFEXITED(status));
+  EXPECT_TRUE(g.LoadReadsOff());
+  RunRow run = g.WaitForEnd(run_id);
+  EXPECT_EQ(run.outcome, Outcome::kAborted);
+  EXPECT_NE(run.reason.find("the guardian process ended"), std::string::npos) << run.reason;
+}
+
 }  // namespace
 }  // namespace kp
