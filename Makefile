@@ -29,7 +29,7 @@ SAN_ENV    := ASAN_OPTIONS=abort_on_error=1:detect_leaks=1:strict_string_checks=
               LSAN_OPTIONS=suppressions=$(CURDIR)/.ci/lsan-suppressions.txt
 LINT_DIRS  := analysis drivers procedures rig ui
 
-.PHONY: all deps deps-harden configure build demo test bench clean san-configure sanitize fuzz lint
+.PHONY: all deps deps-harden configure build demo test bench clean san-configure sanitize fuzz lint fault-campaign
 
 all: build
 
@@ -67,6 +67,15 @@ test: build
 
 bench: build
 	./$(BUILD)/tests/bench/kneepoint_bench
+
+# Seeded abnormal ends of runs on the simulator over TCP and ptys, with the
+# guardian watching (tests/campaign/fault_campaign.cpp); prints its figures and
+# fails when a target is missed. Bounded by CAMPAIGN_BUDGET_S of trials.
+CAMPAIGN_TRIALS   ?= 150
+CAMPAIGN_SEED     ?= 1
+CAMPAIGN_BUDGET_S ?= 540
+fault-campaign: build
+	./$(BUILD)/tests/campaign/kp_fault_campaign --trials $(CAMPAIGN_TRIALS) --seed $(CAMPAIGN_SEED) --budget-s $(CAMPAIGN_BUDGET_S)
 
 # The sanitizer build ($(SAN_BUILD)/, clang, -DKP_FUZZ=ON): every library and
 # test is compiled with ASan + UBSan and libFuzzer's coverage, so one build

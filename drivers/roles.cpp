@@ -14,6 +14,50 @@ std::string Fill(const std::string& templ, double value) {
 
 }  // namespace
 
+const char* LoadGuardName(LoadGuard g) {
+  switch (g) {
+    case LoadGuard::kUnderVoltage: return "undervoltage";
+    case LoadGuard::kOverCurrent: return "overcurrent";
+    case LoadGuard::kOverPower: return "overpower";
+    case LoadGuard::kWatchdog: return "watchdog";
+  }
+  return "?";
+}
+
+const char* LoadGuardUnit(LoadGuard g) {
+  switch (g) {
+    case LoadGuard::kUnderVoltage: return "V";
+    case LoadGuard::kOverCurrent: return "A";
+    case LoadGuard::kOverPower: return "W";
+    case LoadGuard::kWatchdog: return "s";
+  }
+  return "";
+}
+
+std::string ReadBackQuery(std::string_view command) {
+  size_t start = command.find_first_not_of(" \t");
+  if (start == std::string_view::npos) return {};
+  command.remove_prefix(start);
+  std::string_view header = command.substr(0, command.find_first_of(" \t"));
+  std::string q(header);
+  if (q.back() != '?') q += '?';
+  return q;
+}
+
+std::optional<bool> ParseStateReply(std::string_view r) {
+  while (!r.empty() && (r.front() == ' ' || r.front() == '\t' || r.front() == '+')) r.remove_prefix(1);
+  while (!r.empty() && (r.back() == ' ' || r.back() == '\t' || r.back() == '\r' || r.back() == '\n')) r.remove_suffix(1);
+  auto is = [&](std::string_view word) {
+    if (r.size() != word.size()) return false;
+    for (size_t i = 0; i < r.size(); ++i)
+      if ((r[i] | 0x20) != word[i]) return false;
+    return true;
+  };
+  if (r == "1" || is("on")) return true;
+  if (r == "0" || is("off")) return false;
+  return std::nullopt;
+}
+
 const char* LoadModeName(LoadMode mode) {
   switch (mode) {
     case LoadMode::kCurrent: return "constant current";
@@ -71,6 +115,49 @@ Status LoadDriver::SetUnderVoltageBackstop(double volts) {
 
 Status LoadDriver::SetOverCurrentBackstop(double amps) {
   return Command(cmd_.over_current_backstop, amps, "set the over-current protection");
+}
+
+namespace {
+const std::string& GuardCommand(const LoadCommands& c, LoadGuard g) {
+  switch (g) {
+    case LoadGuard::kUnderVoltage: return c.under_voltage_backstop;
+    case LoadGuard::kOverCurrent: return c.over_current_backstop;
+    case LoadGuard::kOverPower: return c.over_power_backstop;
+    case LoadGuard::kWatchdog: return c.watchdog_backstop;
+  }
+  return c.under_voltage_backstop;
+}
+const std::string& GuardRead(const LoadCommands& c, LoadGuard g) {
+  switch (g) {
+    case LoadGuard::kUnderVoltage: return c.under_voltage_read;
+    case LoadGuard::kOverCurrent: return c.over_current_read;
+    case LoadGuard::kOverPower: return c.over_power_read;
+    case LoadGuard::kWatchdog: return c.watchdog_read;
+  }
+  return c.under_voltage_read;
+}
+}  // namespace
+
+bool LoadHasGuard(const LoadCommands& c, LoadGuard g) { return !GuardCommand(c, g).empty(); }
+bool LoadDriver::HasGuard(LoadGuard g) const { return LoadHasGuard(cmd_, g); }
+
+Status LoadDriver::SetGuard(LoadGuard g, double value) {
+  return Command(GuardCommand(cmd_, g), value, fmt::format("set the {} guard", LoadGuardName(g)).c_str());
+}
+
+Result<double> LoadDriver::ReadGuard(LoadGuard g) {
+  const std::string& q = GuardRead(cmd_, g);
+  std::string query = q.empty() ? ReadBackQuery(GuardCommand(cmd_, g)) : q;
+  return ReadFiniteNumber(session_, query, LoadGuardName(g));
+}
+
+Result<bool> LoadDriver::InputState() {
+  std::string query = cmd_.input_state.empty() ? ReadBackQuery(cmd_.input_off) : cmd_.input_state;
+  if (query.empty()) return InvalidInput(fmt::format("{}: the instrument profile has no query for the input state", session_.address()));
+  KP_ASSIGN_OR_RETURN(std::string reply, session_.Query(query));
+  std::optional<bool> on = ParseStateReply(reply);
+  if (!on) return ProtocolError(fmt::format("{}: '{}' answered '{}', not a state (1/0/ON/OFF)", session_.address(), query, reply));
+  return *on;
 }
 
 Status LoadDriver::SetRemoteSense(bool on) {

@@ -8,7 +8,9 @@
 // Drivers borrow their ScpiSession; the caller keeps it alive.
 #pragma once
 
+#include <optional>
 #include <string>
+#include <string_view>
 
 #include "drivers/scpi_session.h"
 
@@ -25,6 +27,26 @@ struct Calibration {
   double Apply(double raw) const { return raw * gain + offset; }
 };
 
+// The load's own protections, set by every run from the procedure's limits
+// (the backstops when the controller is gone): the input goes off below a
+// voltage, above a current or a power, or when no command arrived within a
+// time (watchdog). Names are the profile keys' suffixes (`guard-NAME`) and the
+// words a rig file's `unguarded` list acknowledges.
+enum class LoadGuard { kUnderVoltage, kOverCurrent, kOverPower, kWatchdog };
+inline constexpr LoadGuard kLoadGuards[] = {LoadGuard::kUnderVoltage, LoadGuard::kOverCurrent, LoadGuard::kOverPower,
+                                            LoadGuard::kWatchdog};
+const char* LoadGuardName(LoadGuard g);  // "undervoltage", "overcurrent", "overpower", "watchdog"
+const char* LoadGuardUnit(LoadGuard g);  // "V", "A", "W", "s"
+
+// The query that reads back what `command` sets, by the SCPI convention: the
+// command's header (the text before its first space) with '?' appended
+// ("VOLT:PROT:LOW {}" -> "VOLT:PROT:LOW?", "INP OFF" -> "INP?"). Empty for an
+// empty command.
+std::string ReadBackQuery(std::string_view command);
+// "1"/"0"/"ON"/"OFF" (any case, surrounding blanks, a leading '+') as a state;
+// nullopt for anything else.
+std::optional<bool> ParseStateReply(std::string_view reply);
+
 struct LoadCommands {
   std::string mode_current = "FUNC CURR";
   std::string mode_resistance = "FUNC RES";
@@ -38,10 +60,18 @@ struct LoadCommands {
   std::string measure_current = "MEAS:CURR?";
   std::string under_voltage_backstop = "VOLT:PROT:LOW {}";  // hardware backstop below cutoff
   std::string measure_power;           // optional
-  std::string over_current_backstop;   // optional: the load's own current protection
+  std::string over_current_backstop = "CURR:PROT {}";  // the load's own current protection
+  std::string over_power_backstop = "POW:PROT {}";     // the load's own power protection
+  std::string watchdog_backstop = "PROT:WATC {}";      // input off after {} s without a command
+  // Optional read-back queries; empty: ReadBackQuery of the command.
+  std::string under_voltage_read, over_current_read, over_power_read, watchdog_read;
+  std::string input_state;  // optional; empty: ReadBackQuery(input_off)
   std::string remote_sense_on;         // optional: 4-wire sense at the cell
   std::string remote_sense_off;
 };
+
+// Whether `c` has a command for the guard (empty = the load cannot).
+bool LoadHasGuard(const LoadCommands& c, LoadGuard g);
 
 // Electronic load. Current is positive when the load sinks it (cell discharging).
 class LoadDriver {
@@ -53,6 +83,21 @@ class LoadDriver {
   Status SetInput(bool on);
   Status SetUnderVoltageBackstop(double volts);
   Status SetOverCurrentBackstop(double amps);
+  // Whether the profile has a command for the guard (empty = none).
+  bool HasGuard(LoadGuard g) const;
+  // Sets a guard (V, A, W or s) / reads back what the load holds.
+  Status SetGuard(LoadGuard g, double value);
+  Result<double> ReadGuard(LoadGuard g);
+  // The input's state as the load reports it.
+  Result<bool> InputState();
+  // The watchdog guard is armed only on loads reached over a link (rig
+  // files): a simulated load in this process dies with it. The instrument
+  // counts in its own seconds: wall seconds on hardware, simulated ones on
+  // `kneepoint sim --speed K` (K of them per wall second, the rig file's
+  // clock_speed). 0: not armed (the default).
+  void EnableWatchdog(double instrument_seconds_per_wall_second) { watchdog_scale_ = instrument_seconds_per_wall_second; }
+  double watchdog_scale() const { return watchdog_scale_; }
+  const LoadCommands& commands() const { return cmd_; }
   Status SetRemoteSense(bool on);
   Result<double> MeasureVoltage();
   Result<double> MeasureCurrent();
@@ -80,6 +125,7 @@ class LoadDriver {
   LoadMode mode_ = LoadMode::kCurrent;
   Calibration cal_v_, cal_i_;
   double max_current_a_ = 0.0, max_power_w_ = 0.0;
+  double watchdog_scale_ = 0.0;
 };
 
 struct MeterCommands {

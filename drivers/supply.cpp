@@ -21,6 +21,13 @@ Status SupplyDriver::SetVoltage(double volts) { return Send(session_, cmd_.set_v
 Status SupplyDriver::SetCurrentLimit(double amps) { return Send(session_, cmd_.set_current, amps, "set the current limit"); }
 Status SupplyDriver::SetOutput(bool on) { return session_.Write(on ? cmd_.output_on : cmd_.output_off); }
 Result<double> SupplyDriver::MeasureVoltage() { return ReadFiniteNumber(session_, cmd_.measure_voltage, "supply voltage"); }
+Result<bool> SupplyDriver::OutputState() {
+  std::string query = cmd_.output_state.empty() ? ReadBackQuery(cmd_.output_off) : cmd_.output_state;
+  KP_ASSIGN_OR_RETURN(std::string reply, session_.Query(query));
+  std::optional<bool> on = ParseStateReply(reply);
+  if (!on) return ProtocolError(fmt::format("{}: '{}' answered '{}', not a state (1/0/ON/OFF)", session_.address(), query, reply));
+  return *on;
+}
 Result<double> SupplyDriver::MeasureCurrent() { return ReadFiniteNumber(session_, cmd_.measure_current, "supply current"); }
 
 }  // namespace kp

@@ -18,6 +18,7 @@ struct SupplyCommands {
   std::string output_off = "OUTP OFF";
   std::string measure_voltage = "MEAS:VOLT?";
   std::string measure_current = "MEAS:CURR?";
+  std::string output_state;  // optional; empty: ReadBackQuery(output_off) (drivers/roles.h)
 };
 
 class SupplyDriver {
@@ -28,6 +29,9 @@ class SupplyDriver {
   Status SetOutput(bool on);
   Result<double> MeasureVoltage();
   Result<double> MeasureCurrent();  // >= 0 while charging
+  // The output's state as the supply reports it.
+  Result<bool> OutputState();
+  const SupplyCommands& commands() const { return cmd_; }
   ScpiSession& session() { return session_; }
 
  private:

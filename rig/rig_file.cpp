@@ -1,5 +1,6 @@
 #include "rig/rig_file.h"
 
+#include <algorithm>
 #include <filesystem>
 #include <fstream>
 #include <map>
@@ -138,7 +139,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     const std::string p = fmt::format("instrument[{}].", i + 1);
     KP_RETURN_IF_ERROR(r.OnlyKnown(t, p, {"name", "address", "profile", "roles", "channel", "timeout_s", "retries", "confirm_writes",
                                           "remote_sense", "stuck_after", "late_reply_s", "voltage_offset_v", "voltage_gain", "current_offset_a", "current_gain",
-                                          "temperature_offset_c", "temperature_gain"}));
+                                          "temperature_offset_c", "temperature_gain", "unguarded"}));
     KP_RETURN_IF_ERROR(r.String(t, p, "name", is.name, false, is.line));
     if (is.name.empty()) is.name = fmt::format("instrument {}", i + 1);
     if (!names.insert(is.name).second) return r.Error(t.get("name"), p + "name", fmt::format("'{}' is used twice", is.name));
@@ -188,6 +189,36 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     for (const std::string& role : is.roles) {
       if (!prof->HasRole(role))
         return r.Error(rn, p + "roles", fmt::format("profile '{}' cannot act as {}", is.profile_ref, role));
+    }
+    // Missing load protections must be acknowledged, and only missing ones.
+    const toml::node* un = t.get("unguarded");
+    if (un != nullptr) {
+      const toml::array* ua = un->as_array();
+      if (ua == nullptr) return r.Error(un, p + "unguarded", "must be a list of strings, e.g. [\"watchdog\"]");
+      if (std::find(is.roles.begin(), is.roles.end(), "load") == is.roles.end())
+        return r.Error(un, p + "unguarded", "only a load has protections to acknowledge");
+      for (const toml::node& e : *ua) {
+        std::optional<std::string> g = e.value<std::string>();
+        bool known = false;
+        for (LoadGuard lg : kLoadGuards) known = known || (g && *g == LoadGuardName(lg));
+        if (!known) return r.Error(&e, p + "unguarded", "each entry must be \"undervoltage\", \"overcurrent\", \"overpower\" or \"watchdog\"");
+        is.unguarded.push_back(*g);
+      }
+    }
+    if (std::find(is.roles.begin(), is.roles.end(), "load") != is.roles.end()) {
+      for (LoadGuard lg : kLoadGuards) {
+        const bool listed = std::find(is.unguarded.begin(), is.unguarded.end(), LoadGuardName(lg)) != is.unguarded.end();
+        const bool has = LoadHasGuard(prof->load, lg);
+        if (!has && !listed)
+          return r.ErrorAt(is.line, p + "unguarded",
+                           fmt::format("profile '{}' has no {} protection (guard-{} = none); running without this hardware "
+                                       "backstop must be acknowledged: unguarded = [\"{}\"]",
+                                       is.profile_ref, LoadGuardName(lg), LoadGuardName(lg), LoadGuardName(lg)));
+        if (has && listed)
+          return r.Error(un, p + "unguarded",
+                         fmt::format("profile '{}' has the {} protection (guard-{}); remove it from the list", is.profile_ref,
+                                     LoadGuardName(lg), LoadGuardName(lg)));
+      }
     }
     is.profile = std::move(*prof);
     if (!is.channel.empty()) ApplyChannel(is.profile, is.channel);

@@ -20,6 +20,13 @@
 //   late_reply_s = timeout_s               # after a timeout, wait this long to discard a late reply
 //   voltage_offset_v / voltage_gain, current_offset_a / current_gain,
 //   temperature_offset_c / temperature_gain  (reading * gain + offset)
+//   unguarded = ["watchdog"]               # load: its own protections the profile lacks
+//                                          # (undervoltage, overcurrent, overpower, watchdog)
+//
+// A load whose profile has no command for one of its protections
+// (`guard-NAME = none`) is refused unless the rig file lists NAME in the
+// load's `unguarded`: running without a hardware backstop is a decision the
+// rig's owner writes down. `run` then warns at start and records it on the run.
 //
 // Every error names the file, the line and the key. Unknown keys are errors
 // (a misspelt limit must not be silently ignored).
@@ -49,6 +56,7 @@ struct InstrumentSpec {
   bool remote_sense = false;
   double late_reply_s = -1.0;  // < 0: same as timeout_s
   int stuck_after = 0;  // meter: identical readings in a row that mean "stuck" (0: off)
+  std::vector<std::string> unguarded;  // load: protections acknowledged as missing (LoadGuardName)
   Calibration voltage, current, temperature;
   int line = 0;  // where the [[instrument]] table starts
 };

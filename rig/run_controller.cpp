@@ -6,6 +6,7 @@
 #include <exception>
 
 #include "rig/control_channel.h"
+#include "rig/load_guards.h"
 #include "rig/resume.h"
 #include "rig/safety_monitor.h"
 
@@ -388,14 +389,21 @@ Result<RunResult> RunSession::Run() {
       return Finish(Outcome::kAborted, "could not switch the load off before the run: " + st.ToString(), "fault");
     if (rc_.roles_.supply != nullptr) (void)rc_.roles_.supply->SetOutput(false);
     (void)rc_.roles_.load->session().Clear();
-    if (plan_.cell.cutoff_v > 0.3) {
-      // Hardware backstop below the cutoff in case the PC dies mid-run;
-      // an instrument without it just reports an error we note here.
-      if (rc_.roles_.load->SetUnderVoltageBackstop(plan_.cell.cutoff_v - 0.1).ok()) {
-        Status q = rc_.roles_.load->session().DrainErrors();
-        if (!q.ok()) (void)rc_.store_.AddEvent(run_id_, 0.0, "note", "load has no under-voltage backstop: " + q.message());
-      }
+    // Hardware backstops in case this process dies mid-run: the load's own
+    // protections from the procedure's limits, read back (rig/load_guards.h).
+    // A guard that does not take stops the run before the load is ever on;
+    // guards the load lacks (acknowledged in the rig file) are recorded.
+    GuardReport guards = ArmLoadGuards(*rc_.roles_.load, plan_);
+    if (!guards.failure.empty()) return Finish(Outcome::kAborted, "before start: " + guards.failure, "fault");
+    if (!guards.armed.empty()) {
+      std::string armed;
+      for (const std::string& a : guards.armed) armed += (armed.empty() ? "" : ", ") + a;
+      if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "guard", "load protections armed: " + armed); !st.ok())
+        return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     }
+    for (const std::string& m : guards.missing)
+      if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "warning", m); !st.ok())
+        return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
 
     // First reading with the load off: the open-circuit voltage at t = 0 (or,
     // resuming, where the run left off). Integration starts here; a resumed

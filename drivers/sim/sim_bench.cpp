@@ -20,6 +20,8 @@ class SimBench::Device final : public LineDevice {
   std::optional<std::string> HandleLine(std::string_view line) override {
     std::lock_guard<std::mutex> lock(bench_.mu_);
     bench_.AdvanceLocked();
+    // Any line to the load feeds its watchdog.
+    if (role_ == Role::kLoad) bench_.last_load_line_ = bench_.sim_time_;
     // Kept in a member so that header_ never outlives the text it points to.
     line_ = SplitScpiCommand(line);
     const ScpiCommand& c = line_;
@@ -114,6 +116,9 @@ class SimBench::Device final : public LineDevice {
     bench_.level_resistance_ohm_ = 1e6;
     bench_.level_power_w_ = 0.0;
     bench_.uv_protect_v_ = 0.0;
+    bench_.oc_protect_a_ = 0.0;
+    bench_.op_protect_w_ = 0.0;
+    bench_.watchdog_s_ = 0.0;
   }
 
   void ResetSupply() {
@@ -209,8 +214,38 @@ class SimBench::Device final : public LineDevice {
       if (auto v = Number(c, 0.0, 100.0)) b.uv_protect_v_ = *v;
       return true;
     }
+    if (Is("[SOURce:]VOLTage:PROTection:LOW?")) {
+      reply = FormatNr3(b.uv_protect_v_);
+      return true;
+    }
+    if (Is("[SOURce:]CURRent:PROTection[:LEVel]")) {
+      if (auto v = Number(c, 0.0, 1000.0)) b.oc_protect_a_ = *v;
+      return true;
+    }
+    if (Is("[SOURce:]CURRent:PROTection[:LEVel]?")) {
+      reply = FormatNr3(b.oc_protect_a_);
+      return true;
+    }
+    if (Is("[SOURce:]POWer:PROTection[:LEVel]")) {
+      if (auto v = Number(c, 0.0, 100000.0)) b.op_protect_w_ = *v;
+      return true;
+    }
+    if (Is("[SOURce:]POWer:PROTection[:LEVel]?")) {
+      reply = FormatNr3(b.op_protect_w_);
+      return true;
+    }
+    if (Is("PROTection:WATChdog[:TIMe]")) {
+      if (auto v = Number(c, 0.0, 86400.0)) b.watchdog_s_ = *v;
+      return true;
+    }
+    if (Is("PROTection:WATChdog[:TIMe]?")) {
+      reply = FormatNr3(b.watchdog_s_);
+      return true;
+    }
     if (Is("INPut[:STATe]")) {
       OnOff(c, b.input_on_);
+      if (b.input_on_) b.trip_.clear();
+      b.TripLocked();
       return true;
     }
     if (Is("INPut[:STATe]?")) {
@@ -295,6 +330,10 @@ LineDevice& SimBench::supply() { return *supply_; }
 bool SimBench::load_input_on() const {
   std::lock_guard<std::mutex> lock(mu_);
   return input_on_;
+}
+std::string SimBench::load_trip() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return trip_;
 }
 double SimBench::load_current_a() const {
   std::lock_guard<std::mutex> lock(mu_);
@@ -416,8 +455,26 @@ SimBench::Flows SimBench::FlowsLocked() const {
   return f;
 }
 
+void SimBench::TripLocked() {
+  if (!input_on_) return;
+  if (watchdog_s_ > 0 && (sim_time_ - last_load_line_).count() >= watchdog_s_) {
+    input_on_ = false;
+    trip_ = "watchdog";
+    return;
+  }
+  const Flows f = FlowsLocked();
+  if (oc_protect_a_ > 0 && f.load_a > oc_protect_a_) {
+    input_on_ = false;
+    trip_ = "overcurrent";
+  } else if (op_protect_w_ > 0 && f.load_a * f.terminal_v > op_protect_w_) {
+    input_on_ = false;
+    trip_ = "overpower";
+  }
+}
+
 void SimBench::AdvanceLocked() {
   Seconds now = clock_.Now();
+  TripLocked();
   while (sim_time_ < now) {
     const Flows f = FlowsLocked();
     const bool runaway = options_.runaway_start_s >= 0 && sim_time_.count() >= options_.runaway_start_s;
@@ -429,12 +486,15 @@ void SimBench::AdvanceLocked() {
       // Close to the load's backstop the current will soon depend on the state.
       if (uv_protect_v_ > 0 && f.terminal_v - uv_protect_v_ < 0.3) limit = options_.max_step_s;
     }
+    // The watchdog expires exactly on time, not at the end of a long step.
+    if (input_on_ && watchdog_s_ > 0) limit = std::min(limit, watchdog_s_ - (sim_time_ - last_load_line_).count());
     limit = std::max(limit, 1e-6);
     double dt = std::min(limit, (now - sim_time_).count());
     double extra = 0.0;
     if (runaway) extra = options_.runaway_heat_rate_w_per_s * (sim_time_.count() - options_.runaway_start_s);
     cell_.Advance(dt, f.cell_a, extra);
     sim_time_ += Seconds(dt);
+    TripLocked();
   }
 }
 

@@ -61,6 +61,9 @@ class SimBench {
 
   // Observers for tests and the simulator console.
   bool load_input_on() const;
+  // Why the load's own protection last switched its input off ("", "undervoltage"
+  // is a limit, not a trip: "overcurrent", "overpower", "watchdog").
+  std::string load_trip() const;
   double load_current_a() const;  // current flowing now
   bool supply_output_on() const;
   double supply_current_a() const;  // >= 0, into the cell's terminals
@@ -100,6 +103,15 @@ class SimBench {
   double level_resistance_ohm_ = 1e6;
   double level_power_w_ = 0.0;
   double uv_protect_v_ = 0.0;  // 0: disabled
+  // The load's protections (0: disabled): over-current and over-power switch
+  // the input off when exceeded; the watchdog switches it off when no line
+  // reached the load for watchdog_s_ of simulated time.
+  double oc_protect_a_ = 0.0;
+  double op_protect_w_ = 0.0;
+  double watchdog_s_ = 0.0;
+  Seconds last_load_line_{0};
+  std::string trip_;
+  void TripLocked();
 
   bool supply_on_ = false;
   double supply_voltage_v_ = 0.0;

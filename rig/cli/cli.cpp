@@ -12,8 +12,12 @@ namespace kp::cli {
 namespace {
 
 std::atomic<bool> g_stop{false};
+std::atomic<int> g_stop_signal{0};
 
-extern "C" void OnStopSignal(int) { g_stop.store(true); }
+extern "C" void OnStopSignal(int signo) {
+  g_stop_signal.store(signo);
+  g_stop.store(true);
+}
 
 }  // namespace
 
@@ -62,11 +66,30 @@ const std::atomic<bool>* InstallStopSignals() {
     struct sigaction sa {};
     sa.sa_handler = OnStopSignal;
     sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, nullptr);
-    sigaction(SIGTERM, &sa, nullptr);
+    for (int sig : {SIGINT, SIGTERM, SIGHUP, SIGQUIT}) sigaction(sig, &sa, nullptr);
+    // A reader that went away (a closed pipe, a dropped terminal) must not end
+    // the run: writes then fail with EPIPE and the streams stop printing.
+    struct sigaction ign {};
+    ign.sa_handler = SIG_IGN;
+    sigemptyset(&ign.sa_mask);
+    sigaction(SIGPIPE, &ign, nullptr);
     installed = true;
   }
   return &g_stop;
+}
+
+int StopSignal() { return g_stop_signal.load(); }
+
+void RequestStop() { g_stop.store(true); }
+
+std::string StopSignalReason(int signo) {
+  switch (signo) {
+    case SIGINT: return "stopped by SIGINT (Ctrl-C)";
+    case SIGTERM: return "stopped by SIGTERM";
+    case SIGHUP: return "stopped by SIGHUP (the terminal or session went away)";
+    case SIGQUIT: return "stopped by SIGQUIT";
+    default: return fmt::format("stopped by signal {}", signo);
+  }
 }
 
 std::string FormatDuration(double seconds) {

@@ -46,8 +46,17 @@ int ExitCodeFor(const Status& status);
 // The usual cautions for lithium cells; printed by run-type commands at start.
 const char* SafetyCautions();
 
-// SIGINT / SIGTERM set the returned flag (installed once, idempotent).
+// SIGINT, SIGTERM, SIGHUP and SIGQUIT set the returned flag: the run takes
+// its safe-off path (load off, then the record). SIGPIPE is ignored, so a
+// closed stdout (`run ... | head`) only stops the printing. Installed once,
+// idempotent. Fatal signals are left to the guardian (rig/guardian.h).
 const std::atomic<bool>* InstallStopSignals();
+// The signal that set the stop flag (0: none yet).
+int StopSignal();
+// Sets the stop flag from the program itself (no signal).
+void RequestStop();
+// "stopped by SIGHUP (...)": what a run stopped by a signal records.
+std::string StopSignalReason(int signo);
 
 // Built-in command groups.
 void RegisterDemo(CliRegistry& r);

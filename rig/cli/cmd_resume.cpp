@@ -1,4 +1,5 @@
-// `resume`: continue an interrupted run on the same rig.
+// `resume`: continue an interrupted run on the same rig (watched by a guardian
+// on a rig file, like `run`).
 #include <fmt/format.h>
 
 #include <fstream>
@@ -7,6 +8,7 @@
 
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
+#include "rig/cli/run_guard.h"
 #include "rig/control_channel.h"
 #include "rig/resume.h"
 #include "rig/rig.h"
@@ -22,6 +24,7 @@ struct ResumeOptions {
   double speed = 0.0;
   std::string procedure_file;
   double link_grace_s = 30.0;
+  double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
 };
 
 int RunResume(const ResumeOptions& opt) {
@@ -33,13 +36,11 @@ int RunResume(const ResumeOptions& opt) {
     text << in.rdbuf();
     expected = text.str();
   }
-  RigOpenOptions ro;
-  ro.sim_speed = opt.speed;
-  auto rig = OpenRig(opt.rig, ro);
-  if (!rig.ok()) return Fail(rig.status());
+  const std::atomic<bool>* stop = InstallStopSignals();
   SteadyClock wall;
   auto store = OpenExistingDb(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());
+  std::unique_ptr<Guardian> guardian;
   // Database-only checks first, then the rig: nothing touches an instrument
   // before this process holds the rig's lock.
   auto run = (*store)->GetRun(opt.run_id);
@@ -49,6 +50,23 @@ int RunResume(const ResumeOptions& opt) {
         InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
   auto plan = ResumablePlan(**store, opt.run_id, RebuildStoredPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
+  // A rig file's outputs are watched by a guardian before any is opened. The
+  // guardian is a fork: it must not inherit an open SQLite connection (its
+  // own would share that connection's lock bookkeeping), so the database is
+  // closed around its start.
+  if (opt.rig != "sim") {
+    store->reset();
+    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id);
+    if (!started.ok()) return Fail(started.status());
+    guardian = std::move(*started);
+    store = OpenExistingDb(opt.db_path, wall);
+    if (!store.ok()) return Fail(store.status());
+  }
+  RigOpenOptions ro;
+  ro.sim_speed = opt.speed;
+  auto rig = OpenRig(opt.rig, ro);
+  if (!rig.ok()) return Fail(rig.status());
+  if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
@@ -56,13 +74,15 @@ int RunResume(const ResumeOptions& opt) {
   std::cout << SafetyCautions() << "\n" << fmt::format("Resuming run {} ({}): {}\n", opt.run_id, plan->name, point->checks);
   ControlChannel control(**store, wall);
   RunOptions options;
-  options.stop = InstallStopSignals();
+  options.stop = stop;
   options.control = &control;
   options.resume = &*point;
   options.link_grace_s = opt.link_grace_s;
+  options.on_sample = [&](const Reading&, double) { StopIfGuardianGone(guardian.get(), options); };
   RunController controller(**store, (*rig)->clock(), (*rig)->roles());
   auto result = controller.Execute(*plan, options);
   if (!result.ok()) return Fail(result.status());
+  NoteStopSignal(**store, *result);
   std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
   if (result->outcome != Outcome::kCompleted) {
     std::fprintf(stderr, "kneepoint: run %lld %s: %s\n", static_cast<long long>(result->run_id), OutcomeName(result->outcome),
@@ -88,6 +108,7 @@ void RegisterResume(CliRegistry& r) {
                 "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
       ->capture_default_str()
       ->check(CLI::Range(0.0, 3600.0));
+  AddHangLimitOption(c, opt.hang_limit_s);
 }
 
 }  // namespace kp::cli

@@ -1,6 +1,8 @@
 // `run FILE --rig sim|RIG.toml --db DB [--cell NAME] [--speed K]`: executes a
-// procedure on a rig, logging into a database. SIGINT / SIGTERM end the run
-// cleanly: load off, run recorded as aborted by the operator.
+// procedure on a rig, logging into a database. SIGINT, SIGTERM, SIGHUP and
+// SIGQUIT end the run cleanly: load off, run recorded as aborted, the signal
+// named in an event. On a rig file a guardian process (rig/guardian.h)
+// switches everything off if this process dies any other way.
 #include <fmt/format.h>
 
 #include <algorithm>
@@ -11,7 +13,9 @@
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
+#include "rig/cli/run_guard.h"
 #include "rig/control_channel.h"
+#include "rig/load_guards.h"
 #include "rig/run_lock.h"
 #include "rig/rig.h"
 #include "rig/run_controller.h"
@@ -32,9 +36,18 @@ struct RunCmdOptions {
   double speed = 0.0;
   double progress_s = 600.0;
   double link_grace_s = 30.0;
+  double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
 };
 
 int RunRun(const RunCmdOptions& opt) {
+  // First: from here on a stop signal takes the safe-off path and a closed
+  // stdout does not kill the run.
+  const std::atomic<bool>* stop = InstallStopSignals();
+  // A rig file's outputs are watched by a guardian before any is opened.
+  double longest_period_s = 0.0;
+  if (auto draft = LoadProcedure(opt.file); draft.ok()) longest_period_s = LongestSamplePeriodS(*draft);
+  auto guardian = StartGuardianFor(opt.rig, opt.db, opt.link_grace_s, opt.hang_limit_s, longest_period_s, 0);
+  if (!guardian.ok()) return Fail(guardian.status());
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
   if (opt.rig == "sim") {
@@ -64,6 +77,7 @@ int RunRun(const RunCmdOptions& opt) {
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
+  if (Status st = EnableWatchdogFor(opt.rig, *roles.load); !st.ok()) return Fail(st);
   // What this rig can do; a rig file may tighten these further.
   auto plan = LoadProcedure(opt.file, PlanLimitsFor(**rig));
   if (!plan.ok()) {
@@ -94,11 +108,19 @@ int RunRun(const RunCmdOptions& opt) {
   RunOptions run;
   run.control = &control;
   run.cell_name = cell;
-  run.stop = InstallStopSignals();
+  run.stop = stop;
   run.stop_reason = "stopped by operator (signal)";
+  if (std::string warn = MissingGuardsWarning(*roles.load); !warn.empty()) {
+    std::cout << warn << "\n";
+    std::cerr << "kneepoint: " << warn << "\n";
+  }
+  CrashInjection crash = CrashInjectionFromEnv();
   run.link_grace_s = opt.link_grace_s;
   double next_report = 0.0;
+  Guardian* watcher = guardian->get();
   run.on_sample = [&](const Reading& r, double mah) {
+    crash.OnSample();
+    StopIfGuardianGone(watcher, run);
     if (r.t_s < next_report) return;
     next_report = r.t_s + opt.progress_s;
     std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
@@ -108,6 +130,7 @@ int RunRun(const RunCmdOptions& opt) {
   std::cout << fmt::format("running '{}' on cell '{}' ({}), logging to {}\n", plan->name, cell, opt.rig, opt.db);
   auto result = controller.Execute(*plan, run);
   if (!result.ok()) return Fail(result.status());
+  NoteStopSignal(**store, *result);
   std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
   if (result->outcome != Outcome::kCompleted)
     std::cerr << fmt::format("kneepoint: run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
@@ -140,6 +163,7 @@ void RegisterRun(CliRegistry& r) {
                 "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
       ->capture_default_str()
       ->check(CLI::Range(0.0, 3600.0));
+  AddHangLimitOption(c, opt.hang_limit_s);
 }
 
 }  // namespace kp::cli

@@ -67,8 +67,10 @@ std::string RigText(const std::vector<std::string>& addr, const std::string& ext
   for (size_t i = 0; i < 3; ++i) {
     text += fmt::format(
         "\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"{}\"\nroles = [\"{}\"]\n"
-        "timeout_s = 0.3\nretries = 2\nconfirm_writes = true\nchannel = 101\n{}",
-        roles[i], addr[i], profiles[i], roles[i], extra);
+        "timeout_s = 0.3\nretries = 2\nconfirm_writes = true\nchannel = 101\n{}{}",
+        roles[i], addr[i], profiles[i], roles[i], extra,
+        // The generic load profile lacks these protections: the rig file says so.
+        i == 0 && profiles[i] == "generic-scpi-load" ? "unguarded = [\"overcurrent\", \"overpower\", \"watchdog\"]\n" : "");
   }
   return text;
 }

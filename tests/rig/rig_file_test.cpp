@@ -24,6 +24,7 @@ address = "tcp:192.0.2.10:5025"
 profile = "generic-scpi-load-4wire"
 roles = ["load"]
 remote_sense = true
+unguarded = ["overpower", "watchdog"]
 current_offset_a = -0.002
 current_gain = 1.001
 
@@ -77,20 +78,30 @@ TEST(RigFile, MalformedGivesFileLineAndKey) {
       {Replace(kGood, "address = \"tcp:192.0.2.10:5025\"", "address = \"tcp:192.0.2.10\""),
        "bench.toml:11: key 'instrument[1].address': address 'tcp:192.0.2.10'"},
       {Replace(kGood, "address = \"tcp:192.0.2.10:5025\"\n", ""), "bench.toml:9: key 'instrument[1].address': missing"},
-      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"voltmeter\"]"), "bench.toml:22: key 'instrument[2].roles': each role must be"},
-      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"load\"]"), "bench.toml:22: key 'instrument[2].roles': role 'load' is already taken by 'load'"},
+      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"voltmeter\"]"), "bench.toml:23: key 'instrument[2].roles': each role must be"},
+      {Replace(kGood, "roles = [\"meter\"]", "roles = [\"load\"]"), "bench.toml:23: key 'instrument[2].roles': role 'load' is already taken by 'load'"},
       {Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"generic-scpi-thermocouple\""),
-       "bench.toml:22: key 'instrument[2].roles': profile 'generic-scpi-thermocouple' cannot act as meter"},
+       "bench.toml:23: key 'instrument[2].roles': profile 'generic-scpi-thermocouple' cannot act as meter"},
       {Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"no-such-profile\""),
-       "bench.toml:21: key 'instrument[2].profile': no profile named 'no-such-profile'"},
-      {Replace(kGood, "channel = 103", "channel = [1]"), "bench.toml:30: key 'instrument[3].channel': must be a number or a string"},
+       "bench.toml:22: key 'instrument[2].profile': no profile named 'no-such-profile'"},
+      {Replace(kGood, "channel = 103", "channel = [1]"), "bench.toml:31: key 'instrument[3].channel': must be a number or a string"},
       {Replace(kGood, "remote_sense = true", "remote_sense = 1"), "bench.toml:14: key 'instrument[1].remote_sense': must be true or false"},
-      {Replace(kGood, "voltage_gain = 0.9995", "voltage_gain = 9.995"), "bench.toml:23: key 'instrument[2].voltage_gain': 9.995 is outside"},
-      {Replace(kGood, "name = \"dmm\"", "name = \"load\""), "bench.toml:19: key 'instrument[2].name': 'load' is used twice"},
+      {Replace(kGood, "voltage_gain = 0.9995", "voltage_gain = 9.995"), "bench.toml:24: key 'instrument[2].voltage_gain': 9.995 is outside"},
+      {Replace(kGood, "name = \"dmm\"", "name = \"load\""), "bench.toml:20: key 'instrument[2].name': 'load' is used twice"},
       {Replace(kGood, "roles = [\"thermometer\"]", "roles = [\"supply\"]"), "key 'instrument[3].roles': profile 'generic-scpi-thermocouple' cannot act as supply"},
       {Replace(kGood, "[bench]", "[bench"), "bench.toml:2:"},
       {"[bench]\nname = \"x\"\n", "bench.toml:1: key 'instrument': no [[instrument]] tables"},
-      {Replace(kGood, "address = \"tcp:192.0.2.11:5025\"", "address = \"pty\""), "bench.toml:27: key 'instrument[3].address': 'pty' is for `kneepoint sim`"},
+      {Replace(kGood, "unguarded = [\"overpower\", \"watchdog\"]\n", ""),
+       "bench.toml:9: key 'instrument[1].unguarded': profile 'generic-scpi-load-4wire' has no overpower protection (guard-overpower = none)"},
+      {Replace(kGood, "unguarded = [\"overpower\", \"watchdog\"]", "unguarded = [\"overpower\"]"),
+       "bench.toml:9: key 'instrument[1].unguarded': profile 'generic-scpi-load-4wire' has no watchdog protection"},
+      {Replace(kGood, "unguarded = [\"overpower\", \"watchdog\"]", "unguarded = [\"overpower\", \"watchdog\", \"overcurrent\"]"),
+       "bench.toml:15: key 'instrument[1].unguarded': profile 'generic-scpi-load-4wire' has the overcurrent protection (guard-overcurrent); remove it"},
+      {Replace(kGood, "unguarded = [\"overpower\", \"watchdog\"]", "unguarded = [\"fuse\"]"),
+       "bench.toml:15: key 'instrument[1].unguarded': each entry must be"},
+      {Replace(kGood, "voltage_gain = 0.9995", "voltage_gain = 0.9995\nunguarded = []"),
+       "bench.toml:25: key 'instrument[2].unguarded': only a load has protections to acknowledge"},
+      {Replace(kGood, "address = \"tcp:192.0.2.11:5025\"", "address = \"pty\""), "bench.toml:28: key 'instrument[3].address': 'pty' is for `kneepoint sim`"},
   };
   for (const Case& c : cases) {
     auto spec = ParseRigFile(c.text, "/tmp/bench.toml");
@@ -109,7 +120,7 @@ TEST(RigFile, MalformedProfileNamesBothFiles) {
   auto spec = LoadRigFile(dir.File("bench.toml"));
   ASSERT_FALSE(spec.ok());
   const std::string m = spec.status().message();
-  EXPECT_NE(m.find("bench.toml:21: key 'instrument[2].profile'"), std::string::npos) << m;
+  EXPECT_NE(m.find("bench.toml:22: key 'instrument[2].profile'"), std::string::npos) << m;
   EXPECT_NE(m.find("odd-meter.kpp:2: key 'meter-read-voltage'"), std::string::npos) << m;
 }
 
