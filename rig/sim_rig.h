@@ -6,12 +6,16 @@
 #pragma once
 
 #include <memory>
+#include <string>
+#include <string_view>
+#include <vector>
 
 #include "drivers/roles.h"
 #include "drivers/scpi_session.h"
 #include "drivers/sim/sim_bench.h"
 #include "drivers/supply.h"
 #include "rig/run_controller.h"
+#include "rig/store.h"
 
 namespace kp {
 
@@ -34,5 +38,32 @@ class SimRig {
   std::unique_ptr<ThermometerDriver> thermometer_;
   std::unique_ptr<SupplyDriver> supply_;
 };
+
+// Which simulated cell a run on the built-in simulator uses: a preset (or a
+// cell file) built to a rated capacity, optionally one cell of the preset's
+// batch, starting at a state of charge. Recorded with the run (an event of
+// kind "sim-cell", `SimCellText`) so `resume --rig sim` rebuilds the same cell.
+struct SimCellChoice {
+  std::string preset;        // built-in preset name or cell-file path
+  double rated_mah = 0.0;    // 0: the preset's own rating
+  uint64_t seed = 0;         // 0: the nominal cell
+  double start_soc = 1.0;    // state of charge at the start, 0..1
+};
+
+// The cell a choice names (preset loaded, scaled, varied, part-charged).
+Result<sim::CellParams> BuildSimCell(const SimCellChoice& choice);
+// One line, "preset=li-ion rated_mah=2500 seed=0 soc=0.4", and back (the
+// preset or path is everything between "preset=" and the last " rated_mah=",
+// so a path may hold spaces).
+std::string SimCellText(const SimCellChoice& choice);
+Result<SimCellChoice> ParseSimCellText(std::string_view text);
+
+// The state the simulated cell of a logged run was in at its last logged
+// sample: starts `cell` as it was built and integrates it over the stored
+// samples, the current between two samples taken as the closing sample's
+// (the reading taken at the setpoint that held over the interval) and as zero
+// across a "gap" event (the load was off while no readings came). Used to
+// continue the same cell on resume.
+sim::CellState ReplayLoggedCell(const sim::CellParams& cell, SampleSpan samples, const std::vector<EventRow>& events);
 
 }  // namespace kp

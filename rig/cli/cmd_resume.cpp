@@ -1,16 +1,19 @@
 // `resume`: continue an interrupted run on the same rig.
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <fstream>
 #include <iostream>
 #include <sstream>
 
+#include "drivers/sim/cell_file.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
 #include "rig/control_channel.h"
 #include "rig/resume.h"
 #include "rig/rig.h"
 #include "rig/run_lock.h"
+#include "rig/sim_rig.h"
 
 namespace kp::cli {
 namespace {
@@ -24,6 +27,26 @@ struct ResumeOptions {
   double link_grace_s = 30.0;
 };
 
+// The simulated cell of a logged run, continued: the cell recorded with the
+// run (event "sim-cell"; runs logged before it existed: the preset of the
+// run's chemistry at its rating, full at the start) integrated over the
+// logged samples.
+Result<sim::CellParams> SimCellOfRun(Store& store, const RunRow& run) {
+  KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run.id));
+  SimCellChoice choice{run.chemistry, run.rated_mah, 0, 1.0};
+  auto names = sim::BuiltInCellNames();
+  if (std::find(names.begin(), names.end(), choice.preset) == names.end()) choice.preset = "li-ion";
+  for (const EventRow& e : events)
+    if (e.kind == "sim-cell") {
+      KP_ASSIGN_OR_RETURN(choice, ParseSimCellText(e.message));
+      break;
+    }
+  KP_ASSIGN_OR_RETURN(sim::CellParams cell, BuildSimCell(choice));
+  KP_ASSIGN_OR_RETURN(std::vector<Sample> samples, store.LoadSamples(run.id));
+  cell.start_state = ReplayLoggedCell(cell, samples, events);
+  return cell;
+}
+
 int RunResume(const ResumeOptions& opt) {
   std::optional<std::string> expected;
   if (!opt.procedure_file.empty()) {
@@ -35,8 +58,6 @@ int RunResume(const ResumeOptions& opt) {
   }
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
-  auto rig = OpenRig(opt.rig, ro);
-  if (!rig.ok()) return Fail(rig.status());
   SteadyClock wall;
   auto store = OpenExistingDb(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());
@@ -49,6 +70,13 @@ int RunResume(const ResumeOptions& opt) {
         InvalidInput(fmt::format("run {} is {}; only an interrupted run can be resumed", opt.run_id, OutcomeName(run->outcome))));
   auto plan = ResumablePlan(**store, opt.run_id, RebuildStoredPlan, expected ? &*expected : nullptr);
   if (!plan.ok()) return Fail(plan.status());
+  if (opt.rig == "sim") {  // the same simulated cell, in the state of the last logged sample
+    auto cell = SimCellOfRun(**store, *run);
+    if (!cell.ok()) return Fail(cell.status());
+    ro.sim_cell = *cell;
+  }
+  auto rig = OpenRig(opt.rig, ro);
+  if (!rig.ok()) return Fail(rig.status());
   auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
