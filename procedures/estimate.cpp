@@ -62,7 +62,7 @@ double MeanCurrentA(const Step& step, const CellSpec& cell) {
   return 0.0;
 }
 
-Result<double> ParseStateOfCharge(std::string_view text, std::string_view option) {
+Result<double> ParsePercentOrFraction(std::string_view text, std::string_view option, std::string_view what) {
   std::string_view t = text;
   while (!t.empty() && t.back() == ' ') t.remove_suffix(1);
   const bool percent = !t.empty() && t.back() == '%';
@@ -70,7 +70,7 @@ Result<double> ParseStateOfCharge(std::string_view text, std::string_view option
   double v = 0.0;
   auto res = std::from_chars(t.data(), t.data() + t.size(), v);
   if (t.empty() || res.ec != std::errc() || res.ptr != t.data() + t.size() || !std::isfinite(v))
-    return InvalidInput(fmt::format("{}: '{}' is not a state of charge (write 40% or 0.4)", option, text));
+    return InvalidInput(fmt::format("{}: '{}' is not a {} (write 40% or 0.4)", option, text, what));
   if (percent) v /= 100.0;
   if (v < 0.0 || v > 1.0)
     return InvalidInput(fmt::format("{}: '{}' is outside 0..100 % (a plain number is a fraction 0..1: write 40% or 0.4)",

@@ -32,9 +32,13 @@ struct PlanEstimate {
 // `start_soc`: the cell's state of charge at the start, 0..1 of its rating.
 PlanEstimate EstimatePlan(const Plan& plan, double start_soc = 1.0);
 
-// A state of charge as written on a command line: "40%" or a fraction "0.4"
-// (0..100 % / 0..1). The error names `option`.
-Result<double> ParseStateOfCharge(std::string_view text, std::string_view option);
+// A share as written on a command line: "40%" or a fraction "0.4" (0..100 %
+// / 0..1). The error names `option` and what the share is (`what`).
+Result<double> ParsePercentOrFraction(std::string_view text, std::string_view option, std::string_view what);
+// A state of charge ("40%", "0.4").
+inline Result<double> ParseStateOfCharge(std::string_view text, std::string_view option) {
+  return ParsePercentOrFraction(text, option, "state of charge");
+}
 
 // Mean current a step draws (A, > 0 discharging) at the cell's nominal voltage;
 // for pulse trains and duty cycles the time-weighted mean over one run cycle.

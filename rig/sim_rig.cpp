@@ -46,11 +46,28 @@ Result<sim::CellParams> BuildSimCell(const SimCellChoice& choice) {
   sim::CellParams params = choice.rated_mah > 0 ? sim::ScaleCell(cell.params, choice.rated_mah / 1000.0) : cell.params;
   if (choice.seed != 0) params = sim::VaryCell(params, cell.spread, choice.seed);
   params.initial_soc = choice.start_soc;
+  if (choice.ambient_c) {
+    if (!(*choice.ambient_c >= -60.0 && *choice.ambient_c <= 100.0))
+      return InvalidInput(fmt::format("simulated cell: ambient {} degC is outside -60..100 degC", *choice.ambient_c));
+    params.ambient_c = *choice.ambient_c;
+  }
+  if (!(choice.fade >= 0.0 && choice.fade <= 0.9))
+    return InvalidInput(fmt::format("simulated cell: capacity fade {} is outside 0..90 %", choice.fade));
+  if (choice.fade > 0.0) {
+    const double growth = 1.0 + kResistanceGrowthPerFade * choice.fade;
+    params.capacity_ah *= 1.0 - choice.fade;
+    params.r0_ohm *= growth;
+    params.r1_ohm *= growth;
+    params.r2_ohm *= growth;
+  }
   return params;
 }
 
 std::string SimCellText(const SimCellChoice& c) {
-  return fmt::format("preset={} rated_mah={:.17g} seed={} soc={:.17g}", c.preset, c.rated_mah, c.seed, c.start_soc);
+  std::string out = fmt::format("preset={} rated_mah={:.17g} seed={} soc={:.17g}", c.preset, c.rated_mah, c.seed, c.start_soc);
+  if (c.ambient_c) out += fmt::format(" ambient_c={:.17g}", *c.ambient_c);
+  if (c.fade > 0.0) out += fmt::format(" fade={:.17g}", c.fade);
+  return out;
 }
 
 Result<SimCellChoice> ParseSimCellText(std::string_view text) {
@@ -73,6 +90,12 @@ Result<SimCellChoice> ParseSimCellText(std::string_view text) {
   };
   if (!number("rated_mah=", c.rated_mah) || !number("seed=", c.seed) || !number("soc=", c.start_soc))
     return bad("expected preset=... rated_mah=... seed=... soc=...");
+  if (rest.find("ambient_c=") != std::string_view::npos) {
+    double a = 0.0;
+    if (!number("ambient_c=", a)) return bad("ambient_c must be a number");
+    c.ambient_c = a;
+  }
+  if (rest.find("fade=") != std::string_view::npos && !number("fade=", c.fade)) return bad("fade must be a number");
   if (c.preset.empty() || !std::isfinite(c.rated_mah) || !(c.start_soc >= 0 && c.start_soc <= 1)) return bad("value out of range");
   return c;
 }

@@ -6,6 +6,7 @@
 #pragma once
 
 #include <memory>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -48,13 +49,20 @@ struct SimCellChoice {
   double rated_mah = 0.0;    // 0: the preset's own rating
   uint64_t seed = 0;         // 0: the nominal cell
   double start_soc = 1.0;    // state of charge at the start, 0..1
+  std::optional<double> ambient_c;  // surroundings (and the cell at the start); empty: the preset's
+  double fade = 0.0;         // ageing: capacity lost, 0..0.9 of the preset's (resistances grow with it)
 };
+
+// Resistance growth that goes with a capacity fade: +2.5 % per 1 % lost, so
+// a cell at 80 % of its capacity (a usual end-of-life point) has 1.5 times
+// its resistance (from memory: aged cells commonly show +30 % to +100 % there).
+inline constexpr double kResistanceGrowthPerFade = 2.5;
 
 // The cell a choice names (preset loaded, scaled, varied, part-charged).
 Result<sim::CellParams> BuildSimCell(const SimCellChoice& choice);
-// One line, "preset=li-ion rated_mah=2500 seed=0 soc=0.4", and back (the
-// preset or path is everything between "preset=" and the last " rated_mah=",
-// so a path may hold spaces).
+// One line, "preset=li-ion rated_mah=2500 seed=0 soc=0.4 [ambient_c=0] [fade=0.2]",
+// and back (the preset or path is everything between "preset=" and the last
+// " rated_mah=", so a path may hold spaces).
 std::string SimCellText(const SimCellChoice& choice);
 Result<SimCellChoice> ParseSimCellText(std::string_view text);
 

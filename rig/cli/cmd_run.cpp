@@ -5,6 +5,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <iostream>
 
 #include "drivers/sim/cell_file.h"
@@ -31,6 +32,8 @@ struct RunCmdOptions {
   std::string sim_cell;
   uint64_t sim_seed = 0;
   std::string sim_soc;
+  std::string sim_age;
+  std::optional<double> sim_ambient_c;
   double speed = 0.0;
   double progress_s = 600.0;
   double link_grace_s = 30.0;
@@ -80,11 +83,17 @@ int RunRun(const RunCmdOptions& opt) {
       if (!soc.ok()) return Fail(soc.status());
       sim_choice.start_soc = *soc;
     }
+    if (!opt.sim_age.empty()) {
+      auto fade = ParsePercentOrFraction(opt.sim_age, "--sim-age", "capacity fade");
+      if (!fade.ok()) return Fail(fade.status());
+      sim_choice.fade = *fade;
+    }
+    sim_choice.ambient_c = opt.sim_ambient_c;
     auto params = BuildSimCell(sim_choice);
     if (!params.ok()) return Fail(params.status());
     ro.sim_cell = *params;
-  } else if (!opt.sim_soc.empty()) {
-    return Fail(InvalidInput("--sim-soc: only for --rig sim (a real cell is as charged as it is)"));
+  } else if (!opt.sim_soc.empty() || !opt.sim_age.empty() || opt.sim_ambient_c) {
+    return Fail(InvalidInput("--sim-soc, --sim-age, --sim-ambient: only for --rig sim (a real cell is as it is)"));
   }
   ro.trace_path = opt.trace;
   auto rig = OpenRig(opt.rig, ro);
@@ -166,6 +175,10 @@ void RegisterRun(CliRegistry& r) {
       ->capture_default_str();
   c->add_option("--sim-seed", opt.sim_seed, "Simulator only: draw one cell of the preset's batch (0: the nominal cell)");
   c->add_option("--sim-soc", opt.sim_soc, "Simulator only: the cell's state of charge at the start, 40% or 0.4 (default: full)");
+  c->add_option("--sim-age", opt.sim_age,
+                "Simulator only: an aged cell, its capacity fade as 20% or 0.2 (resistance grows 2.5x as fast; up to 90%)");
+  c->add_option("--sim-ambient", opt.sim_ambient_c, "Simulator only: ambient temperature in degC (default: the preset's)")
+      ->check(CLI::Range(-60.0, 100.0));
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
   c->add_option("--link-grace", opt.link_grace_s,

@@ -32,6 +32,14 @@ TEST(SimCellChoice, TextRoundTripsAndBadRecordsAreRefused) {
   EXPECT_EQ(back->rated_mah, c.rated_mah);
   EXPECT_EQ(back->seed, c.seed);
   EXPECT_EQ(back->start_soc, c.start_soc);
+  SimCellChoice aged{"nimh", 2000, 0, 1.0, -20.0, 0.25};
+  auto aged_back = ParseSimCellText(SimCellText(aged));
+  ASSERT_TRUE(aged_back.ok()) << aged_back.status().ToString();
+  ASSERT_TRUE(aged_back->ambient_c.has_value());
+  EXPECT_EQ(*aged_back->ambient_c, -20.0);
+  EXPECT_EQ(aged_back->fade, 0.25);
+  EXPECT_FALSE(back->ambient_c.has_value());
+  EXPECT_FALSE(ParseSimCellText("preset=li-ion rated_mah=2500 seed=0 soc=1 ambient_c=cold").ok());
   for (const char* bad : {"", "preset=li-ion", "preset=li-ion rated_mah=x seed=0 soc=1", "preset=li-ion rated_mah=2500 seed=0 soc=1.5",
                           "rated_mah=2500 seed=0 soc=1 preset=li-ion"})
     EXPECT_FALSE(ParseSimCellText(bad).ok()) << bad;
@@ -53,6 +61,26 @@ TEST(SimCellChoice, StartsPartCharged) {
   EXPECT_NEAR(q_part / q_full, 0.4, 0.01);
   EXPECT_FALSE(BuildSimCell({"li-ion", 2500, 0, 1.2}).ok());
   EXPECT_FALSE(BuildSimCell({"no-such-cell", 2500, 0, 1.0}).ok());
+}
+
+// An aged cell (--sim-age 20%): 80 % of the capacity and 1.5 times the
+// resistance (kResistanceGrowthPerFade, from memory), so at a low rate it
+// delivers a little under 80 % of the new cell's charge; the rating stays.
+TEST(SimCellChoice, AgedCellHasLessCapacityAndMoreResistance) {
+  auto fresh = BuildSimCell({"li-ion", 2500, 0, 1.0});
+  auto aged = BuildSimCell({"li-ion", 2500, 0, 1.0, std::nullopt, 0.2});
+  ASSERT_TRUE(fresh.ok() && aged.ok());
+  EXPECT_DOUBLE_EQ(aged->rated_ah, fresh->rated_ah);
+  EXPECT_NEAR(aged->capacity_ah, 0.8 * fresh->capacity_ah, 1e-12);
+  sim::CellModel mf(*fresh), ma(*aged);
+  EXPECT_NEAR(ma.TotalResistance() / mf.TotalResistance(), 1.5, 1e-12);
+  const double q_fresh = sim::testing::DischargeMah(mf, 0.5, fresh->cutoff_v);
+  const double q_aged = sim::testing::DischargeMah(ma, 0.5, aged->cutoff_v);
+  std::printf("li-ion at 0.2C: new %.0f mAh, 20 %% faded %.0f mAh\n", q_fresh, q_aged);
+  EXPECT_LT(q_aged, 0.8 * q_fresh);
+  EXPECT_GT(q_aged, 0.75 * q_fresh);
+  EXPECT_FALSE(BuildSimCell({"li-ion", 2500, 0, 1.0, std::nullopt, 0.95}).ok());
+  EXPECT_FALSE(BuildSimCell({"li-ion", 2500, 0, 1.0, 150.0, 0.0}).ok());
 }
 
 // Replaying a logged run reproduces the cell of the run: the logged samples
@@ -128,6 +156,26 @@ TEST(SimSocCli, ChargeFromFortyPercentTakesAsLongAsItShould) {
   EXPECT_DOUBLE_EQ(choice->start_soc, 0.4);
   EXPECT_DOUBLE_EQ(choice->rated_mah, 2500.0);
 
+  // A cold, aged cell: recorded as such, and the run starts at the ambient temperature.
+  ASSERT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-soc", "0.9", "--sim-ambient", "0", "--sim-age", "10%"}),
+            cli::kExitOk);
+  runs = (*store)->ListRuns();
+  ASSERT_EQ(runs->size(), 3u);
+  auto cold = (*store)->LoadSamples((*runs)[2].id);
+  ASSERT_TRUE(cold.ok() && !cold->empty());
+  EXPECT_NEAR(cold->front().temperature_c, 0.0, 0.5);
+  auto cold_events = (*store)->LoadEvents((*runs)[2].id);
+  ASSERT_TRUE(cold_events.ok());
+  bool cold_recorded = false;
+  for (const EventRow& e : *cold_events)
+    if (e.kind == "sim-cell") {
+      auto c = ParseSimCellText(e.message);
+      ASSERT_TRUE(c.ok()) << e.message;
+      cold_recorded = c->ambient_c == 0.0 && c->fade == 0.1 && c->start_soc == 0.9;
+    }
+  EXPECT_TRUE(cold_recorded);
+
+  EXPECT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-age", "95%"}), cli::kExitBadInput);
   EXPECT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-soc", "140%"}), cli::kExitBadInput);
   EXPECT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-soc", "forty"}), cli::kExitBadInput);
 }
