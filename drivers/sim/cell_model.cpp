@@ -125,11 +125,13 @@ double CellModel::bound_level() const {
   return state_.bound_c / ((1.0 - c) * params_.capacity_ah * 3600.0);
 }
 
-double CellModel::ArrheniusFactor() const {
-  if (params_.activation_energy_j_per_mol <= 0.0) return 1.0;
+double CellModel::ArrheniusFactor() const { return ArrheniusFactor(params_.activation_energy_j_per_mol); }
+
+double CellModel::ArrheniusFactor(double activation_energy_j_per_mol) const {
+  if (activation_energy_j_per_mol <= 0.0) return 1.0;
   const double t_k = std::max(state_.temperature_c + kKelvin, 150.0);
   const double ref_k = params_.reference_c + kKelvin;
-  return std::exp(params_.activation_energy_j_per_mol / kGasConstant * (1.0 / t_k - 1.0 / ref_k));
+  return std::exp(activation_energy_j_per_mol / kGasConstant * (1.0 / t_k - 1.0 / ref_k));
 }
 
 double CellModel::ResistanceFactor() const {
@@ -183,7 +185,9 @@ void CellModel::Advance(double dt_s, double current_a, double extra_heat_w) {
     heat_w += (well_current_a - current_a) * OpenCircuitVoltage();
   }
   const double c = std::clamp(p.kibam_c, 1e-6, 1.0);
-  KibamStep(c, p.kibam_k_per_s / arr, well_current_a, dt_s, state_.available_c, state_.bound_c);
+  const double k_arr =
+      p.kibam_activation_energy_j_per_mol < 0.0 ? arr : ArrheniusFactor(p.kibam_activation_energy_j_per_mol);
+  KibamStep(c, p.kibam_k_per_s / k_arr, well_current_a, dt_s, state_.available_c, state_.bound_c);
   const double q = p.capacity_ah * 3600.0;
   const double y1_max = c * q, y2_max = (1.0 - c) * q;
   if (state_.available_c > y1_max) {  // full: the excess charge turns into heat

@@ -97,6 +97,10 @@ struct CellParams {
   // recovery effect), k = exchange rate between the wells.
   double kibam_c = 1.0;
   double kibam_k_per_s = 0.0;
+  // Arrhenius activation energy of the exchange rate k (diffusion inside the
+  // electrodes, which slows more in the cold than the ohmic paths); k(T) =
+  // k_ref·exp(−Ea/Rg·(1/T − 1/T_ref)). < 0: the resistances' activation energy.
+  double kibam_activation_energy_j_per_mol = -1.0;
 
   double self_discharge_per_month = 0.0;  // fraction of stored charge lost per month (kDaysPerMonth, analysis/calendar.h)
   double charge_efficiency = 1.0;         // fraction of charging current stored; 0: primary
@@ -147,7 +151,8 @@ class CellModel {
   void set_ambient_c(double ambient_c) { params_.ambient_c = ambient_c; }
 
  private:
-  double ArrheniusFactor() const;
+  double ArrheniusFactor() const;  // resistances: R(T) / R(T_ref)
+  double ArrheniusFactor(double activation_energy_j_per_mol) const;
   double ResistanceFactor() const;  // Arrhenius × rise towards empty
 
   CellParams params_;

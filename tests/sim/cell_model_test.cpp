@@ -258,6 +258,27 @@ TEST(CellModel, ColdCellsDeliverLessAtHighRate) {
   EXPECT_LT(q_cold, 0.97 * q_warm);
 }
 
+// Capacity in the cold against the Li-ion preset's check values: at 0.5C a
+// cell in 0 degC surroundings delivers 80-95 % and at -20 degC 60-85 % of what
+// it delivers at 25 degC (typical datasheet low-temperature discharge curves,
+// from memory). The cell starts at the ambient temperature and warms itself.
+TEST(CellModel, ColdDeratingMatchesTheLiIonCheckValues) {
+  const CellParams warm = Preset("li-ion");
+  auto delivered = [&](double ambient_c) {
+    CellParams p = warm;
+    p.ambient_c = ambient_c;
+    CellModel m(p);
+    return DischargeMah(m, 0.5 * p.rated_ah, p.cutoff_v);
+  };
+  const double q25 = delivered(25.0), q0 = delivered(0.0), q_minus20 = delivered(-20.0);
+  std::printf("li-ion at 0.5C: 25 degC %.0f mAh, 0 degC %.0f mAh (%.0f %%), -20 degC %.0f mAh (%.0f %%)\n", q25, q0,
+              100 * q0 / q25, q_minus20, 100 * q_minus20 / q25);
+  EXPECT_GE(q0 / q25, 0.80);
+  EXPECT_LE(q0 / q25, 0.95);
+  EXPECT_GE(q_minus20 / q25, 0.60);
+  EXPECT_LE(q_minus20 / q25, 0.85);
+}
+
 // Ratings of the presets against published chemistry facts (shared
 // references, 'Chemistry facts', secondary: datasheets): Li-ion 3.6-3.7 V
 // nominal, 4.2 V charge, 2.75-3.0 V cutoff (2.5-3.0 V accepted for NMC);
