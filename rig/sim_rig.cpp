@@ -115,8 +115,11 @@ sim::CellState ReplayLoggedCell(const sim::CellParams& cell, SampleSpan samples,
     auto g = std::upper_bound(gaps.begin(), gaps.end(), a.t_s);
     const bool gap = g != gaps.end() && *g <= b.t_s;
     const double current_a = gap ? 0.0 : b.current_a;
-    // Steps of at most a second, as the simulated bench integrates.
-    const int n = std::max(1, static_cast<int>(std::ceil(dt)));
+    // Steps of at most a second under load, as the simulated bench integrates;
+    // a minute at rest (the model is exact for constant current but for the
+    // slow coupling through temperature), so long rests replay quickly.
+    const double max_step_s = current_a == 0.0 ? 60.0 : 1.0;
+    const int n = static_cast<int>(std::clamp(std::ceil(dt / max_step_s), 1.0, 1e6));
     for (int k = 0; k < n; ++k) m.Advance(dt / n, current_a);
   }
   return m.state();
