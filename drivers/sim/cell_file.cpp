@@ -41,6 +41,8 @@ const std::vector<NumberKey>& NumberKeys() {
       {"ocv", "temp_coeff_mv_per_k", -10, 10, false,
        [](CellPreset& c, double v) { c.params.ocv_temp_coeff_v_per_k = v / 1000.0; }},
       {"ocv", "reference_c", -60, 100, false, [](CellPreset& c, double v) { c.params.reference_c = v; }},
+      {"ocv", "hysteresis_mv", 0, 500, false, [](CellPreset& c, double v) { c.params.ocv_hysteresis_v = v / 1000.0; }},
+      {"ocv", "hysteresis_span", 0, 1, true, [](CellPreset& c, double v) { c.params.ocv_hysteresis_span = v; }},
       {"impedance", "r0_mohm", 0, 1e6, true, [](CellPreset& c, double v) { c.params.r0_ohm = v / 1000.0; }},
       {"impedance", "fast_mohm", 0, 1e6, false, [](CellPreset& c, double v) { c.params.r1_ohm = v / 1000.0; }},
       {"impedance", "fast_tau_s", 0, 1e6, true, [](CellPreset& c, double v) { c.params.tau1_s = v; }},
@@ -116,7 +118,9 @@ class Parser {
       const toml::node* n = sec != nullptr ? sec->get(k.key) : nullptr;
       if (n == nullptr) {
         if (std::string_view(k.section) == "spread") continue;  // optional: no spread
-        if (std::string_view(k.key) == "exchange_activation_kj_per_mol") continue;  // optional: the resistances' value
+        // Optional keys: the wells' activation energy (else the resistances'), hysteresis (else none).
+        const std::string_view key(k.key);
+        if (key == "exchange_activation_kj_per_mol" || key == "hysteresis_mv" || key == "hysteresis_span") continue;
         return Error(sec, full, sec != nullptr ? "missing" : fmt::format("missing (no [{}] section)", k.section));
       }
       std::optional<double> v = n->is_number() ? n->value<double>() : std::nullopt;

@@ -149,7 +149,8 @@ double CellModel::TotalResistance() const { return (params_.r0_ohm + params_.r1_
 
 double CellModel::OpenCircuitVoltage() const {
   const double h1 = available_level();
-  const double shift = params_.ocv_temp_coeff_v_per_k * (state_.temperature_c - params_.reference_c);
+  const double shift =
+      params_.ocv_temp_coeff_v_per_k * (state_.temperature_c - params_.reference_c) + state_.hysteresis_v;
   if (h1 >= 0.0) return std::max(0.0, ocv_(h1) + shift);
   const double empty_v = ocv_(0.0) + shift;
   return std::max(0.0, empty_v * (1.0 + h1 / kCollapseLevel));
@@ -197,6 +198,14 @@ void CellModel::Advance(double dt_s, double current_a, double extra_heat_w) {
   state_.bound_c = std::min(state_.bound_c, y2_max);
   state_.available_c = std::max(state_.available_c, -kCollapseLevel * y1_max);
   state_.bound_c = std::max(state_.bound_c, 0.0);
+
+  // Hysteresis: towards −M while discharging, +M while charging, exact for
+  // constant current (the offset follows the charge moved, not time).
+  if (p.ocv_hysteresis_v > 0.0 && current_a != 0.0 && p.ocv_hysteresis_span > 0.0) {
+    const double target = current_a > 0 ? -p.ocv_hysteresis_v : p.ocv_hysteresis_v;
+    const double moved = std::abs(current_a) * dt_s / (p.ocv_hysteresis_span * q);
+    state_.hysteresis_v = target + (state_.hysteresis_v - target) * std::exp(-moved);
+  }
 
   // Self-discharge: first-order leak of the stored charge.
   if (p.self_discharge_per_month > 0.0 && p.self_discharge_per_month < 1.0) {

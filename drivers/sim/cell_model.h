@@ -62,6 +62,7 @@ struct CellState {
   double v1_v = 0.0;         // voltage across the fast RC pair (discharge positive)
   double v2_v = 0.0;         // voltage across the slow RC pair
   double temperature_c = 25.0;
+  double hysteresis_v = 0.0;  // OCV offset of the hysteresis: −M after discharging, +M after charging
 };
 
 struct CellParams {
@@ -78,6 +79,13 @@ struct CellParams {
   // Open-circuit voltage table: (available-well level 0..1, volts), ascending.
   std::vector<std::pair<double, double>> ocv_table;
   double ocv_temp_coeff_v_per_k = 0.0;  // dOCV/dT around reference_c
+  // OCV hysteresis (off when 0): the rest voltage sits up to M above the curve
+  // after charging and M below it after discharging. Moving charge q drives the
+  // offset towards the new side as 1 − exp(−|q| / (span · capacity)): a
+  // one-state hysteresis as in enhanced self-correcting cell models (Plett,
+  // J. Power Sources 134, 2004; from memory). Rests keep it.
+  double ocv_hysteresis_v = 0.0;
+  double ocv_hysteresis_span = 0.05;
   double reference_c = 25.0;            // temperature at which the values below hold
 
   double r0_ohm = 0.045;  // series (ohmic) resistance

@@ -176,6 +176,23 @@ TEST(CellFile, WellActivationEnergyIsOptionalAndChecked) {
   EXPECT_NE(st.message().find(want), std::string::npos) << st.message();
 }
 
+// OCV hysteresis is optional (absent: none) and range-checked.
+TEST(CellFile, HysteresisIsOptionalAndChecked) {
+  const std::string lfp(BuiltInCellText("lifepo4"));
+  Result<CellPreset> with = ParseCellText(lfp, "lfp.toml");
+  ASSERT_TRUE(with.ok()) << with.status().ToString();
+  EXPECT_DOUBLE_EQ(with->params.ocv_hysteresis_v, 0.010);
+  Result<CellPreset> without =
+      ParseCellText(Replace(Replace(lfp, "hysteresis_mv = 10\n", ""), "hysteresis_span = 0.05\n", ""), "lfp.toml");
+  ASSERT_TRUE(without.ok()) << without.status().ToString();
+  EXPECT_EQ(without->params.ocv_hysteresis_v, 0.0);
+  std::string text = Replace(lfp, "hysteresis_span = 0.05", "hysteresis_span = 0");
+  Status st = ParseError(text);
+  EXPECT_NE(st.message().find("cells/test.toml:" + std::to_string(LineOf(text, "hysteresis_span")) + ": ocv.hysteresis_span"),
+            std::string::npos)
+      << st.message();
+}
+
 TEST(CellFile, SpreadIsOptional) {
   std::string text = LiIonText();
   text = text.substr(0, text.find("[spread]"));
