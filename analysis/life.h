@@ -15,6 +15,7 @@
 #include <string_view>
 #include <vector>
 
+#include "analysis/calendar.h"
 #include "analysis/peukert.h"
 
 namespace kp {
@@ -78,7 +79,6 @@ struct LifeOutcome {
 };
 LifeOutcome ProjectLife(const LifeInputs& inputs);
 
-inline constexpr double kHoursPerYear = 365.25 * 24.0;
-inline constexpr double kHoursPerMonth = kHoursPerYear / 12.0;
+// kHoursPerYear, kHoursPerMonth: analysis/calendar.h (one month for the whole program).
 
 }  // namespace kp

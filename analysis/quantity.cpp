@@ -6,6 +6,8 @@
 #include <charconv>
 #include <cmath>
 
+#include "analysis/calendar.h"
+
 namespace kp {
 namespace {
 
@@ -29,7 +31,6 @@ constexpr UnitScale kCharge[] = {{"Ah", 1000.0},
                                   1e-3},
                                  {"C", 1.0 / 3.6}};
 constexpr UnitScale kDuration[] = {{"s", 1.0}, {"ms", 1e-3}, {"min", 60.0}, {"h", 3600.0}, {"d", 86400.0}};
-constexpr double kDaysPerMonth = 365.25 / 12.0;
 constexpr UnitScale kRate[] = {{"%/month", 0.01}, {"%/year", 0.01 / 12.0}, {"%/day", 0.01 * kDaysPerMonth}};
 constexpr UnitScale kFraction[] = {{"", 1.0}, {"%", 0.01}};
 

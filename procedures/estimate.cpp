@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <limits>
 
@@ -61,11 +62,28 @@ double MeanCurrentA(const Step& step, const CellSpec& cell) {
   return 0.0;
 }
 
-PlanEstimate EstimatePlan(const Plan& plan) {
+Result<double> ParsePercentOrFraction(std::string_view text, std::string_view option, std::string_view what) {
+  std::string_view t = text;
+  while (!t.empty() && t.back() == ' ') t.remove_suffix(1);
+  const bool percent = !t.empty() && t.back() == '%';
+  if (percent) t.remove_suffix(1);
+  double v = 0.0;
+  auto res = std::from_chars(t.data(), t.data() + t.size(), v);
+  if (t.empty() || res.ec != std::errc() || res.ptr != t.data() + t.size() || !std::isfinite(v))
+    return InvalidInput(fmt::format("{}: '{}' is not a {} (write 40% or 0.4)", option, text, what));
+  if (percent) v /= 100.0;
+  if (v < 0.0 || v > 1.0)
+    return InvalidInput(fmt::format("{}: '{}' is outside 0..100 % (a plain number is a fraction 0..1: write 40% or 0.4)",
+                                    option, text));
+  return v;
+}
+
+PlanEstimate EstimatePlan(const Plan& plan, double start_soc) {
   PlanEstimate est;
   est.steps.resize(plan.steps.size());
+  est.start_soc = std::clamp(start_soc, 0.0, 1.0);
   const double rated = plan.cell.rated_mah;
-  double remaining = rated;  // assumes the cell starts full
+  double remaining = rated * est.start_soc;  // the cell's charge at the start
   struct LoopRun {
     int iter = 0;
     double start_s = 0, charge = 0;
@@ -172,7 +190,10 @@ std::string DescribePlan(const Plan& plan, const PlanEstimate& est) {
           : std::string("abort"),
       l.min_voltage_v, l.max_voltage_v, FormatQuantity(l.max_current_a, Dimension::kCurrent), Hms(l.max_total_s),
       l.max_charge_mah);
-  out += "steps (estimates assume a full cell at the start; charge > 0 is discharged):\n";
+  out += est.start_soc >= 1.0
+             ? std::string("steps (estimates assume a full cell at the start; charge > 0 is discharged):\n")
+             : fmt::format("steps (estimates assume the cell at {:g} % at the start; charge > 0 is discharged):\n",
+                           est.start_soc * 100.0);
   for (size_t i = 0; i < plan.steps.size(); ++i) {
     for (const Loop& lp : plan.loops) {
       if (lp.first_step != static_cast<int>(i)) continue;

@@ -1,12 +1,15 @@
 // Plan estimates for `kneepoint check`: how long each step should take and how
 // much charge it moves, from the cell's rated capacity alone (no cell model).
-// Assumes the cell starts full and a voltage end means "until empty" while
-// discharging ("until full" while charging) — a rough guide, not a prediction.
+// Assumes the cell starts full (or at a stated state of charge) and a voltage
+// end means "until empty" while discharging ("until full" while charging) — a
+// rough guide, not a prediction.
 #pragma once
 
 #include <string>
+#include <string_view>
 #include <vector>
 
+#include "drivers/status.h"
 #include "procedures/plan.h"
 
 namespace kp {
@@ -23,9 +26,19 @@ struct PlanEstimate {
   double total_s = 0.0;
   double total_mah = 0.0;
   bool complete = true;  // false when some step or loop could not be estimated
+  double start_soc = 1.0;  // state of charge assumed at the start (fraction of rated)
 };
 
-PlanEstimate EstimatePlan(const Plan& plan);
+// `start_soc`: the cell's state of charge at the start, 0..1 of its rating.
+PlanEstimate EstimatePlan(const Plan& plan, double start_soc = 1.0);
+
+// A share as written on a command line: "40%" or a fraction "0.4" (0..100 %
+// / 0..1). The error names `option` and what the share is (`what`).
+Result<double> ParsePercentOrFraction(std::string_view text, std::string_view option, std::string_view what);
+// A state of charge ("40%", "0.4").
+inline Result<double> ParseStateOfCharge(std::string_view text, std::string_view option) {
+  return ParsePercentOrFraction(text, option, "state of charge");
+}
 
 // Mean current a step draws (A, > 0 discharging) at the cell's nominal voltage;
 // for pulse trains and duty cycles the time-weighted mean over one run cycle.

@@ -41,6 +41,8 @@ const std::vector<NumberKey>& NumberKeys() {
       {"ocv", "temp_coeff_mv_per_k", -10, 10, false,
        [](CellPreset& c, double v) { c.params.ocv_temp_coeff_v_per_k = v / 1000.0; }},
       {"ocv", "reference_c", -60, 100, false, [](CellPreset& c, double v) { c.params.reference_c = v; }},
+      {"ocv", "hysteresis_mv", 0, 500, false, [](CellPreset& c, double v) { c.params.ocv_hysteresis_v = v / 1000.0; }},
+      {"ocv", "hysteresis_span", 0, 1, true, [](CellPreset& c, double v) { c.params.ocv_hysteresis_span = v; }},
       {"impedance", "r0_mohm", 0, 1e6, true, [](CellPreset& c, double v) { c.params.r0_ohm = v / 1000.0; }},
       {"impedance", "fast_mohm", 0, 1e6, false, [](CellPreset& c, double v) { c.params.r1_ohm = v / 1000.0; }},
       {"impedance", "fast_tau_s", 0, 1e6, true, [](CellPreset& c, double v) { c.params.tau1_s = v; }},
@@ -52,6 +54,8 @@ const std::vector<NumberKey>& NumberKeys() {
       {"impedance", "empty_rise_width", 0, 1, true, [](CellPreset& c, double v) { c.params.resistance_rise_width = v; }},
       {"wells", "available_fraction", 0, 1, true, [](CellPreset& c, double v) { c.params.kibam_c = v; }},
       {"wells", "exchange_per_hour", 0, 1e6, false, [](CellPreset& c, double v) { c.params.kibam_k_per_s = v / 3600.0; }},
+      {"wells", "exchange_activation_kj_per_mol", 0, 200, false,
+       [](CellPreset& c, double v) { c.params.kibam_activation_energy_j_per_mol = v * 1000.0; }},
       {"thermal", "heat_capacity_j_per_k", 0, 1e9, true, [](CellPreset& c, double v) { c.params.heat_capacity_j_per_k = v; }},
       {"thermal", "to_ambient_k_per_w", 0, 1e6, true, [](CellPreset& c, double v) { c.params.thermal_resistance_k_per_w = v; }},
       {"thermal", "ambient_c", -60, 100, false, [](CellPreset& c, double v) { c.params.ambient_c = v; }},
@@ -114,6 +118,9 @@ class Parser {
       const toml::node* n = sec != nullptr ? sec->get(k.key) : nullptr;
       if (n == nullptr) {
         if (std::string_view(k.section) == "spread") continue;  // optional: no spread
+        // Optional keys: the wells' activation energy (else the resistances'), hysteresis (else none).
+        const std::string_view key(k.key);
+        if (key == "exchange_activation_kj_per_mol" || key == "hysteresis_mv" || key == "hysteresis_span") continue;
         return Error(sec, full, sec != nullptr ? "missing" : fmt::format("missing (no [{}] section)", k.section));
       }
       std::optional<double> v = n->is_number() ? n->value<double>() : std::nullopt;

@@ -1,7 +1,8 @@
 // Simulated cell: the physics behind the simulated instruments.
 //
 // Equivalent circuit seen from the terminals: an open-circuit voltage (OCV, a
-// table over the available-charge level, shifted mildly with temperature)
+// table over the available-charge level joined by a monotone cubic (Steffen's
+// method), shifted mildly with temperature)
 // behind a series resistance R0 and two RC pairs (a fast and a slow one).
 // Resistances follow an Arrhenius law in the cell temperature.
 //
@@ -22,11 +23,47 @@
 // owner (SimBench) serialises access.
 #pragma once
 
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
 
 namespace kp::sim {
+
+// Linear interpolation in an ascending (x, y) table, clamped at the ends.
+double Interpolate(const std::vector<std::pair<double, double>>& table, double x);
+
+// Shape-preserving cubic through an ascending (x, y) table: Steffen's method
+// (M. Steffen, "A simple method for monotonic interpolation in one dimension",
+// Astronomy & Astrophysics 239, 1990; the method GSL implements as
+// gsl_interp_steffen (from memory)). The curve passes through every point, is
+// monotone wherever the data are, never overshoots between points, and its
+// first derivative is continuous. End slopes: the slope of the end interval
+// (the paper's simplest boundary choice, as GSL does). Outside the table the
+// value is clamped to the end points.
+class MonotoneCurve {
+ public:
+  MonotoneCurve() = default;
+  explicit MonotoneCurve(std::vector<std::pair<double, double>> table);
+  double operator()(double x) const;
+  double Slope(double x) const;  // dy/dx (0 outside the table)
+  bool empty() const { return table_.empty(); }
+
+ private:
+  size_t Interval(double x) const;
+  std::vector<std::pair<double, double>> table_;
+  std::vector<double> slope_;  // dy/dx at each point
+};
+
+// Everything that evolves; enough to continue a simulation elsewhere.
+struct CellState {
+  double available_c = 0.0;  // KiBaM y1, coulombs
+  double bound_c = 0.0;      // KiBaM y2, coulombs
+  double v1_v = 0.0;         // voltage across the fast RC pair (discharge positive)
+  double v2_v = 0.0;         // voltage across the slow RC pair
+  double temperature_c = 25.0;
+  double hysteresis_v = 0.0;  // OCV offset of the hysteresis: −M after discharging, +M after charging
+};
 
 struct CellParams {
   std::string name = "sim-cell";
@@ -42,6 +79,13 @@ struct CellParams {
   // Open-circuit voltage table: (available-well level 0..1, volts), ascending.
   std::vector<std::pair<double, double>> ocv_table;
   double ocv_temp_coeff_v_per_k = 0.0;  // dOCV/dT around reference_c
+  // OCV hysteresis (off when 0): the rest voltage sits up to M above the curve
+  // after charging and M below it after discharging. Moving charge q drives the
+  // offset towards the new side as 1 − exp(−|q| / (span · capacity)): a
+  // one-state hysteresis as in enhanced self-correcting cell models (Plett,
+  // J. Power Sources 134, 2004; from memory). Rests keep it.
+  double ocv_hysteresis_v = 0.0;
+  double ocv_hysteresis_span = 0.05;
   double reference_c = 25.0;            // temperature at which the values below hold
 
   double r0_ohm = 0.045;  // series (ohmic) resistance
@@ -61,14 +105,21 @@ struct CellParams {
   // recovery effect), k = exchange rate between the wells.
   double kibam_c = 1.0;
   double kibam_k_per_s = 0.0;
+  // Arrhenius activation energy of the exchange rate k (diffusion inside the
+  // electrodes, which slows more in the cold than the ohmic paths); k(T) =
+  // k_ref·exp(−Ea/Rg·(1/T − 1/T_ref)). < 0: the resistances' activation energy.
+  double kibam_activation_energy_j_per_mol = -1.0;
 
-  double self_discharge_per_month = 0.0;  // fraction of stored charge lost per 30 days
+  double self_discharge_per_month = 0.0;  // fraction of stored charge lost per month (kDaysPerMonth, analysis/calendar.h)
   double charge_efficiency = 1.0;         // fraction of charging current stored; 0: primary
 
   double heat_capacity_j_per_k = 45.0;       // lumped thermal mass
   double thermal_resistance_k_per_w = 20.0;  // cell surface to ambient
   double ambient_c = 22.0;
   double initial_soc = 1.0;  // both wells at this level, RC pairs relaxed, T = ambient
+  // When set, the cell starts in this state instead (initial_soc unused): a
+  // cell continued from an earlier simulation (resume of a logged run).
+  std::optional<CellState> start_state;
 };
 
 // Invented demo cell (not a real product): a 2.5 Ah-class NMC-like 18650,
@@ -79,15 +130,6 @@ CellParams DemoLiIonCell(double capacity_ah = 2.56);
 struct Thevenin {
   double emf_v = 0.0;
   double r_ohm = 0.0;
-};
-
-// Everything that evolves; enough to continue a simulation elsewhere.
-struct CellState {
-  double available_c = 0.0;  // KiBaM y1, coulombs
-  double bound_c = 0.0;      // KiBaM y2, coulombs
-  double v1_v = 0.0;         // voltage across the fast RC pair (discharge positive)
-  double v2_v = 0.0;         // voltage across the slow RC pair
-  double temperature_c = 25.0;
 };
 
 class CellModel {
@@ -117,15 +159,14 @@ class CellModel {
   void set_ambient_c(double ambient_c) { params_.ambient_c = ambient_c; }
 
  private:
-  double ArrheniusFactor() const;
+  double ArrheniusFactor() const;  // resistances: R(T) / R(T_ref)
+  double ArrheniusFactor(double activation_energy_j_per_mol) const;
   double ResistanceFactor() const;  // Arrhenius × rise towards empty
 
   CellParams params_;
+  MonotoneCurve ocv_;
   CellState state_;
 };
-
-// Linear interpolation in an ascending (x, y) table, clamped at the ends.
-double Interpolate(const std::vector<std::pair<double, double>>& table, double x);
 
 // Kinetic Battery Model closed form for constant current over `t_s` (Manwell &
 // McGowan 1993, as restated by Jongerden & Haverkort): updates y1 (available)

@@ -15,6 +15,7 @@ namespace {
 struct CheckOptions {
   std::string file;
   double min_sample_s = 0.05;
+  std::string soc;  // state of charge at the start ("40%"); empty: full
 };
 
 int RunCheck(const CheckOptions& opt) {
@@ -25,7 +26,13 @@ int RunCheck(const CheckOptions& opt) {
     std::cerr << plan.status().message() << "\n";
     return ExitCodeFor(plan.status());
   }
-  PlanEstimate est = EstimatePlan(*plan);
+  double start_soc = 1.0;
+  if (!opt.soc.empty()) {
+    auto soc = ParseStateOfCharge(opt.soc, "--soc");
+    if (!soc.ok()) return Fail(soc.status());
+    start_soc = *soc;
+  }
+  PlanEstimate est = EstimatePlan(*plan, start_soc);
   std::cout << DescribePlan(*plan, est);
   for (const std::string& w : plan->warnings) std::cerr << opt.file << ":" << w.substr(5) << " (warning)\n";
   // A plan that cannot finish before its own max-time would abort every night
@@ -44,10 +51,12 @@ int RunCheck(const CheckOptions& opt) {
 
 void RegisterCheck(CliRegistry& r) {
   static CheckOptions opt;
+  opt = CheckOptions{};  // fresh defaults for each command line parsed
   CLI::App* c =
       r.Add("check", "Validate a procedure file and print the expanded plan with estimates", [] { return RunCheck(opt); });
   c->add_option("file", opt.file, "Procedure file")->required();
   c->add_option("--min-sample", opt.min_sample_s, "Fastest full reading of the intended rig, in seconds")->capture_default_str();
+  c->add_option("--soc", opt.soc, "The cell's state of charge at the start, 40% or 0.4, for the estimates (default: full)");
 }
 
 }  // namespace kp::cli

@@ -2,10 +2,12 @@
 // on a rig file, like `run`).
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <fstream>
 #include <iostream>
 #include <sstream>
 
+#include "drivers/sim/cell_file.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
 #include "rig/cli/run_guard.h"
@@ -13,6 +15,7 @@
 #include "rig/resume.h"
 #include "rig/rig.h"
 #include "rig/run_lock.h"
+#include "rig/sim_rig.h"
 
 namespace kp::cli {
 namespace {
@@ -26,6 +29,26 @@ struct ResumeOptions {
   double link_grace_s = 30.0;
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
 };
+
+// The simulated cell of a logged run, continued: the cell recorded with the
+// run (event "sim-cell"; runs logged before it existed: the preset of the
+// run's chemistry at its rating, full at the start) integrated over the
+// logged samples.
+Result<sim::CellParams> SimCellOfRun(Store& store, const RunRow& run) {
+  KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run.id));
+  SimCellChoice choice{run.chemistry, run.rated_mah, 0, 1.0};
+  auto names = sim::BuiltInCellNames();
+  if (std::find(names.begin(), names.end(), choice.preset) == names.end()) choice.preset = "li-ion";
+  for (const EventRow& e : events)
+    if (e.kind == "sim-cell") {
+      KP_ASSIGN_OR_RETURN(choice, ParseSimCellText(e.message));
+      break;
+    }
+  KP_ASSIGN_OR_RETURN(sim::CellParams cell, BuildSimCell(choice));
+  KP_ASSIGN_OR_RETURN(std::vector<Sample> samples, store.LoadSamples(run.id));
+  cell.start_state = ReplayLoggedCell(cell, samples, events);
+  return cell;
+}
 
 int RunResume(const ResumeOptions& opt) {
   std::optional<std::string> expected;
@@ -64,6 +87,11 @@ int RunResume(const ResumeOptions& opt) {
   }
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
+  if (opt.rig == "sim") {  // the same simulated cell, in the state of the last logged sample
+    auto cell = SimCellOfRun(**store, *run);
+    if (!cell.ok()) return Fail(cell.status());
+    ro.sim_cell = *cell;
+  }
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);

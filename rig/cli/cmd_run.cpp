@@ -1,12 +1,13 @@
-// `run FILE --rig sim|RIG.toml --db DB [--cell NAME] [--speed K]`: executes a
-// procedure on a rig, logging into a database. SIGINT, SIGTERM, SIGHUP and
-// SIGQUIT end the run cleanly: load off, run recorded as aborted, the signal
-// named in an event. On a rig file a guardian process (rig/guardian.h)
-// switches everything off if this process dies any other way.
+// `run FILE --rig sim|RIG.toml --db DB [--cell NAME] [--speed K] [--sim-soc 40%]`:
+// executes a procedure on a rig, logging into a database. SIGINT, SIGTERM,
+// SIGHUP and SIGQUIT end the run cleanly: load off, run recorded as aborted,
+// the signal named in an event. On a rig file a guardian process
+// (rig/guardian.h) switches everything off if this process dies any other way.
 #include <fmt/format.h>
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <iostream>
 
 #include "drivers/sim/cell_file.h"
@@ -20,6 +21,7 @@
 #include "rig/rig.h"
 #include "rig/run_controller.h"
 #include "rig/run_report.h"
+#include "rig/sim_rig.h"
 #include "rig/store.h"
 
 namespace kp::cli {
@@ -33,11 +35,29 @@ struct RunCmdOptions {
   std::string trace;
   std::string sim_cell;
   uint64_t sim_seed = 0;
+  std::string sim_soc;
+  std::string sim_age;
+  std::optional<double> sim_ambient_c;
   double speed = 0.0;
   double progress_s = 600.0;
   double link_grace_s = 30.0;
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
 };
+
+// Records which simulated cell the run just begun uses (event "sim-cell").
+// Called at the run's first reading, before any sample is staged, so the
+// event commits nothing but itself; the run is this store's newest running run
+// of this cell and procedure. Returns true once done (or impossible).
+bool NoteSimCell(Store& store, const Plan& plan, const std::string& cell, const SimCellChoice& choice) {
+  auto runs = store.ListRuns();
+  if (!runs.ok()) return true;
+  for (auto it = runs->rbegin(); it != runs->rend(); ++it) {
+    if (it->outcome != Outcome::kRunning || it->cell != cell || it->procedure_name != plan.name) continue;
+    (void)store.AddEvent(it->id, 0.0, "sim-cell", SimCellText(choice));
+    break;
+  }
+  return true;
+}
 
 int RunRun(const RunCmdOptions& opt) {
   // First: from here on a stop signal takes the safe-off path and a closed
@@ -50,6 +70,7 @@ int RunRun(const RunCmdOptions& opt) {
   if (!guardian.ok()) return Fail(guardian.status());
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
+  SimCellChoice sim_choice;
   if (opt.rig == "sim") {
     // The simulated cell matches the procedure's cell header: the preset of
     // its chemistry (or --sim-cell), built to its rated capacity.
@@ -67,11 +88,25 @@ int RunRun(const RunCmdOptions& opt) {
         std::cerr << fmt::format("kneepoint: no simulated '{}' cell; simulating a li-ion cell (choose one with --sim-cell)\n",
                                  draft->cell.chemistry);
     }
-    auto cell = sim::LoadCell(preset);
-    if (!cell.ok()) return Fail(cell.status());
-    sim::CellParams params = sim::ScaleCell(cell->params, draft->cell.rated_mah / 1000.0);
-    if (opt.sim_seed != 0) params = sim::VaryCell(params, cell->spread, opt.sim_seed);
-    ro.sim_cell = params;
+    sim_choice.preset = preset;
+    sim_choice.rated_mah = draft->cell.rated_mah;
+    sim_choice.seed = opt.sim_seed;
+    if (!opt.sim_soc.empty()) {
+      auto soc = ParseStateOfCharge(opt.sim_soc, "--sim-soc");
+      if (!soc.ok()) return Fail(soc.status());
+      sim_choice.start_soc = *soc;
+    }
+    if (!opt.sim_age.empty()) {
+      auto fade = ParsePercentOrFraction(opt.sim_age, "--sim-age", "capacity fade");
+      if (!fade.ok()) return Fail(fade.status());
+      sim_choice.fade = *fade;
+    }
+    sim_choice.ambient_c = opt.sim_ambient_c;
+    auto params = BuildSimCell(sim_choice);
+    if (!params.ok()) return Fail(params.status());
+    ro.sim_cell = *params;
+  } else if (!opt.sim_soc.empty() || !opt.sim_age.empty() || opt.sim_ambient_c) {
+    return Fail(InvalidInput("--sim-soc, --sim-age, --sim-ambient: only for --rig sim (a real cell is as it is)"));
   }
   ro.trace_path = opt.trace;
   auto rig = OpenRig(opt.rig, ro);
@@ -94,7 +129,7 @@ int RunRun(const RunCmdOptions& opt) {
     cell = fmt::format("sim-{}-{:.0f}mAh", plan->cell.chemistry, plan->cell.rated_mah);
   }
 
-  std::cout << SafetyCautions() << "\n" << DescribePlan(*plan, EstimatePlan(*plan)) << "\n";
+  std::cout << SafetyCautions() << "\n" << DescribePlan(*plan, EstimatePlan(*plan, sim_choice.start_soc)) << "\n";
   SteadyClock wall;
   auto store = Store::Open(opt.db, wall);
   if (!store.ok()) return Fail(store.status());
@@ -118,9 +153,13 @@ int RunRun(const RunCmdOptions& opt) {
   run.link_grace_s = opt.link_grace_s;
   double next_report = 0.0;
   Guardian* watcher = guardian->get();
+  bool sim_cell_noted = opt.rig != "sim";
   run.on_sample = [&](const Reading& r, double mah) {
     crash.OnSample();
     StopIfGuardianGone(watcher, run);
+    // The simulated cell is recorded with the run (before its first sample),
+    // so `resume --rig sim` can rebuild it: see NoteSimCell.
+    if (!sim_cell_noted) sim_cell_noted = NoteSimCell(**store, *plan, cell, sim_choice);
     if (r.t_s < next_report) return;
     next_report = r.t_s + opt.progress_s;
     std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
@@ -147,6 +186,7 @@ int RunRun(const RunCmdOptions& opt) {
 
 void RegisterRun(CliRegistry& r) {
   static RunCmdOptions opt;
+  opt = RunCmdOptions{};  // fresh defaults for each command line parsed
   CLI::App* c = r.Add("run", "Run a procedure file on a rig, logging into a database", [] { return RunRun(opt); });
   c->add_option("file", opt.file, "Procedure file")->required();
   c->add_option("--rig", opt.rig, "'sim' for the built-in simulator, or a rig file")->required();
@@ -157,6 +197,11 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--sim-cell", opt.sim_cell, "Simulator only: cell preset (li-ion, lifepo4, nimh, alkaline, li-mno2) or cell file")
       ->capture_default_str();
   c->add_option("--sim-seed", opt.sim_seed, "Simulator only: draw one cell of the preset's batch (0: the nominal cell)");
+  c->add_option("--sim-soc", opt.sim_soc, "Simulator only: the cell's state of charge at the start, 40% or 0.4 (default: full)");
+  c->add_option("--sim-age", opt.sim_age,
+                "Simulator only: an aged cell, its capacity fade as 20% or 0.2 (resistance grows 2.5x as fast; up to 90%)");
+  c->add_option("--sim-ambient", opt.sim_ambient_c, "Simulator only: ambient temperature in degC (default: the preset's)")
+      ->check(CLI::Range(-60.0, 100.0));
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
   c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
   c->add_option("--link-grace", opt.link_grace_s,

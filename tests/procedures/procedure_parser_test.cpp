@@ -407,6 +407,38 @@ TEST(Estimate, CapacityCheckTakesFiveHours) {
   EXPECT_DOUBLE_EQ(e.total_s, 5.5 * 3600);
 }
 
+// A charge step from a stated starting charge: constant current to full
+// (the missing 60 % of 2500 mAh at 1250 mA: 4320 s), plus the
+// constant-voltage allowance (a fifth more and a minute: the estimate's own
+// rule). A full cell needs only the minute, as before.
+TEST(Estimate, ChargeStepFromAStatedStartingCharge) {
+  auto p = Parse(std::string(kCell) + "charge 0.5C to 4.2V until current<=0.02C or time>=4h\n");
+  ASSERT_TRUE(p.ok()) << Errors(p);
+  PlanEstimate part = EstimatePlan(p.plan, 0.4);
+  EXPECT_DOUBLE_EQ(part.steps[0].duration_s, 4320 * 1.2 + 60);
+  EXPECT_NEAR(part.steps[0].charge_mah, -1500, 1e-9);
+  EXPECT_NE(DescribePlan(p.plan, part).find("assume the cell at 40 % at the start"), std::string::npos);
+  PlanEstimate full = EstimatePlan(p.plan);
+  EXPECT_DOUBLE_EQ(full.steps[0].duration_s, 60);
+  EXPECT_NE(DescribePlan(p.plan, full).find("assume a full cell at the start"), std::string::npos);
+  // A discharge from 40 % at 0.2C empties it in 2 h.
+  auto d = Parse(std::string(kCell) + "discharge 0.2C until voltage<=2.75V\n");
+  ASSERT_TRUE(d.ok());
+  EXPECT_DOUBLE_EQ(EstimatePlan(d.plan, 0.4).steps[0].duration_s, 2 * 3600);
+}
+
+TEST(Estimate, StateOfChargeIsReadAsPercentOrFraction) {
+  EXPECT_DOUBLE_EQ(*ParseStateOfCharge("40%", "--soc"), 0.4);
+  EXPECT_DOUBLE_EQ(*ParseStateOfCharge("0.4", "--soc"), 0.4);
+  EXPECT_DOUBLE_EQ(*ParseStateOfCharge("100%", "--soc"), 1.0);
+  EXPECT_DOUBLE_EQ(*ParseStateOfCharge("0", "--soc"), 0.0);
+  for (const char* bad : {"", "%", "40", "-5%", "101%", "abc", "4 0%", "nan", "inf%"}) {
+    auto r = ParseStateOfCharge(bad, "--soc");
+    ASSERT_FALSE(r.ok()) << bad;
+    EXPECT_NE(r.status().message().find("--soc"), std::string::npos) << r.status().message();
+  }
+}
+
 TEST(Estimate, LoopsCountPasses) {
   auto p = Parse(std::string(kCell) +
                  "repeat until voltage<=2.75V\ndischarge 0.5C until charge>=10% or voltage<=2.75V\nrest 10min\nend\n");

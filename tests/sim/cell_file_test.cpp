@@ -160,6 +160,39 @@ TEST(CellFile, RatingsAndChargeAcceptanceMustAgree) {
   EXPECT_NE(st.message().find("format: unsupported"), std::string::npos) << st.message();
 }
 
+// The wells' own activation energy is optional (absent: the resistances'
+// value); when given it is range-checked like any key.
+TEST(CellFile, WellActivationEnergyIsOptionalAndChecked) {
+  Result<CellPreset> with = ParseCellText(LiIonText(), "li.toml");
+  ASSERT_TRUE(with.ok()) << with.status().ToString();
+  EXPECT_DOUBLE_EQ(with->params.kibam_activation_energy_j_per_mol, 45000.0);
+  Result<CellPreset> without = ParseCellText(Replace(LiIonText(), "exchange_activation_kj_per_mol = 45\n", ""), "li.toml");
+  ASSERT_TRUE(without.ok()) << without.status().ToString();
+  EXPECT_LT(without->params.kibam_activation_energy_j_per_mol, 0.0);
+  std::string text = Replace(LiIonText(), "exchange_activation_kj_per_mol = 45", "exchange_activation_kj_per_mol = 450");
+  Status st = ParseError(text);
+  std::string want = "cells/test.toml:" + std::to_string(LineOf(text, "exchange_activation_kj_per_mol")) +
+                     ": wells.exchange_activation_kj_per_mol: 450 is out of range";
+  EXPECT_NE(st.message().find(want), std::string::npos) << st.message();
+}
+
+// OCV hysteresis is optional (absent: none) and range-checked.
+TEST(CellFile, HysteresisIsOptionalAndChecked) {
+  const std::string lfp(BuiltInCellText("lifepo4"));
+  Result<CellPreset> with = ParseCellText(lfp, "lfp.toml");
+  ASSERT_TRUE(with.ok()) << with.status().ToString();
+  EXPECT_DOUBLE_EQ(with->params.ocv_hysteresis_v, 0.010);
+  Result<CellPreset> without =
+      ParseCellText(Replace(Replace(lfp, "hysteresis_mv = 10\n", ""), "hysteresis_span = 0.05\n", ""), "lfp.toml");
+  ASSERT_TRUE(without.ok()) << without.status().ToString();
+  EXPECT_EQ(without->params.ocv_hysteresis_v, 0.0);
+  std::string text = Replace(lfp, "hysteresis_span = 0.05", "hysteresis_span = 0");
+  Status st = ParseError(text);
+  EXPECT_NE(st.message().find("cells/test.toml:" + std::to_string(LineOf(text, "hysteresis_span")) + ": ocv.hysteresis_span"),
+            std::string::npos)
+      << st.message();
+}
+
 TEST(CellFile, SpreadIsOptional) {
   std::string text = LiIonText();
   text = text.substr(0, text.find("[spread]"));

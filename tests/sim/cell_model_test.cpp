@@ -6,6 +6,7 @@
 
 #include <cmath>
 #include <cstdio>
+#include <string_view>
 
 #include "drivers/sim/cell_file.h"
 #include "tests/sim/sim_helpers.h"
@@ -23,15 +24,20 @@ CellParams Preset(const char* name) {
   return p.ok() ? p->params : CellParams{};
 }
 
-// Peukert exponent fitted over 1C, 0.5C, 0.2C and 0.1C of the rated capacity:
-// delivered Q = C_p · I^(1−k) (Peukert, Elektrotechnische Zeitschrift 1897,
-// C_p = I^k·t; text per the shared references).
+// Peukert exponent fitted over a series of constant drains: delivered
+// Q = C_p · I^(1−k) (Peukert, Elektrotechnische Zeitschrift 1897, C_p = I^k·t;
+// text per the shared references). Rechargeable cells are taken over 1C, 0.5C,
+// 0.2C and 0.1C of their rated capacity; alkaline cells over the drains their
+// handbook curves cover for an AA, 0.1 A to 1 A (from memory).
+std::vector<double> PeukertDrainsA(const CellParams& p) {
+  if (p.chemistry == "alkaline") return {1.0, 0.5, 0.25, 0.1};
+  return {1.0 * p.rated_ah, 0.5 * p.rated_ah, 0.2 * p.rated_ah, 0.1 * p.rated_ah};
+}
+
 double FittedPeukert(const CellParams& p) {
-  std::vector<double> currents, charges;
-  for (double rate : {1.0, 0.5, 0.2, 0.1}) {
+  std::vector<double> currents = PeukertDrainsA(p), charges;
+  for (double i : currents) {
     CellModel m(p);
-    double i = rate * p.rated_ah;
-    currents.push_back(i);
     charges.push_back(DischargeMah(m, i, p.cutoff_v));
   }
   return 1.0 - LogLogSlope(currents, charges);
@@ -48,11 +54,51 @@ TEST(CellModel, PeukertBehaviourEmergesPerChemistry) {
   // is taken like Li-ion (from memory). Alkaline primaries lose far more to
   // rate: k well above the secondary chemistries, 1.15-1.6 (from memory).
   const PeukertBand bands[] = {{"li-ion", 1.02, 1.10}, {"lifepo4", 1.02, 1.10}, {"nimh", 1.05, 1.10}, {"alkaline", 1.15, 1.60}};
+  double k_li_ion = 0.0;
   for (const PeukertBand& b : bands) {
     double k = FittedPeukert(Preset(b.preset));
     std::printf("Peukert exponent %-9s k = %.3f\n", b.preset, k);
     EXPECT_GE(k, b.lo) << b.preset;
     EXPECT_LE(k, b.hi) << b.preset;
+    if (std::string_view(b.preset) == "li-ion") k_li_ion = k;
+    // Alkaline cells lose far more to rate than Li-ion: at least 0.1 more on k.
+    if (std::string_view(b.preset) == "alkaline") EXPECT_GT(k, k_li_ion + 0.1);
+  }
+}
+
+// Capacity at given drains against each preset's table of check values (the
+// same table, with its sources, heads the preset file).
+struct CapacityCheck {
+  const char* preset;
+  double current_a, end_v;
+  double lo_mah, hi_mah;
+  const char* source;
+};
+
+TEST(CellModel, CapacityAtDrainMatchesEachPresetsCheckValues) {
+  const CapacityCheck checks[] = {
+      // Alkaline AA to 0.9 V: handbook capacity-versus-drain curves, e.g.
+      // Linden's Handbook of Batteries (from memory): roughly 1.0-1.3 Ah at
+      // 1 A, most of the low-drain capacity at 100 mA, the whole of it at 25 mA.
+      {"alkaline", 1.0, 0.9, 1000, 1300, "AA capacity at 1 A (from memory)"},
+      {"alkaline", 0.1, 0.9, 2200, 2700, "AA capacity at 100 mA (from memory)"},
+      {"alkaline", 0.025, 0.9, 2400, 2900, "AA capacity at 25 mA (from memory)"},
+      // NiMH: a cell is rated at 0.2 It to 1.0 V (secondary), and the rating is
+      // a minimum (common practice, no source): at least 100 %, at most the
+      // stored charge.
+      {"nimh", 0.4, 1.0, 2000, 2180, "rating at 0.2 It to 1.0 V (secondary)"},
+      // Li-ion and LiFePO4 are rated at 0.2C to their cutoffs in the same way.
+      {"li-ion", 0.5, 2.75, 2500, 2560, "rating at 0.2C to the cutoff (secondary)"},
+      {"lifepo4", 0.6, 2.5, 3000, 3060, "rating at 0.2C to the cutoff (secondary)"},
+  };
+  for (const CapacityCheck& c : checks) {
+    CellParams p = Preset(c.preset);
+    CellModel m(p);
+    const double mah = DischargeMah(m, c.current_a, c.end_v, c.current_a < 0.05 ? 10.0 : 1.0);
+    std::printf("%-9s %6.3f A to %.2f V: %6.0f mAh (check %.0f-%.0f, %s)\n", c.preset, c.current_a, c.end_v, mah, c.lo_mah,
+                c.hi_mah, c.source);
+    EXPECT_GE(mah, c.lo_mah) << c.preset << " at " << c.current_a << " A";
+    EXPECT_LE(mah, c.hi_mah) << c.preset << " at " << c.current_a << " A";
   }
 }
 
@@ -127,6 +173,75 @@ TEST(CellModel, PulsesWithRestsDeliverMoreThanContinuous) {
                 pulsed_mah);
     EXPECT_GT(pulsed_mah, continuous_mah * 1.01) << name;
   }
+}
+
+// Recovery size in an intermittent test of the kind IEC 60086-2 application
+// tests use (a load for a while each day, from memory): an alkaline AA at 1 A
+// for 1 h a day gives clearly more than at 1 A continuously — handbook
+// continuous-versus-intermittent curves show heavy-drain service rising by
+// some tens of percent (from memory); checked as +10 % to +50 %. A Li-ion cell
+// at 1C for 20 min a day (a whole hour would empty it at once), with its much
+// smaller rate effect, changes by less than 5 % either way (its Peukert
+// exponent near 1.05: secondary; the rests' small recovery is offset by the
+// self-heating lost in them and two days of self-discharge).
+TEST(CellModel, AlkalineRecoversStronglyInAnIntermittentTest) {
+  struct Case {
+    const char* preset;
+    double current_a;
+    int on_s;
+    double lo, hi;  // pulsed / continuous − 1
+  };
+  for (const Case& c : {Case{"alkaline", 1.0, 3600, 0.10, 0.50}, Case{"li-ion", 2.5, 1200, -0.05, 0.05}}) {
+    CellParams p = Preset(c.preset);
+    CellModel cont(p);
+    const double continuous_mah = DischargeMah(cont, c.current_a, p.cutoff_v);
+    CellModel daily(p);
+    double as = 0.0;
+    bool done = false;
+    while (!done) {
+      for (int s = 0; s < c.on_s && !done; ++s) {
+        if (TerminalV(daily, c.current_a) <= p.cutoff_v)
+          done = true;
+        else
+          daily.Advance(1.0, c.current_a), as += c.current_a;
+      }
+      if (!done) daily.Advance(86400.0 - c.on_s, 0.0);
+    }
+    const double gain = as / 3.6 / continuous_mah - 1.0;
+    std::printf("%-9s at %.1f A: continuous %.0f mAh, %d min a day %.0f mAh (%+.1f %%)\n", c.preset, c.current_a,
+                continuous_mah, c.on_s / 60, as / 3.6, 100 * gain);
+    EXPECT_GE(gain, c.lo) << c.preset;
+    EXPECT_LE(gain, c.hi) << c.preset;
+  }
+}
+
+// OCV hysteresis where the chemistry shows it: brought to half charge from
+// above (discharging) and from below (charging), then rested 4 h, a LiFePO4
+// and a NiMH cell rest apart by the gap their presets state (20 mV and 40 mV,
+// from memory), within 20 %; a Li-ion cell, whose preset has none, within 2 mV
+// (the remaining difference is the wells and heat, settled after the rest).
+TEST(CellModel, HysteresisSeparatesRestVoltagesAfterChargeAndDischarge) {
+  for (const char* name : {"lifepo4", "nimh", "li-ion"}) {
+    CellParams p = Preset(name);
+    p.self_discharge_per_month = 0.0;
+    const double i = 0.2 * p.rated_ah;
+    CellModel from_above(p);
+    while (from_above.soc() > 0.5) from_above.Advance(1.0, i);
+    p.initial_soc = 0.2;
+    CellModel from_below(p);
+    while (from_below.soc() < 0.5) from_below.Advance(1.0, -i);
+    from_above.Advance(4 * 3600.0, 0.0);
+    from_below.Advance(4 * 3600.0, 0.0);
+    const double gap_v = from_below.OpenCircuitVoltage() - from_above.OpenCircuitVoltage();
+    std::printf("%-9s rest voltage at half charge, after charging minus after discharging: %.1f mV\n", name, gap_v * 1e3);
+    if (p.ocv_hysteresis_v > 0) {
+      EXPECT_NEAR(gap_v, 2 * p.ocv_hysteresis_v, 0.2 * 2 * p.ocv_hysteresis_v) << name;
+    } else {
+      EXPECT_LT(std::abs(gap_v), 0.002) << name;
+    }
+  }
+  EXPECT_GT(Preset("lifepo4").ocv_hysteresis_v, 0.0);
+  EXPECT_GT(Preset("nimh").ocv_hysteresis_v, 0.0);
 }
 
 // A cell that barely changes over the test: large capacity, no Arrhenius or
@@ -212,6 +327,27 @@ TEST(CellModel, ColdCellsDeliverLessAtHighRate) {
   EXPECT_LT(q_cold, 0.97 * q_warm);
 }
 
+// Capacity in the cold against the Li-ion preset's check values: at 0.5C a
+// cell in 0 degC surroundings delivers 80-95 % and at -20 degC 60-85 % of what
+// it delivers at 25 degC (typical datasheet low-temperature discharge curves,
+// from memory). The cell starts at the ambient temperature and warms itself.
+TEST(CellModel, ColdDeratingMatchesTheLiIonCheckValues) {
+  const CellParams warm = Preset("li-ion");
+  auto delivered = [&](double ambient_c) {
+    CellParams p = warm;
+    p.ambient_c = ambient_c;
+    CellModel m(p);
+    return DischargeMah(m, 0.5 * p.rated_ah, p.cutoff_v);
+  };
+  const double q25 = delivered(25.0), q0 = delivered(0.0), q_minus20 = delivered(-20.0);
+  std::printf("li-ion at 0.5C: 25 degC %.0f mAh, 0 degC %.0f mAh (%.0f %%), -20 degC %.0f mAh (%.0f %%)\n", q25, q0,
+              100 * q0 / q25, q_minus20, 100 * q_minus20 / q25);
+  EXPECT_GE(q0 / q25, 0.80);
+  EXPECT_LE(q0 / q25, 0.95);
+  EXPECT_GE(q_minus20 / q25, 0.60);
+  EXPECT_LE(q_minus20 / q25, 0.85);
+}
+
 // Ratings of the presets against published chemistry facts (shared
 // references, 'Chemistry facts', secondary: datasheets): Li-ion 3.6-3.7 V
 // nominal, 4.2 V charge, 2.75-3.0 V cutoff (2.5-3.0 V accepted for NMC);
@@ -265,7 +401,7 @@ TEST(CellModel, RatingsMatchPublishedChemistryFacts) {
   }
 }
 
-// Self-discharge over a 30-day rest against the published monthly figures
+// Self-discharge over a month's rest (30.44 days, analysis/calendar.h) against the published monthly figures
 // (shared references, 'Chemistry facts', secondary): Li-ion 2-3 %/month, NiMH
 // about 30 %/month, alkaline under 2 %/year, lithium primaries about 10 % in
 // 5 years. LiFePO4 taken like Li-ion (from memory). The model loses exactly
@@ -273,14 +409,16 @@ TEST(CellModel, RatingsMatchPublishedChemistryFacts) {
 TEST(CellModel, SelfDischargeOverAMonthMatchesTheChemistry) {
   struct Band {
     const char* preset;
-    double lo, hi;  // fraction lost in 30 days
+    double lo, hi;  // fraction lost in a month
   };
   const Band bands[] = {{"li-ion", 0.02, 0.03}, {"lifepo4", 0.01, 0.03}, {"nimh", 0.2, 0.4}, {"alkaline", 0.0, 0.02 / 12},
                         {"li-mno2", 0.05 / 60, 0.15 / 60}};
   for (const Band& b : bands) {
     CellParams p = Preset(b.preset);
     CellModel m(p);
-    for (int h = 0; h < 30 * 24; ++h) m.Advance(3600.0, 0.0);
+    // 730.5 h: 365.25 days / 12, written out here rather than taken from the constant.
+    for (int h = 0; h < 730; ++h) m.Advance(3600.0, 0.0);
+    m.Advance(1800.0, 0.0);
     double lost = 1.0 - m.soc();
     EXPECT_NEAR(lost, p.self_discharge_per_month, 1e-9) << b.preset;
     EXPECT_GT(lost, b.lo) << b.preset;

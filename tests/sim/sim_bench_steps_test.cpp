@@ -43,13 +43,13 @@ TEST(SimBenchSteps, LongStepsAgreeWithShortOnes) {
   EXPECT_NEAR(once.bench.cell_temperature_c(), often.bench.cell_temperature_c(), 0.02);
 }
 
-// A month on the shelf through the bench: self-discharge as the file says
+// A month (30.44 days) on the shelf through the bench: self-discharge as the file says
 // (2.5 %/month for the demo cell; Li-ion 2-3 %/month, shared references,
 // secondary), and the voltage read afterwards reflects it.
 TEST(SimBenchSteps, MonthOnTheShelf) {
   Bench b(sim::DemoLiIonCell());
   auto v0 = b.meter.MeasureVoltage();
-  b.clock.Advance(Seconds(30 * 86400.0));
+  b.clock.Advance(Seconds(365.25 / 12.0 * 86400.0));  // one month: 30.4375 days, a twelfth of 365.25
   auto v1 = b.meter.MeasureVoltage();
   ASSERT_TRUE(v0.ok() && v1.ok());
   EXPECT_NEAR(b.bench.cell_soc(), 1.0 - sim::DemoLiIonCell().self_discharge_per_month, 1e-9);
