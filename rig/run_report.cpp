@@ -299,8 +299,10 @@ std::string RunReportText(const RunReport& rep) {
                      IntegrationMethodName(a.method));
   if (a.main_discharge) {
     const DischargeFigures& d = a.discharges[*a.main_discharge];
-    out += fmt::format("  discharge        steps {} to {}{}, {:.0f} s to {:.0f} s{}\n", a.instances[d.first].number,
-                       a.instances[d.last].number, d.description.empty() ? "" : ": " + d.description, d.start_s, d.end_s,
+    const int n0 = a.instances[d.first].number, n1 = a.instances[d.last].number;
+    out += fmt::format("  discharge        {}{}, {:.0f} s to {:.0f} s{}\n",
+                       d.first == d.last ? fmt::format("step {}", n0) : fmt::format("steps {} to {}", n0, n1),
+                       d.description.empty() ? "" : ": " + d.description, d.start_s, d.end_s,
                        d.reached_cutoff ? ", to the cutoff" : "");
   }
   if (rep.totals.charged_mah && *rep.totals.charged_mah > 0)
