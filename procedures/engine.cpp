@@ -155,6 +155,18 @@ void StepEngine::CheckRegulation(const Reading& r, EngineOutput& out) {
         step_ + 1, got, unit, want, unit, r.t_s - *low_since_s_);
 }
 
+StepResult StepEngine::FirstReading(const char* source, double t_edge_s, const Reading& r) const {
+  StepResult res;
+  res.step = step_;
+  res.name = "dc-resistance";
+  res.source = source;
+  res.t_edge_s = t_edge_s;
+  res.u1_v = r.voltage_v;
+  res.i1_a = r.current_a;
+  res.t1_s = r.t_s;
+  return res;
+}
+
 void StepEngine::CompletePulseEdge(const Reading& r, EngineOutput& out) {
   if (!pulse_edge_ || r.t_s < pulse_edge_->t_edge_s + plan_.dcir_delay_s - kEps) return;
   StepResult res = *pulse_edge_;
@@ -362,15 +374,7 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     if (r.t_s >= seg_end - kEps) {
       if (seg_ == 0) {
         // U1 at the end of the first current (IEC 61960-3 clause 7.7).
-        StepResult res;
-        res.step = step_;
-        res.name = "dc-resistance";
-        res.source = "dcir step";
-        res.t_edge_s = seg_end;
-        res.u1_v = r.voltage_v;
-        res.i1_a = r.current_a;
-        res.t1_s = r.t_s;
-        dcir_ = res;
+        dcir_ = FirstReading("dcir step", seg_end, r);
         seg_ = 1;
         seg_start_s_ = seg_end;
         out.log = true;
@@ -430,14 +434,7 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
       const Segment& b = step.segments[seg_];
       if (a.mode == LoadMode::kCurrent && b.mode == LoadMode::kCurrent &&
           std::abs(b.level - a.level) >= plan_.dcir_min_step_a - kEps) {
-        StepResult res;
-        res.step = step_;
-        res.name = "dc-resistance";
-        res.source = "pulse edge";
-        res.t_edge_s = edge_t;
-        res.u1_v = r.voltage_v;
-        res.i1_a = r.current_a;
-        res.t1_s = r.t_s;
+        StepResult res = FirstReading("pulse edge", edge_t, r);
         if (r.t_s - edge_t > plan_.edge_settle_s + kEps) {
           res.valid = false;
           res.why_invalid = fmt::format("no reading at the edge (the nearest came {:.3f} s later)", r.t_s - edge_t);

@@ -147,6 +147,8 @@ class StepEngine {
   double LimitCheckDelay() const;
   void CheckRegulation(const Reading& r, EngineOutput& out);
   void CompletePulseEdge(const Reading& r, EngineOutput& out);
+  // A DC-IR point with its first reading (U1, I1) taken.
+  StepResult FirstReading(const char* source, double t_edge_s, const Reading& r) const;
 
   const Plan& plan_;
   int step_ = -1;

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "analysis/integrate.h"
+#include "analysis/run_analysis.h"
 #include "procedures/plan.h"
 #include "rig/store.h"
 
@@ -26,5 +27,8 @@ std::vector<CommandedSegment> CommandedSegmentsFor(const Plan& plan, const std::
 // end; empty for other steps, for a step that was held (its phase after the
 // hold is not the commanded one) and for one without a recorded end.
 std::vector<CommandedSegment> SegmentsOfInstance(const Step& step, const StepRow& row, const std::vector<EventRow>& events);
+
+// A stored step row as analysis reads it (segments left empty).
+StepRecord StepRecordOf(const StepRow& row);
 
 }  // namespace kp

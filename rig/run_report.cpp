@@ -59,17 +59,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   const Plan* plan = parsed.ok() ? &parsed.plan : nullptr;
   bool migrated = false;
   for (const StepRow& s : rep.steps) {
-    StepRecord r;
-    r.index = s.index;
-    r.kind = s.kind;
-    r.started_s = s.started_s;
-    r.ended_s = s.ended_s;
-    r.end_reason = s.end_reason;
-    r.mode = s.mode;
-    r.level = s.level;
-    r.pass = s.pass;
-    r.cycle = s.cycle;
-    r.held_s = s.held_s;
+    StepRecord r = StepRecordOf(s);
     migrated = migrated || s.migrated;
     if (plan != nullptr && s.index >= 0 && s.index < static_cast<int>(plan->steps.size())) {
       const Step& st = plan->steps[static_cast<size_t>(s.index)];

@@ -1,5 +1,7 @@
 #include "ui/run_feed.h"
 
+#include "rig/commanded_segments.h"
+
 #include <algorithm>
 #include <map>
 
@@ -111,12 +113,7 @@ std::vector<CycleRow> CycleRows(const RunOverview& o, const std::vector<StepRow>
     if (steps[k].kind == "charge") c.charged_mah += std::max(0.0, -delivered(k));
   }
   std::vector<StepRecord> recs;
-  for (const StepRow& s : steps) {
-    StepRecord r;
-    r.index = s.index, r.kind = s.kind, r.started_s = s.started_s, r.ended_s = s.ended_s, r.end_reason = s.end_reason;
-    r.cycle = s.cycle;
-    recs.push_back(std::move(r));
-  }
+  for (const StepRow& s : steps) recs.push_back(StepRecordOf(s));
   for (const DischargeSpan& d : DischargeSpans(recs, record_end_s)) {
     CycleRow& c = by[d.cycle];
     c.cycle = d.cycle;
@@ -183,16 +180,7 @@ DischargeOverlay OverlayOfDischarge(const RunData& run, const DischargeSpan& spa
 
 std::optional<DischargeSpan> LatestDischarge(const std::vector<StepRow>& steps, double record_end_s) {
   std::vector<StepRecord> recs;
-  for (const StepRow& s : steps) {
-    StepRecord r;
-    r.index = s.index;
-    r.kind = s.kind;
-    r.started_s = s.started_s;
-    r.ended_s = s.ended_s;
-    r.end_reason = s.end_reason;
-    r.cycle = s.cycle;
-    recs.push_back(std::move(r));
-  }
+  for (const StepRow& s : steps) recs.push_back(StepRecordOf(s));
   std::vector<DischargeSpan> spans = DischargeSpans(recs, record_end_s);
   if (spans.empty()) return std::nullopt;
   return spans.back();
