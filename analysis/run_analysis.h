@@ -20,6 +20,7 @@
 //   (cycle 0 is what ran before the first charge).
 #pragma once
 
+#include <memory>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -63,6 +64,9 @@ struct RunContext {
   std::optional<double> cutoff_v;  // end voltage, for time to cutoff
   std::vector<StepRecord> steps;   // may be empty (then the record is one block)
   std::vector<Gap> recorded_gaps;  // gaps the runner logged as events
+  // Times of `gap` events: each becomes the interval between the samples
+  // around it (the last before it and the first at or after it).
+  std::vector<double> gap_event_times;
   DcirOptions dcir;
   std::optional<double> brownout_v;
   // DC-IR points the engine measured at commanded edges. When
@@ -152,6 +156,42 @@ struct RunAnalysis {
   std::vector<size_t> attempts;  // discharges judged as capacity attempts (indices into `discharges`)
 };
 
+// Decimated series for plots, built while the samples stream by: each of
+// `columns` columns keeps its lowest and its highest point, in time order, so
+// every spike survives and the series stay bounded whatever the run's length.
+struct PlotPoints {
+  std::vector<double> x, y;
+};
+struct RunPlots {
+  PlotPoints voltage, current, temperature;  // against run time (s)
+  // Per discharge (RunAnalysis::discharges order): voltage against the charge
+  // delivered since its start (mAh), and against time from its start (s).
+  std::vector<PlotPoints> discharge_vq, discharge_vt;
+};
+
+// The analysis in one pass over a run's samples in time order, with memory
+// bounded by the number of step instances, discharges, pulses and DC-IR
+// points, not by the number of samples (runs recorded before the engine
+// measured DC-IR keep their samples for it). `t_first_s`/`t_last_s` are the
+// record's first and last sample times (they place the plot columns).
+class RunStream {
+ public:
+  RunStream(const RunContext& context, double t_first_s, double t_last_s, size_t plot_columns = 1500);
+  ~RunStream();
+  RunStream(const RunStream&) = delete;
+  RunStream& operator=(const RunStream&) = delete;
+  // Samples in time order.
+  void Add(const Sample& sample);
+  RunAnalysis Finish();
+  // The plots, after Finish.
+  RunPlots TakePlots();
+
+ private:
+  struct State;
+  std::unique_ptr<State> st_;
+};
+
+// The same over samples in memory (RunStream fed with all of them).
 RunAnalysis AnalyseRun(SampleSpan samples, const RunContext& context);
 
 // The discharges of a run by the definition above, from its step records

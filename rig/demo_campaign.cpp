@@ -100,8 +100,8 @@ class Campaign {
     run.discharge_h = rep.analysis.discharge_duration_s / 3600.0;
     run.mean_voltage_v = rep.analysis.mean_voltage_v;
     run.max_temperature_c = rep.analysis.max_temperature_c;
-    run.samples = static_cast<int64_t>(rep.samples.size());
-    run.virtual_s = rep.samples.empty() ? 0.0 : rep.samples.back().t_s;
+    run.samples = static_cast<int64_t>(rep.figures.sample_count);
+    run.virtual_s = rep.figures.duration_s;  // the record starts at t = 0
     run.report_file = fmt::format("run-{}.html", result.run_id);
     KP_RETURN_IF_ERROR(WritePage(run.report_file, RunReportHtml(rep)));
     reports_.push_back(std::move(rep));

@@ -40,12 +40,10 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   RunReport rep;
   rep.options = options;
   KP_ASSIGN_OR_RETURN(rep.run, store.GetRun(run_id));
-  KP_ASSIGN_OR_RETURN(rep.samples, store.LoadSamples(run_id));
   KP_ASSIGN_OR_RETURN(rep.steps, store.LoadSteps(run_id));
   KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run_id));
   KP_ASSIGN_OR_RETURN(rep.totals, store.LoadRunTotals(run_id));
   KP_ASSIGN_OR_RETURN(std::vector<DcirRow> dcir_rows, store.LoadDcirPoints(run_id));
-  rep.figures = ComputeRunFigures(rep.samples);
 
   RunContext ctx;
   ctx.rated_mah = rep.run.rated_mah;
@@ -90,14 +88,20 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
     ctx.engine_dcir.push_back(d);
   }
   // Gaps the runner logged (e.g. on resume): the sample interval holding the event.
-  const auto& smp = rep.samples;
-  for (const EventRow& e : events) {
-    if (e.kind != "gap") continue;
-    auto it = std::lower_bound(smp.begin(), smp.end(), e.t_s, [](const Sample& a, double t) { return a.t_s < t; });
-    if (it == smp.begin() || it == smp.end()) continue;
-    ctx.recorded_gaps.push_back({(it - 1)->t_s, it->t_s, it->step});
-  }
-  rep.analysis = AnalyseRun(rep.samples, ctx);
+  for (const EventRow& e : events)
+    if (e.kind == "gap") ctx.gap_event_times.push_back(e.t_s);
+  // One pass over the samples, straight from the database: memory stays
+  // bounded whatever the run's length.
+  KP_ASSIGN_OR_RETURN(auto range, store.SampleTimeRange(run_id));
+  RunStream stream(ctx, range ? range->first : 0.0, range ? range->second : 0.0);
+  KP_RETURN_IF_ERROR(store.ForEachSample(run_id, [&](const Sample& s) {
+    stream.Add(s);
+    return Status::Ok();
+  }));
+  rep.analysis = stream.Finish();
+  rep.plots = stream.TakePlots();
+  rep.figures = rep.analysis.totals;
+  rep.context = std::move(ctx);
   if (!ctx.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
   return rep;
@@ -392,31 +396,6 @@ HtmlTable SummaryTable(const RunReport& rep) {
   return t;
 }
 
-std::vector<double> Hours(const std::vector<Sample>& s) {
-  std::vector<double> x;
-  x.reserve(s.size());
-  for (const Sample& v : s) x.push_back(v.t_s / 3600.0);
-  return x;
-}
-
-// Voltage against the charge delivered since the start of the main
-// discharge (trapezoid), in mAh: the reading at its start, then its own samples.
-void VoltageVersusCharge(const RunReport& rep, std::vector<double>& q_mah, std::vector<double>& v) {
-  const RunAnalysis& a = rep.analysis;
-  if (!a.main_discharge) return;
-  const DischargeFigures& d = a.discharges[*a.main_discharge];
-  const std::vector<Sample>& s = rep.samples;
-  double as = 0;
-  const Sample* prev = nullptr;
-  for (const Sample& x : s) {
-    if (x.t_s > d.end_s + 1e-9) break;
-    if (x.t_s < d.start_s - 1e-9) continue;
-    if (prev != nullptr) as += 0.5 * (x.current_a + prev->current_a) * (x.t_s - prev->t_s);
-    prev = &x;
-    q_mah.push_back(as / 3.6);
-    v.push_back(x.voltage_v);
-  }
-}
 
 }  // namespace
 
@@ -518,15 +497,25 @@ std::string RunReportHtml(const RunReport& rep) {
 
   HtmlSection plots;
   plots.title = "Plots";
-  std::vector<double> th = Hours(rep.samples), v, i, temp, q, vq;
-  for (const Sample& s : rep.samples) v.push_back(s.voltage_v), i.push_back(s.current_a), temp.push_back(s.temperature_c);
-  VoltageVersusCharge(rep, q, vq);
+  // The series were decimated while the samples streamed by: per column the
+  // lowest and the highest point, so spikes survive.
+  auto hours = [](std::vector<double> x) {
+    for (double& t : x) t /= 3600.0;
+    return x;
+  };
+  const RunPlots& pl = rep.plots;
+  std::vector<double> q, vq;
+  if (a.main_discharge && *a.main_discharge < pl.discharge_vq.size()) {
+    q = pl.discharge_vq[*a.main_discharge].x;
+    vq = pl.discharge_vq[*a.main_discharge].y;
+  }
   plots.plots.push_back({"plot-voltage-current-time",
                          "Voltage and current versus time",
                          "time (h)",
                          "voltage (V)",
                          "current (A)",
-                         {{"voltage", th, v, false, false}, {"current", th, i, true, false}}});
+                         {{"voltage", hours(pl.voltage.x), pl.voltage.y, false, false},
+                          {"current", hours(pl.current.x), pl.current.y, true, false}}});
   plots.plots.push_back({"plot-voltage-charge",
                          "Voltage versus charge delivered in the discharge",
                          "delivered charge (mAh)",
@@ -538,7 +527,7 @@ std::string RunReportHtml(const RunReport& rep) {
                          "time (h)",
                          "temperature (degC)",
                          "",
-                         {{"temperature", th, temp, false, false}}});
+                         {{"temperature", hours(pl.temperature.x), pl.temperature.y, false, false}}});
   if (!a.dcir.empty()) {
     PlotSeries r{"DC-IR", {}, {}, false, true};
     for (const DcirPoint& p : a.dcir) r.x.push_back(p.depth_of_discharge * 100.0), r.y.push_back(p.resistance_ohm * 1000.0);
@@ -736,19 +725,14 @@ std::string CompareReportHtml(const CompareReport& c) {
   for (const RunReport& r : c.runs) {
     // Aligned at the start of each run's main discharge.
     const RunAnalysis& a = r.analysis;
-    double t0 = a.discharge_start_s;
     PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false};
     PlotSeries tt{q.name, {}, {}, false, false};
-    double as = 0;
-    const double t_end = t0 + a.discharge_duration_s;
-    for (size_t i = 0; i < r.samples.size(); ++i) {
-      const Sample& s = r.samples[i];
-      if (s.t_s < t0) continue;
-      if (s.t_s > t_end + 1e-9) break;
-      if (i && r.samples[i - 1].t_s >= t0)
-        as += 0.5 * (s.current_a + r.samples[i - 1].current_a) * (s.t_s - r.samples[i - 1].t_s);
-      q.x.push_back(as / 3.6), q.y.push_back(s.voltage_v);
-      tt.x.push_back((s.t_s - t0) / 3600.0), tt.y.push_back(s.voltage_v);
+    if (a.main_discharge && *a.main_discharge < r.plots.discharge_vq.size()) {
+      q.x = r.plots.discharge_vq[*a.main_discharge].x;
+      q.y = r.plots.discharge_vq[*a.main_discharge].y;
+      tt.x = r.plots.discharge_vt[*a.main_discharge].x;
+      for (double& t : tt.x) t /= 3600.0;
+      tt.y = r.plots.discharge_vt[*a.main_discharge].y;
     }
     vq.series.push_back(std::move(q));
     vt.series.push_back(std::move(tt));

@@ -29,7 +29,8 @@ struct RunReport {
   CapacityVerdict verdict;  // plain >= 100 % of rated on the delivered charge
   RunAnalysis analysis;     // per step, per discharge, method verdict, DC-IR, pulses
   std::vector<StepRow> steps;
-  std::vector<Sample> samples;  // kept for the plots
+  RunPlots plots;     // decimated while the samples streamed by (bounded, whatever the run's length)
+  RunContext context;  // what the analysis was given (step records, DC-IR points, options)
   ReportOptions options;
   Store::RunTotalsRow totals;            // what the runner kept on the runs row
   std::vector<std::string> dcir_sources;  // per analysis.dcir point: "dcir step", "pulse edge", ...

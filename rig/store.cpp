@@ -678,6 +678,18 @@ Result<std::vector<DcirRow>> Store::LoadDcirPoints(int64_t run_id) {
   return out;
 }
 
+Result<std::optional<std::pair<double, double>>> Store::SampleTimeRange(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto first, db_->Prepare("SELECT t_s FROM samples WHERE run_id=?1 ORDER BY seq LIMIT 1"));
+  first.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool any, first.Step());
+  if (!any) return std::optional<std::pair<double, double>>();
+  const double t0 = first.Real(0);
+  KP_ASSIGN_OR_RETURN(auto last, db_->Prepare("SELECT t_s FROM samples WHERE run_id=?1 ORDER BY seq DESC LIMIT 1"));
+  last.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool more, last.Step());
+  return std::optional<std::pair<double, double>>(std::pair<double, double>(t0, more ? last.Real(0) : t0));
+}
+
 Result<Store::RunTotalsRow> Store::LoadRunTotals(int64_t run_id) {
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT net_mah, net_wh, delivered_mah, delivered_wh, charged_mah,"
                                            " thermometer_tolerance_c FROM runs WHERE id=?1"));

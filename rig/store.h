@@ -243,6 +243,8 @@ class Store {
   Result<std::vector<EventRow>> LoadEvents(int64_t run_id);
   Result<std::vector<StepRow>> LoadSteps(int64_t run_id);
   Result<std::vector<DcirRow>> LoadDcirPoints(int64_t run_id);
+  // Times of a run's first and last sample (nullopt for a run without samples).
+  Result<std::optional<std::pair<double, double>>> SampleTimeRange(int64_t run_id);
   // The figures the runner keeps on the runs row (schema v3): net charge of
   // the record, the latest discharge, the charge put in, the thermometer's
   // tolerance. Empty optionals for runs recorded before v3.

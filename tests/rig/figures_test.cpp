@@ -19,6 +19,7 @@
 #include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "rig/store.h"
+#include "tests/support/batch_analysis.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
 
@@ -56,6 +57,11 @@ struct Rig {
     EXPECT_TRUE(r.ok()) << r.status().ToString();
     EXPECT_FALSE(rig.bench().load_input_on());
     return r.ok() ? *r : RunResult{};
+  }
+  std::vector<Sample> Samples(int64_t id) {
+    auto s = store->LoadSamples(id);
+    EXPECT_TRUE(s.ok());
+    return s.ok() ? *s : std::vector<Sample>{};
   }
   RunReport Report(int64_t id) {
     auto r = BuildRunReport(*store, id);
@@ -125,7 +131,7 @@ TEST(Figures, PulsesThenConstantCurrentCountBoth) {
   ASSERT_EQ(rep.analysis.instances.size(), 2u);
   EXPECT_NEAR(rep.analysis.instances[0].f.charge_mah + rep.analysis.instances[1].f.charge_mah,
               rep.analysis.discharge_charge_mah, 1e-9);
-  EXPECT_NEAR(rep.analysis.instances[1].f.charge_mah, TrapezoidMah(rep.samples, rep.steps[1].started_s, *rep.steps[1].ended_s),
+  EXPECT_NEAR(rep.analysis.instances[1].f.charge_mah, TrapezoidMah(rig.Samples(rep.run.id), rep.steps[1].started_s, *rep.steps[1].ended_s),
               1e-9);
   EXPECT_TRUE(rep.analysis.pulsed);
 }
@@ -201,7 +207,7 @@ TEST(Figures, TrailingRestAndOpenCircuitReadingAreNotTheDischarge) {
   EXPECT_NEAR(a.discharge_charge_mah, 0.5 * (dur - 0.025) / 3.6, 0.01);
   EXPECT_NEAR(a.average_current_a, 0.5, 0.001);
   EXPECT_DOUBLE_EQ(a.discharge_duration_s, dur);
-  EXPECT_NEAR(a.mean_voltage_v, TrapezoidMeanV(rep.samples, d.started_s, *d.ended_s), 1e-9);
+  EXPECT_NEAR(a.mean_voltage_v, TrapezoidMeanV(rig.Samples(rep.run.id), d.started_s, *d.ended_s), 1e-9);
   // The 0.2 It run is judged at 0.2 It, and its current condition holds.
   EXPECT_TRUE(a.verdict.judged) << a.verdict.text;
   ASSERT_FALSE(a.verdict.conditions.empty());
@@ -299,7 +305,8 @@ TEST(Figures, PulseEdgesAreMeasuredAtTheEdgeWhateverTheLoggingPeriod) {
   }
   // The U1 and U2 readings are stored even though the period is 30 s.
   size_t at_edges = 0;
-  for (const Sample& s : rep.samples)
+  const std::vector<Sample> stored = rig.Samples(rep.run.id);
+  for (const Sample& s : stored)
     for (const DcirPoint& pt : rep.analysis.dcir) at_edges += std::abs(s.t_s - pt.t_u2_s) < 1e-9;
   EXPECT_EQ(at_edges, rep.analysis.dcir.size());
 }
@@ -362,9 +369,9 @@ TEST(Figures, ConstantCurrentCyclingHasACycleTable) {
     EXPECT_EQ(c.cycle, static_cast<int>(k) + 1);
     // Charge in: a trapezoid over the charge step's samples (charging is negative current).
     const StepRow& ch = rep.steps[3 * k];
-    EXPECT_NEAR(c.charge_in_mah, -TrapezoidMah(rep.samples, ch.started_s, *ch.ended_s), 1e-6);
+    EXPECT_NEAR(c.charge_in_mah, -TrapezoidMah(rig.Samples(rep.run.id), ch.started_s, *ch.ended_s), 1e-6);
     const StepRow& dis = rep.steps[3 * k + 2];
-    EXPECT_NEAR(c.discharge_mah, TrapezoidMah(rep.samples, dis.started_s, *dis.ended_s), 1e-6);
+    EXPECT_NEAR(c.discharge_mah, TrapezoidMah(rig.Samples(rep.run.id), dis.started_s, *dis.ended_s), 1e-6);
     ASSERT_TRUE(c.coulombic_efficiency.has_value());
     EXPECT_NEAR(*c.coulombic_efficiency, c.discharge_mah / c.charge_in_mah, 1e-12);
   }
@@ -457,7 +464,7 @@ TEST(Figures, RunsRowHoldsTheDischargeNotTheNet) {
   EXPECT_NEAR(totals->net_mah, *totals->delivered_mah - *totals->charged_mah, 1.0);
   // Mean voltage of the discharge only (a trapezoid here), not the charge's.
   const StepRow& d = rep.steps[1];
-  EXPECT_NEAR(rep.analysis.mean_voltage_v, TrapezoidMeanV(rep.samples, d.started_s, *d.ended_s), 1e-9);
+  EXPECT_NEAR(rep.analysis.mean_voltage_v, TrapezoidMeanV(rig.Samples(rep.run.id), d.started_s, *d.ended_s), 1e-9);
 }
 
 // Symptom 9: logged every 10 s at 1C, the discharge still ends within 10 mV
@@ -559,6 +566,82 @@ TEST(Figures, CheckCoversResistancePowerAndMaxTime) {
   EXPECT_EQ(testing::RunKneepoint({"check", f}), 2);  // 5 h at 0.2C cannot fit in 2 h
   std::ofstream(f, std::ios::trunc) << kCell << "safety max-time=6h\ndischarge 0.2C until time>=5h\n";
   EXPECT_EQ(testing::RunKneepoint({"check", f}), 0);
+}
+
+// The streaming analysis (one pass, bounded memory) against the batch
+// recomputation over the same samples in memory, on procedures of every kind:
+// each figure equal within rounding.
+void ExpectSameAnalysis(const RunAnalysis& s, const RunAnalysis& b) {
+  auto near = [](double x, double y) { return std::abs(x - y) <= 1e-9 * std::max(1.0, std::abs(y)); };
+  EXPECT_TRUE(near(s.totals.charge_mah, b.totals.charge_mah));
+  EXPECT_TRUE(near(s.totals.energy_wh, b.totals.energy_wh));
+  EXPECT_TRUE(near(s.totals.mean_voltage_v, b.totals.mean_voltage_v));
+  EXPECT_EQ(s.totals.sample_count, b.totals.sample_count);
+  ASSERT_EQ(s.instances.size(), b.instances.size());
+  for (size_t k = 0; k < s.instances.size(); ++k) {
+    SCOPED_TRACE(k);
+    EXPECT_TRUE(near(s.instances[k].f.charge_mah, b.instances[k].f.charge_mah))
+        << s.instances[k].f.charge_mah << " vs " << b.instances[k].f.charge_mah;
+    EXPECT_TRUE(near(s.instances[k].f.energy_wh, b.instances[k].f.energy_wh));
+    EXPECT_TRUE(near(s.instances[k].f.mean_voltage_v, b.instances[k].f.mean_voltage_v));
+    EXPECT_EQ(s.instances[k].f.samples, b.instances[k].f.samples);
+    EXPECT_EQ(s.instances[k].method, b.instances[k].method);
+  }
+  ASSERT_EQ(s.discharges.size(), b.discharges.size());
+  for (size_t k = 0; k < s.discharges.size(); ++k) {
+    SCOPED_TRACE(k);
+    const DischargeFigures &x = s.discharges[k], &y = b.discharges[k];
+    EXPECT_TRUE(near(x.charge_mah, y.charge_mah));
+    EXPECT_TRUE(near(x.mean_voltage_v, y.mean_voltage_v));
+    EXPECT_TRUE(near(x.mid_voltage_v, y.mid_voltage_v)) << x.mid_voltage_v << " vs " << y.mid_voltage_v;
+    EXPECT_TRUE(near(x.peak_current_a, y.peak_current_a));
+    EXPECT_EQ(x.time_to_cutoff_s.has_value(), y.time_to_cutoff_s.has_value());
+    if (x.time_to_cutoff_s && y.time_to_cutoff_s) EXPECT_TRUE(near(*x.time_to_cutoff_s, *y.time_to_cutoff_s));
+    EXPECT_EQ(x.judgement.text, y.judgement.text);
+    ASSERT_EQ(x.judgement.conditions.size(), y.judgement.conditions.size());
+    for (size_t c = 0; c < x.judgement.conditions.size(); ++c)
+      EXPECT_EQ(x.judgement.conditions[c].observed, y.judgement.conditions[c].observed);
+  }
+  EXPECT_EQ(s.main_discharge, b.main_discharge);
+  EXPECT_EQ(s.verdict.text, b.verdict.text);
+  ASSERT_EQ(s.cycles.size(), b.cycles.size());
+  for (size_t k = 0; k < s.cycles.size(); ++k) EXPECT_TRUE(near(s.cycles[k].charge_in_mah, b.cycles[k].charge_in_mah));
+  ASSERT_EQ(s.dcir.size(), b.dcir.size());
+  for (size_t k = 0; k < s.dcir.size(); ++k) EXPECT_TRUE(near(s.dcir[k].delivered_mah, b.dcir[k].delivered_mah));
+  ASSERT_EQ(s.pulses.size(), b.pulses.size());
+  for (size_t k = 0; k < s.pulses.size(); ++k) {
+    EXPECT_TRUE(near(s.pulses[k].min_voltage_v, b.pulses[k].min_voltage_v));
+    EXPECT_TRUE(near(s.pulses[k].recovered_voltage_v, b.pulses[k].recovered_voltage_v));
+    EXPECT_TRUE(near(s.pulses[k].rest_voltage_before_v, b.pulses[k].rest_voltage_before_v));
+    EXPECT_TRUE(near(s.pulses[k].delivered_mah_at_start, b.pulses[k].delivered_mah_at_start));
+  }
+  ASSERT_EQ(s.gaps.size(), b.gaps.size());
+}
+
+TEST(Figures, StreamingAnalysisMatchesTheBatchRecomputation) {
+  Rig rig;
+  const char* procedures[] = {
+      "pulse 2A/2s 0A/2s until time>=20min every=60s\ndischarge 0.5A until voltage<=2.75V every=60s\n",
+      "repeat 3\n  pulse 2C/10s 0A/40s until time>=50s every=5s\n  discharge 1C until charge>=10% every=30s\n"
+      "  rest 10min every=60s\nend\n",
+      "repeat 2\n  charge 0.5C to 4.2V until current<=0.05C every=30s\n  rest 10min every=60s\n"
+      "  discharge 0.5C until voltage<=2.75V every=30s\nend\n",
+      "discharge 0.2C until voltage<=2.75V every=10s\nrest 1h every=10s\n",
+      "discharge 6Ohm until voltage<=2.75V every=30s\n",
+      "rest 10min every=10s\nrepeat until voltage<=2.75V\n  dcir 0.2C/10s 1C/1s every=100ms\n"
+      "  discharge 0.5C until charge>=20% or voltage<=2.75V every=5s\n  rest 10min every=10s log-change=2mV\nend\n",
+      "pulse 1A/3s 0.1A/3s until time>=30min every=30s\n",
+  };
+  for (const char* body : procedures) {
+    SCOPED_TRACE(body);
+    RunResult r = rig.Run(Compile(body), 0.9);
+    RunReport rep = rig.Report(r.run_id);
+    auto samples = rig.store->LoadSamples(r.run_id);
+    ASSERT_TRUE(samples.ok());
+    RunContext ctx = rep.context;
+    ExpectSameAnalysis(rep.analysis, testing::BatchAnalyseRun(*samples, ctx));
+    ExpectSameAnalysis(AnalyseRun(*samples, ctx), testing::BatchAnalyseRun(*samples, ctx));
+  }
 }
 
 }  // namespace
