@@ -10,7 +10,6 @@
 #include <benchmark/benchmark.h>
 #include <imgui.h>
 
-#include <fstream>
 #include <string>
 
 #include "bench_support.h"
@@ -24,37 +23,9 @@ using kp::bench::Large;
 using kp::bench::Smoke;
 using kp::bench::WallSeconds;
 
-// A finished discharge of `n` samples at 100 ms, written through the store.
-bool WriteRun(const std::string& path, int64_t n) {
-  kp::SteadyClock wall;
-  auto store = kp::Store::Open(path, wall);
-  if (!store.ok()) return false;
-  kp::NewRun nr{"bench-cell", "li-ion", 2500, "bench",
-                "cell li-ion rated 2500 mAh cutoff 2.750 V max-temp 60 degC\ndischarge 0.05C until voltage<=2.75V\n", "sim"};
-  auto run = (*store)->BeginRun(nr);
-  if (!run.ok() || !(*store)->BeginStep(*run, 0, "cc", "discharge 0.05C", 0.0).ok()) return false;
-  for (int64_t k = 0; k < n; ++k) {
-    const double x = static_cast<double>(k) / static_cast<double>(n);
-    const double noise = static_cast<double>((k * 7919) % 1000) * 2e-6;
-    kp::Sample s{static_cast<double>(k) * 0.1, 4.15 - 0.9 * x - noise, 0.125 + noise, 24.0 + 3.0 * x, 0};
-    if (!(*store)->AppendSample(*run, s).ok()) return false;
-  }
-  return (*store)->FinishRun(*run, kp::Outcome::kCompleted, "procedure complete").ok();
-}
-
-// Resident set now and its peak since the last reset (Linux /proc), in bytes.
-int64_t StatusKb(const char* key) {
-  std::ifstream in("/proc/self/status");
-  std::string line;
-  const std::string k = std::string(key) + ":";
-  while (std::getline(in, line))
-    if (line.rfind(k, 0) == 0) return std::stoll(line.substr(k.size())) * 1024;
-  return -1;
-}
-void ResetPeak() {
-  std::ofstream clear("/proc/self/clear_refs");
-  clear << "5";  // resets VmHWM to the present RSS
-}
+using kp::bench::ResetPeak;
+using kp::bench::StatusKb;
+using kp::bench::WriteRun;
 
 struct OpenFigures {
   double seconds = 0;
