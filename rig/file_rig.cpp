@@ -20,6 +20,7 @@ class FileRig final : public Rig {
     r.thermometer = thermometer_.get();
     r.supply = supply_.get();
     r.description = description_;
+    r.thermometer_tolerance_c = thermometer_tolerance_c_;
     return r;
   }
   Clock& clock() override { return *clock_; }
@@ -87,6 +88,7 @@ class FileRig final : public Rig {
         } else if (role == "thermometer") {
           thermometer_ = std::make_unique<ThermometerDriver>(s, is.profile.thermometer);
           thermometer_->SetCalibration(is.temperature);
+          thermometer_tolerance_c_ = is.temperature_tolerance_c;
         } else if (role == "supply") {
           supply_ = std::make_unique<SupplyDriver>(s, is.profile.supply);
           KP_RETURN_IF_ERROR(supply_->SetOutput(false).WithContext(where + ": switching the output off"));
@@ -113,6 +115,7 @@ class FileRig final : public Rig {
   std::unique_ptr<LoadDriver> load_;
   std::unique_ptr<MeterDriver> meter_;
   std::unique_ptr<ThermometerDriver> thermometer_;
+  double thermometer_tolerance_c_ = 0.5;
   std::unique_ptr<SupplyDriver> supply_;
   std::string description_, lock_key_;
   BenchLimits limits_;

@@ -139,7 +139,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     const std::string p = fmt::format("instrument[{}].", i + 1);
     KP_RETURN_IF_ERROR(r.OnlyKnown(t, p, {"name", "address", "profile", "roles", "channel", "timeout_s", "retries", "confirm_writes",
                                           "remote_sense", "stuck_after", "late_reply_s", "voltage_offset_v", "voltage_gain", "current_offset_a", "current_gain",
-                                          "temperature_offset_c", "temperature_gain", "unguarded"}));
+                                          "temperature_offset_c", "temperature_gain", "unguarded", "temperature_tolerance_c"}));
     KP_RETURN_IF_ERROR(r.String(t, p, "name", is.name, false, is.line));
     if (is.name.empty()) is.name = fmt::format("instrument {}", i + 1);
     if (!names.insert(is.name).second) return r.Error(t.get("name"), p + "name", fmt::format("'{}' is used twice", is.name));
@@ -173,6 +173,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     KP_RETURN_IF_ERROR(r.Bool(t, p, "remote_sense", is.remote_sense));
     KP_RETURN_IF_ERROR(r.Integer(t, p, "stuck_after", is.stuck_after, 0, 1000000));
     KP_RETURN_IF_ERROR(r.Number(t, p, "late_reply_s", is.late_reply_s, 0.0, 600.0));
+    KP_RETURN_IF_ERROR(r.Number(t, p, "temperature_tolerance_c", is.temperature_tolerance_c, 0.0, 20.0));
     KP_RETURN_IF_ERROR(r.Number(t, p, "voltage_offset_v", is.voltage.offset, -1e3, 1e3));
     KP_RETURN_IF_ERROR(r.Number(t, p, "voltage_gain", is.voltage.gain, 0.5, 2.0));
     KP_RETURN_IF_ERROR(r.Number(t, p, "current_offset_a", is.current.offset, -1e3, 1e3));

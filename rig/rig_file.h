@@ -20,6 +20,8 @@
 //   late_reply_s = timeout_s               # after a timeout, wait this long to discard a late reply
 //   voltage_offset_v / voltage_gain, current_offset_a / current_gain,
 //   temperature_offset_c / temperature_gain  (reading * gain + offset)
+//   temperature_tolerance_c = 0.5          # thermometer: its accuracy (±), stored with each run;
+//                                          # verdicts judge the start temperature with it
 //   unguarded = ["watchdog"]               # load: its own protections the profile lacks
 //                                          # (undervoltage, overcurrent, overpower, watchdog)
 //
@@ -57,6 +59,7 @@ struct InstrumentSpec {
   double late_reply_s = -1.0;  // < 0: same as timeout_s
   int stuck_after = 0;  // meter: identical readings in a row that mean "stuck" (0: off)
   std::vector<std::string> unguarded;  // load: protections acknowledged as missing (LoadGuardName)
+  double temperature_tolerance_c = 0.5;  // thermometer: accuracy (±), for the start-temperature condition
   Calibration voltage, current, temperature;
   int line = 0;  // where the [[instrument]] table starts
 };

@@ -46,11 +46,13 @@ struct Rig {
     store = std::move(*s);
   }
   // Each run on a fresh full cell of the same type.
-  RunResult Run(const Plan& plan, double initial_soc = 1.0) {
+  RunResult Run(const Plan& plan, double initial_soc = 1.0, std::optional<double> thermometer_tolerance_c = std::nullopt) {
     sim::CellParams cell = sim::DemoLiIonCell(2.56);
     cell.initial_soc = initial_soc;
     SimRig rig(clock, cell);
-    RunController rc(*store, clock, rig.roles());
+    RigRoles roles = rig.roles();
+    if (thermometer_tolerance_c) roles.thermometer_tolerance_c = *thermometer_tolerance_c;
+    RunController rc(*store, clock, roles);
     RunOptions o;
     o.cell_name = "figures-cell";
     auto r = rc.Execute(plan, o);
@@ -519,6 +521,22 @@ TEST(Figures, LostRegulationAbortsAfterTheGrace) {
   ASSERT_TRUE(out.abort_reason.has_value());
   EXPECT_NEAR(t - low_from, p.regulation_grace_s, 1e-6);
   EXPECT_NE(out.abort_reason->find("step 1"), std::string::npos);
+}
+
+// The thermometer's tolerance the rig states is stored with the run and
+// used by its verdict.
+TEST(Figures, ThermometerToleranceTravelsWithTheRun) {
+  Rig rig;
+  RunResult r = rig.Run(Compile("rest 1h every=60s\ndischarge 0.2C until voltage<=2.75V every=60s\n"), 1.0, 0.2);
+  ASSERT_EQ(r.outcome, Outcome::kCompleted);
+  auto totals = rig.store->LoadRunTotals(r.run_id);
+  ASSERT_TRUE(totals.ok());
+  ASSERT_TRUE(totals->thermometer_tolerance_c.has_value());
+  EXPECT_DOUBLE_EQ(*totals->thermometer_tolerance_c, 0.2);
+  RunReport rep = rig.Report(r.run_id);
+  ASSERT_GE(rep.analysis.verdict.conditions.size(), 2u);
+  EXPECT_NE(rep.analysis.verdict.conditions[1].required.find("± 0.20 degC"), std::string::npos)
+      << rep.analysis.verdict.conditions[1].required;
 }
 
 // Symptom 7: the start temperature is judged with the thermometer's

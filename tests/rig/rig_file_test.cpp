@@ -44,6 +44,13 @@ channel = 103
 temperature_offset_c = 0.4
 )";
 
+std::string Replace(std::string text, const std::string& from, const std::string& to) {
+  size_t pos = text.find(from);
+  EXPECT_NE(pos, std::string::npos) << from;
+  if (pos != std::string::npos) text.replace(pos, from.size(), to);
+  return text;
+}
+
 TEST(RigFile, ParsesEveryKey) {
   auto spec = ParseRigFile(kGood, "/tmp/bench.toml");
   ASSERT_TRUE(spec.ok()) << spec.status().ToString();
@@ -59,13 +66,11 @@ TEST(RigFile, ParsesEveryKey) {
   EXPECT_DOUBLE_EQ(spec->instruments[1].voltage.gain, 0.9995);
   EXPECT_EQ(spec->instruments[2].profile.thermometer.measure_temperature, "MEAS:TEMP? TC,K,(@103)");
   EXPECT_DOUBLE_EQ(spec->instruments[2].temperature.Apply(25.0), 25.4);
-}
-
-std::string Replace(std::string text, const std::string& from, const std::string& to) {
-  size_t pos = text.find(from);
-  EXPECT_NE(pos, std::string::npos) << from;
-  if (pos != std::string::npos) text.replace(pos, from.size(), to);
-  return text;
+  EXPECT_DOUBLE_EQ(spec->instruments[2].temperature_tolerance_c, 0.5);  // the default
+  auto tight = ParseRigFile(Replace(kGood, "temperature_offset_c = 0.4", "temperature_offset_c = 0.4\ntemperature_tolerance_c = 0.2"),
+                            "/tmp/bench.toml");
+  ASSERT_TRUE(tight.ok()) << tight.status().ToString();
+  EXPECT_DOUBLE_EQ(tight->instruments[2].temperature_tolerance_c, 0.2);
 }
 
 TEST(RigFile, MalformedGivesFileLineAndKey) {
@@ -87,6 +92,8 @@ TEST(RigFile, MalformedGivesFileLineAndKey) {
       {Replace(kGood, "channel = 103", "channel = [1]"), "bench.toml:31: key 'instrument[3].channel': must be a number or a string"},
       {Replace(kGood, "remote_sense = true", "remote_sense = 1"), "bench.toml:14: key 'instrument[1].remote_sense': must be true or false"},
       {Replace(kGood, "voltage_gain = 0.9995", "voltage_gain = 9.995"), "bench.toml:24: key 'instrument[2].voltage_gain': 9.995 is outside"},
+      {Replace(kGood, "temperature_offset_c = 0.4", "temperature_tolerance_c = -1"),
+       "bench.toml:32: key 'instrument[3].temperature_tolerance_c': -1 is outside"},
       {Replace(kGood, "name = \"dmm\"", "name = \"load\""), "bench.toml:20: key 'instrument[2].name': 'load' is used twice"},
       {Replace(kGood, "roles = [\"thermometer\"]", "roles = [\"supply\"]"), "key 'instrument[3].roles': profile 'generic-scpi-thermocouple' cannot act as supply"},
       {Replace(kGood, "[bench]", "[bench"), "bench.toml:2:"},
