@@ -196,7 +196,7 @@ class Decimator {
   size_t Column(double t) const {
     if (!(t1_ > t0_) || !std::isfinite(t1_)) return 0;
     double f = (t - t0_) / (t1_ - t0_);
-    return static_cast<size_t>(std::clamp(f, 0.0, 1.0) * static_cast<double>(cols_ - 1) + 0.5);
+    return static_cast<size_t>(std::lround(std::clamp(f, 0.0, 1.0) * static_cast<double>(cols_ - 1)));
   }
   double t0_ = 0, t1_ = 0;
   size_t cols_ = 1;

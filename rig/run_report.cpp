@@ -102,7 +102,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   rep.plots = stream.TakePlots();
   rep.figures = rep.analysis.totals;
   rep.context = std::move(ctx);
-  if (!ctx.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
+  if (!rep.context.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
   return rep;
 }
