@@ -35,7 +35,9 @@ namespace {
 
 constexpr double kEps = 1e-9;
 
-std::string Describe(const std::vector<InstanceFigures>& in, size_t first, size_t last, double rated_mah, bool& constant_current,
+}  // namespace
+
+std::string DescribeDischarge(const std::vector<InstanceFigures>& in, size_t first, size_t last, double rated_mah, bool& constant_current,
                      std::string& not_cc) {
   std::optional<double> cc_level;
   bool several = false;
@@ -82,7 +84,6 @@ std::string Describe(const std::vector<InstanceFigures>& in, size_t first, size_
   return "";
 }
 
-}  // namespace
 
 std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& recs, double record_end_s) {
   std::vector<DischargeSpan> out;
@@ -687,7 +688,7 @@ RunAnalysis RunStream::Finish() {
     if (c.start_temp) d.start_temperature_c = *c.start_temp;
     bool cc = false;
     std::string not_cc;
-    d.description = d.pulsed ? "pulsed" : Describe(in, d.first, d.last, ctx.rated_mah, cc, not_cc);
+    d.description = d.pulsed ? "pulsed" : DescribeDischarge(in, d.first, d.last, ctx.rated_mah, cc, not_cc);
     const InstanceFigures& js = in[judged];
     const InstanceCapture& jc = S.inst[judged];
     DischargeConditions dc;
@@ -758,7 +759,7 @@ RunAnalysis RunStream::Finish() {
     a.method = d.method;
     a.discharge_description = d.description;
     std::string not_cc;
-    Describe(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
+    DescribeDischarge(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
     a.constant_current = a.constant_current && !d.pulsed;
     a.verdict = d.judgement;
     if (a.attempts.size() > 1) {

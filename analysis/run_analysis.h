@@ -205,6 +205,13 @@ struct DischargeSpan {
 };
 std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& records, double record_end_s);
 
+// What a discharge over instances [first, last] commanded, in words
+// ("constant current 0.5 A (0.20 It)", "constant resistance 6 Ohm"); sets
+// `constant_current` when it is one constant-current level, and `not_cc` to
+// the reason a capacity method cannot judge it when it is not.
+std::string DescribeDischarge(const std::vector<InstanceFigures>& instances, size_t first, size_t last, double rated_mah,
+                              bool& constant_current, std::string& not_cc);
+
 // True when a step's end reason says a voltage fell to its limit ("voltage
 // 2.748 V <= 2.750 V", or a repeat loop that ended on one).
 bool ReachedVoltageCutoff(std::string_view end_reason);

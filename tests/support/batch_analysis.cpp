@@ -112,53 +112,6 @@ InstanceFigures FiguresFor(SampleSpan s, const StepRecord& rec, double end_s) {
   return g;
 }
 
-std::string Describe(const std::vector<InstanceFigures>& in, size_t first, size_t last, double rated_mah, bool& constant_current,
-                     std::string& not_cc) {
-  std::optional<double> cc_level;
-  bool several = false;
-  std::string other, other_kind;
-  for (size_t k = first; k <= last; ++k) {
-    const InstanceFigures& g = in[k];
-    switch (g.cls) {
-      case StepClass::kConstantCurrent:
-        if (g.level) {
-          if (cc_level && std::abs(*cc_level - *g.level) > 1e-9) several = true;
-          cc_level = g.level;
-        }
-        break;
-      case StepClass::kConstantPower:
-        other = g.level ? fmt::format("constant power {:.4g} W", *g.level) : "constant power";
-        other_kind = "constant-power discharge";
-        break;
-      case StepClass::kConstantResistance:
-        other = g.level ? fmt::format("constant resistance {:.4g} Ohm", *g.level) : "constant resistance";
-        other_kind = "constant-resistance discharge";
-        break;
-      case StepClass::kDcir:
-        other = "DC-IR tests";
-        other_kind = "DC-IR tests inside the discharge";
-        break;
-      default:
-        break;
-    }
-  }
-  constant_current = cc_level && !several && other.empty();
-  if (several) {
-    not_cc = "several constant-current levels";
-    return "constant current at several levels";
-  }
-  if (!other.empty()) {
-    not_cc = other_kind;
-    return cc_level ? fmt::format("{} and constant current {:.4g} A", other, *cc_level) : other;
-  }
-  if (cc_level) {
-    double it = rated_mah > 0 ? *cc_level / (rated_mah / 1000.0) : 0.0;
-    return rated_mah > 0 ? fmt::format("constant current {:.4g} A ({:.2f} It)", *cc_level, it)
-                         : fmt::format("constant current {:.4g} A", *cc_level);
-  }
-  return "";
-}
-
 }  // namespace
 
 RunAnalysis BatchAnalyseRun(SampleSpan s, const RunContext& ctx) {
@@ -250,7 +203,7 @@ RunAnalysis BatchAnalyseRun(SampleSpan s, const RunContext& ctx) {
       // The capacity judgement of this discharge, on its judged step.
       bool cc = false;
       std::string not_cc;
-      d.description = d.pulsed ? "pulsed" : Describe(in, d.first, d.last, ctx.rated_mah, cc, not_cc);
+      d.description = d.pulsed ? "pulsed" : DescribeDischarge(in, d.first, d.last, ctx.rated_mah, cc, not_cc);
       const InstanceFigures& js = in[judged];
       DischargeConditions dc;
       dc.rated_mah = ctx.rated_mah;
@@ -332,7 +285,7 @@ RunAnalysis BatchAnalyseRun(SampleSpan s, const RunContext& ctx) {
     a.method = d.method;
     a.discharge_description = d.description;
     std::string not_cc;
-    Describe(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
+    DescribeDischarge(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
     a.constant_current = a.constant_current && !d.pulsed;
     a.verdict = d.judgement;
     if (a.attempts.size() > 1) {
