@@ -287,35 +287,23 @@ class RunBook {
     sqlite3_busy_timeout(db_->raw(), 100);
     return true;
   }
-  // Newest run claimed by the runner: id, heartbeat (0 when none).
-  // `running` is false for a run not (or no longer) under way: its
-  // heartbeat says nothing about the runner.
-  bool Find(int64_t& run_id, int64_t& heartbeat, bool* running = nullptr) {
+  // Newest run claimed by the runner: id, heartbeat (0 when none); with
+  // `any_outcome`, whatever its outcome (after a clean end), else only one
+  // running or interrupted. `running` is false for a run not (or no longer)
+  // under way: its heartbeat says nothing about the runner.
+  bool Find(int64_t& run_id, int64_t& heartbeat, bool* running = nullptr, bool any_outcome = false) {
     if (!Open()) return false;
     auto q = db_->Prepare(
         "SELECT id, COALESCE(heartbeat_at, 0), outcome = 'running' FROM runs WHERE runner_pid=?1 AND runner_host=?2 AND id>=?3"
-        " AND outcome IN ('running', 'interrupted') AND (?4 = 0 OR id = ?4) ORDER BY id DESC LIMIT 1");
+        " AND (?5 OR outcome IN ('running', 'interrupted')) AND (?4 = 0 OR id = ?4) ORDER BY id DESC LIMIT 1");
     if (!q.ok()) return false;
     q->Bind(1, static_cast<int64_t>(runner_)).Bind(2, host_).Bind(3, first_new_id_).Bind(4, resume_run_id_);
+    q->Bind(5, static_cast<int64_t>(any_outcome ? 1 : 0));
     Result<bool> row = q->Step();
     if (!row.ok() || !*row) return false;
     run_id = q->Int(0);
     heartbeat = q->Int(1);
     if (running != nullptr) *running = q->Int(2) != 0;
-    return true;
-  }
-  // Newest run of the runner whatever its outcome (after a clean end).
-  bool FindAny(int64_t& run_id, int64_t& heartbeat) {
-    if (!Open()) return false;
-    auto q = db_->Prepare(
-        "SELECT id, COALESCE(heartbeat_at, 0) FROM runs WHERE runner_pid=?1 AND runner_host=?2 AND id>=?3"
-        " AND (?4 = 0 OR id = ?4) ORDER BY id DESC LIMIT 1");
-    if (!q.ok()) return false;
-    q->Bind(1, static_cast<int64_t>(runner_)).Bind(2, host_).Bind(3, first_new_id_).Bind(4, resume_run_id_);
-    Result<bool> row = q->Step();
-    if (!row.ok() || !*row) return false;
-    run_id = q->Int(0);
-    heartbeat = q->Int(1);
     return true;
   }
   // Adds events to a run without changing its outcome.
@@ -403,7 +391,7 @@ struct ChildPlan {
     events.emplace_back(res.verified ? "guardian" : "fault", msg);
   }
   int64_t id = 0, beat = 0;
-  if (book.FindAny(id, beat)) {
+  if (book.Find(id, beat, nullptr, /*any_outcome=*/true)) {
     Status st = book.Note(id, events, wall.WallTimeIso());
     if (!st.ok()) Say(fmt::format("kneepoint guardian: could not record on run {}: {}\n", id, st.ToString()).c_str());
   }

@@ -823,6 +823,23 @@ constexpr const char* kRunColumns =
     " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count, r.delivered_mah, r.delivered_wh, r.net_mah"
     " FROM runs r JOIN cells c ON c.id=r.cell_id";
 
+// Steps a kept statement to its end, reading each row into `out`; the
+// statement is reset (and its bindings cleared) whatever happens.
+template <typename T, typename Reader>
+Status CollectRows(sql::Stmt& q, std::vector<T>& out, Reader read) {
+  for (;;) {
+    Result<bool> row = q.Step();
+    if (!row.ok()) {
+      q.Reset();
+      return row.status();
+    }
+    if (!*row) break;
+    out.push_back(read(q));
+  }
+  q.Reset();
+  return Status::Ok();
+}
+
 RunRow ReadRun(const sql::Stmt& q) {
   RunRow r;
   r.id = q.Int(0);
@@ -852,19 +869,9 @@ Result<std::vector<RunRow>> Store::ListRuns() {
     KP_ASSIGN_OR_RETURN(list_runs_, db_->Prepare(std::string(kRunColumns) + " ORDER BY r.id"));
     has_list_runs_ = true;
   }
-  sql::Stmt& q = list_runs_;
   std::vector<RunRow> out;
   out.reserve(listed_runs_ + 1);
-  for (;;) {
-    Result<bool> row = q.Step();
-    if (!row.ok()) {
-      q.Reset();
-      return row.status();
-    }
-    if (!*row) break;
-    out.push_back(ReadRun(q));
-  }
-  q.Reset();
+  KP_RETURN_IF_ERROR(CollectRows(list_runs_, out, ReadRun));
   listed_runs_ = out.size();
   return out;
 }
@@ -975,19 +982,9 @@ Result<std::vector<SampleBlock>> Store::LoadBlocks(int64_t run_id, int64_t from_
     KP_ASSIGN_OR_RETURN(load_blocks_, db_->Prepare(std::string(kBlockColumns) + " WHERE run_id=?1 AND block>=?2 ORDER BY block LIMIT ?3"));
     has_load_blocks_ = true;
   }
-  sql::Stmt& q = load_blocks_;
-  q.Bind(1, run_id).Bind(2, from_block).Bind(3, max_blocks);
+  load_blocks_.Bind(1, run_id).Bind(2, from_block).Bind(3, max_blocks);
   std::vector<SampleBlock> out;
-  for (;;) {
-    Result<bool> row = q.Step();
-    if (!row.ok()) {
-      q.Reset();
-      return row.status();
-    }
-    if (!*row) break;
-    out.push_back(ReadBlock(q));
-  }
-  q.Reset();
+  KP_RETURN_IF_ERROR(CollectRows(load_blocks_, out, ReadBlock));
   return out;
 }
 
