@@ -120,6 +120,101 @@ std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& recs, d
   return out;
 }
 
+void SettleAttemptsAndCycles(RunAnalysis& a, const RunContext& ctx) {
+  const std::vector<InstanceFigures>& in = a.instances;
+  // --- capacity attempts and the main discharge ---
+  bool any_charge = std::any_of(in.begin(), in.end(), [](const InstanceFigures& g) { return g.cls == StepClass::kCharge; });
+  for (size_t k = 0; k < a.discharges.size(); ++k)
+    if (!any_charge || a.discharges[k].cycle >= 1) a.attempts.push_back(k);
+  if (a.attempts.empty())
+    for (size_t k = 0; k < a.discharges.size(); ++k) a.attempts.push_back(k);
+  std::optional<size_t> chosen;
+  const size_t usable = std::min(a.attempts.size(), static_cast<size_t>(std::max(1, ctx.max_attempts)));
+  for (size_t n = 0; n < usable && !chosen; ++n) {
+    const CapacityJudgement& j = a.discharges[a.attempts[n]].judgement;
+    if (j.judged && j.capacity_pass) chosen = a.attempts[n];
+  }
+  for (size_t n = 0; n < usable && !chosen; ++n) {
+    size_t k = a.attempts[n];
+    if (!a.discharges[k].judgement.judged) continue;
+    size_t best = k;  // none passed: the best judged attempt
+    for (size_t m = n; m < usable; ++m) {
+      const DischargeFigures& d = a.discharges[a.attempts[m]];
+      if (d.judgement.judged && d.charge_mah > a.discharges[best].charge_mah) best = a.attempts[m];
+    }
+    chosen = best;
+  }
+  if (!chosen && !a.attempts.empty()) {
+    size_t best = a.attempts.front();  // nothing judged: the attempt that delivered the most
+    for (size_t k : a.attempts)
+      if (a.discharges[k].charge_mah > a.discharges[best].charge_mah) best = k;
+    chosen = best;
+  }
+  a.main_discharge = chosen;
+  if (chosen) {
+    DischargeFigures& d = a.discharges[*chosen];
+    a.discharge_charge_mah = d.charge_mah;
+    a.discharge_energy_wh = d.energy_wh;
+    a.main_discharge_step = in[d.first].f.step;
+    a.last_discharge_step = in[d.last].f.step;
+    a.discharge_start_s = d.start_s;
+    a.discharge_duration_s = d.end_s - d.start_s;
+    a.mean_voltage_v = d.mean_voltage_v;
+    a.mid_voltage_v = d.mid_voltage_v;
+    a.time_to_cutoff_s = d.time_to_cutoff_s;
+    a.average_current_a = d.average_current_a;
+    a.peak_current_a = d.peak_current_a;
+    a.pulsed = d.pulsed;
+    a.method = d.method;
+    a.discharge_description = d.description;
+    std::string not_cc;
+    DescribeDischarge(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
+    a.constant_current = a.constant_current && !d.pulsed;
+    a.verdict = d.judgement;
+    if (a.attempts.size() > 1) {
+      size_t n = static_cast<size_t>(std::find(a.attempts.begin(), a.attempts.end(), *chosen) - a.attempts.begin());
+      a.verdict.text += fmt::format(" (attempt {} of {}", n + 1, a.attempts.size());
+      if (a.attempts.size() > usable) a.verdict.text += fmt::format("; only the first {} count", usable);
+      a.verdict.text += ")";
+    }
+  }
+  // --- cycles ---
+  if (any_charge) {
+    std::map<int, CycleFigures> by;
+    for (const InstanceFigures& g : in) {
+      CycleFigures& c = by[g.cycle];
+      c.cycle = g.cycle;
+      if (g.cls == StepClass::kCharge) {
+        c.charge_in_mah += std::max(0.0, -g.f.charge_mah);
+        c.charge_in_wh += std::max(0.0, -g.f.energy_wh);
+      }
+    }
+    for (size_t k = 0; k < a.discharges.size(); ++k) {
+      CycleFigures& c = by[a.discharges[k].cycle];
+      c.cycle = a.discharges[k].cycle;
+      c.discharge = k;
+      c.discharge_mah = a.discharges[k].charge_mah;
+      c.discharge_wh = a.discharges[k].energy_wh;
+    }
+    std::optional<double> first_mah;
+    for (auto& [n, c] : by) {
+      // Efficiencies only when the cycle put in a charge worth comparing (at
+      // least 1 % of what it gave back): a charge step that found the cell
+      // full puts in next to nothing, and a ratio over it means nothing.
+      if (c.discharge && c.charge_in_mah > 0.01 * c.discharge_mah) {
+        c.coulombic_efficiency = c.discharge_mah / c.charge_in_mah;
+        if (c.charge_in_wh > 0) c.energy_efficiency = c.discharge_wh / c.charge_in_wh;
+      }
+      if (c.discharge && c.cycle >= 1) {
+        if (!first_mah && c.discharge_mah > 0) first_mah = c.discharge_mah;
+        if (first_mah) c.retention = c.discharge_mah / *first_mah;
+      }
+      a.cycles.push_back(c);
+    }
+  }
+
+}
+
 namespace {
 
 constexpr double kInf = std::numeric_limits<double>::infinity();
@@ -713,62 +808,9 @@ RunAnalysis RunStream::Finish() {
     span_index.push_back(n);
   }
 
-  // --- capacity attempts and the main discharge ---
-  bool any_charge = std::any_of(in.begin(), in.end(), [](const InstanceFigures& g) { return g.cls == StepClass::kCharge; });
-  for (size_t k = 0; k < a.discharges.size(); ++k)
-    if (!any_charge || a.discharges[k].cycle >= 1) a.attempts.push_back(k);
-  if (a.attempts.empty())
-    for (size_t k = 0; k < a.discharges.size(); ++k) a.attempts.push_back(k);
-  std::optional<size_t> chosen;
-  const size_t usable = std::min(a.attempts.size(), static_cast<size_t>(std::max(1, ctx.max_attempts)));
-  for (size_t n = 0; n < usable && !chosen; ++n) {
-    const CapacityJudgement& j = a.discharges[a.attempts[n]].judgement;
-    if (j.judged && j.capacity_pass) chosen = a.attempts[n];
-  }
-  for (size_t n = 0; n < usable && !chosen; ++n) {
-    size_t k = a.attempts[n];
-    if (!a.discharges[k].judgement.judged) continue;
-    size_t best = k;  // none passed: the best judged attempt
-    for (size_t m = n; m < usable; ++m) {
-      const DischargeFigures& d = a.discharges[a.attempts[m]];
-      if (d.judgement.judged && d.charge_mah > a.discharges[best].charge_mah) best = a.attempts[m];
-    }
-    chosen = best;
-  }
-  if (!chosen && !a.attempts.empty()) {
-    size_t best = a.attempts.front();  // nothing judged: the attempt that delivered the most
-    for (size_t k : a.attempts)
-      if (a.discharges[k].charge_mah > a.discharges[best].charge_mah) best = k;
-    chosen = best;
-  }
-  a.main_discharge = chosen;
-  if (chosen) {
-    DischargeFigures& d = a.discharges[*chosen];
-    a.discharge_charge_mah = d.charge_mah;
-    a.discharge_energy_wh = d.energy_wh;
-    a.main_discharge_step = in[d.first].f.step;
-    a.last_discharge_step = in[d.last].f.step;
-    a.discharge_start_s = d.start_s;
-    a.discharge_duration_s = d.end_s - d.start_s;
-    a.mean_voltage_v = d.mean_voltage_v;
-    a.mid_voltage_v = d.mid_voltage_v;
-    a.time_to_cutoff_s = d.time_to_cutoff_s;
-    a.average_current_a = d.average_current_a;
-    a.peak_current_a = d.peak_current_a;
-    a.pulsed = d.pulsed;
-    a.method = d.method;
-    a.discharge_description = d.description;
-    std::string not_cc;
-    DescribeDischarge(in, d.first, d.last, ctx.rated_mah, a.constant_current, not_cc);
-    a.constant_current = a.constant_current && !d.pulsed;
-    a.verdict = d.judgement;
-    if (a.attempts.size() > 1) {
-      size_t n = static_cast<size_t>(std::find(a.attempts.begin(), a.attempts.end(), *chosen) - a.attempts.begin());
-      a.verdict.text += fmt::format(" (attempt {} of {}", n + 1, a.attempts.size());
-      if (a.attempts.size() > usable) a.verdict.text += fmt::format("; only the first {} count", usable);
-      a.verdict.text += ")";
-    }
-    SpanCapture& c = S.span_caps[span_index[*chosen]];
+  SettleAttemptsAndCycles(a, ctx);
+  if (a.main_discharge) {
+    SpanCapture& c = S.span_caps[span_index[*a.main_discharge]];
     if (c.pulses) {
       PulseState& ps = *c.pulses;
       if (ps.open && ps.open->samples > 0) {  // the last pulse recovers to the end of the record
@@ -782,43 +824,7 @@ RunAnalysis RunStream::Finish() {
     }
     if (ctx.brownout_v) a.brownout = FirstBrownout(a.pulses, *ctx.brownout_v);
   }
-  // Start temperature: the first sample of the record.
   a.temperature_rise_c = a.max_temperature_c - a.start_temperature_c;
-
-  // --- cycles ---
-  if (any_charge) {
-    std::map<int, CycleFigures> by;
-    for (const InstanceFigures& g : in) {
-      CycleFigures& c = by[g.cycle];
-      c.cycle = g.cycle;
-      if (g.cls == StepClass::kCharge) {
-        c.charge_in_mah += std::max(0.0, -g.f.charge_mah);
-        c.charge_in_wh += std::max(0.0, -g.f.energy_wh);
-      }
-    }
-    for (size_t k = 0; k < a.discharges.size(); ++k) {
-      CycleFigures& c = by[a.discharges[k].cycle];
-      c.cycle = a.discharges[k].cycle;
-      c.discharge = k;
-      c.discharge_mah = a.discharges[k].charge_mah;
-      c.discharge_wh = a.discharges[k].energy_wh;
-    }
-    std::optional<double> first_mah;
-    for (auto& [n, c] : by) {
-      // Efficiencies only when the cycle put in a charge worth comparing (at
-      // least 1 % of what it gave back): a charge step that found the cell
-      // full puts in next to nothing, and a ratio over it means nothing.
-      if (c.discharge && c.charge_in_mah > 0.01 * c.discharge_mah) {
-        c.coulombic_efficiency = c.discharge_mah / c.charge_in_mah;
-        if (c.charge_in_wh > 0) c.energy_efficiency = c.discharge_wh / c.charge_in_wh;
-      }
-      if (c.discharge && c.cycle >= 1) {
-        if (!first_mah && c.discharge_mah > 0) first_mah = c.discharge_mah;
-        if (first_mah) c.retention = c.discharge_mah / *first_mah;
-      }
-      a.cycles.push_back(c);
-    }
-  }
 
   // --- DC-IR: only at commanded edges inside dcir, pulse and duty steps ---
   const double capacity = ctx.rated_mah > 0 ? ctx.rated_mah : a.discharge_charge_mah;

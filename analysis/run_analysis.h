@@ -205,6 +205,11 @@ struct DischargeSpan {
 };
 std::vector<DischargeSpan> DischargeSpans(const std::vector<StepRecord>& records, double record_end_s);
 
+// From a run's instances and discharges (already figured): the capacity
+// attempts, the main discharge with the headline figures and the verdict, and
+// the per-cycle table. Shared by the stream and the batch reference in the tests.
+void SettleAttemptsAndCycles(RunAnalysis& analysis, const RunContext& context);
+
 // What a discharge over instances [first, last] commanded, in words
 // ("constant current 0.5 A (0.20 It)", "constant resistance 6 Ohm"); sets
 // `constant_current` when it is one constant-current level, and `not_cc` to
