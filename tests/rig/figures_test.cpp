@@ -26,14 +26,9 @@
 namespace kp {
 namespace {
 
-// Matches sim::DemoLiIonCell(2.56): rated 2500 mAh.
-const char* kCell = "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n";
-
-Plan Compile(const std::string& body) {
-  auto p = ParseProcedure(std::string(kCell) + body, "t");
-  EXPECT_TRUE(p.ok()) << FormatDiagnostics("t", p.errors);
-  return p.plan;
-}
+// The procedures describe the 2500 mAh cell that sim::DemoLiIonCell(2.56) simulates.
+const char* const kCell = testing::kCell2500Line;
+Plan Compile(const std::string& body) { return testing::CompileForCell2500(body); }
 
 struct Rig {
   testing::TempDir dir;

@@ -1,5 +1,6 @@
 #include "tests/support/fixtures.h"
 
+#include "procedures/procedure_parser.h"
 #include "rig/cli/cli.h"
 
 namespace kp::testing {
@@ -9,6 +10,12 @@ int RunKneepoint(std::vector<std::string> args) {
   std::vector<char*> argv;
   for (std::string& a : args) argv.push_back(a.data());
   return cli::RunCli(static_cast<int>(argv.size()), argv.data());
+}
+
+Plan CompileForCell2500(const std::string& body) {
+  auto p = ParseProcedure(std::string(kCell2500Line) + body, "t");
+  EXPECT_TRUE(p.ok()) << FormatDiagnostics("t", p.errors);
+  return p.plan;
 }
 
 CellSpec Cell2500() {

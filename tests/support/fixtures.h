@@ -21,6 +21,11 @@ int RunKneepoint(std::vector<std::string> args);
 // A 2,500 mAh Li-ion cell: 3.6 V nominal, 4.2 V full, 2.75 V cutoff, 60 degC
 // limit (the simulator's DemoLiIonCell(2.56) stands in for it).
 CellSpec Cell2500();
+// Its cell line in procedure syntax, and a procedure body compiled under it
+// (a test failure, with the diagnostics, when it does not compile).
+inline constexpr const char* kCell2500Line =
+    "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n";
+Plan CompileForCell2500(const std::string& body);
 
 // A store in a fresh temporary folder, its wall clock real-time, plus a
 // virtual clock for the runs driven against it.
