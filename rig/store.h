@@ -42,7 +42,7 @@ struct NewRun {
   std::string procedure_name;
   std::string procedure_text;
   std::string rig;  // rig description ("sim", rig file path...)
-  std::optional<double> thermometer_tolerance_c;  // ± degC, stored with the run
+  std::optional<double> thermometer_tolerance_c{};  // ± degC, stored with the run
 };
 
 struct RunRow {

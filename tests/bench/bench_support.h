@@ -49,7 +49,7 @@ inline bool WriteRun(const std::string& path, int64_t n) {
   kp::NewRun nr{"bench-cell", "li-ion", 2500, "bench",
                 "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n"
                 "discharge 0.05C until voltage<=2.75V every=100ms\n",
-                "sim", std::nullopt};
+                "sim"};
   auto run = (*store)->BeginRun(nr);
   if (!run.ok() || !(*store)->BeginStep(*run, 0, "constant-current discharge", "discharge 0.05C", 0.0).ok()) return false;
   for (int64_t k = 0; k < n; ++k) {
