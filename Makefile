@@ -10,10 +10,10 @@ SUDO     := $(shell [ "$$(id -u)" = 0 ] || echo sudo)
 PKGS := build-essential cmake ninja-build pkg-config ccache \
         libserialport-dev libsqlite3-dev sqlite3 \
         libimgui-dev libglfw3-dev libgl-dev libstb-dev \
-        libgtest-dev libgmock-dev libbenchmark-dev \
+        libgtest-dev libbenchmark-dev libxml2-utils \
         libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev \
-        libgsl-dev libboost-dev \
-        xvfb xauth libgl1-mesa-dri librsvg2-bin
+        libgsl-dev \
+        xvfb xauth libgl1-mesa-dri help2man dpkg-dev
 
 # Hardening (see DEVELOPERS.md, "Hardening"): a second build with clang under
 # AddressSanitizer + UndefinedBehaviorSanitizer with libFuzzer coverage, which
@@ -29,7 +29,8 @@ SAN_ENV    := ASAN_OPTIONS=abort_on_error=1:detect_leaks=1:strict_string_checks=
               LSAN_OPTIONS=suppressions=$(CURDIR)/.ci/lsan-suppressions.txt
 LINT_DIRS  := analysis drivers procedures rig ui
 
-.PHONY: all deps deps-harden configure build demo test bench clean san-configure sanitize fuzz lint fault-campaign
+.PHONY: all deps deps-harden configure build demo test bench clean san-configure sanitize fuzz lint fault-campaign \
+        install package package-check
 
 all: build
 
@@ -64,6 +65,21 @@ demo: build
 
 test: build
 	ctest --test-dir $(BUILD) --output-on-failure -j $(JOBS) --timeout 300
+
+# Installs the program, its data files (share/kneepoint), the man page and the
+# panel's .desktop entry under PREFIX (default /usr/local; DESTDIR honoured).
+PREFIX ?= /usr/local
+install: build
+	cmake --install $(BUILD) --prefix $(PREFIX)
+
+# A Debian package (CPack) in $(BUILD)/: kneepoint_<version>_<arch>.deb.
+package: build
+	cd $(BUILD) && cpack -G DEB
+
+# The package installed into a temporary root and run from there with the
+# source tree hidden (.ci/package-check).
+package-check: package
+	.ci/package-check $(BUILD)
 
 bench: build
 	./$(BUILD)/tests/bench/kneepoint_bench

@@ -130,7 +130,7 @@ LifeOutcome ProjectLife(const LifeInputs& in) {
   p.average_current_a = in.average_current_a;
   p.capacity_mah = in.capacity_mah;
   p.battery_current_a = in.average_current_a;
-  p.assumptions.push_back("life = capacity / average current (Q = I·t); a year is 365.25 days");
+  p.assumptions.push_back("capacity drawn at the battery's average current until empty; a year is 365.25 days");
   if (in.efficiency) {
     p.battery_current_a /= *in.efficiency;
     p.allowances.push_back("regulator-efficiency");

@@ -106,6 +106,7 @@ std::vector<size_t> ReducePoints(std::span<const double> y, size_t max_points) {
 }
 
 std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_points) {
+  if (p.height > 0) height = p.height;
   // Legend above the frame, in rows of entries laid out left to right.
   const double ml = 64, mr = 64, mb = 46;
   struct LegendSlot {
@@ -121,8 +122,8 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
       x += w;
     }
   }
-  const double mt = (slots.empty() ? 30.0 : slots.back().y + 10.0);
-  height = std::max(height, static_cast<int>(mt + mb + 120));
+  const double mt = (slots.empty() ? 30.0 : slots.back().y + 10.0) + (p.marks.empty() ? 0.0 : 12.0);
+  height = std::max(height, static_cast<int>(mt + mb + 60));
   const double pw = width - ml - mr, ph = height - mt - mb;
   Range xr, yr, y2r;
   bool has_right = false;
@@ -131,10 +132,20 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
     for (double v : s.y) (s.right_axis ? y2r : yr).Add(v);
     has_right = has_right || s.right_axis;
   }
+  // Reference levels and marks stay in view.
+  for (const PlotLevel& l : p.levels) (l.right_axis ? y2r : yr).Add(l.value);
+  for (const PlotMark& m : p.marks) xr.Add(m.x);
   xr.Pad();
   yr.Pad();
   y2r.Pad();
-  auto xt = NiceTicks(xr.lo, xr.hi);
+  const bool duration = p.x_axis == PlotAxis::kDuration;
+  DurationTicks dt;
+  auto x_ticks = [&] {
+    if (!duration) return NiceTicks(xr.lo, xr.hi);
+    dt = NiceDurationTicks(xr.lo, xr.hi);
+    return dt.at_s;
+  };
+  auto xt = x_ticks();
   auto yt = NiceTicks(yr.lo, yr.hi);
   auto y2t = NiceTicks(y2r.lo, y2r.hi);
   // Extend ranges to the outer ticks for a tidy frame.
@@ -148,7 +159,7 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
   widen(xr, xt);
   widen(yr, yt);
   widen(y2r, y2t);
-  xt = NiceTicks(xr.lo, xr.hi);
+  xt = x_ticks();
   yt = NiceTicks(yr.lo, yr.hi);
   y2t = NiceTicks(y2r.lo, y2r.hi);
   auto X = [&](double v) { return ml + (v - xr.lo) / (xr.hi - xr.lo) * pw; };
@@ -156,12 +167,14 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
     const Range& r = right ? y2r : yr;
     return mt + ph - (v - r.lo) / (r.hi - r.lo) * ph;
   };
+  std::string x_label = p.x_label;
+  if (duration) x_label += " (" + (dt.format == "s" ? std::string("s") : dt.format) + ")";
 
   std::string o;
   o += fmt::format(
-      "<svg xmlns=\"http://www.w3.org/2000/svg\" id=\"{}\" class=\"plot\" width=\"{}\" height=\"{}\" viewBox=\"0 0 {} {}\" "
-      "role=\"img\" aria-label=\"{}\">\n",
-      XmlEscape(p.id), width, height, width, height, XmlEscape(p.title));
+      "<svg xmlns=\"http://www.w3.org/2000/svg\" id=\"{}\" class=\"plot\" viewBox=\"0 0 {} {}\" "
+      "preserveAspectRatio=\"xMidYMid meet\" role=\"img\" aria-label=\"{}\">\n",
+      XmlEscape(p.id), width, height, XmlEscape(p.title));
   o += fmt::format("<title>{}</title>\n", XmlEscape(p.title));
   o += fmt::format("<rect x=\"{:.1f}\" y=\"{:.1f}\" width=\"{:.1f}\" height=\"{:.1f}\" fill=\"#fbfaf7\" stroke=\"#999\"/>\n", ml,
                    mt, pw, ph);
@@ -172,7 +185,7 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
     if (v < xr.lo - 1e-12 || v > xr.hi + 1e-12) continue;
     o += fmt::format("<line x1=\"{0:.1f}\" y1=\"{1:.1f}\" x2=\"{0:.1f}\" y2=\"{2:.1f}\" stroke=\"#ddd\"/>\n", X(v), mt, mt + ph);
     o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\" text-anchor=\"middle\">{}</text>\n", X(v), mt + ph + 15,
-                     Tick(v, xstep));
+                     duration ? FormatDurationTick(v, dt.format) : Tick(v, xstep));
   }
   double ystep = yt.size() >= 2 ? yt[1] - yt[0] : 1.0;
   for (double v : yt) {
@@ -192,7 +205,7 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
         width - 14.0, mt + ph / 2, XmlEscape(p.y2_label));
   }
   o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"12\" text-anchor=\"middle\">{}</text>\n", ml + pw / 2,
-                   height - 8.0, XmlEscape(p.x_label));
+                   height - 8.0, XmlEscape(x_label));
   o += fmt::format(
       "<text x=\"{0:.1f}\" y=\"{1:.1f}\" font-size=\"12\" text-anchor=\"middle\" transform=\"rotate(-90 {0:.1f} "
       "{1:.1f})\">{2}</text>\n",
@@ -205,13 +218,15 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
     const char* c = kPalette[colour++ % std::size(kPalette)];
     size_t n = std::min(s.x.size(), s.y.size());
     auto idx = ReducePoints(std::span<const double>(s.y.data(), n), max_points);
+    const char* stroke_width = s.thin ? "0.9" : "1.5";
     if (s.markers) {
       o += fmt::format("<g fill=\"{}\" class=\"series\" data-name=\"{}\">", c, XmlEscape(s.name));
       for (size_t i : idx) o += fmt::format("<circle cx=\"{:.1f}\" cy=\"{:.1f}\" r=\"3\"/>", X(s.x[i]), Y(s.y[i], s.right_axis));
       o += "</g>\n";
     } else if (!idx.empty()) {
-      o += fmt::format("<polyline class=\"series\" data-name=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"1.5\"{} points=\"",
-                       XmlEscape(s.name), c, s.right_axis ? " stroke-dasharray=\"5 3\"" : "");
+      o += fmt::format(
+          "<polyline class=\"series\" data-name=\"{}\" fill=\"none\" stroke=\"{}\" stroke-width=\"{}\"{} points=\"",
+          XmlEscape(s.name), c, stroke_width, s.right_axis ? " stroke-dasharray=\"5 3\"" : "");
       for (size_t i : idx) o += fmt::format("{:.1f},{:.1f} ", X(s.x[i]), Y(s.y[i], s.right_axis));
       o += "\"/>\n";
     }
@@ -219,6 +234,26 @@ std::string RenderSvgPlot(const PlotSpec& p, int width, int height, size_t max_p
                      at.y - 4, at.x + 24, at.y - 4, c, s.right_axis ? " stroke-dasharray=\"5 3\"" : "");
     o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\">{}{}</text>\n", at.x + 28, at.y, XmlEscape(s.name),
                      s.right_axis ? " (right axis)" : "");
+  }
+  // Reference levels: dashed, labelled at the right end inside the frame.
+  for (const PlotLevel& l : p.levels) {
+    double y = Y(l.value, l.right_axis);
+    o += fmt::format(
+        "<line class=\"level\" data-name=\"{}\" x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"#8a1c1c\" "
+        "stroke-width=\"1\" stroke-dasharray=\"7 4\"/>\n",
+        XmlEscape(l.label), ml, y, ml + pw, y);
+    o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\" text-anchor=\"end\" fill=\"#8a1c1c\">{}</text>\n",
+                     ml + pw - 4, y - 4, XmlEscape(l.label));
+  }
+  // Marks: a vertical line through the frame, labelled above it.
+  for (const PlotMark& m : p.marks) {
+    double x = X(m.x);
+    o += fmt::format(
+        "<line class=\"mark\" data-name=\"{}\" x1=\"{:.1f}\" y1=\"{:.1f}\" x2=\"{:.1f}\" y2=\"{:.1f}\" stroke=\"#8a1c1c\" "
+        "stroke-width=\"1.5\"/>\n",
+        XmlEscape(m.label), x, mt, x, mt + ph);
+    o += fmt::format("<text x=\"{:.1f}\" y=\"{:.1f}\" font-size=\"11\" text-anchor=\"{}\" fill=\"#8a1c1c\">{}</text>\n", x,
+                     mt - 3, x > ml + pw * 0.7 ? "end" : "start", XmlEscape(m.label));
   }
   o += "</svg>\n";
   return o;

@@ -61,9 +61,9 @@ CapacityJudgement JudgeCapacityByMethod(const CapacityMethod& m, const Discharge
   // 25.04 degC is not shown as 25.0 beside a NO.
   const double tol_c = std::max(0.0, r.temperature_tolerance_c);
   j.conditions.push_back({"temperature",
-                          fmt::format("{:.0f} to {:.0f} degC at the start (thermometer ± {:.2f} degC)", m.temp_min_c,
+                          fmt::format("{:.0f} to {:.0f} °C at the start (thermometer ± {:.2f} °C)", m.temp_min_c,
                                       m.temp_max_c, tol_c),
-                          fmt::format("{:.2f} degC at the start, {:.2f} to {:.2f} degC during the discharge",
+                          fmt::format("{:.2f} °C at the start, {:.2f} to {:.2f} °C during the discharge",
                                       r.start_temperature_c, r.min_temperature_c, r.max_temperature_c),
                           r.start_temperature_c >= m.temp_min_c - tol_c && r.start_temperature_c <= m.temp_max_c + tol_c});
   if (m.rest_required)

@@ -313,7 +313,7 @@ std::optional<std::string> StepEngine::EndReason(const EndConditions& e, const R
   if (e.energy_wh && std::abs(energy_wh) >= *e.energy_wh)
     return fmt::format("energy {:.4f} Wh >= {:.4f} Wh", std::abs(energy_wh), *e.energy_wh);
   if (e.temperature_above_c && r.temperature_c >= *e.temperature_above_c)
-    return fmt::format("temperature {:.1f} degC >= {:.1f} degC", r.temperature_c, *e.temperature_above_c);
+    return fmt::format("temperature {:.1f} °C >= {:.1f} °C", r.temperature_c, *e.temperature_above_c);
   return std::nullopt;
 }
 

@@ -180,13 +180,13 @@ std::string DescribePlan(const Plan& plan, const PlanEstimate& est) {
   const CellSpec& c = plan.cell;
   const SafetyLimits& l = plan.limits;
   std::string out =
-      fmt::format("procedure '{}': {} cell, rated {:g} mAh, nominal {:g} V, max {:g} V, cutoff {:g} V, max {:g} degC\n",
+      fmt::format("procedure '{}': {} cell, rated {:g} mAh, nominal {:g} V, max {:g} V, cutoff {:g} V, max {:g} °C\n",
                   plan.name, c.chemistry, c.rated_mah, c.nominal_v, c.max_v, c.cutoff_v, c.max_temp_c);
   out += fmt::format(
-      "safety: temperature < {:g} degC ({}), voltage {:g} V .. {:g} V, current <= {}, time <= {}, charge <= {:g} mAh\n",
+      "safety: temperature < {:g} °C ({}), voltage {:g} V .. {:g} V, current <= {}, time <= {}, charge <= {:g} mAh\n",
       l.max_temp_c,
       l.over_temp_action == OverTempAction::kPause
-          ? fmt::format("pause, resume at {:g} degC, abort at {:g} degC", l.resume_temp_c, l.hard_temp_c)
+          ? fmt::format("pause, resume at {:g} °C, abort at {:g} °C", l.resume_temp_c, l.hard_temp_c)
           : std::string("abort"),
       l.min_voltage_v, l.max_voltage_v, FormatQuantity(l.max_current_a, Dimension::kCurrent), Hms(l.max_total_s),
       l.max_charge_mah);

@@ -175,7 +175,7 @@ std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig);
 
 // Built-in rated-capacity check: discharge at 0.2 It to the end voltage, as in
 // IEC 61960-3 clause 7.3.1 (0.2 It to the manufacturer's end-of-discharge
-// voltage at 20 ± 5 °C; secondary source, see shared references).
+// voltage at 20 ± 5 °C; secondary source, see analysis/METHODS.md).
 Plan RatedCapacityPlan(const CellSpec& cell, double sample_period_s = 1.0);
 
 }  // namespace kp

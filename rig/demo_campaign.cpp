@@ -152,9 +152,9 @@ std::string IndexHtml(const DemoFigures& f) {
        "table{border-collapse:collapse}td,th{border:1px solid #bbb;padding:.2em .5em;text-align:right}"
        "td.t,th{text-align:left}.bad{color:#b00}</style></head>\n<body>\n";
   o += "<h1>Kneepoint demo campaign</h1>\n";
-  o += "<p>An invented field-sensor-node team qualifies a Li-ion cell on the built-in simulated rig, in virtual time. "
-       "Every figure here was computed from the samples logged in the database.</p>\n";
-  o += "<h2>Runs</h2>\n<table><tr><th>run</th><th>part</th><th>cell</th><th>outcome</th><th>discharge mAh</th>"
+  o += "<p>Incoming qualification of LN-2500 Li-ion cells (an invented cell code) for a field sensor node, run on the "
+       "built-in simulated rig in virtual time. Every figure here was computed from the samples logged in the database.</p>\n";
+  o += "<h2>Runs</h2>\n<table><tr><th>run</th><th>plan item</th><th>cell</th><th>outcome</th><th>discharge mAh</th>"
        "<th>Wh</th><th>hours</th><th>mean V</th><th>max &#176;C</th><th>samples</th><th>report</th></tr>\n";
   for (const DemoRun& r : f.runs) {
     o += fmt::format(
@@ -166,14 +166,14 @@ std::string IndexHtml(const DemoFigures& f) {
         Esc(r.report_file), Esc(r.report_file));
   }
   o += "</table>\n";
-  o += "<h2>1. Rated capacity</h2>\n";
+  o += "<h2>Q1 Rated capacity</h2>\n";
   o += fmt::format("<p>Measured {:.0f} mAh at 0.2 It against a datasheet claim of {:.0f} mAh: {:.1f} % of rated. {}</p>\n",
                    f.measured_mah, f.rated_mah, f.percent_of_rated, Esc(f.verdict_text));
   if (f.batch_mate_run > 0)
     o += fmt::format("<p>Cell 2 of the same batch, discharged at the same 0.2 It in its Peukert series (run {}), delivered "
                      "{:.1f} % of the claim: one cell's verdict sits inside the batch's spread.</p>\n",
                      f.batch_mate_run, f.batch_mate_percent);
-  o += "<h2>2. The product's load</h2>\n";
+  o += "<h2>Q2 The product's load</h2>\n";
   o += fmt::format("<p>Duty cycle {:.0f} mAh, 2 A pulses {:.0f} mAh, 2 A continuous {:.0f} mAh. "
                    "<a href=\"compare-product-load.html\">Comparison table and overlays</a>.</p>\n",
                    f.duty_mah, f.pulsed_mah, f.continuous_mah);
@@ -184,16 +184,16 @@ std::string IndexHtml(const DemoFigures& f) {
                        Esc(r.pulsed_label), Esc(r.continuous_label), Esc(r.basis), r.capacity_ratio, r.energy_ratio);
     o += "</table>\n";
   }
-  o += "<h2>3. DC internal resistance over depth of discharge</h2>\n<table><tr><th>depth of discharge %</th><th>R mOhm</th></tr>\n";
+  o += "<h2>Q3 DC internal resistance over depth of discharge</h2>\n<table><tr><th>depth of discharge %</th><th>R mOhm</th></tr>\n";
   for (const DcirPoint& p : f.dcir)
     o += fmt::format("<tr><td>{:.0f}</td><td>{:.1f}</td></tr>\n", p.depth_of_discharge * 100.0, p.resistance_ohm * 1000.0);
   o += "</table>\n";
-  o += "<h2>4. Peukert series (cell 2 of the batch)</h2>\n";
+  o += "<h2>Q4 Peukert series (cell 2 of the batch)</h2>\n";
   if (f.peukert)
     o += fmt::format("<p>Fitted exponent k = {:.3f} (R&#178; = {:.4f}, {} points). "
                      "<a href=\"compare-peukert.html\">Comparison table and overlays</a>.</p>\n",
                      f.peukert->exponent_k, f.peukert->r_squared, f.peukert->points);
-  o += "<h2>5. Product life</h2>\n";
+  o += "<h2>Q5 Product life</h2>\n";
   if (f.life)
     o += fmt::format("<p>{:.0f} mAh at a mean {:.3f} mA: {:.0f} h = {:.0f} days.</p>\n", f.life->capacity_mah,
                      f.life->average_current_a * 1000.0, f.life->hours, f.life->hours / 24.0);
@@ -202,7 +202,7 @@ std::string IndexHtml(const DemoFigures& f) {
     for (const std::string& a : f.life->assumptions) o += "<li>" + Esc(a) + "</li>\n";
     o += "</ul>\n";
   }
-  o += "<h2>6. The failing cell</h2>\n";
+  o += "<h2>Q6 The failing cell</h2>\n";
   o += fmt::format("<p>Run {} {}: {}. Load input after the abort: {} ({:.3f} A). Hottest reading {:.1f} &#176;C.</p>\n",
                    f.failing_run, OutcomeName(f.failing_outcome), Esc(f.failing_reason), f.failing_load_on_after ? "ON" : "off",
                    f.failing_load_current_after_a, f.failing_max_temperature_c);
@@ -236,25 +236,25 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
 
   KP_ASSIGN_OR_RETURN(sim::CellPreset preset, sim::BuiltInCell("li-ion"));
   Campaign c(options, *store);
-  const std::string cell1 = "field-node N25 #1", cell2 = "field-node N25 #2", cell3 = "field-node N25 #3";
-  KP_RETURN_IF_ERROR(c.Plan("1 rated capacity", "rated-capacity.kpp", cell1));
-  KP_RETURN_IF_ERROR(c.Plan("2 duty cycle", "node-duty-cycle.kpp", cell1));
-  KP_RETURN_IF_ERROR(c.Plan("2 pulses at 2 A", "node-peak-pulses.kpp", cell1));
-  KP_RETURN_IF_ERROR(c.Plan("2 continuous 2 A", "node-peak-continuous.kpp", cell1));
+  const std::string cell1 = "LN-2500 #1", cell2 = "LN-2500 #2", cell3 = "LN-2500 #3";
+  KP_RETURN_IF_ERROR(c.Plan("Q1 rated capacity", "rated-capacity.kpp", cell1));
+  KP_RETURN_IF_ERROR(c.Plan("Q2 duty cycle", "node-duty-cycle.kpp", cell1));
+  KP_RETURN_IF_ERROR(c.Plan("Q2 pulses at 2 A", "node-peak-pulses.kpp", cell1));
+  KP_RETURN_IF_ERROR(c.Plan("Q2 continuous 2 A", "node-peak-continuous.kpp", cell1));
   // U2 at the end of the 1 s I2 pulse (IEC 61960-3 clause 7.7, secondary
   // source): the report's 1 s delay meets the pulse's falling edge, so
   // MeasureDcir reads the pulse's last reading, 0.9 s after the edge.
-  KP_RETURN_IF_ERROR(c.Plan("3 DC-IR sweep", "dcir-over-dod.kpp", cell1));
-  KP_RETURN_IF_ERROR(c.Plan("4 Peukert 0.5 A", "rate-0a5.kpp", cell2));
-  KP_RETURN_IF_ERROR(c.Plan("4 Peukert 1 A", "rate-1a.kpp", cell2));
-  KP_RETURN_IF_ERROR(c.Plan("4 Peukert 2 A", "rate-2a.kpp", cell2));
-  KP_RETURN_IF_ERROR(c.Plan("4 Peukert 3 A", "rate-3a.kpp", cell2));
-  KP_RETURN_IF_ERROR(c.Plan("6 failing cell", "failing-cell.kpp", cell3));
+  KP_RETURN_IF_ERROR(c.Plan("Q3 DC-IR sweep", "dcir-over-dod.kpp", cell1));
+  KP_RETURN_IF_ERROR(c.Plan("Q4 rate 0.5 A", "rate-0a5.kpp", cell2));
+  KP_RETURN_IF_ERROR(c.Plan("Q4 rate 1 A", "rate-1a.kpp", cell2));
+  KP_RETURN_IF_ERROR(c.Plan("Q4 rate 2 A", "rate-2a.kpp", cell2));
+  KP_RETURN_IF_ERROR(c.Plan("Q4 rate 3 A", "rate-3a.kpp", cell2));
+  KP_RETURN_IF_ERROR(c.Plan("Q6 failing cell", "failing-cell.kpp", cell3));
 
   DemoFigures f;
   f.self_discharge_per_month = preset.params.self_discharge_per_month;
 
-  // Cell 1: parts 1-3, one SimRig so the cell's state carries over.
+  // Cell 1: plan items Q1-Q3, one SimRig so the cell's state carries over.
   {
     VirtualClock clock;
     SimRig rig(clock, sim::VaryCell(preset.params, preset.spread, CellSeed(1)));
@@ -313,7 +313,7 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
     KP_RETURN_IF_ERROR(c.WritePage("compare-peukert.html", CompareReportHtml(cmp)));
   }
 
-  // Part 5: the product's life from the capacity measured under its own duty
+  // Plan item Q5: the product's life from the capacity measured under its own duty
   // cycle, at the profile's real (uncompressed) mean current.
   if (std::optional<DutyProfile> profile = ProfileFromPlan(c.planned(1).plan)) {
     f.profile = *profile;
@@ -356,18 +356,18 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
 
 std::string DemoSummaryText(const DemoFigures& f) {
   std::string o;
-  o += fmt::format("{:>3}  {:<18} {:<18} {:<9} {:>7} {:>6} {:>6} {:>6}\n", "run", "part", "cell", "outcome", "mAh", "Wh", "hours",
+  o += fmt::format("{:>3}  {:<18} {:<18} {:<9} {:>7} {:>6} {:>6} {:>6}\n", "run", "plan item", "cell", "outcome", "mAh", "Wh", "hours",
                    "max C");
   for (const DemoRun& r : f.runs)
     o += fmt::format("{:>3}  {:<18} {:<18} {:<9} {:>7.0f} {:>6.2f} {:>6.2f} {:>6.1f}\n", r.run_id, r.part, r.cell,
                      OutcomeName(r.outcome), r.discharge_mah, r.discharge_wh, r.discharge_h, r.max_temperature_c);
   o += "\n";
-  o += fmt::format("1 rated capacity   {:.0f} mAh at 0.2 It = {:.1f} % of the {:.0f} mAh claimed: {}\n", f.measured_mah,
+  o += fmt::format("Q1 rated capacity  {:.0f} mAh at 0.2 It = {:.1f} % of the {:.0f} mAh claimed: {}\n", f.measured_mah,
                    f.percent_of_rated, f.rated_mah, f.capacity_pass ? "PASS" : "FAIL (below the claim)");
   if (f.batch_mate_run > 0)
     o += fmt::format("                   cell 2 of the batch at the same 0.2 It (run {}): {:.1f} % of the claim\n",
                      f.batch_mate_run, f.batch_mate_percent);
-  o += fmt::format("2 product load     duty cycle {:.0f} mAh; 2 A pulses {:.0f} mAh vs 2 A continuous {:.0f} mAh\n", f.duty_mah,
+  o += fmt::format("Q2 product load    duty cycle {:.0f} mAh; 2 A pulses {:.0f} mAh vs 2 A continuous {:.0f} mAh\n", f.duty_mah,
                    f.pulsed_mah, f.continuous_mah);
   for (const RatioFigures& r : f.ratios)
     o += fmt::format("                   {} / {} ({}): capacity x{:.3f}, energy x{:.3f}\n", r.pulsed_label, r.continuous_label,
@@ -375,19 +375,19 @@ std::string DemoSummaryText(const DemoFigures& f) {
   if (!f.dcir.empty()) {
     const DcirPoint& first = f.dcir.front();
     const DcirPoint& last = f.dcir.back();
-    o += fmt::format("3 DC-IR            {} points: {:.1f} mOhm at {:.0f} % depth of discharge ... {:.1f} mOhm at {:.0f} %\n",
+    o += fmt::format("Q3 DC-IR           {} points: {:.1f} mOhm at {:.0f} % depth of discharge ... {:.1f} mOhm at {:.0f} %\n",
                      f.dcir.size(), first.resistance_ohm * 1000.0, first.depth_of_discharge * 100.0, last.resistance_ohm * 1000.0,
                      last.depth_of_discharge * 100.0);
   }
   if (f.peukert)
-    o += fmt::format("4 Peukert          k = {:.3f} (R^2 {:.4f}) over {} currents on cell 2\n", f.peukert->exponent_k,
+    o += fmt::format("Q4 Peukert         k = {:.3f} (R^2 {:.4f}) over {} currents on cell 2\n", f.peukert->exponent_k,
                      f.peukert->r_squared, f.peukert->points);
   if (f.life)
-    o += fmt::format("5 product life     {:.0f} mAh at a real mean of {:.3f} mA: {:.0f} days ({:.2f} years)\n", f.life->capacity_mah,
+    o += fmt::format("Q5 product life    {:.0f} mAh at a real mean of {:.3f} mA: {:.0f} days ({:.2f} years)\n", f.life->capacity_mah,
                      f.life->average_current_a * 1000.0, f.life->hours / 24.0, f.life->years);
   if (f.life)
     for (const std::string& a : f.life->assumptions) o += fmt::format("                   - {}\n", a);
-  o += fmt::format("6 failing cell     run {} {}: {}; load input {}\n", f.failing_run, OutcomeName(f.failing_outcome),
+  o += fmt::format("Q6 failing cell    run {} {}: {}; load input {}\n", f.failing_run, OutcomeName(f.failing_outcome),
                    f.failing_reason, f.failing_load_on_after ? "STILL ON" : "off");
   o += fmt::format("\n{} runs, {:.0f} h of simulated bench time.\n", f.runs.size(), f.virtual_hours);
   return o;

@@ -1,12 +1,13 @@
-// The demo campaign: an invented field-sensor-node team qualifies a Li-ion
-// cell on the built-in simulated rig, in virtual time. Six parts, eleven runs:
-//  1. rated-capacity check of cell 1 (CC-CV charge, rest, 0.2 It to cutoff);
-//  2. cell 1 again (state carried over): the product's duty cycle (sleep
+// The demo campaign: an example qualification plan for an invented Li-ion cell
+// (LN-2500) meant for a field sensor node, on the built-in simulated rig, in
+// virtual time. Six plan items, ten runs:
+//  Q1. rated-capacity check of cell 1 (CC-CV charge, rest, 0.2 It to cutoff);
+//  Q2. cell 1 again (state carried over): the product's duty cycle (sleep
 //     time-compressed), its 2 A peak as a pulse train, 2 A continuously;
-//  3. cell 1: DC-IR sweep over depth of discharge;
-//  4. cell 2 of the same batch: a Peukert series at four constant currents;
-//  5. the product-life projection from the measured duty-cycle capacity;
-//  6. cell 3 with the simulator's thermal-runaway fault, aborted by the
+//  Q3. cell 1: DC-IR sweep over depth of discharge;
+//  Q4. cell 2 of the same batch: a Peukert series at four constant currents;
+//  Q5. the product-life projection from the measured duty-cycle capacity;
+//  Q6. cell 3 with the simulator's thermal-runaway fault, aborted by the
 //     over-temperature limit with the load off.
 // Every figure in DemoFigures is computed by the analysis code from the
 // samples logged in the database (BuildRunReport / BuildCompareReport).
@@ -42,7 +43,7 @@ struct DemoOptions {
 // One run of the campaign, as analysed from its stored samples.
 struct DemoRun {
   int64_t run_id = 0;
-  std::string part;       // "1 rated capacity", ...
+  std::string part;       // "Q1 rated capacity", ...
   std::string cell;       // cell name stored with the run
   std::string procedure;  // file under procedures/library/demo/
   Outcome outcome = Outcome::kRunning;

@@ -112,7 +112,7 @@ Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan
   const SafetyLimits& lim = plan.limits;
   if (temp_c >= lim.max_temp_c)
     return LimitExceeded(
-        fmt::format("cannot resume run {}: cell at {:.1f} degC, limit {:.1f} degC; let it cool", run_id, temp_c, lim.max_temp_c));
+        fmt::format("cannot resume run {}: cell at {:.1f} °C, limit {:.1f} °C; let it cool", run_id, temp_c, lim.max_temp_c));
   if (volts > lim.max_voltage_v)
     return LimitExceeded(fmt::format("cannot resume run {}: cell at {:.3f} V, above the limit {:.3f} V — is this the same cell?",
                                      run_id, volts, lim.max_voltage_v));
@@ -130,7 +130,7 @@ Result<ResumePoint> PrepareResume(Store& store, int64_t run_id, const Plan& plan
   }
   ResumePoint point;
   point.run_id = run_id;
-  point.checks = fmt::format("cell re-checked with the load off: {:.3f} V, {:.1f} degC", volts, temp_c);
+  point.checks = fmt::format("cell re-checked with the load off: {:.3f} V, {:.1f} °C", volts, temp_c);
   return point;
 }
 

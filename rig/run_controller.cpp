@@ -346,7 +346,7 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
     SafetyVerdict v = monitor_.Check(*rr, delivered_mah_);
     if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
     if (kind == HoldKind::kHeat && monitor_.CooledDown(*rr))
-      released_by = fmt::format("cell cooled to {:.1f} degC; continuing", rr->temperature_c);
+      released_by = fmt::format("cell cooled to {:.1f} °C; continuing", rr->temperature_c);
     if (kind == HoldKind::kLink) {
       released_by = fmt::format("instruments answer again after {:.1f} s with the load off; continuing", t_s_ - held_since);
       // No readings in between: analysis flags the interval as a gap.

@@ -6,9 +6,12 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <cmath>
 #include <cstdlib>
+#include <ctime>
 #include <nlohmann/json.hpp>
 
+#include "analysis/duration_format.h"
 #include "analysis/html_report.h"
 #include "analysis/svg_plot.h"
 #include "rig/cli/cli.h"
@@ -71,6 +74,9 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
     ctx.steps.push_back(std::move(r));
   }
   if (!ctx.cutoff_v && plan != nullptr && plan->cell.cutoff_v > 0) ctx.cutoff_v = plan->cell.cutoff_v;
+  if (plan != nullptr) rep.max_temp_c = plan->limits.max_temp_c;
+  for (const EventRow& e : events)
+    if (e.kind == "abort" && rep.run.outcome == Outcome::kAborted) rep.abort_t_s = e.t_s, rep.abort_reason = e.message;
   // DC-IR points the engine measured (runs recorded with step records).
   ctx.dcir_recorded = !rep.steps.empty() && !migrated;
   for (const DcirRow& p : dcir_rows) {
@@ -121,6 +127,28 @@ nlohmann::json RunRowJson(const RunRow& r) {
               {"samples", r.sample_count}};
 }
 
+std::vector<MethodNote> MethodNotes(const RunReport& rep) {
+  const RunAnalysis& a = rep.analysis;
+  std::vector<MethodNote> m;
+  m.push_back({"charge and energy", IntegrationMethodText(a.method) + "; charge = integral of I dt, energy = integral of V·I dt",
+               "common practice, no source"});
+  if (!a.verdict.method.empty()) {
+    std::string deviations = a.verdict.judged ? std::string() : "not judged: " + a.verdict.not_judged_why;
+    for (const ConditionCheck& c : a.verdict.conditions)
+      if (!c.met) deviations += (deviations.empty() ? "" : "; ") + c.name + " not met (" + c.observed + ")";
+    m.push_back({"capacity verdict", a.verdict.method + (deviations.empty() ? "" : "; deviations: " + deviations),
+                 "analysis/METHODS.md, \"Verdict\""});
+  }
+  if (!a.dcir.empty() || !a.dcir_left_out.empty())
+    m.push_back({"DC internal resistance",
+                 "two-current method, R = (U1 - U2) / (I2 - I1), at commanded current edges only; U2 read the set delay "
+                 "after the edge",
+                 "IEC 61960-3:2017 clause 7.7 (sub-clause numbering from memory)"});
+  if (!a.gaps.empty())
+    m.push_back({"gaps", "bridged by the trapezoid between the samples on either side and flagged", "common practice, no source"});
+  return m;
+}
+
 nlohmann::json RunReportJson(const RunReport& rep) {
   const RunFigures& f = rep.figures;
   const RunAnalysis& a = rep.analysis;
@@ -161,6 +189,9 @@ nlohmann::json RunReportJson(const RunReport& rep) {
     conds.push_back({{"name", c.name}, {"required", c.required}, {"observed", c.observed}, {"met", c.met}});
   j["conditions"] = conds;
   j["schema_version"] = kReportSchemaVersion;
+  json notes = json::array();
+  for (const MethodNote& n : MethodNotes(rep)) notes.push_back({{"figure", n.figure}, {"method", n.method}, {"source", n.source}});
+  j["methods"] = notes;
   j["net_charge_mAh"] = rep.totals.net_mah;
   j["net_energy_Wh"] = rep.totals.net_wh;
   j["charged_mAh"] = Optional(rep.totals.charged_mah);
@@ -306,7 +337,7 @@ std::string RunReportText(const RunReport& rep) {
   out += fmt::format("  duration         {} ({} samples)", cli::FormatDuration(f.duration_s), f.sample_count);
   if (a.time_to_cutoff_s) out += fmt::format(", {} to cutoff", cli::FormatDuration(*a.time_to_cutoff_s));
   out += "\n";
-  out += fmt::format("  temperature      max {:.1f} degC, rise {:.1f} degC\n", a.max_temperature_c, a.temperature_rise_c);
+  out += fmt::format("  temperature      max {:.1f} °C, rise {:.1f} °C\n", a.max_temperature_c, a.temperature_rise_c);
   if (!a.gaps.empty()) {
     out += fmt::format("  gaps             {} (", a.gaps.size());
     for (size_t i = 0; i < a.gaps.size() && i < 3; ++i)
@@ -369,6 +400,31 @@ std::string RunReportCyclesCsv(const RunReport& rep) {
 
 namespace {
 
+// The verdict's emphasis: pass, fail, or neutral when the run was not judged.
+std::string VerdictTone(const RunReport& rep) {
+  const CapacityJudgement& v = rep.analysis.verdict;
+  if (!v.judged) return "neutral";
+  if (v.brief.rfind("PASS", 0) == 0) return "pass";
+  if (v.brief.rfind("FAIL", 0) == 0) return "fail";
+  return "neutral";
+}
+
+std::string ReportGenerator() { return "kneepoint"; }
+
+// Who made the page and when (UTC, to the second).
+HtmlPageMeta ReportPageMeta(std::string subtitle) {
+  HtmlPageMeta m;
+  m.subtitle = std::move(subtitle);
+  m.generator = ReportGenerator();
+  std::time_t now = std::time(nullptr);
+  std::tm utc{};
+  gmtime_r(&now, &utc);
+  char buf[32];
+  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &utc);
+  m.generated_at = buf;
+  return m;
+}
+
 HtmlTable SummaryTable(const RunReport& rep) {
   json j = RunReportJson(rep);
   HtmlTable t;
@@ -389,10 +445,17 @@ HtmlTable SummaryTable(const RunReport& rep) {
   row("minimum voltage", "/min_voltage_V", 3, "V");
   row("average discharge current", "/average_current_A", 4, "A");
   row("peak current", "/peak_current_A", 4, "A");
-  row("record duration", "/duration_s", 0, "s");
-  row("time to cutoff", "/time_to_cutoff_s", 0, "s");
-  row("maximum temperature", "/max_temperature_C", 1, "degC");
-  row("temperature rise", "/temperature_rise_C", 1, "degC");
+  auto duration = [&](const std::string& name, const std::string& key) {
+    const json& v = j.at(json::json_pointer(key));
+    if (v.is_null())
+      t.rows.push_back({TextCell(name), TextCell("not reached")});
+    else
+      t.rows.push_back({TextCell(name), DurationCell(key, v.get<double>())});
+  };
+  duration("record duration (h:mm:ss)", "/duration_s");
+  duration("time to cutoff (h:mm:ss)", "/time_to_cutoff_s");
+  row("maximum temperature", "/max_temperature_C", 1, "°C");
+  row("temperature rise", "/temperature_rise_C", 1, "K");
   return t;
 }
 
@@ -406,16 +469,20 @@ std::string RunReportHtml(const RunReport& rep) {
 
   HtmlSection sum;
   sum.title = "Summary";
-  sum.paragraphs.push_back(
-      fmt::format("Cell {} ({}, rated {:.0f} mAh), procedure {}, rig {}. Outcome: {} ({}). Started {}, ended {}.", rep.run.cell,
-                  rep.run.chemistry, rep.run.rated_mah, rep.run.procedure_name, rep.run.rig, OutcomeName(rep.run.outcome),
-                  rep.run.reason, rep.run.started_at, rep.run.ended_at));
+  sum.callouts.push_back({a.verdict.text, VerdictTone(rep)});
+  if (rep.run.outcome == Outcome::kAborted)
+    sum.callouts.push_back({"Run aborted" + (rep.abort_t_s ? " at " + FormatHms(*rep.abort_t_s) : std::string()) + ": " +
+                                rep.run.reason,
+                            "warn"});
+  sum.paragraphs.push_back(fmt::format("Cell {} ({}, rated {:.0f} mAh), procedure {}, rig {}. Outcome: {} ({}). Started {}, ended {}.",
+                                       rep.run.cell, rep.run.chemistry, rep.run.rated_mah, rep.run.procedure_name, rep.run.rig,
+                                       OutcomeName(rep.run.outcome), rep.run.reason, rep.run.started_at, rep.run.ended_at));
   sum.paragraphs.push_back("Integration: " + IntegrationMethodText(a.method) + ".");
   if (a.gaps.empty()) {
     sum.paragraphs.push_back("No gaps in the record.");
   } else {
     std::string g = fmt::format("{} gap(s) in the record, bridged by the trapezoid and flagged:", a.gaps.size());
-    for (const Gap& x : a.gaps) g += fmt::format(" {:.0f} s to {:.0f} s (step {});", x.t_start_s, x.t_end_s, x.step);
+    for (const Gap& x : a.gaps) g += fmt::format(" {} to {} (step {});", FormatHms(x.t_start_s), FormatHms(x.t_end_s), x.step);
     sum.paragraphs.push_back(g);
   }
   sum.tables.push_back(SummaryTable(rep));
@@ -423,7 +490,7 @@ std::string RunReportHtml(const RunReport& rep) {
 
   HtmlSection ver;
   ver.title = "Verdict";
-  ver.paragraphs.push_back(a.verdict.text);
+  ver.callouts.push_back({a.verdict.text, VerdictTone(rep)});
   HtmlTable ct;
   ct.caption = "Conditions of " + a.verdict.method;
   ct.header = {"condition", "required", "observed", "met"};
@@ -474,21 +541,29 @@ std::string RunReportHtml(const RunReport& rep) {
     sections.push_back(cy);
   }
 
+  HtmlSection me;
+  me.title = "Method";
+  HtmlTable mt;
+  mt.header = {"figure", "method and deviations", "source"};
+  for (const MethodNote& n : MethodNotes(rep)) mt.rows.push_back({TextCell(n.figure), TextCell(n.method), TextCell(n.source)});
+  me.tables.push_back(mt);
+  sections.push_back(me);
+
   HtmlSection st;
   st.title = "Steps";
   HtmlTable stt;
-  stt.header = {"step", "kind", "pass", "cycle", "start (s)", "end (s)", "charge (mAh)", "energy (Wh)", "mean current (A)",
+  stt.header = {"step", "kind", "pass", "cycle", "start (h:mm:ss)", "end (h:mm:ss)", "charge (mAh)", "energy (Wh)", "mean current (A)",
                 "mean voltage (V)", "method", "ended by"};
   for (size_t i = 0; i < a.instances.size() && i < 500; ++i) {
     const InstanceFigures& g = a.instances[i];
     const StepFigures& s = g.f;
     std::string p = fmt::format("/steps/{}/", i);
     stt.rows.push_back({TextCell(std::to_string(g.number)), TextCell(g.kind), TextCell(g.pass ? std::to_string(g.pass) : "-"),
-                        TextCell(std::to_string(g.cycle)), FigureCell(p + "started_s", g.started_s, 0),
-                        FigureCell(p + "ended_s", g.ended_s, 0), FigureCell(p + "charge_mAh", s.charge_mah, 1),
+                        TextCell(std::to_string(g.cycle)), DurationCell(p + "started_s", g.started_s),
+                        DurationCell(p + "ended_s", g.ended_s), FigureCell(p + "charge_mAh", s.charge_mah, 1),
                         FigureCell(p + "energy_Wh", s.energy_wh, 3), FigureCell(p + "mean_current_A", s.mean_current_a, 4),
                         FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), TextCell(IntegrationMethodName(g.method)),
-                        TextCell(g.end_reason + (g.held_s > 0 ? fmt::format(" (held {:.0f} s)", g.held_s) : ""))});
+                        TextCell(g.end_reason + (g.held_s > 0 ? " (held " + FormatHms(g.held_s) + ")" : ""))});
   }
   if (a.instances.size() > 500)
     st.paragraphs.push_back(fmt::format("The first 500 of {} step instances; all are in the JSON.", a.instances.size()));
@@ -499,35 +574,67 @@ std::string RunReportHtml(const RunReport& rep) {
   plots.title = "Plots";
   // The series were decimated while the samples streamed by: per column the
   // lowest and the highest point, so spikes survive.
-  auto hours = [](std::vector<double> x) {
-    for (double& t : x) t /= 3600.0;
-    return x;
-  };
   const RunPlots& pl = rep.plots;
   std::vector<double> q, vq;
   if (a.main_discharge && *a.main_discharge < pl.discharge_vq.size()) {
     q = pl.discharge_vq[*a.main_discharge].x;
     vq = pl.discharge_vq[*a.main_discharge].y;
   }
-  plots.plots.push_back({"plot-voltage-current-time",
-                         "Voltage and current versus time",
-                         "time (h)",
-                         "voltage (V)",
-                         "current (A)",
-                         {{"voltage", hours(pl.voltage.x), pl.voltage.y, false, false},
-                          {"current", hours(pl.current.x), pl.current.y, true, false}}});
-  plots.plots.push_back({"plot-voltage-charge",
-                         "Voltage versus charge delivered in the discharge",
-                         "delivered charge (mAh)",
-                         "voltage (V)",
-                         "",
-                         {{"voltage", q, vq, false, false}}});
-  plots.plots.push_back({"plot-temperature",
-                         "Cell temperature versus time",
-                         "time (h)",
-                         "temperature (degC)",
-                         "",
-                         {{"temperature", hours(pl.temperature.x), pl.temperature.y, false, false}}});
+  std::vector<PlotLevel> voltage_levels;
+  if (rep.context.cutoff_v) voltage_levels.push_back({*rep.context.cutoff_v, fmt::format("cutoff {:.3f} V", *rep.context.cutoff_v)});
+  std::vector<PlotMark> abort_marks;
+  if (rep.abort_t_s) abort_marks.push_back({*rep.abort_t_s, "aborted " + FormatHms(*rep.abort_t_s)});
+  PlotSpec vt;
+  vt.id = "plot-voltage-time";
+  vt.title = "Cell voltage versus time";
+  vt.x_label = "time";
+  vt.y_label = "voltage (V)";
+  vt.x_axis = PlotAxis::kDuration;
+  vt.levels = voltage_levels;
+  vt.marks = abort_marks;
+  if (a.pulsed && !a.pulses.empty()) {
+    // A pulse train drawn sample by sample is a solid block: draw what a
+    // reader wants from it, the voltage under load (each pulse's lowest) and
+    // the voltage recovered before the next pulse, as two thin lines.
+    PlotSeries loaded{"under load (lowest in each pulse)", {}, {}, false, false, true};
+    PlotSeries recovered{"recovered (before the next pulse)", {}, {}, false, false, true};
+    for (size_t k = 0; k < a.pulses.size(); ++k) {
+      const PulseFigures& p = a.pulses[k];
+      loaded.x.push_back(p.t_start_s), loaded.y.push_back(p.min_voltage_v);
+      double t_rec = k + 1 < a.pulses.size() ? a.pulses[k + 1].t_start_s : p.t_end_s;
+      recovered.x.push_back(t_rec), recovered.y.push_back(p.recovered_voltage_v);
+    }
+    vt.series = {loaded, recovered};
+  } else {
+    vt.series = {{"voltage", pl.voltage.x, pl.voltage.y, false, false}};
+  }
+  plots.plots.push_back(vt);
+  PlotSpec it;
+  it.id = "plot-current-time";
+  it.title = "Current versus time (positive discharges the cell)";
+  it.x_label = "time";
+  it.y_label = "current (A)";
+  it.x_axis = PlotAxis::kDuration;
+  it.height = 200;
+  it.marks = abort_marks;
+  it.series = {{"current", pl.current.x, pl.current.y, false, false, true}};
+  plots.plots.push_back(it);
+  PlotSpec vc{"plot-voltage-charge", "Voltage versus charge delivered in the discharge", "delivered charge (mAh)", "voltage (V)", "",
+              {{"voltage", q, vq, false, false, a.pulsed}}};
+  vc.levels = voltage_levels;
+  plots.plots.push_back(vc);
+  PlotSpec tt;
+  tt.id = "plot-temperature";
+  tt.title = "Cell temperature versus time";
+  tt.x_label = "time";
+  tt.y_label = "temperature (°C)";
+  tt.x_axis = PlotAxis::kDuration;
+  tt.height = 240;
+  tt.marks = abort_marks;
+  if (rep.max_temp_c && std::isfinite(*rep.max_temp_c))
+    tt.levels.push_back({*rep.max_temp_c, fmt::format("limit {:.0f} °C", *rep.max_temp_c)});
+  tt.series = {{"temperature", pl.temperature.x, pl.temperature.y, false, false}};
+  plots.plots.push_back(tt);
   if (!a.dcir.empty()) {
     PlotSeries r{"DC-IR", {}, {}, false, true};
     for (const DcirPoint& p : a.dcir) r.x.push_back(p.depth_of_discharge * 100.0), r.y.push_back(p.resistance_ohm * 1000.0);
@@ -544,8 +651,9 @@ std::string RunReportHtml(const RunReport& rep) {
       mn.x.push_back(p.delivered_mah_at_start), mn.y.push_back(p.min_voltage_v);
       rc.x.push_back(p.delivered_mah_at_start), rc.y.push_back(p.recovered_voltage_v);
     }
-    plots.plots.push_back(
-        {"plot-pulses", "Pulse minimum and recovered voltage", "delivered charge (mAh)", "voltage (V)", "", {mn, rc}});
+    PlotSpec pp{"plot-pulses", "Pulse minimum and recovered voltage", "delivered charge (mAh)", "voltage (V)", "", {mn, rc}};
+    pp.levels = voltage_levels;
+    plots.plots.push_back(pp);
   }
   sections.push_back(plots);
 
@@ -582,7 +690,9 @@ std::string RunReportHtml(const RunReport& rep) {
                     a.brownout->pulse_index + 1, a.brownout->min_voltage_v, a.brownout->delivered_mah));
     sections.push_back(b);
   }
-  return RenderHtmlPage(fmt::format("Kneepoint run {}: {}", rep.run.id, rep.run.cell), sections);
+  return RenderHtmlPage(fmt::format("Kneepoint run {}: {}", rep.run.id, rep.run.cell), sections,
+                        ReportPageMeta(fmt::format("{} · {} · {}", rep.run.procedure_name, OutcomeName(rep.run.outcome),
+                                                   a.verdict.brief)));
 }
 
 // --- across runs ---
@@ -677,7 +787,7 @@ std::string CompareReportText(const CompareReport& c) {
                      r.continuous_label, r.basis, r.capacity_ratio, r.energy_ratio);
   if (c.peukert.fit) {
     const PeukertFit& f = *c.peukert.fit;
-    o += fmt::format("Peukert fit (C_p = I^k t, Peukert 1897) over {} runs: k = {:.4f}, C_p = {:.4f} A^k h, {}\n", f.points,
+    o += fmt::format("Peukert fit over {} runs: k = {:.4f}, C_p = {:.4f} A^k h, {}\n", f.points,
                      f.exponent_k, f.capacity_constant,
                      f.points > 2 ? fmt::format("R^2 = {:.4f}", f.r_squared)
                                   : std::string("R^2 not meaningful (two points always lie on the line)"));
@@ -699,8 +809,35 @@ std::string CompareReportCsv(const CompareReport& c) {
   return o;
 }
 
+namespace {
+
+// What tells the compared runs apart: the kind of discharge and its current,
+// and the cell when the runs are on different cells.
+std::vector<std::string> CurveLabels(const CompareReport& c) {
+  bool cells_differ = false;
+  for (const RunReport& r : c.runs) cells_differ = cells_differ || r.run.cell != c.runs.front().run.cell;
+  std::vector<std::string> out;
+  for (size_t i = 0; i < c.summaries.size() && i < c.runs.size(); ++i) {
+    const RunSummary& s = c.summaries[i];
+    std::string what;
+    if (s.pulsed)
+      what = fmt::format("pulsed {:.3g} A peak, {:.3g} A mean", s.peak_current_a, s.average_current_a);
+    else if (s.constant_current)
+      what = fmt::format("continuous {:.3g} A", s.average_current_a);
+    else
+      what = fmt::format("varying load, {:.3g} A mean", s.average_current_a);
+    std::string label = fmt::format("{}: {}", s.label, what);
+    if (cells_differ) label += ", cell " + c.runs[i].run.cell;
+    out.push_back(std::move(label));
+  }
+  return out;
+}
+
+}  // namespace
+
 std::string CompareReportHtml(const CompareReport& c) {
   std::vector<HtmlSection> sections;
+  std::vector<std::string> labels = CurveLabels(c);
   HtmlSection t;
   t.title = "Runs side by side";
   HtmlTable tab;
@@ -710,7 +847,8 @@ std::string CompareReportHtml(const CompareReport& c) {
     const RunSummary& s = c.summaries[i];
     std::string p = fmt::format("/runs/{}/", i);
     tab.rows.push_back(
-        {TextCell(s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1), FigureCell(p + "energy_Wh", s.energy_wh, 3),
+        {TextCell(i < labels.size() ? labels[i] : s.label), FigureCell(p + "charge_mAh", s.charge_mah, 1),
+         FigureCell(p + "energy_Wh", s.energy_wh, 3),
          FigureCell(p + "mean_voltage_V", s.mean_voltage_v, 3), FigureCell(p + "average_current_A", s.average_current_a, 4),
          FigureCell(p + "peak_current_A", s.peak_current_a, 4),
          s.resistance_ohm ? FigureCell(p + "resistance_ohm", *s.resistance_ohm, 4) : TextCell("-"), TextCell(s.verdict_brief)});
@@ -720,22 +858,45 @@ std::string CompareReportHtml(const CompareReport& c) {
 
   HtmlSection ov;
   ov.title = "Overlays";
+  ov.paragraphs.push_back(
+      "Each curve is one run's main discharge, aligned at its start. Pulsed and duty-cycle discharges are drawn as their "
+      "voltage under load (the lowest reading in each pulse), which is what decides the cutoff.");
   PlotSpec vq{"plot-overlay-voltage-charge", "Voltage versus delivered charge", "delivered charge (mAh)", "voltage (V)", "", {}};
-  PlotSpec vt{"plot-overlay-voltage-time", "Voltage versus time from discharge start", "time (h)", "voltage (V)", "", {}};
-  for (const RunReport& r : c.runs) {
+  PlotSpec vt{"plot-overlay-voltage-time", "Voltage versus time from discharge start", "time", "voltage (V)", "", {}};
+  vt.x_axis = PlotAxis::kDuration;
+  std::optional<double> common_cutoff;
+  bool one_cutoff = true;
+  for (size_t i = 0; i < c.runs.size(); ++i) {
+    const RunReport& r = c.runs[i];
     // Aligned at the start of each run's main discharge.
     const RunAnalysis& a = r.analysis;
-    PlotSeries q{fmt::format("run {}", r.run.id), {}, {}, false, false};
-    PlotSeries tt{q.name, {}, {}, false, false};
-    if (a.main_discharge && *a.main_discharge < r.plots.discharge_vq.size()) {
+    PlotSeries q{labels[i], {}, {}, false, false, true};
+    PlotSeries tt{q.name, {}, {}, false, false, true};
+    if (a.pulsed && !a.pulses.empty() && a.main_discharge && *a.main_discharge < a.discharges.size()) {
+      const DischargeFigures& d = a.discharges[*a.main_discharge];
+      std::optional<double> q0;
+      for (const PulseFigures& p : a.pulses) {
+        if (p.t_start_s < d.start_s || p.t_start_s > d.end_s) continue;
+        if (!q0) q0 = p.delivered_mah_at_start;
+        q.x.push_back(p.delivered_mah_at_start - *q0), q.y.push_back(p.min_voltage_v);
+        tt.x.push_back(p.t_start_s - d.start_s), tt.y.push_back(p.min_voltage_v);
+      }
+    } else if (a.main_discharge && *a.main_discharge < r.plots.discharge_vq.size()) {
       q.x = r.plots.discharge_vq[*a.main_discharge].x;
       q.y = r.plots.discharge_vq[*a.main_discharge].y;
       tt.x = r.plots.discharge_vt[*a.main_discharge].x;
-      for (double& t : tt.x) t /= 3600.0;
       tt.y = r.plots.discharge_vt[*a.main_discharge].y;
+    }
+    if (r.context.cutoff_v) {
+      if (common_cutoff && std::abs(*common_cutoff - *r.context.cutoff_v) > 1e-9) one_cutoff = false;
+      common_cutoff = r.context.cutoff_v;
     }
     vq.series.push_back(std::move(q));
     vt.series.push_back(std::move(tt));
+  }
+  if (common_cutoff && one_cutoff) {
+    vq.levels.push_back({*common_cutoff, fmt::format("cutoff {:.3f} V", *common_cutoff)});
+    vt.levels = vq.levels;
   }
   ov.plots = {vq, vt};
   sections.push_back(ov);
@@ -778,7 +939,8 @@ std::string CompareReportHtml(const CompareReport& c) {
     pk.paragraphs.push_back("No fit: " + c.peukert.error + ".");
   }
   sections.push_back(pk);
-  return RenderHtmlPage("Kneepoint comparison", sections);
+  return RenderHtmlPage("Kneepoint comparison", sections,
+                        ReportPageMeta(fmt::format("{} runs compared", c.summaries.size())));
 }
 
 }  // namespace kp

@@ -34,6 +34,11 @@ struct RunReport {
   ReportOptions options;
   Store::RunTotalsRow totals;            // what the runner kept on the runs row
   std::vector<std::string> dcir_sources;  // per analysis.dcir point: "dcir step", "pulse edge", ...
+  // Limits of the stored procedure, drawn on the plots, and where an aborted
+  // run stopped (its "abort" event).
+  std::optional<double> max_temp_c;
+  std::optional<double> abort_t_s;
+  std::string abort_reason;
 };
 
 // Version of the `report --json` / `compare --json` layout. 2: schema_version,
@@ -41,6 +46,16 @@ struct RunReport {
 // attempts, DC-IR sources and left-out points. Keys of version 1 keep their
 // names and meanings.
 inline constexpr int kReportSchemaVersion = 2;
+
+// How each headline figure was obtained: the method, any deviation from it in
+// this run, and the source (standard, clause, edition). Shown in the report's
+// "Method" section and its JSON ("methods"), not in the terminal summary.
+struct MethodNote {
+  std::string figure;
+  std::string method;
+  std::string source;
+};
+std::vector<MethodNote> MethodNotes(const RunReport& report);
 
 Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptions& options = {});
 

@@ -11,10 +11,10 @@ SafetyVerdict SafetyMonitor::Check(const Reading& r, double delivered_mah) const
   if (r.temperature_c >= limits_.max_temp_c) {
     if (limits_.over_temp_action == OverTempAction::kPause && r.temperature_c < limits_.hard_temp_c)
       return {SafetyVerdict::kPause,
-              fmt::format("over-temperature: cell at {:.1f} degC, limit {:.1f} degC; pausing until {:.1f} degC", r.temperature_c,
+              fmt::format("over-temperature: cell at {:.1f} °C, limit {:.1f} °C; pausing until {:.1f} °C", r.temperature_c,
                           limits_.max_temp_c, limits_.resume_temp_c)};
     double limit = limits_.over_temp_action == OverTempAction::kPause ? limits_.hard_temp_c : limits_.max_temp_c;
-    return abort(fmt::format("over-temperature: cell at {:.1f} degC, limit {:.1f} degC", r.temperature_c, limit));
+    return abort(fmt::format("over-temperature: cell at {:.1f} °C, limit {:.1f} °C", r.temperature_c, limit));
   }
   if (r.voltage_v > limits_.max_voltage_v)
     return abort(fmt::format("over-voltage: cell at {:.3f} V, limit {:.3f} V", r.voltage_v, limits_.max_voltage_v));

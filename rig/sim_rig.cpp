@@ -48,7 +48,7 @@ Result<sim::CellParams> BuildSimCell(const SimCellChoice& choice) {
   params.initial_soc = choice.start_soc;
   if (choice.ambient_c) {
     if (!(*choice.ambient_c >= -60.0 && *choice.ambient_c <= 100.0))
-      return InvalidInput(fmt::format("simulated cell: ambient {} degC is outside -60..100 degC", *choice.ambient_c));
+      return InvalidInput(fmt::format("simulated cell: ambient {} °C is outside -60..100 °C", *choice.ambient_c));
     params.ambient_c = *choice.ambient_c;
   }
   if (!(choice.fade >= 0.0 && choice.fade <= 0.9))

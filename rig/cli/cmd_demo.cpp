@@ -19,7 +19,7 @@ struct DemoCliOptions {
 };
 
 // Redraws one line on a terminal: "[#####.....]  42 %  2 duty cycle". Into a
-// file or a pipe (CI logs, `| tee`) it writes one plain line per part instead.
+// file or a pipe (CI logs, `| tee`) it writes one plain line per plan item instead.
 class ProgressLine {
  public:
   void Update(double fraction, const std::string& label) {
@@ -52,7 +52,7 @@ class ProgressLine {
 };
 
 int RunDemo(const DemoCliOptions& opt) {
-  std::cout << "Kneepoint demo: a field-sensor-node team qualifies a Li-ion cell on the simulated bench\n"
+  std::cout << "Kneepoint demo: qualification plan for LN-2500 Li-ion cells (an invented cell) on the simulated bench\n"
                "(virtual time, no hardware touched).\n\n"
             << SafetyCautions() << "\n";
   ProgressLine progress;

@@ -162,7 +162,7 @@ int RunRun(const RunCmdOptions& opt) {
     if (!sim_cell_noted) sim_cell_noted = NoteSimCell(**store, *plan, cell, sim_choice);
     if (r.t_s < next_report) return;
     next_report = r.t_s + opt.progress_s;
-    std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} degC  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
+    std::cout << fmt::format("  {}  {:.3f} V  {:+.3f} A  {:.1f} °C  {:.1f} mAh\n", FormatDuration(r.t_s), r.voltage_v,
                              r.current_a, r.temperature_c, mah)
               << std::flush;
   };

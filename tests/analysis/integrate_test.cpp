@@ -106,8 +106,8 @@ TEST(Integrate, GapsAreFlaggedOnlyWhereSpacingJumps) {
 }
 
 // A 10 % duty 1 A pulse train sampled once per period, always inside the
-// pulse: a sample trapezoid reads 1 A against a true 0.1 A average (see the
-// shared references, "Sampling and charge counting", derived). Per-segment
+// pulse: a sample trapezoid reads 1 A against a true 0.1 A average (aliasing
+// of a commensurate sampling rate; derived). Per-segment
 // integration uses the commanded segments and gets it right.
 TEST(Integrate, PerSegmentIntegrationHandlesSparseSamples) {
   std::vector<CommandedSegment> segs;

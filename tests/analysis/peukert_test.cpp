@@ -10,8 +10,8 @@
 namespace kp {
 namespace {
 
-// Peukert (Elektrotechnische Zeitschrift, 1897): C_p = I^k · t. Worked value
-// from the shared references (text + derived): C_p = 100, k = 1.2, I = 5 A
+// Peukert (Elektrotechnische Zeitschrift, 1897): C_p = I^k · t (text). Worked
+// value derived from that form: C_p = 100, k = 1.2, I = 5 A
 // gives t = 100 / 5^1.2 = 14.4956 h.
 TEST(Peukert, PublishedWorkedValue) {
   PeukertFit f;
@@ -31,7 +31,8 @@ TEST(Peukert, RecoversAKnownExponentFromExactData) {
   EXPECT_NEAR(r.fit->r_squared, 1.0, 1e-12);
   EXPECT_EQ(r.fit->points, 5u);
   // The normalised form t = H (C / (I H))^k with C = 100 Ah, H = 20 h, k = 1.2
-  // gives 8.7055 h at 10 A (shared references, derived): C_p = C^k H^(1-k).
+  // gives 8.7055 h at 10 A (derived from Peukert's form, whose normalised
+  // version is recalled, from memory): C_p = C^k H^(1-k).
   std::vector<RatePoint> norm;
   for (double i : {2.0, 5.0, 20.0}) norm.push_back({i, 20.0 * std::pow(100.0 / (i * 20.0), 1.2)});
   PeukertOutcome n = FitPeukert(norm);

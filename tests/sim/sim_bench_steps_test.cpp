@@ -44,7 +44,7 @@ TEST(SimBenchSteps, LongStepsAgreeWithShortOnes) {
 }
 
 // A month (30.44 days) on the shelf through the bench: self-discharge as the file says
-// (2.5 %/month for the demo cell; Li-ion 2-3 %/month, shared references,
+// (2.5 %/month for the demo cell; Li-ion 2-3 %/month, cell makers' datasheets,
 // secondary), and the voltage read afterwards reflects it.
 TEST(SimBenchSteps, MonthOnTheShelf) {
   Bench b(sim::DemoLiIonCell());
