@@ -92,6 +92,35 @@ std::string StopSignalReason(int signo) {
   }
 }
 
+namespace {
+
+double ParseOptionQuantity(const std::string& name, const std::string& text, Dimension dim, double lo, double hi) {
+  ParsedQuantity q = ParseQuantityText(text, dim, name);
+  if (!q.value) throw CLI::ValidationError(name, q.error);
+  if (*q.value < lo || *q.value > hi)
+    throw CLI::ValidationError(name, fmt::format("'{}' is outside {} .. {}", text, FormatQuantity(lo, dim),
+                                                 FormatQuantity(hi, dim)));
+  return *q.value;
+}
+
+}  // namespace
+
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, double& out, Dimension dim, const std::string& help,
+                               double lo, double hi) {
+  CLI::Option* o = app->add_option_function<std::string>(
+      name, [&out, name, dim, lo, hi](const std::string& text) { out = ParseOptionQuantity(name, text, dim, lo, hi); },
+      fmt::format("{} ({})", help, UnitsOf(dim)));
+  o->default_str(FormatQuantity(out, dim));
+  return o;
+}
+
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, std::optional<double>& out, Dimension dim,
+                               const std::string& help, double lo, double hi) {
+  return app->add_option_function<std::string>(
+      name, [&out, name, dim, lo, hi](const std::string& text) { out = ParseOptionQuantity(name, text, dim, lo, hi); },
+      fmt::format("{} ({})", help, UnitsOf(dim)));
+}
+
 std::string FormatDuration(double seconds) {
   long s = std::lround(seconds);
   return fmt::format("{}:{:02}:{:02}", s / 3600, (s / 60) % 60, s % 60);

@@ -55,7 +55,7 @@ void RegisterCheck(CliRegistry& r) {
   CLI::App* c =
       r.Add("check", "Validate a procedure file and print the expanded plan with estimates", [] { return RunCheck(opt); });
   c->add_option("file", opt.file, "Procedure file")->required();
-  c->add_option("--min-sample", opt.min_sample_s, "Fastest full reading of the intended rig, in seconds")->capture_default_str();
+  AddQuantityOption(c, "--min-sample", opt.min_sample_s, Dimension::kTime, "Fastest full reading of the intended rig", 1e-6, 3600.0);
   c->add_option("--soc", opt.soc, "The cell's state of charge at the start, 40% or 0.4, for the estimates (default: full)");
 }
 

@@ -450,7 +450,7 @@ TEST(FaultMatrix, SigtermEndsKneepointRunAsAbortedWithTheLogIntact) {
   pid_t pid = fork();
   if (pid == 0) {
     std::vector<std::string> args = {"kneepoint", "run", proc, "--rig", "sim", "--db", db, "--cell", "term-cell",
-                                     "--speed", "500", "--progress", "100000"};
+                                     "--speed", "500", "--progress", "100000s"};
     std::vector<char*> argv;
     for (std::string& a : args) argv.push_back(a.data());
     _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));

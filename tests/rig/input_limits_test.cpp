@@ -7,10 +7,10 @@
 #include <fstream>
 #include <string>
 
-#include "analysis/quantity.h"
 #include "drivers/profile.h"
 #include "drivers/text_limits.h"
 #include "procedures/procedure_parser.h"
+#include "procedures/units.h"
 #include "rig/cli/procedure_file.h"
 #include "rig/rig_file.h"
 #include "tests/support/test_support.h"
@@ -107,25 +107,25 @@ TEST(InputLimits, RigFileAndProfileRefuseOverlongLinesAndOversizedFiles) {
 TEST(InputLimits, CommandLineQuantitiesRefuseNanInfinityAndAbsurdValuesWithColumn) {
   struct Case {
     const char* text;
-    QuantityKind kind;
+    Dimension kind;
     const char* message;
   };
   const Case cases[] = {
-      {"1e308A", QuantityKind::kCurrent, "out of range"},   {"20000A", QuantityKind::kCurrent, "out of range"},
-      {"nanA", QuantityKind::kCurrent, "not a finite"},     {" nan", QuantityKind::kFraction, "not a finite"},
-      {"infs", QuantityKind::kDuration, "not a finite"},    {"inf", QuantityKind::kFraction, "not a finite"},
-      {"-5s", QuantityKind::kDuration, "must not be negative"}, {"-2mAh", QuantityKind::kCharge, "must not be negative"},
-      {"1e400mAh", QuantityKind::kCharge, "does not start with a number"},
+      {"1e308A", Dimension::kCurrent, "out of range"},   {"20000A", Dimension::kCurrent, "out of range"},
+      {"nanA", Dimension::kCurrent, "not a finite"},     {" nan", Dimension::kFraction, "not a finite"},
+      {"infs", Dimension::kTime, "not a finite"},    {"inf", Dimension::kFraction, "not a finite"},
+      {"-5s", Dimension::kTime, "must not be negative"}, {"-2mAh", Dimension::kCharge, "must not be negative"},
+      {"1e400mAh", Dimension::kCharge, "not a finite"},
   };
   for (const Case& c : cases) {
-    ParsedQuantity q = ParseQuantity(c.text, c.kind);
+    ParsedQuantity q = ParseQuantityText(c.text, c.kind);
     EXPECT_FALSE(q.value.has_value()) << c.text;
     EXPECT_NE(q.error.find(c.message), std::string::npos) << c.text << ": " << q.error;
     EXPECT_GE(q.error_column, 1u) << c.text;
   }
-  EXPECT_EQ(ParseQuantity(" nan", QuantityKind::kFraction).error_column, 2u);
-  ASSERT_TRUE(ParseQuantity("9999A", QuantityKind::kCurrent).value.has_value());
-  EXPECT_EQ(*ParseQuantity("250mA", QuantityKind::kCurrent).value, 0.25);
+  EXPECT_EQ(ParseQuantityText(" nan", Dimension::kFraction).error_column, 2u);
+  ASSERT_TRUE(ParseQuantityText("9999A", Dimension::kCurrent).value.has_value());
+  EXPECT_EQ(*ParseQuantityText("250mA", Dimension::kCurrent).value, 0.25);
 }
 
 }  // namespace
