@@ -163,8 +163,13 @@ UnitLookup LookUpUnit(std::string_view u) {
     std::string_view rest = u.substr(1);
     for (const Spelling& s : kBases)
       if (rest == s.text) {
-        r.error = fmt::format("'{}' would be mega-{}: Kneepoint has no mega prefix; write m{} for milli", u,
-                              DimensionName(s.dimension), s.text);
+        const char* names = s.dimension == Dimension::kCurrent      ? "amperes"
+                            : s.dimension == Dimension::kPower      ? "watts"
+                            : s.dimension == Dimension::kResistance ? "ohms"
+                            : s.dimension == Dimension::kVoltage    ? "volts"
+                            : s.dimension == Dimension::kCharge     ? "ampere-hours"
+                                                                    : "watt-hours";
+        r.error = fmt::format("'{}' would be mega-{}: Kneepoint has no mega prefix; write m{} for milli", u, names, s.text);
         return r;
       }
   }
@@ -261,7 +266,8 @@ ScannedQuantity ScanQuantity(std::string_view text, size_t pos) {
     while (sp < n && (text[sp] == ' ' || text[sp] == '\t')) ++sp;
     size_t e = sp;
     while (e < n && IsUnitByte(static_cast<unsigned char>(text[e]))) ++e;
-    if (sp > i && e > sp && LookUpUnit(text.substr(sp, e - sp)).info) {
+    UnitLookup after = e > sp ? LookUpUnit(text.substr(sp, e - sp)) : UnitLookup{};
+    if (sp > i && e > sp && (after.info || !after.error.empty())) {
       q.unit = std::string(text.substr(sp, e - sp));
       i = e;
     }

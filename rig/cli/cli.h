@@ -41,6 +41,10 @@ using Registrar = void (*)(CliRegistry&);
 
 int RunCli(int argc, char** argv, std::span<const Registrar> extra = {});
 
+// "unknown command 'reprot': did you mean 'report'?" (or an option of the
+// chosen command), for a command line CLI11 refused; "" when nothing is close.
+std::string SuggestForCommandLine(CLI::App& app, const std::vector<std::string>& args);
+
 // Prints "kneepoint: <message>" to stderr and returns the exit status for it.
 int Fail(const Status& status);
 int ExitCodeFor(const Status& status);
