@@ -85,13 +85,13 @@ TEST(InputLimits, RigFileRefusesOutOfRangeNumbersNamingFileLineAndKey) {
 TEST(InputLimits, RigFileAndProfileRefuseOverlongLinesAndOversizedFiles) {
   std::string rig_long = RigError("# " + std::string(kMaxTextLineBytes, 'x'));
   EXPECT_NE(rig_long.find("limits.toml:3:4097: line is"), std::string::npos) << rig_long;
-  auto p = ParseProfile("roles = load\ndescription = " + std::string(kMaxTextLineBytes, 'x') + "\n", "limits.kpp");
+  auto p = ParseProfile("roles = [\"load\"]\ndescription = \"" + std::string(kMaxTextLineBytes, 'x') + "\"\n", "limits.kpd");
   ASSERT_FALSE(p.ok());
-  EXPECT_NE(p.status().message().find("limits.kpp:2:4097: line is"), std::string::npos) << p.status().message();
+  EXPECT_NE(p.status().message().find("limits.kpd:2:4097: line is"), std::string::npos) << p.status().message();
 
   testing::TempDir dir;
   const std::string rig_path = dir.File("big.toml");
-  const std::string prof_path = dir.File("big.kpp");
+  const std::string prof_path = dir.File("big.kpd");
   for (const std::string& path : {rig_path, prof_path}) {
     std::ofstream out(path);
     for (size_t i = 0; i < kMaxTextFileBytes / 64 + 1; ++i) out << "# " << std::string(62, 'x') << "\n";
@@ -101,7 +101,7 @@ TEST(InputLimits, RigFileAndProfileRefuseOverlongLinesAndOversizedFiles) {
   EXPECT_NE(r.status().message().find(rig_path + ":1:1: rig file is"), std::string::npos) << r.status().message();
   auto pf = LoadProfileFile(prof_path);
   ASSERT_FALSE(pf.ok());
-  EXPECT_NE(pf.status().message().find(prof_path + ":1:1: profile is"), std::string::npos) << pf.status().message();
+  EXPECT_NE(pf.status().message().find(prof_path + ":1:1: dialect is"), std::string::npos) << pf.status().message();
 }
 
 TEST(InputLimits, CommandLineQuantitiesRefuseNanInfinityAndAbsurdValuesWithColumn) {
