@@ -411,3 +411,38 @@ TEST(Library, NewSpellingsGiveTheSamePlans) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// Every example in procedures/LANGUAGE.md (the ```text blocks) checks clean,
+// without warnings; the cycling example is a 50-pass repeat that fits its
+// own max-time.
+TEST(Language, ExamplesInTheReferenceCheckClean) {
+  std::string doc = ReadText(testing::SourcePath("procedures/LANGUAGE.md"));
+  int examples = 0;
+  bool cycling = false;
+  for (size_t at = doc.find("```text\n"); at != std::string::npos; at = doc.find("```text\n", at + 1)) {
+    size_t begin = at + 8;
+    size_t end = doc.find("```", begin);
+    ASSERT_NE(end, std::string::npos);
+    std::string text = doc.substr(begin, end - begin);
+    ParseOutput p = ParseProcedure(text, "LANGUAGE.md", {});
+    ASSERT_TRUE(p.ok()) << text << "\n" << FormatDiagnostics("LANGUAGE.md", p.errors);
+    EXPECT_TRUE(p.warnings.empty()) << text;
+    PlanEstimate e = EstimatePlan(p.plan);
+    EXPECT_TRUE(e.complete) << text;
+    EXPECT_LE(e.total_s, p.plan.limits.max_total_s) << text;
+    if (p.plan.loops.size() == 1 && p.plan.loops[0].count == 50) {
+      cycling = true;
+      EXPECT_EQ(p.plan.steps.front().kind, StepKind::kCharge);
+      EXPECT_EQ(e.steps.front().executions, 50);
+    }
+    ++examples;
+  }
+  EXPECT_GE(examples, 2);
+  EXPECT_TRUE(cycling) << "the cycling example is gone from LANGUAGE.md";
+}
+
+}  // namespace
+}  // namespace kp
