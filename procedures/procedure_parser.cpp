@@ -264,7 +264,10 @@ class Parser {
         Fail(t, fmt::format("C-rate '{}' needs the rated capacity: put the 'cell' line first", t.text));
       Fail(t, fmt::format("'{}' of rated capacity needs the 'cell' line first", t.text));
     }
-    if (needs_cell && !(plan_.cell.rated_mah > 0)) throw LineSkipped{};  // the cell line has its error
+    if (needs_cell && !(plan_.cell.rated_mah > 0)) {
+      if (cell_rejected_) throw LineSkipped{};  // the cell line has its error
+      Fail(t, fmt::format("'{}' needs the rated capacity, which is not known here: write it in mAh or Ah", t.text));
+    }
     ScannedQuantity q;
     q.number = t.num;
     q.unit = t.unit;
@@ -471,7 +474,7 @@ class Parser {
       try {
         CellLine(kw);
       } catch (...) {
-        header_rejected_ = true;
+        header_rejected_ = cell_rejected_ = true;
         throw;
       }
     } else if (k == "safety") {
@@ -830,6 +833,7 @@ class Parser {
   std::map<std::string, int> profiles_line_;
   std::set<std::string> broken_profiles_;  // duty blocks rejected with an error of their own
   bool no_cell_reported_ = false;
+  bool cell_rejected_ = false;
   bool patterns_only_ = false;
   bool header_rejected_ = false;           // the cell or safety line had an error: no checks derived from them
   std::vector<StepSite> sites_;

@@ -6,6 +6,7 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <set>
 #include <sstream>
 
 #include "drivers/spelling.h"
@@ -222,6 +223,10 @@ TEST(Language, NoCascadesFromARejectedLine) {
     EXPECT_EQ(p.errors[0].col, c.col) << c.text << "\n" << Errors(p);
     EXPECT_NE(p.errors[0].message.find(c.message), std::string::npos) << c.text << "\n" << Errors(p);
   }
+  // A C-rate in the cell line itself is its own mistake, not a silent one.
+  ParseOutput self = Parse("cell li-ion rated=10% cutoff=2.75V\nrest 1h\n");
+  ASSERT_EQ(self.errors.size(), 1u) << Errors(self);
+  EXPECT_NE(self.errors[0].message.find("needs the rated capacity"), std::string::npos) << Errors(self);
   // Two real mistakes are still two errors.
   ParseOutput two = Parse(H + "rest 1h evry=1s\ndischarge 1A until tmie>=1h\n");
   EXPECT_EQ(two.errors.size(), 2u) << Errors(two);
@@ -442,6 +447,28 @@ TEST(Language, ExamplesInTheReferenceCheckClean) {
   }
   EXPECT_GE(examples, 2);
   EXPECT_TRUE(cycling) << "the cycling example is gone from LANGUAGE.md";
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+// The fuzz seeds of this edition are what they claim: the spellings and the
+// duty/play files check clean, the file of slips gives one error per line.
+TEST(Language, FuzzSeedsOfTheNewSyntax) {
+  const std::filesystem::path dir = testing::SourcePath("tests/fuzz/corpus/procedure");
+  for (const char* name : {"notebook-spellings.kpp", "duty-play.kpp", "cycling.kpp"}) {
+    ParseOutput p = ParseProcedure(ReadText(dir / name), name, {});
+    EXPECT_TRUE(p.ok()) << name << "\n" << FormatDiagnostics(name, p.errors);
+  }
+  std::string slips = ReadText(dir / "slips.kpp");
+  ParseOutput p = ParseProcedure(slips, "slips", {});
+  std::set<int> lines;
+  for (const Diagnostic& d : p.errors) EXPECT_TRUE(lines.insert(d.line).second) << "two errors on line " << d.line << "\n"
+                                                                                  << FormatDiagnostics("slips.kpp", p.errors);
+  EXPECT_GE(p.errors.size(), 8u) << FormatDiagnostics("slips.kpp", p.errors);
 }
 
 }  // namespace
