@@ -266,7 +266,10 @@ ScannedQuantity ScanQuantity(std::string_view text, size_t pos) {
     while (sp < n && (text[sp] == ' ' || text[sp] == '\t')) ++sp;
     size_t e = sp;
     while (e < n && IsUnitByte(static_cast<unsigned char>(text[e]))) ++e;
-    UnitLookup after = e > sp ? LookUpUnit(text.substr(sp, e - sp)) : UnitLookup{};
+    // Only a whole word: "1 min-voltage=" is a bare 1 and the next option.
+    bool whole_word = e == n || !(std::isalnum(static_cast<unsigned char>(text[e])) != 0 || text[e] == '-' ||
+                                  text[e] == '_' || text[e] == '.');
+    UnitLookup after = e > sp && whole_word ? LookUpUnit(text.substr(sp, e - sp)) : UnitLookup{};
     if (sp > i && e > sp && (after.info || !after.error.empty())) {
       q.unit = std::string(text.substr(sp, e - sp));
       i = e;

@@ -136,6 +136,7 @@ TEST(UnitText, RejectedSpellingsSayWhatToWrite) {
       {"2%/week", Dimension::kRatePerMonth, "unknown period 'week'"},
       {"2%/mnth", Dimension::kRatePerMonth, "did you mean 'month'?"},
       {"5 s s", Dimension::kTime, "unexpected 's' after '5 s'"},
+      {"5 min-x", Dimension::kTime, "unknown unit 'min-x' in '5 min-x'"},
       {"", Dimension::kTime, "is empty"},
   };
   for (const Rejected& c : cases) {
