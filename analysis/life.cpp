@@ -5,7 +5,6 @@
 #include <algorithm>
 #include <charconv>
 
-#include "analysis/quantity.h"
 
 namespace kp {
 
@@ -40,73 +39,6 @@ double ProfileCycleS(const DutyProfile& p) {
   return t;
 }
 
-namespace {
-
-// Splits a line into words with their 1-based columns.
-std::vector<std::pair<std::string_view, size_t>> Words(std::string_view line) {
-  std::vector<std::pair<std::string_view, size_t>> w;
-  size_t i = 0;
-  while (i < line.size()) {
-    while (i < line.size() && (line[i] == ' ' || line[i] == '\t' || line[i] == '\r')) ++i;
-    size_t b = i;
-    while (i < line.size() && line[i] != ' ' && line[i] != '\t' && line[i] != '\r') ++i;
-    if (i > b) w.emplace_back(line.substr(b, i - b), b + 1);
-  }
-  return w;
-}
-
-}  // namespace
-
-ProfileParse ParseDutyProfile(std::string_view text) {
-  ProfileParse r;
-  DutyProfile p;
-  size_t line_no = 0;
-  size_t pos = 0;
-  auto fail = [&](size_t col, const std::string& msg) {
-    r.error = fmt::format("{}:{}: {}", line_no, col, msg);
-    return r;
-  };
-  while (pos <= text.size()) {
-    size_t nl = text.find('\n', pos);
-    std::string_view line = text.substr(pos, nl == std::string_view::npos ? std::string_view::npos : nl - pos);
-    pos = nl == std::string_view::npos ? text.size() + 1 : nl + 1;
-    ++line_no;
-    if (size_t hash = line.find('#'); hash != std::string_view::npos) line = line.substr(0, hash);
-    auto w = Words(line);
-    if (w.empty()) continue;
-    if (w[0].first == "compress") {
-      if (w.size() != 2) return fail(w[0].second, "expected 'compress <factor>'");
-      double f = 0;
-      auto [ptr, ec] = std::from_chars(w[1].first.data(), w[1].first.data() + w[1].first.size(), f);
-      if (ec != std::errc() || ptr != w[1].first.data() + w[1].first.size() || !(f >= 1.0))
-        return fail(w[1].second, fmt::format("compression factor '{}' must be a number >= 1", w[1].first));
-      p.compression_factor = f;
-      continue;
-    }
-    if (w.size() < 3 || w[1].first != "for")
-      return fail(w[0].second, "expected '<current> for <duration> [compressed]' or 'compress <factor>'");
-    ProfileLevel l;
-    ParsedQuantity i = ParseQuantity(w[0].first, QuantityKind::kCurrent);
-    if (!i.value) return fail(w[0].second + i.error_column - 1, i.error);
-    ParsedQuantity d = ParseQuantity(w[2].first, QuantityKind::kDuration);
-    if (!d.value) return fail(w[2].second + d.error_column - 1, d.error);
-    if (!(*d.value > 0)) return fail(w[2].second, "duration must be > 0");
-    l.current_a = *i.value;
-    l.duration_s = *d.value;
-    if (w.size() >= 4) {
-      if (w[3].first != "compressed" || w.size() > 4)
-        return fail(w[3].second, fmt::format("unexpected '{}' (only 'compressed' may follow the duration)", w[3].first));
-      l.compressed = true;
-    }
-    p.levels.push_back(l);
-  }
-  if (p.levels.empty()) {
-    r.error = fmt::format("{}:1: the profile has no levels", line_no);
-    return r;
-  }
-  r.profile = std::move(p);
-  return r;
-}
 
 LifeOutcome ProjectLife(const LifeInputs& in) {
   LifeOutcome out;

@@ -43,15 +43,9 @@ double ProfileTestAverageCurrentA(const DutyProfile& profile);
 double ProfilePeakCurrentA(const DutyProfile& profile);
 double ProfileCycleS(const DutyProfile& profile);
 
-// Profile text (one level per line, '#' starts a comment):
-//   <current> for <duration> [compressed]
-//   compress <factor>
-// e.g. "8uA for 599.5s compressed" / "25mA for 0.5s" / "compress 100".
-struct ProfileParse {
-  std::optional<DutyProfile> profile;
-  std::string error;  // "line:col: message"
-};
-ProfileParse ParseDutyProfile(std::string_view text);
+// A duty profile is written only as a procedure's `duty` block
+// (procedures/LANGUAGE.md); `kneepoint life --duty` reads it there and fills
+// this struct.
 
 struct LifeInputs {
   double capacity_mah = 0.0;

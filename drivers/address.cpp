@@ -1,5 +1,6 @@
 #include "drivers/address.h"
 
+#include <cctype>
 #include <charconv>
 
 #include <fmt/format.h>
@@ -7,7 +8,9 @@
 namespace kp {
 namespace {
 
-constexpr const char* kForms = "expected tcp:HOST:PORT, serial:PATH?baud=N&parity=none&data=8&stop=1&flow=none&eol=lf, or pty";
+constexpr const char* kForms =
+    "expected tcp:HOST:PORT (or HOST:PORT; IPv6 as tcp:[::1]:5025), serial:PATH?baud=N&parity=none&data=8&stop=1&flow=none&eol=lf "
+    "(or a bare device path such as /dev/ttyUSB0), or pty";
 
 Result<int> ParseInt(std::string_view text, std::string_view what, const std::string& address) {
   int v = 0;
@@ -69,12 +72,60 @@ Status ParseQuery(std::string_view query, Address& a) {
   return Status::Ok();
 }
 
+
+std::string HostForAddress(const std::string& host) {
+  return host.find(':') != std::string::npos ? "[" + host + "]" : host;
+}
+
+// HOST:PORT with HOST a name, an IPv4 address or an IPv6 literal in brackets.
+Status ParseHostPort(std::string_view rest, std::string_view text, Address& a) {
+  std::string_view port_text;
+  if (rest.starts_with("[")) {
+    size_t close = rest.find(']');
+    if (close == std::string_view::npos)
+      return InvalidInput(fmt::format("address '{}': IPv6 literal without its closing ']' (as in tcp:[::1]:5025)", text));
+    a.host = std::string(rest.substr(1, close - 1));
+    if (a.host.empty()) return InvalidInput(fmt::format("address '{}': empty host between '[' and ']'", text));
+    if (close + 1 >= rest.size() || rest[close + 1] != ':')
+      return InvalidInput(fmt::format("address '{}': expected ':PORT' after ']' (as in tcp:[::1]:5025)", text));
+    port_text = rest.substr(close + 2);
+  } else {
+    size_t colon = rest.rfind(':');
+    if (colon == std::string_view::npos || colon == 0)
+      return InvalidInput(fmt::format("address '{}': {}", text, kForms));
+    a.host = std::string(rest.substr(0, colon));
+    if (a.host.find(':') != std::string::npos)
+      return InvalidInput(fmt::format("address '{}': an IPv6 address goes in brackets, as in tcp:[{}]:{}", text, a.host,
+                                      rest.substr(colon + 1)));
+    port_text = rest.substr(colon + 1);
+  }
+  KP_ASSIGN_OR_RETURN(a.port, ParseInt(port_text, "port", a.text));
+  if (a.port < 0 || a.port > 65535) return InvalidInput(fmt::format("address '{}': port must be 0..65535", text));
+  return Status::Ok();
+}
+
+// "host:5025" (a name or IPv4 address and a port, nothing else): TCP.
+bool LooksLikeHostPort(std::string_view head) {
+  if (head.starts_with("[")) return head.find("]:") != std::string_view::npos;
+  size_t colon = head.rfind(':');
+  if (colon == std::string_view::npos || colon == 0 || colon + 1 == head.size()) return false;
+  for (char c : head.substr(colon + 1))
+    if (c < '0' || c > '9') return false;
+  for (char c : head.substr(0, colon))
+    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '.' || c == '-' || c == '_')) return false;
+  return true;
+}
+
 }  // namespace
 
 std::string EolName(const std::string& eol) {
   if (eol == "\r\n") return "crlf";
   if (eol == "\r") return "cr";
   return "lf";
+}
+
+std::string FormatTcpAddress(const std::string& host, int port) {
+  return fmt::format("tcp:{}:{}", HostForAddress(host), port);
 }
 
 Result<Address> ParseAddress(std::string_view text) {
@@ -87,17 +138,18 @@ Result<Address> ParseAddress(std::string_view text) {
     a.kind = Address::Kind::kPty;
   } else if (head.starts_with("tcp:")) {
     a.kind = Address::Kind::kTcp;
-    std::string_view rest = head.substr(4);
-    size_t colon = rest.rfind(':');
-    if (colon == std::string_view::npos || colon == 0)
-      return InvalidInput(fmt::format("address '{}': {}", text, kForms));
-    a.host = std::string(rest.substr(0, colon));
-    KP_ASSIGN_OR_RETURN(a.port, ParseInt(rest.substr(colon + 1), "port", a.text));
-    if (a.port < 0 || a.port > 65535) return InvalidInput(fmt::format("address '{}': port must be 0..65535", text));
+    KP_RETURN_IF_ERROR(ParseHostPort(head.substr(4), text, a));
   } else if (head.starts_with("serial:")) {
     a.kind = Address::Kind::kSerial;
     a.path = std::string(head.substr(7));
     if (a.path.empty()) return InvalidInput(fmt::format("address '{}': serial needs a device path", text));
+  } else if (head.starts_with("/")) {
+    // A bare device path: a serial port with the default settings.
+    a.kind = Address::Kind::kSerial;
+    a.path = std::string(head);
+  } else if (LooksLikeHostPort(head)) {
+    a.kind = Address::Kind::kTcp;
+    KP_RETURN_IF_ERROR(ParseHostPort(head, text, a));
   } else {
     return InvalidInput(fmt::format("address '{}': {}", text, kForms));
   }

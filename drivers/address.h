@@ -1,14 +1,17 @@
 // Instrument addresses: one syntax everywhere (rig files, `probe`, `sim`).
 //
-//   tcp:HOST:PORT                       raw SCPI socket (instruments usually listen on 5025)
+//   tcp:HOST:PORT                       raw SCPI socket (instruments usually listen on 5025);
+//                                       HOST is a name, an IPv4 address or an IPv6 literal in
+//                                       brackets (tcp:[::1]:5025)
+//   HOST:PORT                           the same without the prefix (a name or IPv4 address and a port)
 //   serial:PATH[?KEY=VALUE&...]         serial port; keys (defaults in brackets):
 //        baud=N [9600]  data=5..8 [8]  parity=none|odd|even [none]  stop=1|2 [1]
 //        flow=none|rtscts|xonxoff [none]
+//   /dev/PATH                           a bare device path: serial with the defaults (options may follow ?)
 //   pty                                 `kneepoint sim` only: serve on new pseudo-terminals
 //
 // Every form also takes `eol=lf|crlf|cr` (line terminator sent and expected,
-// [lf]); tcp takes it as `tcp:HOST:PORT?eol=crlf`. HOST may be a name or an
-// IPv4 address. Paths under /dev/pts/ are opened with POSIX termios directly
+// [lf]); tcp takes it as `tcp:HOST:PORT?eol=crlf`. Paths under /dev/pts/ are opened with POSIX termios directly
 // (libserialport cannot open pseudo-terminals).
 #pragma once
 
@@ -43,6 +46,9 @@ struct Address {
 
 // Parses an address; errors say which part is wrong and list the valid forms.
 Result<Address> ParseAddress(std::string_view text);
+
+// "tcp:HOST:PORT", with an IPv6 host in brackets.
+std::string FormatTcpAddress(const std::string& host, int port);
 
 // Name of a terminator for messages: "lf", "crlf", "cr".
 std::string EolName(const std::string& eol);

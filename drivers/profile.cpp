@@ -11,6 +11,9 @@
 #include <sstream>
 
 #include <fmt/format.h>
+#include <toml++/toml.h>
+
+#include "drivers/spelling.h"
 
 #include "drivers/text_limits.h"
 
@@ -93,92 +96,137 @@ bool InstrumentProfile::HasRole(std::string_view role) const {
   return std::find(roles.begin(), roles.end(), role) != roles.end();
 }
 
+namespace {
+
+// The older `key = text` dialect files (".kpp" before dialects became TOML).
+bool LooksLikeOlderDialect(std::string_view text) {
+  std::istringstream in{std::string(text)};
+  std::string raw;
+  while (std::getline(in, raw)) {
+    std::string_view line = Trim(raw);
+    if (line.empty() || line.front() == '#') continue;
+    return line.starts_with("roles") && line.find('[') == std::string_view::npos;
+  }
+  return false;
+}
+
+int LineOf(const toml::node* n) { return n != nullptr ? static_cast<int>(n->source().begin.line) : 1; }
+
+}  // namespace
+
 Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string& file) {
   KP_RETURN_IF_ERROR(CheckTextLimits(text, file));
   InstrumentProfile p;
   p.file = file;
-  // Start from empty commands: a profile says everything it supports.
+  // Start from empty commands: a dialect says everything it supports.
   ForEachCommand(p, [](std::string& c) { c.clear(); });
-  std::map<std::string, int> seen;
-  int roles_line = 0;
-  std::istringstream in{std::string(text)};
-  std::string raw;
-  int line_no = 0;
-  while (std::getline(in, raw)) {
-    ++line_no;
-    std::string_view line = Trim(raw);
-    if (line.empty() || line.front() == '#') continue;
-    auto where = [&](const std::string& key) { return fmt::format("{}:{}: {}", file, line_no, key.empty() ? "" : "key '" + key + "': "); };
-    size_t eq = line.find('=');
-    if (eq == std::string_view::npos)
-      return InvalidInput(fmt::format("{}expected 'key = value', got '{}'", where(""), line));
-    std::string key(Trim(line.substr(0, eq)));
-    std::string value(Trim(line.substr(eq + 1)));
-    if (key.empty()) return InvalidInput(fmt::format("{}missing key before '='", where("")));
-    if (auto it = seen.find(key); it != seen.end())
-      return InvalidInput(fmt::format("{}repeated (first set on line {})", where(key), it->second));
-    seen[key] = line_no;
-    if (key == "roles") {
-      roles_line = line_no;
-      std::string_view rest = value;
-      while (!rest.empty()) {
-        size_t comma = rest.find(',');
-        std::string role(Trim(rest.substr(0, comma)));
-        rest = comma == std::string_view::npos ? std::string_view() : rest.substr(comma + 1);
-        if (!Required().count(role))
-          return InvalidInput(fmt::format("{}unknown role '{}' (load, meter, thermometer, supply)", where(key), role));
-        p.roles.push_back(role);
-      }
-      if (p.roles.empty()) return InvalidInput(fmt::format("{}lists no role", where(key)));
-      continue;
-    }
-    if (roles_line == 0) return InvalidInput(fmt::format("{}the first key must be 'roles'", where(key)));
-    if (key == "description") {
-      p.description = value;
-      continue;
-    }
-    if (key == "identity") {
-      if (value.empty()) return InvalidInput(fmt::format("{}empty pattern (use * to accept any)", where(key)));
-      p.identity = value;
-      continue;
-    }
-    auto it = Keys().find(key);
-    if (it == Keys().end()) return InvalidInput(fmt::format("{}unknown key", where(key)));
-    const KeySpec& spec = it->second;
-    if (!p.HasRole(spec.role))
-      return InvalidInput(fmt::format("{}belongs to role '{}', which this profile's roles do not list", where(key), spec.role));
-    if (value.empty()) return InvalidInput(fmt::format("{}empty value (write 'none' if the instrument cannot do it)", where(key)));
-    if (value == "none") continue;
-    if (spec.arg == Arg::kNumber && value.find("{}") == std::string::npos)
-      return InvalidInput(fmt::format("{}'{}' needs {{}} where the number goes", where(key), value));
-    if (spec.arg != Arg::kNumber && value.find("{}") != std::string::npos)
-      return InvalidInput(fmt::format("{}'{}' takes no number; remove {{}}", where(key), value));
-    if (spec.arg == Arg::kQuery && value.find('?') == std::string::npos)
-      return InvalidInput(fmt::format("{}'{}' is a reading and must be a query (with '?')", where(key), value));
-    spec.field(p) = value;
+  toml::table doc;
+  try {
+    doc = toml::parse(text, file);
+  } catch (const toml::parse_error& e) {
+    if (LooksLikeOlderDialect(text))
+      return InvalidInput(fmt::format(
+          "{}:{}: this is an instrument dialect in the older 'key = text' format; dialects are TOML files now (.kpd): "
+          "write roles = [\"load\"], quote every value and put the commands under [commands] (see drivers/profiles/*.kpd)",
+          file, e.source().begin.line));
+    return InvalidInput(fmt::format("{}:{}:{}: {}", file, e.source().begin.line, e.source().begin.column, e.description()));
   }
-  if (roles_line == 0) return InvalidInput(fmt::format("{}:1: no 'roles' key: the profile says nothing", file));
+  auto where = [&](const toml::node* n, const std::string& key) {
+    return fmt::format("{}:{}: key '{}': ", file, LineOf(n), key);
+  };
+  static const std::vector<std::string> kTop = {"format", "roles", "description", "identity", "commands"};
+  for (const auto& [k, v] : doc) {
+    std::string key(k.str());
+    if (std::find(kTop.begin(), kTop.end(), key) == kTop.end()) {
+      std::vector<std::string> commands;
+      for (const auto& [name, spec] : Keys()) commands.push_back(name);
+      if (std::find(commands.begin(), commands.end(), key) != commands.end())
+        return InvalidInput(fmt::format("{}a command belongs under [commands]", where(&v, key)));
+      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, [commands])", where(&v, key),
+                                      DidYouMean(key, kTop)));
+    }
+  }
+  if (const toml::node* f = doc.get("format")) {
+    std::optional<std::string> v = f->value<std::string>();
+    if (!v || *v != "kneepoint-dialect 1")
+      return InvalidInput(fmt::format("{}must be \"kneepoint-dialect 1\"", where(f, "format")));
+  }
+  const toml::node* roles = doc.get("roles");
+  if (roles == nullptr) return InvalidInput(fmt::format("{}:1: no 'roles' key: the dialect says nothing", file));
+  const toml::array* role_list = roles->as_array();
+  if (role_list == nullptr)
+    return InvalidInput(fmt::format("{}a list of roles, as in roles = [\"load\"]", where(roles, "roles")));
+  for (const toml::node& r : *role_list) {
+    std::optional<std::string> role = r.value<std::string>();
+    if (!role) return InvalidInput(fmt::format("{}every role is a quoted word", where(&r, "roles")));
+    if (!Required().count(*role))
+      return InvalidInput(fmt::format("{}unknown role '{}'{} (load, meter, thermometer, supply)", where(&r, "roles"), *role,
+                                      DidYouMean(*role, {"load", "meter", "thermometer", "supply"})));
+    p.roles.push_back(*role);
+  }
+  if (p.roles.empty()) return InvalidInput(fmt::format("{}lists no role", where(roles, "roles")));
+  for (const char* key : {"description", "identity"}) {
+    const toml::node* n = doc.get(key);
+    if (n == nullptr) continue;
+    std::optional<std::string> v = n->value<std::string>();
+    if (!v) return InvalidInput(fmt::format("{}must be a quoted text", where(n, key)));
+    if (std::string_view(key) == "description") {
+      p.description = *v;
+    } else {
+      if (v->empty()) return InvalidInput(fmt::format("{}empty pattern (use \"*\" to accept any)", where(n, key)));
+      p.identity = *v;
+    }
+  }
+  if (const toml::node* cn = doc.get("commands")) {
+    const toml::table* commands = cn->as_table();
+    if (commands == nullptr) return InvalidInput(fmt::format("{}must be the [commands] table", where(cn, "commands")));
+    std::vector<std::string> known;
+    for (const auto& [name, spec] : Keys()) known.push_back(name);
+    for (const auto& [k, v] : *commands) {
+      std::string key(k.str());
+      auto it = Keys().find(key);
+      if (it == Keys().end()) return InvalidInput(fmt::format("{}unknown key{}", where(&v, key), DidYouMean(key, known)));
+      const KeySpec& spec = it->second;
+      if (!p.HasRole(spec.role))
+        return InvalidInput(
+            fmt::format("{}belongs to role '{}', which this dialect's roles do not list", where(&v, key), spec.role));
+      std::optional<std::string> value = v.value<std::string>();
+      if (!value) return InvalidInput(fmt::format("{}must be the SCPI text in quotes", where(&v, key)));
+      if (value->empty())
+        return InvalidInput(fmt::format("{}empty value (write \"none\" if the instrument cannot do it)", where(&v, key)));
+      if (*value == "none") continue;
+      if (spec.arg == Arg::kNumber && value->find("{}") == std::string::npos)
+        return InvalidInput(fmt::format("{}'{}' needs {{}} where the number goes", where(&v, key), *value));
+      if (spec.arg != Arg::kNumber && value->find("{}") != std::string::npos)
+        return InvalidInput(fmt::format("{}'{}' takes no number; remove {{}}", where(&v, key), *value));
+      if (spec.arg == Arg::kQuery && value->find('?') == std::string::npos)
+        return InvalidInput(fmt::format("{}'{}' is a reading and must be a query (with '?')", where(&v, key), *value));
+      spec.field(p) = *value;
+    }
+  }
   for (const std::string& role : p.roles) {
     for (const std::string& key : Required().at(role)) {
       if (Keys().at(key).field(p).empty())
-        return InvalidInput(fmt::format("{}:{}: role '{}' needs key '{}'", file, roles_line, role, key));
+        return InvalidInput(fmt::format("{}:{}: role '{}' needs key '{}' under [commands]", file, LineOf(roles), role, key));
     }
   }
   return p;
 }
 
+bool IsDialectPath(std::string_view path) { return path.ends_with(kDialectExtension); }
+
 Result<InstrumentProfile> LoadProfileFile(const std::string& path) {
-  KP_ASSIGN_OR_RETURN(std::string text, ReadLimitedTextFile(path, "profile"));
+  KP_ASSIGN_OR_RETURN(std::string text, ReadLimitedTextFile(path, "dialect"));
   return ParseProfile(text, path);
 }
 
 Result<std::string> FindProfile(const std::string& ref, const std::string& base_dir) {
   namespace fs = std::filesystem;
   std::error_code ec;
-  if (ref.find('/') != std::string::npos || ref.ends_with(".kpp")) {
+  if (ref.find('/') != std::string::npos || ref.ends_with(kDialectExtension) || ref.ends_with(".kpp")) {
     fs::path p(ref);
     if (p.is_relative()) p = fs::path(base_dir) / p;
-    if (!fs::exists(p, ec)) return NotFound(fmt::format("profile file '{}' does not exist", p.string()));
+    if (!fs::exists(p, ec)) return NotFound(fmt::format("dialect file '{}' does not exist", p.string()));
     return p.string();
   }
   std::vector<fs::path> dirs{fs::path(base_dir) / "profiles"};
@@ -193,11 +241,11 @@ Result<std::string> FindProfile(const std::string& ref, const std::string& base_
   dirs.emplace_back(KP_PROFILE_DIR);
   std::string tried;
   for (const auto& d : dirs) {
-    fs::path p = d / (ref + ".kpp");
+    fs::path p = d / (ref + kDialectExtension);
     if (fs::exists(p, ec)) return p.string();
     tried += (tried.empty() ? "" : ", ") + d.string();
   }
-  return NotFound(fmt::format("no profile named '{}' (looked for {}.kpp in {})", ref, ref, tried));
+  return NotFound(fmt::format("no profile named '{}' (looked for {}{} in {})", ref, ref, kDialectExtension, tried));
 }
 
 void ApplyChannel(InstrumentProfile& p, const std::string& channel) {

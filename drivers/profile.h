@@ -1,14 +1,19 @@
-// Instrument profiles: the SCPI dialect of one kind of instrument, read from a
-// small text file so that adding an instrument needs no recompile.
+// Instrument dialects (called profiles in the code and in rig files'
+// `profile` key): the SCPI text of one kind of instrument, read from a small
+// TOML file with the extension ".kpd", so that adding an instrument needs no
+// recompile. See drivers/profiles/*.kpd and DEVELOPERS.md:
 //
-// Format (".kpp", see drivers/profiles/*.kpp and DEVELOPERS.md):
-//   # comment                     blank lines and '#' comments are ignored
-//   roles    = load               first key; comma list of load, meter, thermometer, supply
-//   identity = *LOAD*             glob (* and ?) the *IDN? reply must match, case-insensitive
-//   cc-select = FUNC CURR         one `key = SCPI text` per line
+//   format = "kneepoint-dialect 1"   # optional; the format's version
+//   roles = ["load"]                 # load, meter, thermometer, supply
+//   description = "free text"
+//   identity = "*,MY-LOAD*"          # glob (* and ?) the *IDN? reply must match, case-insensitive
+//   [commands]
+//   cc-select = "FUNC CURR"          # one key per command, the SCPI text in quotes
+//
 // In command text `{}` stands for the number and `{ch}` for the rig file's
-// channel; the value `none` says the instrument cannot do it. Errors name
-// file:line (and the key).
+// channel; "none" (or leaving the key out) says the instrument cannot do it.
+// Lists of commands (a later init/teardown sequence) fit as TOML arrays of
+// strings at the top level. Errors name file:line (and the key).
 #pragma once
 
 #include <string>
@@ -33,13 +38,18 @@ struct InstrumentProfile {
   bool HasRole(std::string_view role) const;
 };
 
-// Parses profile text; `file` is used in messages only.
+// The extension of dialect files.
+inline constexpr const char* kDialectExtension = ".kpd";
+// True for a path ending in kDialectExtension.
+bool IsDialectPath(std::string_view path);
+
+// Parses dialect text; `file` is used in messages only.
 Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string& file);
 // Reads and parses a profile file.
 Result<InstrumentProfile> LoadProfileFile(const std::string& path);
 
-// Resolves a profile reference from a rig file: a path (contains '/' or ends
-// in .kpp, relative to `base_dir`) or a bare name looked up as NAME.kpp in
+// Resolves a dialect reference from a rig file: a path (contains '/' or ends
+// in .kpd, relative to `base_dir`) or a bare name looked up as NAME.kpd in
 // `base_dir`/profiles, each directory of $KNEEPOINT_PROFILES (':'-separated)
 // and the profiles shipped with the sources, in that order.
 Result<std::string> FindProfile(const std::string& ref, const std::string& base_dir);

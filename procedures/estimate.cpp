@@ -63,15 +63,9 @@ double MeanCurrentA(const Step& step, const CellSpec& cell) {
 }
 
 Result<double> ParsePercentOrFraction(std::string_view text, std::string_view option, std::string_view what) {
-  std::string_view t = text;
-  while (!t.empty() && t.back() == ' ') t.remove_suffix(1);
-  const bool percent = !t.empty() && t.back() == '%';
-  if (percent) t.remove_suffix(1);
-  double v = 0.0;
-  auto res = std::from_chars(t.data(), t.data() + t.size(), v);
-  if (t.empty() || res.ec != std::errc() || res.ptr != t.data() + t.size() || !std::isfinite(v))
-    return InvalidInput(fmt::format("{}: '{}' is not a {} (write 40% or 0.4)", option, text, what));
-  if (percent) v /= 100.0;
+  ParsedQuantity q = ParseQuantityText(text, Dimension::kFraction, option);
+  if (!q.value) return InvalidInput(fmt::format("{}: '{}' is not a {}: {} (write 40% or 0.4)", option, text, what, q.error));
+  double v = *q.value;
   if (v < 0.0 || v > 1.0)
     return InvalidInput(fmt::format("{}: '{}' is outside 0..100 % (a plain number is a fraction 0..1: write 40% or 0.4)",
                                     option, text));

@@ -9,8 +9,10 @@
 #include <cstdlib>
 #include <map>
 #include <optional>
+#include <set>
 
 #include "drivers/text_limits.h"
+#include "drivers/spelling.h"
 #include "procedures/units.h"
 
 namespace kp {
@@ -33,10 +35,13 @@ struct LineError {
   int col;
   std::string message;
 };
+// Ends the current line without a diagnostic: what is wrong with it follows
+// from an earlier rejected line (a cell line without a usable rated capacity),
+// which already has its one error.
+struct LineSkipped {};
 
 bool IsWordStart(unsigned char c) { return std::isalpha(c) != 0 || c == '_'; }
 bool IsWordChar(unsigned char c) { return std::isalnum(c) != 0 || c == '_' || c == '-' || c == '.'; }
-bool IsUnitChar(unsigned char c) { return std::isalpha(c) != 0 || c == '%' || c >= 0x80; }
 
 std::vector<Tok> Lex(std::string_view line) {
   std::vector<Tok> out;
@@ -60,25 +65,18 @@ std::vector<Tok> Lex(std::string_view line) {
       i = j;
     } else if (std::isdigit(c) != 0 ||
                ((c == '-' || c == '.') && i + 1 < n && std::isdigit(static_cast<unsigned char>(line[i + 1])) != 0)) {
-      size_t j = i;
-      if (line[j] == '-') ++j;
-      int dots = 0;
-      while (j < n && (std::isdigit(static_cast<unsigned char>(line[j])) != 0 || line[j] == '.')) {
-        if (line[j] == '.') ++dots;
-        ++j;
-      }
-      std::string number(line.substr(i, j - i));
-      if (dots > 1 || number.back() == '.') throw LineError{col, fmt::format("malformed number '{}'", number)};
-      size_t k = j;
-      while (k < n && IsUnitChar(static_cast<unsigned char>(line[k]))) ++k;
+      // The one quantity scanner (procedures/units.h): unit attached or after a
+      // space, compound and h:mm:ss durations.
+      ScannedQuantity q = ScanQuantity(line, i);
+      if (!q.error.empty()) throw LineError{static_cast<int>(q.error_pos) + 1, q.error};
       t.kind = Tok::kNumber;
-      t.text = std::string(line.substr(i, k - i));
-      t.num = std::strtod(number.c_str(), nullptr);
-      t.unit = std::string(line.substr(j, k - j));
+      t.text = q.text;
+      t.num = q.number;
+      t.unit = q.unit;
       // No setting of a bench comes near 1e9 in any unit (1e9 s is 31 years).
       if (!std::isfinite(t.num) || std::abs(t.num) > kMaxNumber)
-        throw LineError{col, fmt::format("number '{}' is out of range (at most {:g})", number, kMaxNumber)};
-      i = k;
+        throw LineError{col, fmt::format("number '{}' is out of range (at most {:g})", q.text, kMaxNumber)};
+      i = q.end;
     } else if (c == '"') {
       size_t j = line.find('"', i + 1);
       if (j == std::string_view::npos) throw LineError{col, "unterminated string: add the closing '\"'"};
@@ -120,7 +118,18 @@ struct Block {
   Loop loop;         // kRepeat
   std::string name;  // kProfile
   std::vector<Segment> segments;
+  bool had_error = false;  // a line inside (or the opening line) was rejected: no follow-on errors
 };
+
+// The words of the language, for "did you mean ...?".
+const std::initializer_list<const char*> kStatements = {"name",  "cell",  "safety", "sample", "rest",   "discharge",
+                                                        "pulse", "duty",  "phase",  "play",   "dcir",   "charge",
+                                                        "repeat", "end"};
+const std::initializer_list<const char*> kConditions = {"voltage", "current", "time", "charge", "energy", "temp"};
+const std::initializer_list<const char*> kStepOptions = {"every", "log-change", "log-gap", "until"};
+const std::initializer_list<const char*> kCellFields = {"rated", "nominal", "max", "cutoff", "max-temp"};
+const std::initializer_list<const char*> kSafetyKeys = {"max-temp",  "min-voltage", "max-voltage", "max-current", "max-time",
+                                                        "max-charge", "when-hot",   "resume-temp", "hard-temp"};
 
 // Where a step's level was written, for checks made after the whole file.
 struct StepSite {
@@ -131,6 +140,15 @@ struct StepSite {
 class Parser {
  public:
   Parser(const std::string& name, const RigLimits& rig) : rig_(rig) { plan_.name = name; }
+
+  // Reads only the duty blocks: a file without a cell line or steps is fine.
+  void PatternsOnly() { patterns_only_ = true; }
+  std::vector<DutyPattern> Patterns() const {
+    std::vector<DutyPattern> out;
+    for (const auto& [name, phases] : profiles_) out.push_back(DutyPattern{name, phases, profiles_line_.at(name)});
+    std::sort(out.begin(), out.end(), [](const DutyPattern& a, const DutyPattern& b) { return a.line < b.line; });
+    return out;
+  }
 
   ParseOutput Run(std::string_view text) {
     if (text.size() > kMaxTextFileBytes) {
@@ -161,6 +179,9 @@ class Parser {
         if (Peek().kind != Tok::kEnd) Statement();
       } catch (const LineError& e) {
         Error(line_no, e.col, e.message);
+        for (Block& b : blocks_) b.had_error = true;
+      } catch (const LineSkipped&) {
+        for (Block& b : blocks_) b.had_error = true;
       }
       if (nl == std::string_view::npos) break;
       pos = nl + 1;
@@ -177,6 +198,14 @@ class Parser {
   void Warn(int line, int col, std::string message) {
     plan_.warnings.push_back(fmt::format("line {}:{}: {}", line, col, message));
     out_.warnings.push_back({line, col, std::move(message)});
+  }
+
+  // "unknown condition 'votlage': did you mean 'voltage'?", or the usage when nothing is close.
+  static std::string Unknown(const char* kind, const std::string& word, std::initializer_list<const char*> known,
+                             const std::string& usage) {
+    std::optional<std::string> close = ClosestWord(word, known);
+    if (close) return fmt::format("unknown {} '{}': did you mean '{}'?", kind, word, *close);
+    return fmt::format("unknown {} '{}': {}", kind, word, usage);
   }
 
   // ---- token helpers ----
@@ -226,21 +255,28 @@ class Parser {
     return Convert(t, want, what);
   }
   double Convert(const Tok& t, Dimension want, const char* what) {
-    if (t.unit.empty()) Fail(t, fmt::format("'{}' has no unit: give {} with a unit ({})", t.text, what, UnitsOf(want)));
-    std::optional<UnitInfo> u = ParseUnit(t.unit);
-    if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
-    if (u->dimension == Dimension::kCRate && want == Dimension::kCurrent) {
-      if (!cell_seen_) Fail(t, fmt::format("C-rate '{}' needs the rated capacity: put the 'cell' line first", t.text));
-      return plan_.cell.CRateToAmps(t.num);
+    if (t.unit.empty()) Fail(t, fmt::format("{} ({} takes {})", BareNumberHint(t.text, want), what, UnitsOf(want)));
+    UnitLookup u = LookUpUnit(t.unit);
+    bool needs_cell = u.info && ((u.info->dimension == Dimension::kCRate && want == Dimension::kCurrent) ||
+                                 (u.info->dimension == Dimension::kPercent && want == Dimension::kCharge));
+    if (needs_cell && !cell_seen_) {
+      if (u.info->dimension == Dimension::kCRate)
+        Fail(t, fmt::format("C-rate '{}' needs the rated capacity: put the 'cell' line first", t.text));
+      Fail(t, fmt::format("'{}' of rated capacity needs the 'cell' line first", t.text));
     }
-    if (u->dimension == Dimension::kPercent && want == Dimension::kCharge) {
-      if (!cell_seen_) Fail(t, fmt::format("'{}' of rated capacity needs the 'cell' line first", t.text));
-      return t.num / 100.0 * plan_.cell.rated_mah;
+    if (needs_cell && !(plan_.cell.rated_mah > 0)) {
+      if (cell_rejected_) throw LineSkipped{};  // the cell line has its error
+      Fail(t, fmt::format("'{}' needs the rated capacity, which is not known here: write it in mAh or Ah", t.text));
     }
-    if (u->dimension != want)
-      Fail(t, fmt::format("{} needs a {} ({}), but '{}' is a {}", what, DimensionName(want), UnitsOf(want), t.text,
-                          DimensionName(u->dimension)));
-    return t.num * u->scale;
+    ScannedQuantity q;
+    q.number = t.num;
+    q.unit = t.unit;
+    q.text = t.text;
+    QuantityContext ctx;
+    if (plan_.cell.rated_mah > 0) ctx.rated_mah = plan_.cell.rated_mah;
+    ConvertedQuantity c = ConvertQuantity(q, want, what, ctx);
+    if (!c.value) Fail(t, c.error);
+    return *c.value;
   }
   double Positive(double v, const Tok& at, const char* what) {
     if (!(v > 0.0)) Fail(at, fmt::format("{} must be greater than zero", what));
@@ -259,9 +295,15 @@ class Parser {
       Fail(t, fmt::format("expected {} (a current like 500mA or 0.2C, a power like 2W, or a resistance like 3.9Ohm), found {}",
                           what, Describe(t)));
     if (t.unit.empty())
-      Fail(t, fmt::format("'{}' has no unit: give {} as a current, power or resistance (A, W, Ohm)", t.text, what));
-    std::optional<UnitInfo> u = ParseUnit(t.unit);
-    if (!u) Fail(t, fmt::format("unknown unit '{}' in '{}'", t.unit, t.text));
+      Fail(t, fmt::format("{} ({} is a current, power or resistance: A, W, Ohm)", BareNumberHint(t.text, Dimension::kCurrent),
+                          what));
+    UnitLookup lu = LookUpUnit(t.unit);
+    if (!lu.info && !lu.error.empty()) Fail(t, lu.error);
+    if (!lu.info) {
+      std::string hint = DidYouMean(t.unit, {"A", "mA", "uA", "nA", "C", "It", "W", "mW", "kW", "Ohm", "mOhm", "kOhm"});
+      Fail(t, fmt::format("unknown unit '{}' in '{}'{}", t.unit, t.text, hint));
+    }
+    std::optional<UnitInfo> u = lu.info;
     Level l{LoadMode::kCurrent, 0.0, t.col};
     switch (u->dimension) {
       case Dimension::kCurrent:
@@ -339,7 +381,7 @@ class Parser {
         only(!le, ">=");
         e.temperature_above_c = Quantity(Dimension::kTemperature, "a temperature");
       } else {
-        Fail(m, fmt::format("unknown condition '{}': use voltage, current, time, charge, energy or temp", m.text));
+        Fail(m, Unknown("condition", m.text, kConditions, "use voltage, current, time, charge, energy or temp"));
       }
     } while (PeekWord("or") && (Next(), true));
   }
@@ -354,6 +396,9 @@ class Parser {
         continue;
       }
       const Tok& key = ExpectWord("'until' or an option (every=, log-change=, log-gap=)");
+      bool known_option = key.text == "every" || key.text == "log-change" || key.text == "log-gap";
+      if (!known_option && (Peek().kind != Tok::kOp || Peek().text != "="))
+        Fail(key, Unknown("word", key.text, kStepOptions, "expected 'until' or an option (every=, log-change=, log-gap=)"));
       ExpectOp("=");
       const Tok& vt = Peek();
       if (key.text == "every") {
@@ -363,7 +408,7 @@ class Parser {
       } else if (key.text == "log-gap") {
         s.log_max_gap_s = Positive(Quantity(Dimension::kTime, "the longest gap between logged samples"), vt, "log-gap");
       } else {
-        Fail(key, fmt::format("unknown step option '{}': use every=, log-change= or log-gap=", key.text));
+        Fail(key, Unknown("step option", key.text, kStepOptions, "use every=, log-change= or log-gap="));
       }
     }
   }
@@ -407,11 +452,18 @@ class Parser {
   // ---- statements ----
   void Statement() {
     const Tok& kw =
-        ExpectWord("a statement (cell, safety, rest, discharge, pulse, cycle, dcir, charge, repeat, profile, end...)");
-    const std::string& k = kw.text;
-    bool in_profile = !blocks_.empty() && blocks_.back().kind == Block::kProfile;
-    if (in_profile && k != "phase" && k != "end")
-      Fail(kw, fmt::format("inside 'profile' only 'phase' lines and 'end' are allowed, found '{}'", k));
+        ExpectWord("a statement (cell, safety, rest, discharge, pulse, duty, play, dcir, charge, repeat, end...)");
+    std::string k = kw.text;
+    // The older names of the duty block and its step, still read (stored runs
+    // are rebuilt from their text): one warning each, then as the new words.
+    if (k == "profile" || k == "cycle") {
+      const char* now = k == "profile" ? "duty" : "play";
+      Warn(line_, kw.col, fmt::format("'{}' is the older name of '{}' (still read): write '{}'", k, now, now));
+      k = now;
+    }
+    bool in_duty = !blocks_.empty() && blocks_.back().kind == Block::kProfile;
+    if (in_duty && k != "phase" && k != "end")
+      Fail(kw, fmt::format("inside 'duty' only 'phase' lines and 'end' are allowed, found '{}'", kw.text));
     if (k == "name") {
       const Tok& t = Next();
       if (t.kind != Tok::kString || t.text.empty())
@@ -419,9 +471,19 @@ class Parser {
       plan_.name = t.text;
       ExpectEnd();
     } else if (k == "cell") {
-      CellLine(kw);
+      try {
+        CellLine(kw);
+      } catch (...) {
+        header_rejected_ = cell_rejected_ = true;
+        throw;
+      }
     } else if (k == "safety") {
-      SafetyLine();
+      try {
+        SafetyLine();
+      } catch (...) {
+        header_rejected_ = true;
+        throw;
+      }
     } else if (k == "sample") {
       Options([&](const Tok& key) {
         const Tok& vt = Peek();
@@ -430,24 +492,27 @@ class Parser {
         else if (key.text == "log-change")
           default_log_change_v_ = Positive(Quantity(Dimension::kVoltage, "the logging threshold"), vt, "log-change");
         else
-          Fail(key, fmt::format("unknown sampling option '{}': use every= or log-change=", key.text));
+          Fail(key, Unknown("sampling option", key.text, {"every", "log-change"}, "use every= or log-change="));
       });
-    } else if (k == "profile") {
-      const Tok& n = ExpectWord("the profile's name");
+    } else if (k == "duty") {
+      // Opened before its line is checked, so that a mistake here does not
+      // turn its phases and its 'end' into errors of their own.
+      blocks_.push_back(Block{Block::kProfile, line_, kw.col, {}, "", {}});
+      const Tok& n = ExpectWord("the duty pattern's name");
+      blocks_.back().name = n.text;
       ExpectEnd();
       if (profiles_.count(n.text))
-        Fail(n, fmt::format("profile '{}' is already defined on line {}", n.text, profiles_line_[n.text]));
-      Block b{Block::kProfile, line_, kw.col, {}, n.text, {}};
-      blocks_.push_back(std::move(b));
+        Fail(n, fmt::format("duty '{}' is already defined on line {}", n.text, profiles_line_[n.text]));
     } else if (k == "phase") {
-      if (!in_profile) Fail(kw, "'phase' belongs inside a 'profile' ... 'end' block");
+      if (!in_duty) Fail(kw, "'phase' belongs inside a 'duty' ... 'end' block");
       const Tok& n = ExpectWord("the phase's name");
       Segment g = SegmentSpec("the phase level");
       g.name = n.text;
       ExpectEnd();
       blocks_.back().segments.push_back(g);
     } else if (k == "repeat") {
-      Block b{Block::kRepeat, line_, kw.col, {}, "", {}};
+      blocks_.push_back(Block{Block::kRepeat, line_, kw.col, {}, "", {}});
+      Block& b = blocks_.back();
       b.loop.source_line = line_;
       b.loop.first_step = -1;
       if (PeekWord("until")) {
@@ -457,18 +522,24 @@ class Parser {
         b.loop.count = ExpectCount("a repeat count or 'until'");
       }
       ExpectEnd();
-      blocks_.push_back(std::move(b));
     } else if (k == "end") {
       ExpectEnd();
-      if (blocks_.empty()) Fail(kw, "'end' without an open 'repeat' or 'profile'");
+      if (blocks_.empty()) Fail(kw, "'end' without an open 'repeat' or 'duty'");
       Block b = std::move(blocks_.back());
       blocks_.pop_back();
       if (b.kind == Block::kProfile) {
-        if (b.segments.empty()) Fail(kw, fmt::format("profile '{}' has no phases", b.name));
+        if (b.had_error) {
+          if (!b.name.empty() && !profiles_.count(b.name)) broken_profiles_.insert(b.name);
+          return;
+        }
+        if (b.segments.empty()) Fail(kw, fmt::format("duty '{}' has no phases", b.name));
         profiles_[b.name] = b.segments;
         profiles_line_[b.name] = b.line;
       } else {
-        if (b.loop.first_step < 0) Fail(kw, "this 'repeat' has no steps");
+        if (b.loop.first_step < 0) {
+          if (b.had_error) return;
+          Fail(kw, "this 'repeat' has no steps");
+        }
         b.loop.last_step = static_cast<int>(plan_.steps.size()) - 1;
         // Outer loops first: an outer loop opened earlier is closed later, so
         // insert before loops that it contains.
@@ -478,7 +549,7 @@ class Parser {
         plan_.loops.insert(pos, b.loop);
       }
     } else {
-      StepStatement(kw);
+      StepStatement(kw, k);
     }
   }
 
@@ -506,7 +577,7 @@ class Parser {
       } else if (key.text == "max-temp") {
         c.max_temp_c = Quantity(Dimension::kTemperature, "the maximum temperature");
       } else {
-        Fail(key, fmt::format("unknown cell field '{}': use rated=, nominal=, max=, cutoff=, max-temp=", key.text));
+        Fail(key, Unknown("cell field", key.text, kCellFields, "use rated=, nominal=, max=, cutoff=, max-temp="));
       }
     });
     if (!rated) Fail(toks_.back(), "the cell needs rated= (its rated capacity, e.g. rated=2500mAh)");
@@ -545,19 +616,24 @@ class Parser {
         else
           Fail(a, fmt::format("when-hot takes 'abort' or 'pause', not '{}'", a.text));
       } else {
-        Fail(key, fmt::format("unknown safety limit '{}': use max-temp=, min-voltage=, max-voltage=, max-current=, max-time=, "
-                              "max-charge=, when-hot=, resume-temp=, hard-temp=",
-                              k));
+        Fail(key, Unknown("safety limit", k, kSafetyKeys,
+                          "use max-temp=, min-voltage=, max-voltage=, max-current=, max-time=, max-charge=, when-hot=, "
+                          "resume-temp=, hard-temp="));
       }
     });
   }
 
-  void StepStatement(const Tok& kw) {
-    static const char* const kSteps[] = {"rest", "discharge", "pulse", "cycle", "dcir", "charge"};
-    if (std::none_of(std::begin(kSteps), std::end(kSteps), [&](const char* k) { return kw.text == k; }))
-      Fail(kw, fmt::format("unknown statement '{}'", kw.text));
-    if (!cell_seen_) Fail(kw, "steps need the 'cell' line first (rated capacity and cutoff)");
-    const std::string& k = kw.text;
+  void StepStatement(const Tok& kw, const std::string& k) {
+    static const char* const kSteps[] = {"rest", "discharge", "pulse", "play", "dcir", "charge"};
+    if (std::none_of(std::begin(kSteps), std::end(kSteps), [&](const char* w) { return k == w; }))
+      Fail(kw, Unknown("statement", k, kStatements,
+                       "use cell, safety, sample, rest, discharge, pulse, duty/phase, play, dcir, charge, repeat or end"));
+    if (!cell_seen_) {
+      // Once, and not at all when an earlier line (a misspelt 'cell') has its error.
+      if (!out_.errors.empty() || no_cell_reported_) throw LineSkipped{};
+      no_cell_reported_ = true;
+      Fail(kw, "steps need the 'cell' line first (rated capacity and cutoff)");
+    }
     Step s;
     s.sample_period_s = default_period_s_;
     StepSite site{kw.col, kw.col};
@@ -585,11 +661,16 @@ class Parser {
       lo.name = "low";
       s.segments = {hi, lo};
       StepTail(s, true);
-    } else if (k == "cycle") {
+    } else if (k == "play") {
       s.kind = StepKind::kDutyCycle;
-      const Tok& n = ExpectWord("a profile name");
+      const Tok& n = ExpectWord("the name of a duty pattern");
       auto it = profiles_.find(n.text);
-      if (it == profiles_.end()) Fail(n, fmt::format("no profile named '{}' is defined above", n.text));
+      if (it == profiles_.end() && broken_profiles_.count(n.text)) throw LineSkipped{};  // its block has the error
+      if (it == profiles_.end()) {
+        std::vector<std::string> names;
+        for (const auto& [name, segs] : profiles_) names.push_back(name);
+        Fail(n, fmt::format("no duty named '{}' is defined above{}", n.text, DidYouMean(n.text, names)));
+      }
       s.profile_name = n.text;
       s.segments = it->second;
       site.level_col = n.col;
@@ -641,7 +722,7 @@ class Parser {
                              FormatQuantity(plan_.cell.max_v, Dimension::kVoltage)));
       StepTail(s, true);
     } else {
-      Fail(kw, fmt::format("unknown statement '{}'", k));
+      Fail(kw, Unknown("statement", k, kStatements, "not a step"));
     }
     for (const Segment& g : s.segments)
       if (g.level == 0 && g.mode != LoadMode::kCurrent) Fail(kw, "a zero level must be written as a current (0A)");
@@ -651,15 +732,22 @@ class Parser {
   // Checks that need the whole file.
   void Finish(int last_line) {
     for (const Block& b : blocks_)
-      Error(b.line, b.col, fmt::format("'{}' is not closed: add 'end'", b.kind == Block::kRepeat ? "repeat" : "profile"));
+      Error(b.line, b.col, fmt::format("'{}' is not closed: add 'end'", b.kind == Block::kRepeat ? "repeat" : "duty"));
+    if (patterns_only_) {
+      if (out_.errors.empty() && profiles_.empty()) Error(std::max(1, last_line), 1, "no 'duty' block in this text");
+      return;
+    }
     if (!cell_seen_) {
-      Error(1, 1, "missing 'cell' line (chemistry, rated=, cutoff=...)");
+      if (out_.errors.empty()) Error(1, 1, "missing 'cell' line (chemistry, rated=, cutoff=...)");
       return;
     }
     if (plan_.steps.empty()) {
       if (out_.errors.empty()) Error(std::max(1, last_line), 1, "the procedure has no steps");
       return;
     }
+    // Limits and checks below are derived from the cell and safety lines; one
+    // of them was rejected, so they would only repeat its error.
+    if (header_rejected_) return;
     SafetyLimits& l = plan_.limits;
     const CellSpec& c = plan_.cell;
     if (!set_.max_temp) l.max_temp_c = c.max_temp_c;
@@ -743,6 +831,11 @@ class Parser {
   std::vector<Block> blocks_;
   std::map<std::string, std::vector<Segment>> profiles_;
   std::map<std::string, int> profiles_line_;
+  std::set<std::string> broken_profiles_;  // duty blocks rejected with an error of their own
+  bool no_cell_reported_ = false;
+  bool cell_rejected_ = false;
+  bool patterns_only_ = false;
+  bool header_rejected_ = false;           // the cell or safety line had an error: no checks derived from them
   std::vector<StepSite> sites_;
   struct {
     bool max_temp = false, min_v = false, max_v = false, max_i = false, max_t = false, max_q = false, resume = false,
@@ -762,6 +855,18 @@ std::string FormatDiagnostics(const std::string& file, const std::vector<Diagnos
   std::string out;
   for (const Diagnostic& d : errors) out += fmt::format("{}:{}:{}: {}\n", file, d.line, d.col, d.message);
   return out;
+}
+
+Result<std::vector<DutyPattern>> ReadDutyPatterns(std::string_view text, const std::string& file) {
+  Parser p(file, RigLimits{});
+  p.PatternsOnly();
+  ParseOutput out = p.Run(text);
+  if (!out.ok()) {
+    std::string msg = FormatDiagnostics(file, out.errors);
+    if (!msg.empty() && msg.back() == '\n') msg.pop_back();
+    return InvalidInput(msg);
+  }
+  return p.Patterns();
 }
 
 Result<Plan> CompileProcedure(std::string_view text, const std::string& file, const RigLimits& rig) {

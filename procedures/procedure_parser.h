@@ -36,6 +36,19 @@ ParseOutput ParseProcedure(std::string_view text, const std::string& name, const
 // "file:line:col: message" lines, one per diagnostic.
 std::string FormatDiagnostics(const std::string& file, const std::vector<Diagnostic>& errors);
 
+// A named duty pattern: the phases of a `duty NAME` ... `end` block, at their
+// real (uncompressed) durations.
+struct DutyPattern {
+  std::string name;
+  std::vector<Segment> phases;
+  int line = 0;
+};
+// The duty blocks of a text: a whole procedure, or a file holding only duty
+// blocks (no cell line needed unless a phase is a C-rate). The one way a duty
+// profile is written; `kneepoint life --duty FILE[:NAME]` reads it here.
+// kInvalidInput carries FormatDiagnostics() of the errors.
+Result<std::vector<DutyPattern>> ReadDutyPatterns(std::string_view text, const std::string& file);
+
 // ParseProcedure as a Result: kInvalidInput carrying FormatDiagnostics().
 Result<Plan> CompileProcedure(std::string_view text, const std::string& file, const RigLimits& rig = {});
 

@@ -12,6 +12,7 @@
 
 #include "drivers/address.h"
 #include "drivers/text_limits.h"
+#include "procedures/units.h"
 
 namespace kp {
 namespace {
@@ -46,7 +47,27 @@ class Reader {
     const toml::node* n = t.get(key);
     if (n == nullptr) return Status::Ok();
     std::optional<double> v = n->value<double>();
-    if (!v || (!n->is_floating_point() && !n->is_integer())) return Error(n, prefix + key, "must be a number");
+    // A key named for its unit (`_a`, `_v`, `_w`, `_s`, `_c`) also takes a
+    // quoted value in any unit of that quantity ("500ms", "10 A"), read by the
+    // one unit parser of procedures and options.
+    std::optional<Dimension> dim;
+    std::string_view k(key);
+    if (k.ends_with("_a")) dim = Dimension::kCurrent;
+    else if (k.ends_with("_v")) dim = Dimension::kVoltage;
+    else if (k.ends_with("_w")) dim = Dimension::kPower;
+    else if (k.ends_with("_s")) dim = Dimension::kTime;
+    else if (k.ends_with("_c")) dim = Dimension::kTemperature;
+    if (n->is_string() && dim) {
+      std::string text = *n->value<std::string>();
+      bool negative = text.find_first_not_of(" \t") != std::string::npos && text[text.find_first_not_of(" \t")] == '-';
+      ParsedQuantity q = ParseQuantityText(negative ? text.substr(text.find('-') + 1) : text, *dim, prefix + key);
+      if (!q.value) return Error(n, prefix + key, q.error);
+      v = negative ? -*q.value : *q.value;
+    } else if (!v || (!n->is_floating_point() && !n->is_integer())) {
+      return Error(n, prefix + key,
+                   dim ? fmt::format("must be a number in the key's unit or a quoted value with its unit ({})", UnitsOf(*dim))
+                       : std::string("must be a number"));
+    }
     if (!(*v >= lo && *v <= hi)) return Error(n, prefix + key, fmt::format("{} is outside {} .. {}", *v, lo, hi));
     out = *v;
     return Status::Ok();

@@ -12,7 +12,7 @@
 //   [[instrument]]
 //   name = "load"
 //   address = "tcp:192.168.0.20:5025"      # see drivers/address.h
-//   profile = "generic-scpi-load"          # name or path of a .kpp profile
+//   profile = "generic-scpi-load"          # name or path of a .kpd dialect (drivers/profile.h)
 //   roles = ["load"]                       # load, meter, thermometer, supply
 //   channel = "101"                        # replaces {ch} in the profile
 //   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false,

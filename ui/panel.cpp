@@ -3,6 +3,7 @@
 #include <GLFW/glfw3.h>
 
 #include <algorithm>
+#include <cctype>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -26,14 +27,12 @@ ImU32 OutcomeColour(const Theme& t, Outcome o) {
   return t.idle;
 }
 
-const char* OutcomeBadge(Outcome o) {
-  switch (o) {
-    case Outcome::kRunning: return "RUNNING";
-    case Outcome::kCompleted: return "FINISHED";
-    case Outcome::kAborted: return "ABORTED";
-    case Outcome::kInterrupted: return "INTERRUPTED";
-  }
-  return "?";
+// The run's state as every other view names it (the store's OutcomeName:
+// running, completed, aborted, interrupted), in capitals for the badge.
+std::string OutcomeBadge(Outcome o) {
+  std::string s = OutcomeName(o);
+  for (char& c : s) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  return s;
 }
 
 std::string Hms(double s) { return cli::FormatDuration(std::max(0.0, s)); }
@@ -237,7 +236,7 @@ void Panel::Headline(const RunData& d) {
   if (live && IsPaused(d.events))
     ImGui::TextColored(ImColor(theme_.caution), "PAUSED");
   else
-    ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome));
+    ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome).c_str());
   ImGui::PopFont();
   ImGui::SameLine();
   ImGui::Text("run %lld  ·  cell %s (%s, %.0f mAh rated)  ·  %s  ·  rig %s", static_cast<long long>(d.row.id),

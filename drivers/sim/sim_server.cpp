@@ -149,7 +149,7 @@ Result<std::unique_ptr<SimServer>> SimServer::Start(const Address& listen, std::
       int bound = 0;
       KP_ASSIGN_OR_RETURN(int fd, Listen(listen.host, port, bound));
       im.listeners.push_back(fd);
-      s->client_addresses_.push_back(fmt::format("tcp:{}:{}{}", listen.host, bound, eol_opt));
+      s->client_addresses_.push_back(FormatTcpAddress(listen.host, bound) + eol_opt);
     } else {
       std::string path;
       int slave = -1;

@@ -4,9 +4,12 @@
 #include <cmath>
 #include <csignal>
 #include <cstdio>
+#include <algorithm>
 #include <iostream>
 
 #include <fmt/format.h>
+
+#include "drivers/spelling.h"
 
 namespace kp::cli {
 namespace {
@@ -92,9 +95,66 @@ std::string StopSignalReason(int signo) {
   }
 }
 
+namespace {
+
+double ParseOptionQuantity(const std::string& name, const std::string& text, Dimension dim, double lo, double hi) {
+  ParsedQuantity q = ParseQuantityText(text, dim, name);
+  if (!q.value) throw CLI::ValidationError(name, q.error);
+  if (*q.value < lo || *q.value > hi)
+    throw CLI::ValidationError(name, fmt::format("'{}' is outside {} .. {}", text, FormatQuantity(lo, dim),
+                                                 FormatQuantity(hi, dim)));
+  return *q.value;
+}
+
+}  // namespace
+
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, double& out, Dimension dim, const std::string& help,
+                               double lo, double hi) {
+  CLI::Option* o = app->add_option_function<std::string>(
+      name, [&out, name, dim, lo, hi](const std::string& text) { out = ParseOptionQuantity(name, text, dim, lo, hi); },
+      fmt::format("{} ({})", help, UnitsOf(dim)));
+  o->default_str(FormatQuantity(out, dim));
+  return o;
+}
+
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, std::optional<double>& out, Dimension dim,
+                               const std::string& help, double lo, double hi) {
+  return app->add_option_function<std::string>(
+      name, [&out, name, dim, lo, hi](const std::string& text) { out = ParseOptionQuantity(name, text, dim, lo, hi); },
+      fmt::format("{} ({})", help, UnitsOf(dim)));
+}
+
 std::string FormatDuration(double seconds) {
   long s = std::lround(seconds);
   return fmt::format("{}:{:02}:{:02}", s / 3600, (s / 60) % 60, s % 60);
+}
+
+std::string SuggestForCommandLine(CLI::App& app, const std::vector<std::string>& args) {
+  if (args.empty()) return "";
+  std::vector<std::string> commands;
+  for (const CLI::App* sub : app.get_subcommands({})) commands.push_back(sub->get_name());
+  size_t first = 0;
+  while (first < args.size() && args[first].starts_with("-")) ++first;
+  if (first == args.size()) return "";
+  CLI::App* sub = nullptr;
+  for (CLI::App* s : app.get_subcommands({}))
+    if (s->get_name() == args[first]) sub = s;
+  if (sub == nullptr) {
+    std::optional<std::string> w = ClosestWord(args[first], commands);
+    return w ? fmt::format("unknown command '{}': did you mean '{}'?", args[first], *w) : "";
+  }
+  std::vector<std::string> options;
+  for (const CLI::Option* o : sub->get_options())
+    for (const std::string& n : o->get_lnames()) options.push_back("--" + n);
+  for (size_t i = first + 1; i < args.size(); ++i) {
+    const std::string& a = args[i];
+    if (!a.starts_with("--") || a == "--") continue;
+    std::string name = a.substr(0, a.find('='));
+    if (sub->get_option_no_throw(name) != nullptr) continue;
+    std::optional<std::string> w = ClosestWord(name, options);
+    if (w) return fmt::format("unknown option '{}' of '{}': did you mean '{}'?", name, sub->get_name(), *w);
+  }
+  return "";
 }
 
 int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
@@ -126,6 +186,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
     return app.exit(e);
   } catch (const CLI::ParseError& e) {
     app.exit(e);
+    std::string hint = SuggestForCommandLine(app, std::vector<std::string>(argv + std::min(argc, 1), argv + argc));
+    if (!hint.empty()) std::fprintf(stderr, "kneepoint: %s\n", hint.c_str());
     return kExitBadInput;
   }
   try {

@@ -9,11 +9,13 @@
 
 #include <atomic>
 #include <functional>
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
 
 #include "drivers/status.h"
+#include "procedures/units.h"
 
 namespace kp::cli {
 
@@ -38,6 +40,10 @@ class CliRegistry {
 using Registrar = void (*)(CliRegistry&);
 
 int RunCli(int argc, char** argv, std::span<const Registrar> extra = {});
+
+// "unknown command 'reprot': did you mean 'report'?" (or an option of the
+// chosen command), for a command line CLI11 refused; "" when nothing is close.
+std::string SuggestForCommandLine(CLI::App& app, const std::vector<std::string>& args);
 
 // Prints "kneepoint: <message>" to stderr and returns the exit status for it.
 int Fail(const Status& status);
@@ -72,6 +78,16 @@ void RegisterCompare(CliRegistry& r);
 void RegisterLife(CliRegistry& r);
 void RegisterControl(CliRegistry& r);  // abort / pause / continue
 void RegisterResume(CliRegistry& r);
+
+// An option taking a physical value with its unit, read by the one unit
+// parser (procedures/units.h) while the command line is parsed: a bare number
+// or a wrong unit is refused with the fix ("'3' has no unit: did you mean
+// 3V?"). `lo`..`hi` bound the value in the dimension's base unit (A, V, s,
+// mAh, degC, fraction). The default shown in --help is the current value.
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, double& out, Dimension dim, const std::string& help,
+                               double lo = 0.0, double hi = 1e300);
+CLI::Option* AddQuantityOption(CLI::App* app, const std::string& name, std::optional<double>& out, Dimension dim,
+                               const std::string& help, double lo = 0.0, double hi = 1e300);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

@@ -3,8 +3,10 @@
 // "file:line:col: message".
 #include <fmt/format.h>
 
+#include <fstream>
 #include <iostream>
 
+#include "drivers/profile.h"
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
@@ -18,7 +20,35 @@ struct CheckOptions {
   std::string soc;  // state of charge at the start ("40%"); empty: full
 };
 
+// A file that is an instrument dialect rather than a procedure: by its
+// extension, or (the older format, also named .kpp) by a first key 'roles'.
+bool LooksLikeDialect(const std::string& path) {
+  if (IsDialectPath(path)) return true;
+  std::ifstream in(path, std::ios::binary);
+  std::string line;
+  while (std::getline(in, line)) {
+    size_t b = line.find_first_not_of(" \t\r");
+    if (b == std::string::npos || line[b] == '#') continue;
+    return line.compare(b, 5, "roles") == 0 || line.compare(b, 6, "format") == 0;
+  }
+  return false;
+}
+
+int CheckDialect(const std::string& path) {
+  auto d = LoadProfileFile(path);
+  if (!d.ok()) {
+    std::cerr << d.status().message() << "\n";
+    return ExitCodeFor(d.status());
+  }
+  std::string roles;
+  for (const std::string& r : d->roles) roles += (roles.empty() ? "" : ", ") + r;
+  std::cout << fmt::format("{}: instrument dialect for {} (identity '{}'){}: ok\n", path, roles, d->identity,
+                           d->description.empty() ? "" : ", " + d->description);
+  return kExitOk;
+}
+
 int RunCheck(const CheckOptions& opt) {
+  if (LooksLikeDialect(opt.file)) return CheckDialect(opt.file);
   RigLimits rig;
   rig.min_sample_period_s = opt.min_sample_s;
   auto plan = LoadProcedure(opt.file, rig);
@@ -53,9 +83,9 @@ void RegisterCheck(CliRegistry& r) {
   static CheckOptions opt;
   opt = CheckOptions{};  // fresh defaults for each command line parsed
   CLI::App* c =
-      r.Add("check", "Validate a procedure file and print the expanded plan with estimates", [] { return RunCheck(opt); });
-  c->add_option("file", opt.file, "Procedure file")->required();
-  c->add_option("--min-sample", opt.min_sample_s, "Fastest full reading of the intended rig, in seconds")->capture_default_str();
+      r.Add("check", "Validate a procedure file and print the expanded plan with estimates (an instrument dialect .kpd is checked as one)", [] { return RunCheck(opt); });
+  c->add_option("file", opt.file, "Procedure file (or instrument dialect file)")->required();
+  AddQuantityOption(c, "--min-sample", opt.min_sample_s, Dimension::kTime, "Fastest full reading of the intended rig", 1e-6, 3600.0);
   c->add_option("--soc", opt.soc, "The cell's state of charge at the start, 40% or 0.4, for the estimates (default: full)");
 }
 

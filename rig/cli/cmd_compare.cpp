@@ -5,7 +5,6 @@
 #include <iostream>
 #include <nlohmann/json.hpp>
 
-#include "analysis/quantity.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
 #include "rig/run_report.h"
@@ -27,7 +26,7 @@ void RegisterCompare(CliRegistry& r) {
   CLI::App* cmd = r.Add("compare", "Compare runs: table, overlays, pulsed vs continuous, Peukert fit", [] {
     std::optional<double> at_a;
     if (!at_text.empty()) {
-      ParsedQuantity q = ParseQuantity(at_text, QuantityKind::kCurrent);
+      ParsedQuantity q = ParseQuantityText(at_text, Dimension::kCurrent, "--at");
       if (!q.value) return Fail(InvalidInput(fmt::format("--at: {}", q.error)));
       at_a = *q.value;
     }

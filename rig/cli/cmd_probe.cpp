@@ -43,9 +43,10 @@ int RunProbe(const ProbeOptions& o) {
 
 void RegisterProbe(CliRegistry& r) {
   static ProbeOptions opt;
-  CLI::App* c = r.Add("probe", "Ask one instrument *IDN? (tcp:HOST:PORT or serial:PATH?baud=...)", [] { return RunProbe(opt); });
-  c->add_option("address", opt.address, "Instrument address")->required();
-  c->add_option("--timeout", opt.timeout_s, "Seconds to wait for the connection and the reply")->capture_default_str();
+  CLI::App* c = r.Add("probe", "Ask one instrument *IDN? (tcp:HOST:PORT, HOST:PORT, serial:PATH?baud=... or a device path)", [] { return RunProbe(opt); });
+  c->add_option("address", opt.address, "Instrument address: tcp:HOST:PORT, HOST:PORT, tcp:[IPv6]:PORT, serial:PATH?baud=N..., or a device path such as /dev/ttyUSB0 (serial, 9600 8N1)")->required();
+  AddQuantityOption(c, "--timeout", opt.timeout_s, Dimension::kTime, "How long to wait for the connection and the reply", 1e-3,
+                    600.0);
   c->add_option("--trace", opt.trace, "Append the SCPI exchange to this file");
 }
 

@@ -23,14 +23,13 @@ Status WriteTextFile(const std::string& path, const std::string& text) {
 
 // Options shared by `report` and `compare`.
 void AddReportOptions(CLI::App* cmd, ReportOptions& o, double& brownout_v) {
-  cmd->add_option("--dcir-delay", o.dcir.delay_s, "Seconds after a current edge at which U2 is read (DC-IR)")
-      ->capture_default_str()
-      ->check(CLI::PositiveNumber);
-  cmd->add_option("--dcir-min-step", o.dcir.min_step_a, "Smallest current change (A) treated as an edge")
-      ->capture_default_str()
-      ->check(CLI::PositiveNumber);
-  cmd->add_option("--brownout", brownout_v, "Brown-out voltage (V): report the first pulse whose minimum breaches it")
-      ->check(CLI::PositiveNumber);
+  AddQuantityOption(cmd, "--dcir-delay", o.dcir.delay_s, Dimension::kTime,
+                    "Time after a current edge at which U2 is read (DC-IR)", 1e-6, 3600.0);
+  AddQuantityOption(cmd, "--dcir-min-step", o.dcir.min_step_a, Dimension::kCurrent, "Smallest current change treated as an edge",
+                    1e-12, 1e4);
+  AddQuantityOption(cmd, "--brownout", brownout_v, Dimension::kVoltage,
+                    "Brown-out voltage: report the first pulse whose minimum breaches it", 1e-9, 1e4)
+      ->default_str("");
 }
 
 void RegisterReport(CliRegistry& r) {

@@ -132,10 +132,9 @@ void RegisterResume(CliRegistry& r) {
   c->add_option("--rig", opt.rig, "Rig: 'sim' or a rig file")->capture_default_str();
   c->add_option("--speed", opt.speed, "Simulator only: simulated seconds per wall second (0 = virtual time)");
   c->add_option("--procedure", opt.procedure_file, "Refuse unless this file is the procedure stored with the run");
-  c->add_option("--link-grace", opt.link_grace_s,
-                "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
-      ->capture_default_str()
-      ->check(CLI::Range(0.0, 3600.0));
+  AddQuantityOption(c, "--link-grace", opt.link_grace_s, Dimension::kTime,
+                    "How long an instrument may stay silent (load off, step held) before the run aborts; 0s: abort at once",
+                    0.0, 3600.0);
   AddHangLimitOption(c, opt.hang_limit_s);
 }
 

@@ -200,14 +200,13 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--sim-soc", opt.sim_soc, "Simulator only: the cell's state of charge at the start, 40% or 0.4 (default: full)");
   c->add_option("--sim-age", opt.sim_age,
                 "Simulator only: an aged cell, its capacity fade as 20% or 0.2 (resistance grows 2.5x as fast; up to 90%)");
-  c->add_option("--sim-ambient", opt.sim_ambient_c, "Simulator only: ambient temperature in degC (default: the preset's)")
-      ->check(CLI::Range(-60.0, 100.0));
+  AddQuantityOption(c, "--sim-ambient", opt.sim_ambient_c, Dimension::kTemperature,
+                    "Simulator only: ambient temperature (default: the preset's)", -60.0, 100.0);
   c->add_option("--trace", opt.trace, "Write every instrument exchange, timestamped, to this file");
-  c->add_option("--progress", opt.progress_s, "Seconds of run time between progress lines")->capture_default_str();
-  c->add_option("--link-grace", opt.link_grace_s,
-                "Seconds an instrument may stay silent (load off, step held) before the run aborts; 0: abort at once")
-      ->capture_default_str()
-      ->check(CLI::Range(0.0, 3600.0));
+  AddQuantityOption(c, "--progress", opt.progress_s, Dimension::kTime, "Run time between progress lines", 1e-3, 1e9);
+  AddQuantityOption(c, "--link-grace", opt.link_grace_s, Dimension::kTime,
+                    "How long an instrument may stay silent (load off, step held) before the run aborts; 0s: abort at once",
+                    0.0, 3600.0);
   AddHangLimitOption(c, opt.hang_limit_s);
 }
 

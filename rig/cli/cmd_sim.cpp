@@ -16,9 +16,9 @@ struct SimCmdOptions {
   std::string listen = "tcp:127.0.0.1:5025";
   bool pty = false;
   double speed = 1.0;
-  double capacity_ah = 2.56;
+  double capacity_mah = 2560.0;
   double runaway_at_s = -1.0;
-  double delay_ms = 0.0;
+  double delay_s = 0.0;
   bool verbose = false;
   sim::FaultOptions faults;
 };
@@ -29,11 +29,11 @@ int RunSim(SimCmdOptions o) {
   auto listen = ParseAddress(o.pty ? "pty" : o.listen);
   if (!listen.ok()) return Fail(listen.status());
   if (o.speed <= 0) return Fail(InvalidInput("--speed must be above 0"));
-  o.faults.delay_s = o.delay_ms / 1000.0;
+  o.faults.delay_s = o.delay_s;
   SteadyClock clock(o.speed);
   sim::SimOptions so;
   so.runaway_start_s = o.runaway_at_s;
-  sim::SimBench bench(sim::DemoLiIonCell(o.capacity_ah), clock, so);
+  sim::SimBench bench(sim::DemoLiIonCell(o.capacity_mah / 1000.0), clock, so);
   std::vector<sim::ServedDevice> devices{{"load", &bench.load()}, {"meter", &bench.meter()}, {"thermometer", &bench.thermometer()},
                                          {"supply", &bench.supply()}};
   auto note = o.verbose ? std::function<void(std::string_view)>([](std::string_view m) { std::cerr << "sim: " << m << "\n"; }) : nullptr;
@@ -43,7 +43,7 @@ int RunSim(SimCmdOptions o) {
     if (IsLoopback(listen->host)) std::cout << "Listening on loopback only (" << listen->host << "); other machines cannot connect.\n";
     else std::cout << "WARNING: listening on " << listen->host << ": reachable from the network, with no authentication.\n";
   }
-  std::cout << fmt::format("Simulated bench ({:.2f} Ah cell) at {} simulated seconds per wall second.\n", o.capacity_ah, o.speed);
+  std::cout << fmt::format("Simulated bench ({:.2f} Ah cell) at {} simulated seconds per wall second.\n", o.capacity_mah / 1000.0, o.speed);
   const auto& addrs = (*server)->client_addresses();
   for (size_t i = 0; i < devices.size(); ++i) std::cout << fmt::format("  {:<12} {}\n", devices[i].name, addrs[i]);
   std::cout << fmt::format("In the rig file set clock_speed = {} and these addresses (profile \"kneepoint-sim\").\n", o.speed);
@@ -68,15 +68,16 @@ void RegisterSim(CliRegistry& r) {
       ->capture_default_str();
   c->add_flag("--pty", opt.pty, "Serve on three new pseudo-terminals instead and print their paths");
   c->add_option("--speed", opt.speed, "Simulated seconds per wall second")->capture_default_str();
-  c->add_option("--capacity", opt.capacity_ah, "Capacity of the simulated cell, Ah")->capture_default_str();
+  AddQuantityOption(c, "--capacity", opt.capacity_mah, Dimension::kCharge, "Capacity of the simulated cell", 1.0, 1e7);
   c->add_option("--drop-every", opt.faults.drop_every, "Fault: no reply to every N-th query");
   c->add_option("--corrupt-every", opt.faults.corrupt_every, "Fault: garble every N-th reply");
-  c->add_option("--delay-every", opt.faults.delay_every, "Fault: hold back every N-th reply by --delay-ms");
-  c->add_option("--delay-ms", opt.delay_ms, "Delay for --delay-every, wall milliseconds");
+  c->add_option("--delay-every", opt.faults.delay_every, "Fault: hold back every N-th reply by --delay");
+  AddQuantityOption(c, "--delay", opt.delay_s, Dimension::kTime, "Delay for --delay-every, wall time", 0.0, 600.0);
   c->add_option("--disconnect-at", opt.faults.disconnect_at, "Fault: close the link after the N-th query (once)");
   c->add_option("--error-every", opt.faults.error_every, "Fault: every N-th query answers 9.91E37 and queues an SCPI error");
   c->add_option("--stick-at", opt.faults.stick_at, "Fault: readings freeze from the N-th query on");
-  c->add_option("--runaway-at", opt.runaway_at_s, "Fault: thermal runaway from this simulated second on");
+  AddQuantityOption(c, "--runaway-at", opt.runaway_at_s, Dimension::kTime, "Fault: thermal runaway from this simulated time on")
+      ->default_str("");
   c->add_flag("--verbose", opt.verbose, "Log every injected fault");
 }
 

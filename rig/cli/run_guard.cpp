@@ -38,10 +38,10 @@ Status EnableWatchdogFor(const std::string& rig, LoadDriver& load) {
 }
 
 void AddHangLimitOption(CLI::App* c, double& hang_limit_s) {
-  c->add_option("--hang-limit", hang_limit_s,
-                "Rig files: wall seconds without a heartbeat after which the guardian takes this runner as hung, kills it and "
-                "switches everything off (0: 120 s plus the link grace and three sample periods)")
-      ->check(CLI::Range(0.0, 86400.0));
+  AddQuantityOption(c, "--hang-limit", hang_limit_s, Dimension::kTime,
+                    "Rig files: wall time without a heartbeat after which the guardian takes this runner as hung, kills it and "
+                    "switches everything off (0s: 120 s plus the link grace and three sample periods)",
+                    0.0, 86400.0);
 }
 
 void StopIfGuardianGone(Guardian* guardian, RunOptions& run) {

@@ -2,7 +2,6 @@
 
 #include <gtest/gtest.h>
 
-#include "analysis/quantity.h"
 
 namespace kp {
 namespace {
@@ -83,52 +82,6 @@ TEST(Life, RejectsBadInput) {
   LifeOutcome r = ProjectLife(in);
   EXPECT_FALSE(r.projection.has_value());
   EXPECT_NE(r.error.find("efficiency"), std::string::npos);
-}
-
-TEST(Life, ProfileTextParses) {
-  ProfileParse p = ParseDutyProfile(
-      "# sensor node, one report every 10 minutes\n"
-      "compress 100\n"
-      "8uA for 599.5s compressed\n"
-      "\n"
-      "25mA for 500ms   # radio burst\n");
-  ASSERT_TRUE(p.profile.has_value()) << p.error;
-  ASSERT_EQ(p.profile->levels.size(), 2u);
-  EXPECT_DOUBLE_EQ(p.profile->compression_factor, 100.0);
-  EXPECT_TRUE(p.profile->levels[0].compressed);
-  EXPECT_DOUBLE_EQ(p.profile->levels[1].duration_s, 0.5);
-  EXPECT_NEAR(ProfileAverageCurrentA(*p.profile), 28.8e-6, 0.05e-6);
-}
-
-TEST(Life, ProfileErrorsNameLineAndColumn) {
-  EXPECT_EQ(ParseDutyProfile("8uA for 10s\n  25mQ for 1s\n").error.rfind("2:5:", 0), 0u)
-      << ParseDutyProfile("8uA for 10s\n  25mQ for 1s\n").error;
-  EXPECT_EQ(ParseDutyProfile("8uA during 10s\n").error.rfind("1:1:", 0), 0u);
-  EXPECT_EQ(ParseDutyProfile("8uA for 10s sometimes\n").error.rfind("1:13:", 0), 0u);
-  EXPECT_EQ(ParseDutyProfile("compress 0.5\n8uA for 1s").error.rfind("1:10:", 0), 0u);
-  EXPECT_FALSE(ParseDutyProfile("# nothing\n").profile.has_value());
-}
-
-TEST(Quantity, UnitsAndErrors) {
-  EXPECT_DOUBLE_EQ(*ParseQuantity("40uA", QuantityKind::kCurrent).value, 40e-6);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("40\xC2\xB5"
-                                  "A",
-                                  QuantityKind::kCurrent)
-                        .value,
-                   40e-6);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("2000mAh", QuantityKind::kCharge).value, 2000.0);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("2.5Ah", QuantityKind::kCharge).value, 2500.0);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("2%/month", QuantityKind::kRatePerMonth).value, 0.02);
-  EXPECT_NEAR(*ParseQuantity("12%/year", QuantityKind::kRatePerMonth).value, 0.01, 1e-15);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("90%", QuantityKind::kFraction).value, 0.9);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("0.9", QuantityKind::kFraction).value, 0.9);
-  EXPECT_DOUBLE_EQ(*ParseQuantity("2min", QuantityKind::kDuration).value, 120.0);
-  ParsedQuantity bad = ParseQuantity("40uV", QuantityKind::kCurrent);
-  EXPECT_FALSE(bad.value.has_value());
-  EXPECT_EQ(bad.error_column, 3u);
-  EXPECT_NE(bad.error.find("uV"), std::string::npos);
-  EXPECT_FALSE(ParseQuantity("mA", QuantityKind::kCurrent).value.has_value());
-  EXPECT_FALSE(ParseQuantity("-3mA", QuantityKind::kCurrent).value.has_value());
 }
 
 }  // namespace

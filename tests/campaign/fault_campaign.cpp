@@ -404,8 +404,8 @@ TrialResult Trial::Run() {
                                           "safety max-temp=55degC\n"
                                           "discharge 1A until voltage<=2.75V or time>=30min every=1s\n";
   std::vector<std::string> args = {"run", File("discharge.kpp"), "--rig", File("rig.toml"), "--db", db_, "--cell", "campaign-cell",
-                                   "--progress", "60"};
-  if (kill == Kill::kHang) args.insert(args.end(), {"--hang-limit", "2"});
+                                   "--progress", "60s"};
+  if (kill == Kill::kHang) args.insert(args.end(), {"--hang-limit", "2s"});
   std::string crash;
   if (kill == Kill::kSegv) crash = fmt::format("SEGV@{}", 5 + Pick(60));
   int pipe_fds[2] = {-1, -1};

@@ -55,6 +55,12 @@ TEST(Address, ErrorsSayWhatIsWrong) {
       {"serial:/dev/ttyS0?baud", "KEY=VALUE"},
       {"tcp:h:1?baud=9600", "serial ports only"},
       {"tcp:h:1?eol=nl", "eol 'nl'"},
+      {"tcp:::1:5025", "IPv6 address goes in brackets, as in tcp:[::1]:5025"},
+      {"tcp:[::1:5025", "closing ']'"},
+      {"tcp:[::1]5025", "expected ':PORT' after ']'"},
+      {"tcp:[]:5025", "empty host"},
+      {"ttyUSB0", "bare device path such as /dev/ttyUSB0"},
+      {"bench-load:fast", "expected tcp:HOST:PORT"},
   };
   for (const Case& c : cases) {
     auto a = ParseAddress(c.text);
@@ -63,6 +69,47 @@ TEST(Address, ErrorsSayWhatIsWrong) {
     EXPECT_NE(a.status().message().find(c.says), std::string::npos) << c.text << " -> " << a.status().message();
     EXPECT_NE(a.status().message().find(c.text), std::string::npos) << "message should quote the address";
   }
+}
+
+// What people type without the prefixes: a device path is a serial port with
+// the defaults, HOST:PORT is TCP, IPv6 literals go in brackets.
+TEST(Address, ShortFormsAndIpv6) {
+  struct Case {
+    const char* text;
+    Address::Kind kind;
+    const char* host_or_path;
+    int port;
+  } cases[] = {
+      {"/dev/ttyUSB0", Address::Kind::kSerial, "/dev/ttyUSB0", 0},
+      {"/dev/serial/by-id/usb-Bench_Load_1234-if00-port0", Address::Kind::kSerial,
+       "/dev/serial/by-id/usb-Bench_Load_1234-if00-port0", 0},
+      {"192.168.1.50:5025", Address::Kind::kTcp, "192.168.1.50", 5025},
+      {"bench-load.lan:5025", Address::Kind::kTcp, "bench-load.lan", 5025},
+      {"tcp:[::1]:5025", Address::Kind::kTcp, "::1", 5025},
+      {"[fe80::1%eth0]:5025", Address::Kind::kTcp, "fe80::1%eth0", 5025},
+      {"tcp:[2001:db8::7]:5025?eol=crlf", Address::Kind::kTcp, "2001:db8::7", 5025},
+  };
+  for (const Case& c : cases) {
+    auto a = ParseAddress(c.text);
+    ASSERT_TRUE(a.ok()) << c.text << ": " << a.status().ToString();
+    EXPECT_EQ(a->kind, c.kind) << c.text;
+    if (c.kind == Address::Kind::kSerial) {
+      EXPECT_EQ(a->path, c.host_or_path);
+      EXPECT_EQ(a->serial.baud, 9600) << "a bare path takes the default settings";
+      EXPECT_EQ(a->serial.parity, Parity::kNone);
+    } else {
+      EXPECT_EQ(a->host, c.host_or_path) << c.text;
+      EXPECT_EQ(a->port, c.port) << c.text;
+    }
+  }
+  auto opts = ParseAddress("/dev/ttyUSB0?baud=115200");
+  ASSERT_TRUE(opts.ok());
+  EXPECT_EQ(opts->serial.baud, 115200);
+  EXPECT_EQ(FormatTcpAddress("::1", 5025), "tcp:[::1]:5025");
+  EXPECT_EQ(FormatTcpAddress("127.0.0.1", 5025), "tcp:127.0.0.1:5025");
+  auto back = ParseAddress(FormatTcpAddress("::1", 6000));
+  ASSERT_TRUE(back.ok());
+  EXPECT_EQ(back->host, "::1");
 }
 
 }  // namespace

@@ -16,7 +16,7 @@ TEST(Profile, ShippedProfilesLoadAndFillTheirRoles) {
   ASSERT_TRUE(shipped.ok()) << shipped.status().ToString();
   int n = 0;
   for (const auto& e : std::filesystem::directory_iterator(std::filesystem::path(*shipped).parent_path())) {
-    if (e.path().extension() != ".kpp") continue;
+    if (e.path().extension() != ".kpd") continue;
     ++n;
     auto p = LoadProfileFile(e.path().string());
     ASSERT_TRUE(p.ok()) << p.status().ToString();
@@ -34,7 +34,9 @@ TEST(Profile, ShippedProfilesLoadAndFillTheirRoles) {
 }
 
 TEST(Profile, ChannelAndIdentity) {
-  auto p = ParseProfile("roles = thermometer\nidentity = *,TEMP-LOGGER*\nread-temperature = MEAS:TEMP? TC,K,(@{ch})\n", "t.kpp");
+  auto p = ParseProfile(
+      "roles = [\"thermometer\"]\nidentity = \"*,TEMP-LOGGER*\"\n[commands]\nread-temperature = \"MEAS:TEMP? TC,K,(@{ch})\"\n",
+      "t.kpd");
   ASSERT_TRUE(p.ok()) << p.status().ToString();
   ApplyChannel(*p, "103");
   EXPECT_EQ(p->thermometer.measure_temperature, "MEAS:TEMP? TC,K,(@103)");
@@ -50,21 +52,28 @@ TEST(Profile, MalformedGivesFileLineAndKey) {
     const char* text;
     const char* says;
   } cases[] = {
-      {"roles = load\ncc-select FUNC CURR\n", "bad.kpp:2: expected 'key = value'"},
-      {"identity = *\nroles = meter\n", "bad.kpp:1: key 'identity': the first key must be 'roles'"},
-      {"roles = load, oven\n", "bad.kpp:1: key 'roles': unknown role 'oven'"},
-      {"roles = meter\n\n# c\nmeter-read-voltage = MEAS:VOLT?\nmeter-read-voltage = READ?\n", "bad.kpp:5: key 'meter-read-voltage': repeated (first set on line 4)"},
-      {"roles = meter\nmeter-read-voltage = MEAS:VOLT\n", "bad.kpp:2: key 'meter-read-voltage': 'MEAS:VOLT' is a reading and must be a query"},
-      {"roles = meter\nmeter-read-voltage = MEAS:VOLT?\nread-temperature = MEAS:TEMP?\n", "bad.kpp:3: key 'read-temperature': belongs to role 'thermometer'"},
-      {"roles = meter\nmeter-read-voltage = MEAS:VOLT?\nbogus-key = 1\n", "bad.kpp:3: key 'bogus-key': unknown key"},
-      {"roles = load\ncc-level = CURR\n", "bad.kpp:2: key 'cc-level': 'CURR' needs {} where the number goes"},
-      {"roles = load\ninput-on = INP {}\n", "bad.kpp:2: key 'input-on': 'INP {}' takes no number"},
-      {"roles = load\ncc-select = FUNC CURR\n", "bad.kpp:1: role 'load' needs key 'cc-level'"},
-      {"roles = meter\nmeter-read-voltage =\n", "bad.kpp:2: key 'meter-read-voltage': empty value"},
-      {"# nothing\n", "bad.kpp:1: no 'roles' key"},
+      {"roles = [\"load\"]\n[commands]\ncc-select FUNC CURR\n", "bad.kpd:3:"},
+      {"roles = [\"load\", \"oven\"]\n", "bad.kpd:1: key 'roles': unknown role 'oven'"},
+      {"roles = [\"lod\"]\n", "unknown role 'lod': did you mean 'load'?"},
+      {"roles = \"load\"\n", "bad.kpd:1: key 'roles': a list of roles"},
+      {"roles = [\"meter\"]\n\n# c\n[commands]\nmeter-read-voltage = \"MEAS:VOLT?\"\nmeter-read-voltage = \"READ?\"\n", "bad.kpd:6:"},
+      {"roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"MEAS:VOLT\"\n", "bad.kpd:3: key 'meter-read-voltage': 'MEAS:VOLT' is a reading and must be a query"},
+      {"roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"MEAS:VOLT?\"\nread-temperature = \"MEAS:TEMP?\"\n", "bad.kpd:4: key 'read-temperature': belongs to role 'thermometer'"},
+      {"roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"MEAS:VOLT?\"\nmeter-read-voltag = \"1\"\n", "bad.kpd:4: key 'meter-read-voltag': unknown key: did you mean 'meter-read-voltage'?"},
+      {"roles = [\"meter\"]\nmeter-read-voltage = \"MEAS:VOLT?\"\n", "bad.kpd:2: key 'meter-read-voltage': a command belongs under [commands]"},
+      {"roles = [\"meter\"]\nidentty = \"*\"\n", "unknown key: did you mean 'identity'?"},
+      {"roles = [\"load\"]\n[commands]\ncc-level = \"CURR\"\n", "bad.kpd:3: key 'cc-level': 'CURR' needs {} where the number goes"},
+      {"roles = [\"load\"]\n[commands]\ninput-on = \"INP {}\"\n", "bad.kpd:3: key 'input-on': 'INP {}' takes no number"},
+      {"roles = [\"load\"]\n[commands]\ncc-select = \"FUNC CURR\"\n", "bad.kpd:1: role 'load' needs key 'cc-level'"},
+      {"roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"\"\n", "bad.kpd:3: key 'meter-read-voltage': empty value"},
+      {"roles = [\"meter\"]\n[commands]\nmeter-read-voltage = 5\n", "must be the SCPI text in quotes"},
+      {"format = \"kneepoint-dialect 9\"\nroles = [\"meter\"]\n", "bad.kpd:1: key 'format'"},
+      {"# nothing\n", "bad.kpd:1: no 'roles' key"},
+      // The older `key = text` format gets one message that says what changed.
+      {"roles = load\ncc-select = FUNC CURR\n", "older 'key = text' format; dialects are TOML files now (.kpd)"},
   };
   for (const Case& c : cases) {
-    auto p = ParseProfile(c.text, "bad.kpp");
+    auto p = ParseProfile(c.text, "bad.kpd");
     ASSERT_FALSE(p.ok()) << c.text;
     EXPECT_NE(p.status().message().find(c.says), std::string::npos) << p.status().message();
   }
@@ -73,14 +82,14 @@ TEST(Profile, MalformedGivesFileLineAndKey) {
 TEST(Profile, FindByNameInRigFolderFirst) {
   testing::TempDir dir;
   std::filesystem::create_directories(dir.path() / "profiles");
-  std::ofstream(dir.File("profiles/my-meter.kpp")) << "roles = meter\nmeter-read-voltage = READ?\n";
+  std::ofstream(dir.File("profiles/my-meter.kpd")) << "roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"READ?\"\n";
   auto f = FindProfile("my-meter", dir.path().string());
   ASSERT_TRUE(f.ok()) << f.status().ToString();
   EXPECT_EQ(LoadProfileFile(*f)->meter.measure_voltage, "READ?");
   auto missing = FindProfile("no-such-thing", dir.path().string());
   ASSERT_FALSE(missing.ok());
-  EXPECT_NE(missing.status().message().find("no-such-thing.kpp"), std::string::npos);
-  EXPECT_FALSE(FindProfile("./nope.kpp", dir.path().string()).ok());
+  EXPECT_NE(missing.status().message().find("no-such-thing.kpd"), std::string::npos);
+  EXPECT_FALSE(FindProfile("./nope.kpd", dir.path().string()).ok());
 }
 
 }  // namespace

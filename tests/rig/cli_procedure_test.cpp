@@ -34,7 +34,7 @@ TEST(CliProcedure, CheckExitCodes) {
   // A segment the rig cannot sample is an error, not skipped.
   std::string fast = Write(dir, "fast.kpp", std::string(kGood) + "pulse 1A/80ms 0A/1s until time>=1min\n");
   EXPECT_EQ(Cli({"check", fast}), cli::kExitBadInput);
-  EXPECT_EQ(Cli({"check", fast, "--min-sample", "0.02"}), cli::kExitOk);
+  EXPECT_EQ(Cli({"check", fast, "--min-sample", "20ms"}), cli::kExitOk);
 }
 
 TEST(CliProcedure, RunOnTheSimulatorRecordsTheRun) {

@@ -91,7 +91,7 @@ constexpr StepKind kSteps[] = {
     {"CP", "discharge 9W until voltage<=2.75V or time>=10min every=1s\n"},
     {"CR", "discharge 3.9Ohm until voltage<=2.75V or time>=10min every=1s\n"},
     {"pulse", "pulse 2C/10s 0A/40s until time>=10min every=500ms\n"},
-    {"duty cycle", "profile beat\n  phase high 1A/1s\n  phase low 0A/9s\nend\ncycle beat until time>=10min every=1s\n"},
+    {"duty cycle", "duty beat\n  phase high 1A/1s\n  phase low 0A/9s\nend\nplay beat until time>=10min every=1s\n"},
     {"DC-IR", "dcir 0.2C/10s 1C/1s every=100ms\n"},
     {"charge", "charge 0.5C to 4.2V until current<=50mA or time>=10min every=1s\n"},
 };
@@ -450,7 +450,7 @@ TEST(FaultMatrix, SigtermEndsKneepointRunAsAbortedWithTheLogIntact) {
   pid_t pid = fork();
   if (pid == 0) {
     std::vector<std::string> args = {"kneepoint", "run", proc, "--rig", "sim", "--db", db, "--cell", "term-cell",
-                                     "--speed", "500", "--progress", "100000"};
+                                     "--speed", "500", "--progress", "100000s"};
     std::vector<char*> argv;
     for (std::string& a : args) argv.push_back(a.data());
     _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));

@@ -87,7 +87,7 @@ struct GuardedBench {
     }
     return pid;
   }
-  pid_t StartRun(const char* crash = nullptr, std::vector<std::string> extra = {}, int stdout_fd = -1, const char* progress_s = "100000") {
+  pid_t StartRun(const char* crash = nullptr, std::vector<std::string> extra = {}, int stdout_fd = -1, const char* progress_s = "100000s") {
     std::vector<std::string> args = {"run", proc, "--rig", rig, "--db", db, "--cell", "guarded-cell", "--progress", progress_s};
     args.insert(args.end(), extra.begin(), extra.end());
     return Start(args, crash, stdout_fd);
@@ -236,7 +236,7 @@ TEST(Guardian, InjectedSegfaultOverPtyIsNamedAndSwitchedOff) {
 
 TEST(Guardian, HungRunnerIsKilledAfterTheHangLimit) {
   GuardedBench g("tcp:127.0.0.1:0");
-  pid_t pid = g.StartRun(nullptr, {"--hang-limit", "2"});
+  pid_t pid = g.StartRun(nullptr, {"--hang-limit", "2s"});
   ASSERT_GT(pid, 0);
   int64_t run_id = g.WaitForSamples(20);
   ASSERT_NE(run_id, 0);
@@ -276,7 +276,7 @@ TEST(Guardian, ClosedStdoutDoesNotEndTheRun) {
   int fds[2];
   ASSERT_EQ(pipe(fds), 0);
   close(fds[0]);  // nobody will ever read: every write to stdout raises SIGPIPE
-  pid_t pid = g.StartRun(nullptr, {}, fds[1], "1");
+  pid_t pid = g.StartRun(nullptr, {}, fds[1], "1s");
   close(fds[1]);
   int status = 0;
   ASSERT_EQ(waitpid(pid, &status, 0), pid);

@@ -7,10 +7,10 @@
 #include <fstream>
 #include <string>
 
-#include "analysis/quantity.h"
 #include "drivers/profile.h"
 #include "drivers/text_limits.h"
 #include "procedures/procedure_parser.h"
+#include "procedures/units.h"
 #include "rig/cli/procedure_file.h"
 #include "rig/rig_file.h"
 #include "tests/support/test_support.h"
@@ -85,13 +85,13 @@ TEST(InputLimits, RigFileRefusesOutOfRangeNumbersNamingFileLineAndKey) {
 TEST(InputLimits, RigFileAndProfileRefuseOverlongLinesAndOversizedFiles) {
   std::string rig_long = RigError("# " + std::string(kMaxTextLineBytes, 'x'));
   EXPECT_NE(rig_long.find("limits.toml:3:4097: line is"), std::string::npos) << rig_long;
-  auto p = ParseProfile("roles = load\ndescription = " + std::string(kMaxTextLineBytes, 'x') + "\n", "limits.kpp");
+  auto p = ParseProfile("roles = [\"load\"]\ndescription = \"" + std::string(kMaxTextLineBytes, 'x') + "\"\n", "limits.kpd");
   ASSERT_FALSE(p.ok());
-  EXPECT_NE(p.status().message().find("limits.kpp:2:4097: line is"), std::string::npos) << p.status().message();
+  EXPECT_NE(p.status().message().find("limits.kpd:2:4097: line is"), std::string::npos) << p.status().message();
 
   testing::TempDir dir;
   const std::string rig_path = dir.File("big.toml");
-  const std::string prof_path = dir.File("big.kpp");
+  const std::string prof_path = dir.File("big.kpd");
   for (const std::string& path : {rig_path, prof_path}) {
     std::ofstream out(path);
     for (size_t i = 0; i < kMaxTextFileBytes / 64 + 1; ++i) out << "# " << std::string(62, 'x') << "\n";
@@ -101,31 +101,31 @@ TEST(InputLimits, RigFileAndProfileRefuseOverlongLinesAndOversizedFiles) {
   EXPECT_NE(r.status().message().find(rig_path + ":1:1: rig file is"), std::string::npos) << r.status().message();
   auto pf = LoadProfileFile(prof_path);
   ASSERT_FALSE(pf.ok());
-  EXPECT_NE(pf.status().message().find(prof_path + ":1:1: profile is"), std::string::npos) << pf.status().message();
+  EXPECT_NE(pf.status().message().find(prof_path + ":1:1: dialect is"), std::string::npos) << pf.status().message();
 }
 
 TEST(InputLimits, CommandLineQuantitiesRefuseNanInfinityAndAbsurdValuesWithColumn) {
   struct Case {
     const char* text;
-    QuantityKind kind;
+    Dimension kind;
     const char* message;
   };
   const Case cases[] = {
-      {"1e308A", QuantityKind::kCurrent, "out of range"},   {"20000A", QuantityKind::kCurrent, "out of range"},
-      {"nanA", QuantityKind::kCurrent, "not a finite"},     {" nan", QuantityKind::kFraction, "not a finite"},
-      {"infs", QuantityKind::kDuration, "not a finite"},    {"inf", QuantityKind::kFraction, "not a finite"},
-      {"-5s", QuantityKind::kDuration, "must not be negative"}, {"-2mAh", QuantityKind::kCharge, "must not be negative"},
-      {"1e400mAh", QuantityKind::kCharge, "does not start with a number"},
+      {"1e308A", Dimension::kCurrent, "out of range"},   {"20000A", Dimension::kCurrent, "out of range"},
+      {"nanA", Dimension::kCurrent, "not a finite"},     {" nan", Dimension::kFraction, "not a finite"},
+      {"infs", Dimension::kTime, "not a finite"},    {"inf", Dimension::kFraction, "not a finite"},
+      {"-5s", Dimension::kTime, "must not be negative"}, {"-2mAh", Dimension::kCharge, "must not be negative"},
+      {"1e400mAh", Dimension::kCharge, "not a finite"},
   };
   for (const Case& c : cases) {
-    ParsedQuantity q = ParseQuantity(c.text, c.kind);
+    ParsedQuantity q = ParseQuantityText(c.text, c.kind);
     EXPECT_FALSE(q.value.has_value()) << c.text;
     EXPECT_NE(q.error.find(c.message), std::string::npos) << c.text << ": " << q.error;
     EXPECT_GE(q.error_column, 1u) << c.text;
   }
-  EXPECT_EQ(ParseQuantity(" nan", QuantityKind::kFraction).error_column, 2u);
-  ASSERT_TRUE(ParseQuantity("9999A", QuantityKind::kCurrent).value.has_value());
-  EXPECT_EQ(*ParseQuantity("250mA", QuantityKind::kCurrent).value, 0.25);
+  EXPECT_EQ(ParseQuantityText(" nan", Dimension::kFraction).error_column, 2u);
+  ASSERT_TRUE(ParseQuantityText("9999A", Dimension::kCurrent).value.has_value());
+  EXPECT_EQ(*ParseQuantityText("250mA", Dimension::kCurrent).value, 0.25);
 }
 
 }  // namespace

@@ -46,7 +46,7 @@ TEST(ProbeCommand, AnswersTimesOutAndRefuses) {
   EXPECT_EQ((*server)->lines_handled(), 1);  // just *IDN?
 
   SilentListener silent;
-  EXPECT_EQ(Cli({"probe", "tcp:127.0.0.1:" + std::to_string(silent.port), "--timeout", "0.05"}), cli::kExitFailure);
+  EXPECT_EQ(Cli({"probe", "tcp:127.0.0.1:" + std::to_string(silent.port), "--timeout", "50ms"}), cli::kExitFailure);
 
   int closed_port = 0;
   {

@@ -289,7 +289,8 @@ TEST(FileRig, RefusesACellAboveTheRigVoltageAndAWrongInstrument) {
   EXPECT_NE(high.status().message().find("max_voltage_v"), std::string::npos) << high.status().message();
 
   std::filesystem::create_directories(s.dir.path() / "profiles");
-  std::ofstream(s.dir.File("profiles/other-dmm.kpp")) << "roles = meter\nidentity = *,OTHER-DMM,*\nmeter-read-voltage = MEAS:VOLT:DC?\n";
+  std::ofstream(s.dir.File("profiles/other-dmm.kpd"))
+      << "roles = [\"meter\"]\nidentity = \"*,OTHER-DMM,*\"\n[commands]\nmeter-read-voltage = \"MEAS:VOLT:DC?\"\n";
   auto text = fmt::format(
       "[[instrument]]\nname = \"l\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\nroles = [\"load\", \"thermometer\"]\n"
       "[[instrument]]\nname = \"m\"\naddress = \"{}\"\nprofile = \"other-dmm\"\nroles = [\"meter\"]\n",

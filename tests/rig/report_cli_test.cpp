@@ -56,27 +56,56 @@ TEST(LifeCli, WorkedExampleAsJson) {
 }
 
 // Duty-cycle average (time-weighted mean, common practice, no source):
-// 8 µA for 599.5 s + 25 mA for 0.5 s ≈ 28.8 µA.
-TEST(LifeCli, ProfileFileAndAllowances) {
+// 8 µA for 599.5 s + 25 mA for 0.5 s ≈ 28.8 µA. The profile is a procedure's
+// duty block, read from a file holding only the block or from a procedure by name.
+TEST(LifeCli, DutyBlockAndAllowances) {
   testing::TempDir dir;
-  std::string path = dir.File("node.profile");
-  std::ofstream(path) << "# sensor node\ncompress 100\n8uA for 599.5s compressed\n25mA for 0.5s\n";
-  CliResult r = Cli({"life", "--capacity", "2000mAh", "--profile", path, "--self-discharge", "2%/month", "--json"});
+  std::string path = dir.File("node.kpp");
+  std::ofstream(path) << "# sensor node\nduty node\n  phase sleep 8uA/599.5s\n  phase report 25mA/0.5s\nend\n";
+  CliResult r = Cli({"life", "--capacity", "2000mAh", "--duty", path, "--self-discharge", "2%/month", "--json"});
   ASSERT_EQ(r.code, 0) << r.err;
   auto j = nlohmann::json::parse(r.out);
-  EXPECT_NEAR(j["average_current_A"].get<double>(), (8e-6 * 599.5 + 0.025 * 0.5) / 600.0, 1e-15);
+  const double average_a = (8e-6 * 599.5 + 0.025 * 0.5) / 600.0;
+  EXPECT_NEAR(j["average_current_A"].get<double>(), average_a, 1e-15);
   ASSERT_EQ(j["allowances"].size(), 1u);
   EXPECT_EQ(j["allowances"][0], "self-discharge");
   EXPECT_LT(j["hours"].get<double>(), 2.0 / j["average_current_A"].get<double>());
 
-  std::ofstream(path) << "8uA for 599.5s\n25 mA for half a second\n";
-  CliResult bad = Cli({"life", "--capacity", "2000mAh", "--profile", path});
+  // The same block inside a whole procedure, compressed for the test: life
+  // takes the real durations, named after the file as FILE:NAME.
+  std::string proc = dir.File("field.kpp");
+  std::ofstream(proc) << "cell li-ion rated=2500mAh cutoff=2.75V max=4.2V\n"
+                         "duty other\n  phase on 1A/1s\nend\n"
+                         "duty node\n  phase sleep 8uA/599.5s\n  phase report 25mA/0.5s\nend\n"
+                         "play node compress=5s until voltage<=2.75V\n";
+  CliResult named = Cli({"life", "--capacity", "2000mAh", "--profile", proc + ":node", "--json"});
+  ASSERT_EQ(named.code, 0) << named.err;
+  EXPECT_NEAR(nlohmann::json::parse(named.out)["average_current_A"].get<double>(), average_a, 1e-15);
+  CliResult two = Cli({"life", "--capacity", "2000mAh", "--duty", proc});
+  EXPECT_EQ(two.code, cli::kExitBadInput);
+  EXPECT_NE(two.err.find("holds 2 duty blocks (other, node)"), std::string::npos) << two.err;
+  CliResult missing = Cli({"life", "--capacity", "2000mAh", "--duty", proc + ":nod"});
+  EXPECT_EQ(missing.code, cli::kExitBadInput);
+  EXPECT_NE(missing.err.find("did you mean 'node'?"), std::string::npos) << missing.err;
+
+  std::ofstream(path) << "duty node\n  phase sleep 8uA/599.5s\n  phase report 25 mA/half\nend\n";
+  CliResult bad = Cli({"life", "--capacity", "2000mAh", "--duty", path});
   EXPECT_EQ(bad.code, cli::kExitBadInput);
-  EXPECT_NE(bad.err.find("node.profile:2:"), std::string::npos) << bad.err;
+  EXPECT_NE(bad.err.find("node.kpp:3:"), std::string::npos) << bad.err;
+
+  // The older second syntax gets one message that shows the block to write.
+  std::ofstream(path) << "compress 100\n8uA for 599.5s compressed\n25mA for 0.5s\n";
+  CliResult old = Cli({"life", "--capacity", "2000mAh", "--profile", path});
+  EXPECT_EQ(old.code, cli::kExitBadInput);
+  EXPECT_NE(old.err.find("older duty syntax"), std::string::npos) << old.err;
+  EXPECT_NE(old.err.find("phase sleep 8uA/599.5s"), std::string::npos) << old.err;
 
   CliResult unit = Cli({"life", "--capacity", "2000mV", "--average", "40uA"});
   EXPECT_EQ(unit.code, cli::kExitBadInput);
   EXPECT_NE(unit.err.find("--capacity"), std::string::npos);
+  CliResult bare = Cli({"life", "--capacity", "3000", "--average", "40uA"});
+  EXPECT_EQ(bare.code, cli::kExitBadInput);
+  EXPECT_NE(bare.err.find("'3000' has no unit: did you mean 3000mAh?"), std::string::npos) << bare.err;
 }
 
 // Peukert derating (Peukert 1897, C_p = I^k t): a capacity Q measured at I_ref

@@ -73,6 +73,28 @@ TEST(RigFile, ParsesEveryKey) {
   EXPECT_DOUBLE_EQ(tight->instruments[2].temperature_tolerance_c, 0.2);
 }
 
+// Keys named for their unit also take a quoted value with a unit, read by the
+// same parser as procedures and options (1 A = 1000 mA, 1 s = 1000 ms).
+TEST(RigFile, QuotedValuesTakeUnits) {
+  std::string text = Replace(kGood, "max_current_a = 8.0", "max_current_a = \"8000 mA\"");
+  text = Replace(text, "max_voltage_v = 4.4", "max_voltage_v = \"4400mV\"");
+  text = Replace(text, "current_offset_a = -0.002", "current_offset_a = \"-2mA\"\ntimeout_s = \"1500ms\"");
+  auto spec = ParseRigFile(text, "/tmp/bench.toml");
+  ASSERT_TRUE(spec.ok()) << spec.status().ToString();
+  EXPECT_DOUBLE_EQ(spec->limits.max_current_a, 8.0);
+  EXPECT_DOUBLE_EQ(spec->limits.max_voltage_v, 4.4);
+  EXPECT_DOUBLE_EQ(spec->instruments[0].timeout_s, 1.5);
+  EXPECT_DOUBLE_EQ(spec->instruments[0].current.Apply(1.0), 1.001 - 0.002);
+  auto bad = ParseRigFile(Replace(kGood, "max_voltage_v = 4.4", "max_voltage_v = \"4.4\""), "/tmp/bench.toml");
+  ASSERT_FALSE(bad.ok());
+  EXPECT_NE(bad.status().message().find("bench.toml:6: key 'bench.max_voltage_v': '4.4' has no unit: did you mean 4.4V?"),
+            std::string::npos)
+      << bad.status().message();
+  auto wrong = ParseRigFile(Replace(kGood, "max_voltage_v = 4.4", "max_voltage_v = \"4.4A\""), "/tmp/bench.toml");
+  ASSERT_FALSE(wrong.ok());
+  EXPECT_NE(wrong.status().message().find("needs a voltage"), std::string::npos) << wrong.status().message();
+}
+
 TEST(RigFile, MalformedGivesFileLineAndKey) {
   struct Case {
     std::string text;
@@ -121,14 +143,14 @@ TEST(RigFile, MalformedGivesFileLineAndKey) {
 TEST(RigFile, MalformedProfileNamesBothFiles) {
   testing::TempDir dir;
   std::filesystem::create_directories(dir.path() / "profiles");
-  std::ofstream(dir.File("profiles/odd-meter.kpp")) << "roles = meter\nmeter-read-voltage = READ\n";
+  std::ofstream(dir.File("profiles/odd-meter.kpd")) << "roles = [\"meter\"]\n[commands]\nmeter-read-voltage = \"READ\"\n";
   std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"odd-meter\"");
   std::ofstream(dir.File("bench.toml")) << text;
   auto spec = LoadRigFile(dir.File("bench.toml"));
   ASSERT_FALSE(spec.ok());
   const std::string m = spec.status().message();
   EXPECT_NE(m.find("bench.toml:22: key 'instrument[2].profile'"), std::string::npos) << m;
-  EXPECT_NE(m.find("odd-meter.kpp:2: key 'meter-read-voltage'"), std::string::npos) << m;
+  EXPECT_NE(m.find("odd-meter.kpd:3: key 'meter-read-voltage'"), std::string::npos) << m;
 }
 
 TEST(RigFile, ShippedExamplesParse) {

@@ -76,13 +76,13 @@ TEST(RunEngine, FirstSampleIsOpenCircuitAtTimeZero) {
 TEST(RunEngine, EachStepKindReachesItsEnd) {
   Bench b;
   Plan p = Compile(
-      "profile node\n  phase sleep 10mA/8s\n  phase burst 400mA/2s\nend\n"
+      "duty node\n  phase sleep 10mA/8s\n  phase burst 400mA/2s\nend\n"
       "rest 10min every=10s\n"
       "discharge 1A until voltage<=3.7V\n"
       "discharge 3W until voltage<=3.6V\n"
       "discharge 10Ohm until time>=5min\n"
       "pulse 2A/5s 200mA/15s until voltage<=3.5V\n"
-      "cycle node until time>=10min\n"
+      "play node until time>=10min\n"
       "dcir 0.2C/10s 1C/1s every=1s\n"
       "discharge 1A until charge>=100mAh\n"
       "discharge 1A until energy>=0.2Wh\n");
@@ -142,8 +142,8 @@ TEST(RunEngine, DutyCycleAverageEqualsTheProfile) {
   // The compressed phase runs 3 s instead of 60 s; the run's cycle is
   // 3 + 0.5 + 1.2 + 0.3 = 5 s.
   Plan p = Compile(
-      "profile node\n  phase sleep 50uA/60s\n  phase sense 8mA/500ms\n  phase radio 120mA/1.2s\n  phase listen 30mA/300ms\nend\n"
-      "cycle node compress=3s until time>=10min every=1s\n");
+      "duty node\n  phase sleep 50uA/60s\n  phase sense 8mA/500ms\n  phase radio 120mA/1.2s\n  phase listen 30mA/300ms\nend\n"
+      "play node compress=3s until time>=10min every=1s\n");
   RunResult r = b.Run(p);
   ASSERT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
   auto s = OfStep(b.Samples(r.run_id), 0);

@@ -157,7 +157,7 @@ TEST(SimSocCli, ChargeFromFortyPercentTakesAsLongAsItShould) {
   EXPECT_DOUBLE_EQ(choice->rated_mah, 2500.0);
 
   // A cold, aged cell: recorded as such, and the run starts at the ambient temperature.
-  ASSERT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-soc", "0.9", "--sim-ambient", "0", "--sim-age", "10%"}),
+  ASSERT_EQ(Cli({"run", proc, "--rig", "sim", "--db", db, "--sim-soc", "0.9", "--sim-ambient", "0degC", "--sim-age", "10%"}),
             cli::kExitOk);
   runs = (*store)->ListRuns();
   ASSERT_EQ(runs->size(), 3u);
