@@ -15,11 +15,9 @@
 
 #include "drivers/spelling.h"
 
+#include "drivers/data_dir.h"
 #include "drivers/text_limits.h"
 
-#ifndef KP_PROFILE_DIR
-#define KP_PROFILE_DIR "drivers/profiles"
-#endif
 
 namespace kp {
 namespace {
@@ -238,7 +236,8 @@ Result<std::string> FindProfile(const std::string& ref, const std::string& base_
       rest = colon == std::string_view::npos ? std::string_view() : rest.substr(colon + 1);
     }
   }
-  dirs.emplace_back(KP_PROFILE_DIR);
+  // The dialects shipped with the program (drivers/data_dir.h).
+  if (std::optional<fs::path> shipped = DataSubdir("profiles")) dirs.push_back(*shipped);
   std::string tried;
   for (const auto& d : dirs) {
     fs::path p = d / (ref + kDialectExtension);

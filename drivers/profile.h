@@ -51,7 +51,8 @@ Result<InstrumentProfile> LoadProfileFile(const std::string& path);
 // Resolves a dialect reference from a rig file: a path (contains '/' or ends
 // in .kpd, relative to `base_dir`) or a bare name looked up as NAME.kpd in
 // `base_dir`/profiles, each directory of $KNEEPOINT_PROFILES (':'-separated)
-// and the profiles shipped with the sources, in that order.
+// and the dialects shipped with the program (profiles/ of its data folder,
+// drivers/data_dir.h), in that order.
 Result<std::string> FindProfile(const std::string& ref, const std::string& base_dir);
 
 // Replaces {ch} in every command of `p` with `channel`.

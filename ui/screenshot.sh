@@ -9,7 +9,7 @@ work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 cd "$work"
 "$kp" demo >/dev/null
-xvfb-run -a -s '-screen 0 1600x1000x24' "$kp" view --run 1 \
+xvfb-run -a -s '-screen 0 1600x1000x24' "$kp" view --db kneepoint-demo.db --run 1 \
   --screenshot "$here/docs/panel-live.png" --size 1600x1000 --frames 4
-xvfb-run -a -s '-screen 0 1600x1000x24' "$kp" view --run 1 --light \
+xvfb-run -a -s '-screen 0 1600x1000x24' "$kp" view --db kneepoint-demo.db --run 1 --light \
   --screenshot "$here/docs/panel-live-light.png" --size 1600x1000 --frames 4

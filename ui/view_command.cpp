@@ -1,5 +1,7 @@
 #include "ui/view_command.h"
 
+#include "rig/config.h"
+
 #include <filesystem>
 #include <fstream>
 #include <iostream>
@@ -16,7 +18,7 @@ namespace kp::ui {
 namespace {
 
 struct ViewOptions {
-  std::string db = "kneepoint-demo.db";
+  std::string db = kDefaultDatabase;  // or the configuration file's (rig/config.h)
   int64_t run = 0;
   std::string compare;
   std::string tab = "live";

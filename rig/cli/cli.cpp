@@ -3,6 +3,7 @@
 #include <atomic>
 #include <cmath>
 #include <csignal>
+#include <cstdlib>
 #include <cstdio>
 #include <algorithm>
 #include <iostream>
@@ -10,6 +11,7 @@
 #include <fmt/format.h>
 
 #include "drivers/spelling.h"
+#include "rig/config.h"
 
 namespace kp::cli {
 namespace {
@@ -157,6 +159,40 @@ std::string SuggestForCommandLine(CLI::App& app, const std::vector<std::string>&
   return "";
 }
 
+namespace {
+
+// The configuration file's values become the defaults of the options they
+// stand for (README "Configuration"); an option given on the command line
+// still wins. `demo` keeps its own database.
+void ApplyConfigDefaults(CLI::App& app, const UserConfig& cfg) {
+  for (CLI::App* sub : app.get_subcommands({})) {
+    auto set = [&](const char* name, const std::optional<std::string>& value) {
+      CLI::Option* o = sub->get_option_no_throw(name);
+      if (o == nullptr || !value) return;
+      o->default_val(*value);
+      o->required(false);
+    };
+    if (sub->get_name() != "demo") {
+      if (CLI::Option* db = sub->get_option_no_throw("--db")) {
+        db->default_val(ChooseDatabase("", cfg));
+        db->required(false);
+      }
+    }
+    set("--rig", cfg.rig);
+    set("--bench", cfg.bench);
+    set("--operator", cfg.operator_name);
+  }
+  // Dialect folders: searched like $KNEEPOINT_PROFILES, before it.
+  if (!cfg.dialect_path.empty()) {
+    std::string dirs;
+    for (const std::string& d : cfg.dialect_path) dirs += (dirs.empty() ? "" : ":") + d;
+    if (const char* env = std::getenv("KNEEPOINT_PROFILES"); env != nullptr && *env != '\0') dirs += std::string(":") + env;
+    setenv("KNEEPOINT_PROFILES", dirs.c_str(), 1);
+  }
+}
+
+}  // namespace
+
 int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   CLI::App app{"kneepoint: bench controller and data logger for battery discharge tests"};
   app.require_subcommand(1);
@@ -176,6 +212,9 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterControl(registry);
   RegisterResume(registry);
   for (Registrar r : extra) r(registry);
+  Result<UserConfig> config = LoadUserConfig();
+  if (!config.ok()) return Fail(config.status());
+  ApplyConfigDefaults(app, *config);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {

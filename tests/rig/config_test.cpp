@@ -5,6 +5,7 @@
 #include <cstdlib>
 #include <fstream>
 
+#include "rig/cli/cli.h"
 #include "rig/config.h"
 #include "tests/support/test_support.h"
 
@@ -92,6 +93,58 @@ TEST(UserConfig, MistakesNameFileLineAndColumn) {
   auto broken = ParseUserConfig("bench = \"b\nx", "cfg.toml");
   ASSERT_FALSE(broken.ok());
   EXPECT_EQ(broken.status().message().rfind("cfg.toml:1:", 0), 0u) << broken.status().message();
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+struct Captured {
+  int code = 0;
+  std::string err;
+};
+
+Captured Kneepoint(std::vector<std::string> args) {
+  args.insert(args.begin(), "kneepoint");
+  std::vector<char*> argv;
+  for (std::string& a : args) argv.push_back(a.data());
+  ::testing::internal::CaptureStdout();
+  ::testing::internal::CaptureStderr();
+  Captured r;
+  r.code = cli::RunCli(static_cast<int>(argv.size()), argv.data());
+  ::testing::internal::GetCapturedStdout();
+  r.err = ::testing::internal::GetCapturedStderr();
+  return r;
+}
+
+TEST(UserConfig, CommandsTakeTheirDatabaseFromItUnlessTold) {
+  testing::TempDir dir;
+  std::string file = dir.File("config.toml");
+  std::string configured = dir.File("bench-3.db");
+  {
+    std::ofstream out(file);
+    out << "database = \"" << configured << "\"\n";
+  }
+  EnvVar k("KNEEPOINT_CONFIG", file.c_str());
+  // The configured database does not exist: `runs` names it.
+  Captured r = Kneepoint({"runs"});
+  EXPECT_EQ(r.code, cli::kExitBadInput);
+  EXPECT_NE(r.err.find(configured), std::string::npos) << r.err;
+  // An option wins over the file.
+  std::string other = dir.File("other.db");
+  r = Kneepoint({"runs", "--db", other});
+  EXPECT_NE(r.err.find(other), std::string::npos) << r.err;
+  EXPECT_EQ(r.err.find(configured), std::string::npos) << r.err;
+  // A broken configuration stops every command with its file:line:col.
+  {
+    std::ofstream out(file);
+    out << "databse = \"x.db\"\n";
+  }
+  r = Kneepoint({"runs"});
+  EXPECT_EQ(r.code, cli::kExitBadInput);
+  EXPECT_NE(r.err.find(file + ":1:1: databse: unknown key"), std::string::npos) << r.err;
 }
 
 }  // namespace

@@ -1,8 +1,19 @@
 #include "tests/support/test_support.h"
 
+#include <cstdlib>
 #include <random>
 
 namespace kp::testing {
+namespace {
+
+// The tests never read the configuration file of whoever runs them (README
+// "Configuration"): a test that wants one names it in KNEEPOINT_CONFIG.
+const bool kNoUserConfig = [] {
+  setenv("KNEEPOINT_CONFIG", "/nonexistent/kneepoint-tests/config.toml", 1);
+  return true;
+}();
+
+}  // namespace
 
 TempDir::TempDir() {
   std::random_device rd;
