@@ -1,5 +1,7 @@
 #include "rig/run_report.h"
 
+#include "rig/judgeable.h"
+
 #include "procedures/procedure_parser.h"
 #include "rig/commanded_segments.h"
 
@@ -71,6 +73,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
     ctx.steps.push_back(std::move(r));
   }
   if (!ctx.cutoff_v && plan != nullptr && plan->cell.cutoff_v > 0) ctx.cutoff_v = plan->cell.cutoff_v;
+  if (plan != nullptr) NoteExpectedSpacing(*plan, ctx.steps);
   // DC-IR points the engine measured (runs recorded with step records).
   ctx.dcir_recorded = !rep.steps.empty() && !migrated;
   for (const DcirRow& p : dcir_rows) {
@@ -90,6 +93,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   // Gaps the runner logged (e.g. on resume): the sample interval holding the event.
   for (const EventRow& e : events)
     if (e.kind == "gap") ctx.gap_event_times.push_back(e.t_s);
+  ctx.outage_mah = OutageCharges(events);  // charge counted for outages on resume
   // One pass over the samples, straight from the database: memory stays
   // bounded whatever the run's length.
   KP_ASSIGN_OR_RETURN(auto range, store.SampleTimeRange(run_id));
@@ -104,6 +108,19 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   rep.context = std::move(ctx);
   if (!rep.context.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
+  // Verdicts only on finished discharges seen (nearly) throughout; an outage
+  // counted on resume is named beside the verdict (rig/judgeable.h).
+  if (std::string why = WhyNotJudged(rep.run, rep.analysis); !why.empty()) {
+    WithholdVerdicts(rep.analysis, why);
+    rep.verdict.pass = false;
+    rep.verdict.text = "not judged: " + why;
+  }
+  bool estimated = false;
+  if (std::string outage = OutageNote(events, estimated); !outage.empty()) {
+    const std::string note = estimated ? " [depends on an estimated outage: " + outage + "]" : " [outage counted: " + outage + "]";
+    rep.analysis.verdict.text += note;
+    rep.verdict.text += note;
+  }
   return rep;
 }
 
