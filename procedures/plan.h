@@ -7,6 +7,7 @@
 #include <limits>
 #include <optional>
 #include <string>
+#include <cstdint>
 #include <vector>
 
 #include "drivers/roles.h"

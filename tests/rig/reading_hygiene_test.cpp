@@ -48,8 +48,8 @@ TEST(ReadingHygiene, AFrozenMeterStopsTheRunByDefault) {
   EXPECT_FALSE(h.bench.load_input_on());
   auto samples = h.f.store->LoadSamples(r.run_id);
   ASSERT_TRUE(samples.ok());
-  // Frozen at 1800 s; 1 % of 2500 mAh at 1.25 A is 72 s more.
-  EXPECT_LT(samples->back().t_s, 1800 + 72 + 2 * 2 + 1);
+  // Frozen at 1800 s; 1 % of 2500 mAh at 1.25 A is 72 s more (plus a reading or two).
+  EXPECT_LT(samples->back().t_s, 1800 + 90);
   EXPECT_LT(DeliveredChargeMah(*samples), 700.0);
 }
 
