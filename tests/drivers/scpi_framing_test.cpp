@@ -3,7 +3,17 @@
 // such a line taken as the reply to a later query.
 #include <gtest/gtest.h>
 
+#include <arpa/inet.h>
+#include <netinet/in.h>
+#include <sys/socket.h>
+#include <unistd.h>
+
+#include <chrono>
+#include <thread>
+
+#include "drivers/address.h"
 #include "drivers/inproc_transport.h"
+#include "drivers/stream_transport.h"
 #include "drivers/scpi_session.h"
 #include "tests/support/hostile_device.h"
 #include "tests/support/test_support.h"
@@ -83,6 +93,83 @@ TEST(ScpiFraming, UnaskedInputBeforeAQueryIsDroppedByAResync) {
   ASSERT_TRUE(r.ok()) << r.status().ToString();
   EXPECT_EQ(*r, "5");
   EXPECT_EQ(l.session->resync_count(), 1);
+}
+
+// A raw TCP instrument that answers "ECHO? x" with "x#n" (n counts the
+// queries), the second one late and in two fragments; *OPC? with 1.
+class LateFragmentsServer {
+ public:
+  LateFragmentsServer() {
+    listen_fd_ = socket(AF_INET, SOCK_STREAM, 0);
+    sockaddr_in a{};
+    a.sin_family = AF_INET;
+    a.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+    bind(listen_fd_, reinterpret_cast<sockaddr*>(&a), sizeof a);
+    listen(listen_fd_, 1);
+    socklen_t len = sizeof a;
+    getsockname(listen_fd_, reinterpret_cast<sockaddr*>(&a), &len);
+    port_ = ntohs(a.sin_port);
+    thread_ = std::thread([this] { Serve(); });
+  }
+  ~LateFragmentsServer() {
+    thread_.join();
+    close(listen_fd_);
+  }
+  int port() const { return port_; }
+
+ private:
+  void Serve() {
+    int fd = accept(listen_fd_, nullptr, nullptr);
+    if (fd < 0) return;
+    std::string buf;
+    int n = 0;
+    char c;
+    while (read(fd, &c, 1) == 1) {
+      if (c != '\n') {
+        buf += c;
+        continue;
+      }
+      std::string line = buf;
+      buf.clear();
+      auto send = [&](const std::string& s) { (void)!write(fd, s.data(), s.size()); };
+      if (line == "*OPC?") send("1\n");
+      if (line.rfind("ECHO? ", 0) != 0) continue;
+      ++n;
+      std::string reply = line.substr(6) + "#" + std::to_string(n);
+      if (n == 2) {
+        std::this_thread::sleep_for(std::chrono::milliseconds(750));  // after the 0.5 s timeout
+        send(reply.substr(0, 1));
+        std::this_thread::sleep_for(std::chrono::milliseconds(20));
+        send(reply.substr(1) + "\n");
+      } else {
+        send(reply + "\n");
+      }
+    }
+    close(fd);
+  }
+  int listen_fd_ = -1;
+  int port_ = 0;
+  std::thread thread_;
+};
+
+// Over a real socket: the late reply, arriving in fragments after the
+// timeout, is dropped by the resync and never answers a later query.
+TEST(ScpiFraming, ALateFragmentedReplyOverTcpIsNeverTakenForALaterOne) {
+  LateFragmentsServer server;
+  auto addr = ParseAddress("tcp:127.0.0.1:" + std::to_string(server.port()));
+  ASSERT_TRUE(addr.ok());
+  auto t = OpenTransport(*addr);
+  ASSERT_TRUE(t.ok()) << t.status().ToString();
+  VirtualClock clock;
+  ScpiOptions o;
+  o.timeout = Seconds(0.5);
+  ScpiSession session(std::move(*t), clock, o);
+  for (int i = 1; i <= 4; ++i) {
+    Result<std::string> r = session.Query("ECHO? q" + std::to_string(i));
+    ASSERT_TRUE(r.ok()) << r.status().ToString();
+    EXPECT_EQ(r->substr(0, r->find('#')), "q" + std::to_string(i)) << *r;
+  }
+  EXPECT_GE(session.resync_count(), 1);
 }
 
 }  // namespace

@@ -5,6 +5,9 @@
 
 #include <nlohmann/json.hpp>
 
+#include <fstream>
+#include <iterator>
+
 #include "drivers/scpi_trace.h"
 #include "drivers/text_hygiene.h"
 #include "rig/judgeable.h"
@@ -12,6 +15,7 @@
 #include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "tests/support/fixtures.h"
+#include "tests/support/hostile_device.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -165,6 +169,27 @@ TEST(TextHygiene, ReportsOfHostileTextStayUsable) {
   f.store.reset();
   EXPECT_EQ(testing::RunKneepoint({"report", std::to_string(r->run_id), "--db", f.dir.File("run.db"), "--json"}), 0);
   EXPECT_EQ(testing::RunKneepoint({"runs", "--db", f.dir.File("run.db"), "--json"}), 0);
+}
+
+// An instrument whose replies hold terminal escapes and bytes that are not
+// UTF-8: stored as received, exported as valid JSON, printed without escapes.
+TEST(TextHygiene, AnInstrumentsHostileRepliesAreStoredRawAndEmittedClean) {
+  testing::HostileRig h;
+  h.load_dev.replace_when = [](std::string_view l) { return l == "INP?"; };
+  h.load_dev.reply_text = "\x1b[31mON\xFF";
+  RunResult r = h.Run(testing::CompileForCell2500("discharge 1A until time>=20s every=1s\n"));
+  bool raw = false;
+  for (const EventRow& e : *h.f.store->LoadEvents(r.run_id)) {
+    if (e.message.find("\x1b[31mON\xFF") == std::string::npos) continue;
+    raw = true;
+    EXPECT_EQ(TerminalSafe(e.message).find('\x1b'), std::string::npos);
+  }
+  EXPECT_TRUE(raw) << "the reply is kept as received";
+  const std::string out = h.f.dir.File("events.json");
+  ASSERT_EQ(testing::RunKneepoint({"export", std::to_string(r.run_id), "--db", h.f.dir.File("run.db"), "--json", out}), 0);
+  std::ifstream in(out);
+  std::string text((std::istreambuf_iterator<char>(in)), {});
+  EXPECT_NO_THROW((void)nlohmann::json::parse(text));
 }
 
 }  // namespace

@@ -56,6 +56,7 @@ TEST(Reconcile, ASecondClientSwitchingTheLoadOnDuringARestAbortsWithTheLoadOff) 
 TEST(Reconcile, AResetMidDischargeIsCaught) {
   HostileRig h;
   RunOptions o;
+  o.reconcile_period_s = 4;  // before the lost-regulation rule (10 s) could end the run first
   bool done = false;
   o.on_sample = [&](const Reading& rd, double) {
     if (!done && rd.t_s > 1200) {
@@ -72,6 +73,7 @@ TEST(Reconcile, AResetMidDischargeIsCaught) {
 TEST(Reconcile, AClearedUndervoltageProtectionIsCaught) {
   HostileRig h;
   RunOptions o;
+  o.reconcile_period_s = 4;  // before the lost-regulation rule (10 s) could end the run first
   bool done = false;
   o.on_sample = [&](const Reading& rd, double) {
     if (!done && rd.t_s > 1200) {
@@ -88,6 +90,7 @@ TEST(Reconcile, AClearedUndervoltageProtectionIsCaught) {
 TEST(Reconcile, AChangedLevelIsCaught) {
   HostileRig h;
   RunOptions o;
+  o.reconcile_period_s = 4;  // before the lost-regulation rule (10 s) could end the run first
   bool done = false;
   o.on_sample = [&](const Reading& rd, double) {
     if (!done && rd.t_s > 1200) {
