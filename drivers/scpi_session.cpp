@@ -41,7 +41,7 @@ Status ScpiSession::ResyncWithMarker(std::string_view why) {
       transport_->Flush();  // whatever already follows the marker is stray too
       return Status::Ok();
     }
-    Trace('!', fmt::format("discarded stray reply '{}'", *line));
+    Trace('!', fmt::format("discarded late reply '{}' (input nobody asked for, before the resync marker)", *line));
   }
   return ProtocolError("no '1' from '*OPC?' while resynchronising (the instrument keeps sending)");
 }
@@ -53,9 +53,15 @@ Status ScpiSession::CheckQuiet(std::string_view before) {
 
 void ScpiSession::Resync(const Status& last) {
   if (options_.strict_framing && last.code() != StatusCode::kIo) {
-    // A late reply may still be on its way: the marker puts it behind us.
-    (void)ResyncWithMarker(fmt::format("after: {}", last.ToString()));
-    return;
+    // A reply with company, unread input, or a timeout on a link where a late
+    // reply may still be on its way (late_reply > 0: rig files set it): the
+    // marker puts whatever came or comes late behind us. An in-process device
+    // answers only when written to, so there a late reply shows up as input
+    // nobody asked for and is caught by the checks around each exchange.
+    if (last.code() != StatusCode::kTimeout || options_.late_reply.count() > 0 || transport_->HasUnreadInput()) {
+      (void)ResyncWithMarker(fmt::format("after: {}", last.ToString()));
+      return;
+    }
   }
   if (last.code() == StatusCode::kTimeout && options_.late_reply.count() > 0) {
     Result<std::string> late = transport_->ReadLine(options_.late_reply);

@@ -31,9 +31,10 @@ struct ScpiOptions {
   // before retrying, so a slow answer cannot pair with the next query (0: no wait).
   Seconds late_reply{0.0};
   // One command, one complete reply: input nobody asked for (found before a
-  // line is sent, or after a reply was read) and every timeout resynchronise
-  // the link with *CLS and *OPC? (everything before the "1" is discarded), and
-  // the exchange is repeated; a stray line is never taken as a reply.
+  // line is sent, or after a reply was read) resynchronises the link with
+  // *CLS and *OPC? (everything before the "1" is discarded) and the exchange
+  // is repeated; so does a timeout when late_reply > 0 (a late reply may
+  // still come); a stray line is never taken as a reply.
   bool strict_framing = true;
 };
 

@@ -14,6 +14,17 @@ template <typename T, typename F>
 Result<std::optional<T>> StateReconciler::Try(Item item, const char* what, F&& read) {
   if (known_[item] == Known::kNo) return std::optional<T>();
   Result<T> r = read();
+  if (known_[item] == Known::kYes) {
+    // A read-back that answered before: an instrument error (its queue says
+    // so) ends the run; a garbled or lost reply is asked again, as readings are.
+    ScpiSession& session = item >= kSupplyOutput && supply_ != nullptr ? supply_->session() : load_.session();
+    for (int again = 0; !r.ok() && again < 2; ++again) {
+      if (Status queued = session.DrainErrors(); !queued.ok())
+        return InstrumentError(r.status().message() + "; " + queued.message());
+      if (r.status().code() != StatusCode::kProtocol && r.status().code() != StatusCode::kTimeout) break;
+      r = read();
+    }
+  }
   if (r.ok()) {
     known_[item] = Known::kYes;
     return std::optional<T>(*r);

@@ -163,6 +163,7 @@ TEST(ScpiFraming, ALateFragmentedReplyOverTcpIsNeverTakenForALaterOne) {
   VirtualClock clock;
   ScpiOptions o;
   o.timeout = Seconds(0.5);
+  o.late_reply = Seconds(0.5);  // as rig files set it
   ScpiSession session(std::move(*t), clock, o);
   for (int i = 1; i <= 4; ++i) {
     Result<std::string> r = session.Query("ECHO? q" + std::to_string(i));

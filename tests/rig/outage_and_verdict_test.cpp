@@ -136,7 +136,9 @@ TEST(TraceFile, WriteFailuresBecomeRunEvents) {
   auto r = rc.Execute(testing::CompileForCell2500("discharge 1A until time>=20s every=1s\n"), {});
   ASSERT_TRUE(r.ok());
   bool found = false;
-  for (const EventRow& e : *f.store->LoadEvents(r->run_id))
+  auto events = f.store->LoadEvents(r->run_id);
+  ASSERT_TRUE(events.ok());
+  for (const EventRow& e : *events)
     found = found || (e.kind == "trace" && e.message.find("No space left") != std::string::npos);
   EXPECT_TRUE(found);
 }
@@ -179,7 +181,9 @@ TEST(TextHygiene, AnInstrumentsHostileRepliesAreStoredRawAndEmittedClean) {
   h.load_dev.reply_text = "\x1b[31mON\xFF";
   RunResult r = h.Run(testing::CompileForCell2500("discharge 1A until time>=20s every=1s\n"));
   bool raw = false;
-  for (const EventRow& e : *h.f.store->LoadEvents(r.run_id)) {
+  auto events = h.f.store->LoadEvents(r.run_id);
+  ASSERT_TRUE(events.ok());
+  for (const EventRow& e : *events) {
     if (e.message.find("\x1b[31mON\xFF") == std::string::npos) continue;
     raw = true;
     EXPECT_EQ(TerminalSafe(e.message).find('\x1b'), std::string::npos);

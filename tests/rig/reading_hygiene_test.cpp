@@ -64,7 +64,9 @@ TEST(ReadingHygiene, DuplicateAndLateRepliesNeverBecomeSamples) {
   EXPECT_EQ(r.outcome, Outcome::kCompleted) << r.reason;
   EXPECT_GE(h.meter_s.resync_count(), 2);
   EXPECT_GE(h.load_s.resync_count(), 1);
-  for (const Sample& s : *h.f.store->LoadSamples(r.run_id)) {
+  const std::vector<Sample> stored = h.f.Samples(r.run_id);
+  ASSERT_FALSE(stored.empty());
+  for (const Sample& s : stored) {
     EXPECT_GT(s.voltage_v, 2.5) << s.t_s;
     EXPECT_LT(s.voltage_v, 4.3) << s.t_s;
     if (s.t_s > 1) EXPECT_NEAR(s.current_a, 1.0, 0.01) << s.t_s;
