@@ -380,9 +380,13 @@ struct RunStream::State {
   bool finished = false;
 
   double EndOf(size_t k) const { return ends[k]; }
+  std::map<int, double> expected_spacing;  // plan index -> spacing the procedure asked for
   void CloseBlock() {
     const double med = block_spacing.Median();
-    const double limit = std::max(10.0 * med, 5.0);  // GapOptions defaults (analysis/integrate.h)
+    double limit = std::max(10.0 * med, 5.0);  // GapOptions defaults (analysis/integrate.h)
+    // Absolute: relative to what the procedure asked for, whatever the median.
+    if (auto e = expected_spacing.find(block_step); e != expected_spacing.end())
+      limit = std::min(limit, std::max(kAbsoluteGapFactor * e->second, 5.0));
     for (const Gap& g : block_candidates)
       if (g.duration_s() > limit) gaps.push_back(g);
     block_candidates.clear();
@@ -394,6 +398,8 @@ RunStream::RunStream(const RunContext& ctx, double t_first_s, double t_last_s, s
   State& S = *st_;
   S.ctx = ctx;
   S.recs = ctx.steps;
+  for (const StepRecord& r : S.recs)
+    if (r.expected_spacing_s && *r.expected_spacing_s > 0) S.expected_spacing[r.index] = *r.expected_spacing_s;
   if (S.recs.empty()) {
     // No records: the whole record is one instance (a discharge unless it charges).
     StepRecord r;
@@ -686,6 +692,8 @@ RunAnalysis RunStream::Finish() {
     f.t_end_s = c.samples ? c.last_t : end;
     f.min_voltage_v = c.samples ? c.min_v : 0.0;
     f.charge_mah = c.trap.as / 3.6;
+    for (const auto& [t_s, mah] : ctx.outage_mah)
+      if (t_s > rec.started_s && t_s <= end) f.charge_mah += mah;
     f.energy_wh = c.trap.ws / 3600.0;
     if (c.trap.span > 0) {
       f.mean_current_a = c.trap.as / c.trap.span;
@@ -887,4 +895,20 @@ RunAnalysis AnalyseRun(SampleSpan s, const RunContext& ctx) {
   for (const Sample& x : s) st.Add(x);
   return st.Finish();
 }
+void WithholdVerdicts(RunAnalysis& a, const std::string& why) {
+  auto withhold = [&](CapacityJudgement& j) {
+    if (!j.judged && !j.not_judged_why.empty()) {
+      j.text = "not judged: " + why + "; " + j.text;
+      return;
+    }
+    j.judged = false;
+    j.capacity_pass = false;
+    j.not_judged_why = why;
+    j.text = fmt::format("not judged: {} (the figures as recorded: {:.1f} % of rated)", why, j.percent_of_rated);
+    j.brief = "not judged: " + why;
+  };
+  withhold(a.verdict);
+  for (DischargeFigures& d : a.discharges) withhold(d.judgement);
+}
+
 }  // namespace kp

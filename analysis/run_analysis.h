@@ -56,7 +56,15 @@ struct StepRecord {
   // The commanded constant-current segments of a pulse train or duty cycle in
   // run time; empty when unknown or when the step was held (phase lost).
   std::vector<CommandedSegment> segments;
+  // The spacing the procedure asked for between stored samples (its sample
+  // period, or the longest gap of a log-on-change step); empty when unknown.
+  // A gap longer than kAbsoluteGapFactor times it is a gap whatever the
+  // median spacing (a link that dropped most readings has a long median).
+  std::optional<double> expected_spacing_s;
 };
+
+inline constexpr double kAbsoluteGapFactor = 10.0;
+
 
 struct RunContext {
   double rated_mah = 0.0;
@@ -67,6 +75,11 @@ struct RunContext {
   // Times of `gap` events: each becomes the interval between the samples
   // around it (the last before it and the first at or after it).
   std::vector<double> gap_event_times;
+  // Charge counted for outages (a dead runner's unlogged time, accounted on
+  // resume): (run time of the outage's end, mAh). Added to the charge of the
+  // step instance running then, so discharges and verdicts include it; the
+  // report says how it was counted (analysis/METHODS.md, "Outages").
+  std::vector<std::pair<double, double>> outage_mah;
   DcirOptions dcir;
   std::optional<double> brownout_v;
   // DC-IR points the engine measured at commanded edges. When
@@ -155,6 +168,11 @@ struct RunAnalysis {
   CapacityJudgement verdict;
   std::vector<size_t> attempts;  // discharges judged as capacity attempts (indices into `discharges`)
 };
+
+// Withholds the method verdict of the run and of each attempt: the figures
+// stay, the text becomes "not judged: WHY; ..." (a run that did not finish,
+// readings missing). Pure.
+void WithholdVerdicts(RunAnalysis& analysis, const std::string& why);
 
 // Decimated series for plots, built while the samples stream by: each of
 // `columns` columns keeps its lowest and its highest point, in time order, so

@@ -3,7 +3,15 @@
 namespace kp {
 
 Status InProcTransport::WriteLine(std::string_view line) {
-  if (auto reply = device_.HandleLine(line)) pending_.push_back(std::move(*reply));
+  std::optional<std::string> reply = device_.HandleLine(line);
+  if (!reply) return Status::Ok();
+  // One line per terminator; a reply without one is one line (the simulator's).
+  std::string_view rest = *reply;
+  for (size_t nl = rest.find('\n'); nl != std::string_view::npos; nl = rest.find('\n')) {
+    pending_.emplace_back(rest.substr(0, nl));
+    rest.remove_prefix(nl + 1);
+  }
+  if (!rest.empty() || reply->empty()) pending_.emplace_back(rest);
   return Status::Ok();
 }
 

@@ -1,6 +1,7 @@
 // In-process transport: hands each line straight to a LineDevice (the
 // simulator) and queues its reply. Used by the demo and most tests, in virtual
-// time. A missing reply waits out the timeout on the injected Clock, exactly as
+// time. A reply holding line terminators ('\n') is queued as that many lines,
+// as a stream would deliver them (an instrument that answers twice). A missing reply waits out the timeout on the injected Clock, exactly as
 // a silent instrument would.
 #pragma once
 
@@ -20,6 +21,7 @@ class InProcTransport final : public Transport {
   Status WriteLine(std::string_view line) override;
   Result<std::string> ReadLine(Seconds timeout) override;
   void Flush() override { pending_.clear(); }
+  bool HasUnreadInput() override { return !pending_.empty(); }
   std::string Address() const override { return address_; }
 
  private:

@@ -160,6 +160,44 @@ Result<bool> LoadDriver::InputState() {
   return *on;
 }
 
+namespace {
+// "FUNC CURR" -> "CURR"; quotes and blanks stripped, upper case.
+std::string UpperWord(std::string_view t) {
+  std::string out;
+  for (char ch : t)
+    if (ch != '"' && ch != '\'' && ch != ' ' && ch != '\t' && ch != '\r' && ch != '\n')
+      out += static_cast<char>(ch >= 'a' && ch <= 'z' ? ch - 'a' + 'A' : ch);
+  return out;
+}
+bool SameModeWord(const std::string& reply, const std::string& command) {
+  size_t sp = command.find_first_of(" \t");
+  if (sp == std::string::npos) return false;
+  std::string arg = UpperWord(std::string_view(command).substr(sp + 1));
+  if (arg.empty() || reply.empty()) return false;
+  if (arg == reply) return true;
+  // Short and long forms: CURR / CURRENT, RES / RESISTANCE.
+  const std::string& shorter = arg.size() < reply.size() ? arg : reply;
+  const std::string& longer = arg.size() < reply.size() ? reply : arg;
+  return shorter.size() >= 3 && longer.compare(0, shorter.size(), shorter) == 0;
+}
+}  // namespace
+
+Result<LoadMode> LoadDriver::ReadMode() {
+  std::string query = cmd_.mode_read.empty() ? ReadBackQuery(cmd_.mode_current) : cmd_.mode_read;
+  if (query.empty()) return InvalidInput(fmt::format("{}: the instrument profile has no query for the mode", session_.address()));
+  KP_ASSIGN_OR_RETURN(std::string reply, session_.Query(query));
+  std::string word = UpperWord(reply);
+  if (SameModeWord(word, cmd_.mode_current)) return LoadMode::kCurrent;
+  if (SameModeWord(word, cmd_.mode_resistance)) return LoadMode::kResistance;
+  if (SameModeWord(word, cmd_.mode_power)) return LoadMode::kPower;
+  return ProtocolError(fmt::format("{}: '{}' answered '{}', not one of the profile's modes", session_.address(), query, reply));
+}
+
+Result<double> LoadDriver::ReadLevel(LoadMode mode) {
+  const std::string& c = mode == LoadMode::kCurrent ? cmd_.set_current : mode == LoadMode::kResistance ? cmd_.set_resistance : cmd_.set_power;
+  return ReadFiniteNumber(session_, ReadBackQuery(c), "the load's level");
+}
+
 Status LoadDriver::SetRemoteSense(bool on) {
   const std::string& c = on ? cmd_.remote_sense_on : cmd_.remote_sense_off;
   if (c.empty()) return InvalidInput(fmt::format("{}: the instrument profile has no command to switch remote sense", session_.address()));

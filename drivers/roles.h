@@ -66,6 +66,9 @@ struct LoadCommands {
   // Optional read-back queries; empty: ReadBackQuery of the command.
   std::string under_voltage_read, over_current_read, over_power_read, watchdog_read;
   std::string input_state;  // optional; empty: ReadBackQuery(input_off)
+  // Optional read-backs used to reconcile what the load holds with what the
+  // run commanded; empty: ReadBackQuery of mode_current / of the level command.
+  std::string mode_read;
   std::string remote_sense_on;         // optional: 4-wire sense at the cell
   std::string remote_sense_off;
 };
@@ -90,6 +93,10 @@ class LoadDriver {
   Result<double> ReadGuard(LoadGuard g);
   // The input's state as the load reports it.
   Result<bool> InputState();
+  // The mode the load reports (its reply matched against the argument of each
+  // mode command, short or long form) and the level it holds in that mode.
+  Result<LoadMode> ReadMode();
+  Result<double> ReadLevel(LoadMode mode);
   // The watchdog guard is armed only on loads reached over a link (rig
   // files): a simulated load in this process dies with it. The instrument
   // counts in its own seconds: wall seconds on hardware, simulated ones on

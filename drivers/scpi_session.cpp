@@ -20,7 +20,49 @@ Status ScpiSession::Send(std::string_view line) {
   return st;
 }
 
+Status ScpiSession::ResyncWithMarker(std::string_view why) {
+  ++resync_count_;
+  Trace('!', fmt::format("resynchronising: {}", why));
+  transport_->Flush();
+  KP_RETURN_IF_ERROR(Send("*CLS"));
+  KP_RETURN_IF_ERROR(Send("*OPC?"));
+  // Bounded: a device that chatters forever is not waited for.
+  for (int i = 0; i < 16; ++i) {
+    Result<std::string> line = transport_->ReadLine(options_.timeout);
+    if (!line.ok()) {
+      Trace('!', "resync: " + line.status().ToString());
+      return line.status();
+    }
+    std::string_view l = *line;
+    while (!l.empty() && (l.back() == ' ' || l.back() == '\r')) l.remove_suffix(1);
+    while (!l.empty() && (l.front() == ' ' || l.front() == '+')) l.remove_prefix(1);
+    if (l == "1") {
+      Trace('<', *line);
+      transport_->Flush();  // whatever already follows the marker is stray too
+      return Status::Ok();
+    }
+    Trace('!', fmt::format("discarded late reply '{}' (input nobody asked for, before the resync marker)", *line));
+  }
+  return ProtocolError("no '1' from '*OPC?' while resynchronising (the instrument keeps sending)");
+}
+
+Status ScpiSession::CheckQuiet(std::string_view before) {
+  if (!options_.strict_framing || !transport_->HasUnreadInput()) return Status::Ok();
+  return ResyncWithMarker(fmt::format("unasked input waiting before '{}'", before));
+}
+
 void ScpiSession::Resync(const Status& last) {
+  if (options_.strict_framing && last.code() != StatusCode::kIo) {
+    // A reply with company, unread input, or a timeout on a link where a late
+    // reply may still be on its way (late_reply > 0: rig files set it): the
+    // marker puts whatever came or comes late behind us. An in-process device
+    // answers only when written to, so there a late reply shows up as input
+    // nobody asked for and is caught by the checks around each exchange.
+    if (last.code() != StatusCode::kTimeout || options_.late_reply.count() > 0 || transport_->HasUnreadInput()) {
+      (void)ResyncWithMarker(fmt::format("after: {}", last.ToString()));
+      return;
+    }
+  }
   if (last.code() == StatusCode::kTimeout && options_.late_reply.count() > 0) {
     Result<std::string> late = transport_->ReadLine(options_.late_reply);
     if (late.ok()) Trace('!', fmt::format("discarded late reply '{}'", *late));
@@ -53,6 +95,7 @@ Status ScpiSession::Retrying(std::string_view what, bool retry_protocol, const s
 
 Status ScpiSession::Write(std::string_view command) {
   return Retrying(command, /*retry_protocol=*/true, [&]() -> Status {
+    KP_RETURN_IF_ERROR(CheckQuiet(command));
     KP_RETURN_IF_ERROR(Send(command));
     if (!options_.confirm_writes) return Status::Ok();
     KP_RETURN_IF_ERROR(Send("*OPC?"));
@@ -74,7 +117,10 @@ Status ScpiSession::Write(std::string_view command) {
 
 Result<std::string> ScpiSession::Query(std::string_view query) {
   std::string line;
-  Status st = Retrying(query, /*retry_protocol=*/false, [&]() -> Status {
+  // Under strict framing a reply with company (a second line right behind
+  // it) is not trusted: the exchange is resynchronised and repeated.
+  Status st = Retrying(query, /*retry_protocol=*/options_.strict_framing, [&]() -> Status {
+    KP_RETURN_IF_ERROR(CheckQuiet(query));
     KP_RETURN_IF_ERROR(Send(query));
     Result<std::string> reply = transport_->ReadLine(options_.timeout);
     if (!reply.ok()) {
@@ -82,6 +128,11 @@ Result<std::string> ScpiSession::Query(std::string_view query) {
       return reply.status();
     }
     Trace('<', *reply);
+    if (options_.strict_framing && transport_->HasUnreadInput()) {
+      Status bad = ProtocolError(fmt::format("'{}' was answered by more than one line; reply '{}' not used", query, *reply));
+      Trace('!', bad.message());
+      return bad;
+    }
     line = std::move(*reply);
     return Status::Ok();
   });

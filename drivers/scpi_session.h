@@ -30,6 +30,12 @@ struct ScpiOptions {
   // After a query timed out, wait this long for its late reply and discard it
   // before retrying, so a slow answer cannot pair with the next query (0: no wait).
   Seconds late_reply{0.0};
+  // One command, one complete reply: input nobody asked for (found before a
+  // line is sent, or after a reply was read) resynchronises the link with
+  // *CLS and *OPC? (everything before the "1" is discarded) and the exchange
+  // is repeated; so does a timeout when late_reply > 0 (a late reply may
+  // still come); a stray line is never taken as a reply.
+  bool strict_framing = true;
 };
 
 // Direction of a traced line: '>' sent, '<' received, '!' a failure note.
@@ -43,6 +49,8 @@ class ScpiSession {
   const std::string& address() const { return address_; }
   // Number of retried exchanges so far (for the run log).
   int retry_count() const { return retry_count_; }
+  // Number of resynchronisations after a late, duplicate or unasked reply.
+  int resync_count() const { return resync_count_; }
 
   // Sends a command that has no reply.
   Status Write(std::string_view command);
@@ -74,6 +82,10 @@ class ScpiSession {
   // carries the address and `what`.
   Status Retrying(std::string_view what, bool retry_protocol, const std::function<Status()>& once);
   void Trace(char direction, std::string_view text);
+  // Strict framing: *CLS, *OPC?, lines read and dropped until its "1".
+  Status ResyncWithMarker(std::string_view why);
+  // Strict framing: before sending, input nobody asked for forces a resync.
+  Status CheckQuiet(std::string_view before);
 
   std::unique_ptr<Transport> transport_;
   Clock& clock_;
@@ -81,6 +93,7 @@ class ScpiSession {
   std::string address_;
   ScpiTraceHook trace_;
   int retry_count_ = 0;
+  int resync_count_ = 0;
 };
 
 }  // namespace kp

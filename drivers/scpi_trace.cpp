@@ -1,6 +1,7 @@
 #include "drivers/scpi_trace.h"
 
 #include <chrono>
+#include <cerrno>
 #include <cstdio>
 #include <cstring>
 #include <ctime>
@@ -12,8 +13,19 @@
 namespace kp {
 namespace {
 
+// Lost lines of every trace file, by path, until TakeTraceWriteErrors.
+std::mutex g_lost_mu;
+std::string g_lost;
+
+void NoteLost(const std::string& path, int err) {
+  std::lock_guard<std::mutex> lock(g_lost_mu);
+  std::string entry = fmt::format("trace file '{}': a line was lost: {}", path, std::strerror(err));
+  if (g_lost.find(entry) == std::string::npos) g_lost += (g_lost.empty() ? "" : "; ") + entry;
+}
+
 struct TraceFile {
   std::mutex mu;
+  std::string path;
   std::FILE* f = nullptr;
   ~TraceFile() {
     if (f != nullptr) std::fclose(f);
@@ -35,14 +47,25 @@ std::string WallStamp() {
 
 Result<ScpiTraceHook> OpenTraceFile(const std::string& path) {
   auto file = std::make_shared<TraceFile>();
+  file->path = path;
   file->f = std::fopen(path.c_str(), "a");
   if (file->f == nullptr) return IoError(fmt::format("cannot open trace file '{}': {}", path, std::strerror(errno)));
   return ScpiTraceHook([file](Seconds at, char direction, const std::string& address, std::string_view text) {
     std::string line = fmt::format("{}  t={:.3f}s  {}  {}  {}\n", WallStamp(), at.count(), address, direction, text);
     std::lock_guard<std::mutex> lock(file->mu);
-    std::fputs(line.c_str(), file->f);
-    std::fflush(file->f);
+    errno = 0;
+    if (std::fputs(line.c_str(), file->f) < 0 || std::fflush(file->f) != 0 || std::ferror(file->f)) {
+      NoteLost(file->path, errno != 0 ? errno : EIO);
+      std::clearerr(file->f);
+    }
   });
+}
+
+std::string TakeTraceWriteErrors() {
+  std::lock_guard<std::mutex> lock(g_lost_mu);
+  std::string out;
+  out.swap(g_lost);
+  return out;
 }
 
 }  // namespace kp

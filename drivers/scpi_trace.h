@@ -15,4 +15,10 @@ namespace kp {
 // Opens (appends to) `path`; fails with kIo naming the path.
 Result<ScpiTraceHook> OpenTraceFile(const std::string& path);
 
+// Trace lines that could not be written (a full disk, an I/O error) since the
+// last call, in words ("trace file 'x': 12 lines lost: No space left on
+// device"); empty when none. The run records it as an event: a trace that
+// stops short says so instead of ending silently.
+std::string TakeTraceWriteErrors();
+
 }  // namespace kp

@@ -103,6 +103,13 @@ class FdTransport : public Transport {
     }
   }
 
+  bool HasUnreadInput() override {
+    if (!buffer_.empty()) return true;
+    if (fd_ < 0) return false;
+    pollfd p{fd_, POLLIN, 0};
+    return ::poll(&p, 1, 0) > 0 && (p.revents & POLLIN) != 0;
+  }
+
   Status Reconnect() override {
     Close();
     buffer_.clear();

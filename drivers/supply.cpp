@@ -28,6 +28,12 @@ Result<bool> SupplyDriver::OutputState() {
   if (!on) return ProtocolError(fmt::format("{}: '{}' answered '{}', not a state (1/0/ON/OFF)", session_.address(), query, reply));
   return *on;
 }
+Result<double> SupplyDriver::ReadVoltageSetting() {
+  return ReadFiniteNumber(session_, ReadBackQuery(cmd_.set_voltage), "the supply's voltage setting");
+}
+Result<double> SupplyDriver::ReadCurrentSetting() {
+  return ReadFiniteNumber(session_, ReadBackQuery(cmd_.set_current), "the supply's current limit");
+}
 Result<double> SupplyDriver::MeasureCurrent() { return ReadFiniteNumber(session_, cmd_.measure_current, "supply current"); }
 
 }  // namespace kp

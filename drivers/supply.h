@@ -31,6 +31,10 @@ class SupplyDriver {
   Result<double> MeasureCurrent();  // >= 0 while charging
   // The output's state as the supply reports it.
   Result<bool> OutputState();
+  // The voltage and current-limit settings the supply holds (ReadBackQuery of
+  // set_voltage / set_current), for reconciliation.
+  Result<double> ReadVoltageSetting();
+  Result<double> ReadCurrentSetting();
   const SupplyCommands& commands() const { return cmd_; }
   ScpiSession& session() { return session_; }
 

@@ -25,6 +25,9 @@ class Transport {
   virtual Result<std::string> ReadLine(Seconds timeout) = 0;
   // Drops any unread input (after a timeout, before a retry).
   virtual void Flush() {}
+  // True when input the session has not asked for is waiting (a reply that
+  // came late or twice, or part of one), without blocking. Default: unknown, false.
+  virtual bool HasUnreadInput() { return false; }
   // Closes and reopens the link after it dropped. Default: nothing to do.
   virtual Status Reconnect() { return Status::Ok(); }
   // Address as the user wrote it, for messages and the trace ("tcp:127.0.0.1:5025").

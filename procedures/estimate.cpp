@@ -92,7 +92,7 @@ PlanEstimate EstimatePlan(const Plan& plan, double start_soc) {
   enter(0);
   while (i < static_cast<int>(plan.steps.size())) {
     if (++executions > kMaxExecutions) {
-      est.complete = false;
+      est.extrapolated = true;
       break;
     }
     const Step& s = plan.steps[static_cast<size_t>(i)];
@@ -138,7 +138,7 @@ PlanEstimate EstimatePlan(const Plan& plan, double start_soc) {
       const EndConditions& u = l.until;
       bool done = (u.voltage_below_v && remaining <= rated * 1e-6) || (u.time_s && now - loops[li].start_s >= *u.time_s) ||
                   (u.charge_mah && std::abs(loops[li].charge) >= *u.charge_mah);
-      if (!u.voltage_below_v && !u.time_s && !u.charge_mah && loops[li].iter >= 1000) {
+      if (!u.voltage_below_v && !u.time_s && !u.charge_mah && loops[li].iter >= kMaxRepeatPasses) {
         done = true;
         est.complete = false;
       }
@@ -166,6 +166,25 @@ PlanEstimate EstimatePlan(const Plan& plan, double start_soc) {
     }
     i = next;
     enter(i);
+  }
+  if (est.extrapolated) {
+    // Nested repeats multiply: each step runs the product of the counts
+    // around it (until-loops counted once), at the figures of the passes walked.
+    est.total_s = est.total_mah = 0.0;
+    for (size_t k = 0; k < plan.steps.size(); ++k) {
+      StepEstimate& se = est.steps[k];
+      int64_t passes = 1;
+      for (const Loop& l : plan.loops)
+        if (l.first_step <= static_cast<int>(k) && static_cast<int>(k) <= l.last_step) passes *= l.count > 0 ? l.count : 1;
+      if (se.executions > 0 && passes > se.executions) {
+        const double scale = static_cast<double>(passes) / se.executions;
+        se.duration_s *= scale;
+        se.charge_mah *= scale;
+        se.executions = static_cast<int>(std::min<int64_t>(passes, std::numeric_limits<int>::max()));
+      }
+      est.total_s += se.duration_s;
+      est.total_mah += se.charge_mah;
+    }
   }
   return est;
 }
@@ -231,8 +250,9 @@ std::string DescribePlan(const Plan& plan, const PlanEstimate& est) {
                      : "");
     }
   }
-  out += fmt::format("estimated total: {}{}, {:+.1f} mAh net\n", Hms(est.total_s),
-                     est.complete ? "" : " or more (some ends unknown)", est.total_mah);
+  out += fmt::format("estimated total: {}{}, {:+.1f} mAh net{}\n", Hms(est.total_s),
+                     est.complete ? "" : " or more (some ends unknown)", est.total_mah,
+                     est.extrapolated ? " (extrapolated: nested repeat counts multiplied)" : "");
   return out;
 }
 

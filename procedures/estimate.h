@@ -27,6 +27,10 @@ struct PlanEstimate {
   double total_mah = 0.0;
   bool complete = true;  // false when some step or loop could not be estimated
   double start_soc = 1.0;  // state of charge assumed at the start (fraction of rated)
+  // The step-by-step walk stopped early (too many step executions): each
+  // step's figures were scaled to its passes, the counts of the repeats
+  // around it multiplied (charge then ignores the cell running empty).
+  bool extrapolated = false;
 };
 
 // `start_soc`: the cell's state of charge at the start, 0..1 of its rating.

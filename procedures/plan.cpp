@@ -168,4 +168,30 @@ Plan RatedCapacityPlan(const CellSpec& cell, double sample_period_s) {
   return plan;
 }
 
+namespace {
+// Loops are stored outer first: of two with the same span the later is inside.
+int64_t PassesAt(const std::vector<Loop>& loops, size_t k) {
+  const Loop& l = loops[k];
+  int64_t inner = 1;
+  for (size_t j = 0; j < loops.size(); ++j) {
+    const Loop& o = loops[j];
+    if (j == k || o.first_step < l.first_step || o.last_step > l.last_step) continue;
+    const bool same_span = o.first_step == l.first_step && o.last_step == l.last_step;
+    if (same_span && j < k) continue;
+    inner = std::max(inner, PassesAt(loops, j));
+  }
+  const int64_t mine = l.count > 0 ? l.count : 1;
+  return mine * std::min(inner, kMaxRepeatPasses + 1);
+}
+}  // namespace
+
+int64_t NestedPasses(const std::vector<Loop>& loops, const Loop& l) {
+  for (size_t k = 0; k < loops.size(); ++k)
+    if (&loops[k] == &l) return PassesAt(loops, k);
+  // Not one of `loops` (a loop being closed): everything inside its span.
+  std::vector<Loop> with = loops;
+  with.insert(with.begin(), l);
+  return PassesAt(with, 0);
+}
+
 }  // namespace kp

@@ -7,6 +7,7 @@
 #include <limits>
 #include <optional>
 #include <string>
+#include <cstdint>
 #include <vector>
 
 #include "drivers/roles.h"
@@ -119,6 +120,16 @@ struct Loop {
   EndConditions until;
   int source_line = 0;
 };
+
+// The one repeat limit: a step runs at most this many times through the
+// repeats around it, nested counts multiplied (`repeat 1000` inside
+// `repeat 1000` is 1,000,000 passes). The parser refuses more with one
+// message; `check` estimates with the same product.
+inline constexpr int64_t kMaxRepeatPasses = 1000000;
+
+// Passes of the steps of `l` through `l` and every counted repeat nested in
+// it (the deepest chain; until-loops count once).
+int64_t NestedPasses(const std::vector<Loop>& loops, const Loop& l);
 
 struct Plan {
   std::string name;         // procedure name (file stem or built-in name)

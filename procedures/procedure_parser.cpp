@@ -242,8 +242,9 @@ class Parser {
   }
   int ExpectCount(const char* what) {
     const Tok& t = Next();
-    if (t.kind != Tok::kNumber || !t.unit.empty() || t.num != std::floor(t.num) || t.num < 1 || t.num > 1e6)
-      Fail(t, fmt::format("expected {} (a whole number from 1 to 1000000), found {}", what, Describe(t)));
+    if (t.kind != Tok::kNumber || !t.unit.empty() || t.num != std::floor(t.num) || t.num < 1 ||
+        t.num > static_cast<double>(kMaxRepeatPasses))
+      Fail(t, fmt::format("expected {} (a whole number from 1 to {}), found {}", what, kMaxRepeatPasses, Describe(t)));
     return static_cast<int>(t.num);
   }
 
@@ -541,6 +542,11 @@ class Parser {
           Fail(kw, "this 'repeat' has no steps");
         }
         b.loop.last_step = static_cast<int>(plan_.steps.size()) - 1;
+        // One limit for all repeats, nested counts multiplied.
+        if (int64_t passes = NestedPasses(plan_.loops, b.loop); passes > kMaxRepeatPasses)
+          Error(b.line, b.col,
+                fmt::format("this repeat and those inside it make more than {} passes (nested counts multiply); at most {} in all",
+                            kMaxRepeatPasses, kMaxRepeatPasses));
         // Outer loops first: an outer loop opened earlier is closed later, so
         // insert before loops that it contains.
         auto pos = std::find_if(plan_.loops.begin(), plan_.loops.end(), [&](const Loop& l) {

@@ -54,6 +54,40 @@ Status ControlChannel::Request(Store& store, int64_t run_id, ControlAction actio
   return store.AddRequest(run_id, ControlActionName(action), requested_by).status();
 }
 
+Result<int64_t> ControlChannel::RequestPatiently(Store& store, Clock& wall, int64_t run_id, ControlAction action,
+                                                 const std::string& requested_by, double patience_s) {
+  const Seconds until = wall.Now() + Seconds(patience_s);
+  for (;;) {
+    Result<RunRow> run = store.GetRun(run_id);
+    Status st = run.status();
+    if (st.ok() && run->outcome != Outcome::kRunning) {
+      if (Status refused = Request(store, run_id, action, requested_by); !refused.ok()) return refused;
+      return InternalError(fmt::format("run {} is not running but took a request", run_id));
+    }
+    Result<int64_t> id = st.ok() ? store.AddRequest(run_id, ControlActionName(action), requested_by) : Result<int64_t>(st);
+    if (id.ok() || id.status().code() != StatusCode::kUnavailable) return id;
+    if (wall.Now() >= until)
+      return id.status().WithContext(fmt::format("the database stayed busy for {:.0f} s; the {} request was NOT queued", patience_s,
+                                                 ControlActionName(action)));
+    wall.SleepUntil(wall.Now() + Seconds(0.05));
+  }
+}
+
+Result<std::optional<std::string>> ControlChannel::WaitTaken(Store& store, Clock& wall, int64_t run_id, int64_t id, double wait_s) {
+  const Seconds until = wall.Now() + Seconds(wait_s);
+  for (;;) {
+    Result<std::optional<std::string>> at = store.RequestHandledAt(id);
+    if (!at.ok() && at.status().code() != StatusCode::kUnavailable) return at.status();
+    if (at.ok() && *at) return at;
+    if (wall.Now() >= until) return std::optional<std::string>();
+    if (at.ok()) {
+      Result<RunRow> run = store.GetRun(run_id);
+      if (run.ok() && run->outcome != Outcome::kRunning) return std::optional<std::string>();
+    }
+    wall.SleepUntil(wall.Now() + Seconds(0.1));
+  }
+}
+
 std::string DefaultRequester() {
   std::string user;
   if (const passwd* pw = getpwuid(getuid()); pw != nullptr && pw->pw_name != nullptr) user = pw->pw_name;

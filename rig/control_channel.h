@@ -13,6 +13,7 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -45,6 +46,15 @@ class ControlChannel {
   // Requester side: queues `action` for a run that is running (refuses a
   // finished or interrupted run, naming its state).
   static Status Request(Store& store, int64_t run_id, ControlAction action, const std::string& requested_by);
+  // The same, patient: while another writer holds the database (a runner
+  // committing, a second process) the request is retried on `wall` for up to
+  // `patience_s`, never dropped silently; returns the request's id.
+  static Result<int64_t> RequestPatiently(Store& store, Clock& wall, int64_t run_id, ControlAction action,
+                                          const std::string& requested_by, double patience_s = 60.0);
+  // Waits on `wall` (up to `wait_s`) until the runner took request `id`:
+  // its time ("2026-...Z"), or nothing when not yet (the run ended or the
+  // wait ran out; the request stays queued).
+  static Result<std::optional<std::string>> WaitTaken(Store& store, Clock& wall, int64_t run_id, int64_t id, double wait_s);
 
  private:
   Store& store_;

@@ -6,6 +6,7 @@
 
 #include "drivers/scpi_trace.h"
 #include "drivers/stream_transport.h"
+#include "rig/device_identity.h"
 #include "rig/rig_file.h"
 
 namespace kp {
@@ -67,7 +68,7 @@ class FileRig final : public Rig {
       if (Status st = session->DrainErrors(); !st.ok()) note(fmt::format("{}: errors queued before the run: {}", is.name, st.message()));
       ScpiSession& s = *session;
       sessions_.push_back(std::move(session));
-      addresses.push_back(is.address);
+      addresses.push_back(DeviceIdentity(addr));  // one key however the address is spelt
       for (const std::string& role : is.roles) {
         if (role == "load") {
           load_ = std::make_unique<LoadDriver>(s, is.profile.load);

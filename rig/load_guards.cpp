@@ -80,6 +80,7 @@ GuardReport ArmLoadGuards(LoadDriver& load, const Plan& plan) {
       return rep;
     }
     rep.armed.push_back(fmt::format("{} {:.3f} {} (read back {:.3f})", name, *g.value, unit, *back));
+    rep.values.emplace_back(g.guard, *g.value);
   }
   return rep;
 }

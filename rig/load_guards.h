@@ -17,6 +17,7 @@
 
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "drivers/roles.h"
@@ -44,6 +45,7 @@ struct GuardReport {
   std::vector<std::string> armed;    // "undervoltage 2.400 V (read back 2.400 V)"
   std::vector<std::string> missing;  // warnings: guards the load lacks or the plan cannot set
   std::string failure;               // not empty: a guard did not take; the run must not start
+  std::vector<std::pair<LoadGuard, double>> values;  // what each armed guard was set to (read back later)
 };
 
 // Sets every guard the load has, reads each back (within 2 % or 0.01 of its

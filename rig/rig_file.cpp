@@ -1,5 +1,7 @@
 #include "rig/rig_file.h"
 
+#include "drivers/profile_path.h"
+
 #include <algorithm>
 #include <filesystem>
 #include <fstream>
@@ -206,6 +208,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     const toml::node* pn = t.get("profile");
     Result<std::string> found = FindProfile(is.profile_ref, base_dir);
     if (!found.ok()) return r.Error(pn, p + "profile", found.status().message());
+    if (Status in = ConfineProfilePath(*found, base_dir); !in.ok()) return r.Error(pn, p + "profile", in.message());
     Result<InstrumentProfile> prof = LoadProfileFile(*found);
     if (!prof.ok()) return r.Error(pn, p + "profile", prof.status().message());
     for (const std::string& role : is.roles) {

@@ -2,15 +2,64 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
+#include <cstdlib>
 #include <exception>
 
+#include "drivers/scpi_trace.h"
 #include "rig/control_channel.h"
 #include "rig/load_guards.h"
 #include "rig/resume.h"
 #include "rig/safety_monitor.h"
+#include "rig/stuck_watch.h"
 
 namespace kp {
+
+OutageAccount AccountOutage(double gap_s, double last_current_a, double since_t_s, const std::vector<EventRow>& events,
+                            bool load_in_process) {
+  OutageAccount a;
+  const double amps = std::max(0.0, last_current_a);  // only a discharge draws from the cell through the load
+  a.upper_bound_mah = amps * std::max(0.0, gap_s) / 3.6;
+  // The guardian's record: the load found on (switched off X s after the
+  // runner's end) or found off (its own protection acted at some time before).
+  for (const EventRow& e : events) {
+    if (e.kind != "guardian" || e.t_s < since_t_s - 1e-6 || e.message.rfind("load input", 0) != 0) continue;
+    const std::string tail = " s after the runner's end";
+    size_t at = e.message.find(tail);
+    if (at == std::string::npos) continue;
+    size_t start = e.message.rfind(' ', at - 1);
+    double after_s = std::strtod(e.message.c_str() + (start == std::string::npos ? 0 : start + 1), nullptr);
+    if (!(after_s >= 0.0)) continue;
+    const bool found_on = e.message.find(": found on;") != std::string::npos;
+    const double bound = std::min(a.upper_bound_mah, amps * (after_s + 1.0) / 3.6);  // + up to 1 s between commit and death
+    if (found_on) {
+      a.method = "guardian";
+      a.counted_mah = std::min(bound, amps * after_s / 3.6);
+      a.upper_bound_mah = bound;
+      a.detail = fmt::format("the guardian found the load ON and switched it off {:.1f} s after the runner's end", after_s);
+    } else {
+      a.method = "estimate";
+      a.counted_mah = bound;
+      a.upper_bound_mah = bound;
+      a.detail = fmt::format("the guardian found the load off {:.1f} s after the runner's end; counted as on until then "
+                             "(upper bound)",
+                             after_s);
+    }
+    return a;
+  }
+  if (load_in_process) {
+    a.method = "in-process";
+    a.counted_mah = 0.0;
+    a.upper_bound_mah = amps * 1.0 / 3.6;  // what was staged but not committed
+    a.detail = "the load ran in the runner's process and stopped with it";
+    return a;
+  }
+  a.method = "estimate";
+  a.counted_mah = a.upper_bound_mah;
+  a.detail = fmt::format("no record of when the load went off: {:.0f} s at the last current {:.3f} A (upper bound)", gap_s, amps);
+  return a;
+}
 
 bool PlanNeedsSupply(const Plan& plan) {
   for (const Step& s : plan.steps)
@@ -18,22 +67,32 @@ bool PlanNeedsSupply(const Plan& plan) {
   return false;
 }
 
-void RunController::SafeOff() {
-  // Several attempts: the first may be the one that found the link down.
+std::string RunController::SafeOff() {
+  commanded_.load_on = false;
+  commanded_.supply_on = false;
+  // Several attempts: the first may be the one that found the link down; a
+  // load that acknowledges OFF but reads back ON is told again.
+  std::string still_on;
   for (int attempt = 0; attempt < 3; ++attempt) {
-    if (roles_.load->SetInput(false).ok()) {
-      input_on_ = false;
+    if (!roles_.load->SetInput(false).ok()) continue;
+    input_on_ = false;
+    Result<bool> on = roles_.load->InputState();
+    if (!on.ok() || !*on) {
+      still_on.clear();
       break;
     }
+    still_on = "the load input reads back ON after being switched off";
   }
   if (roles_.supply != nullptr) {
     for (int attempt = 0; attempt < 3; ++attempt) {
-      if (roles_.supply->SetOutput(false).ok()) {
-        supply_on_ = false;
-        break;
-      }
+      if (!roles_.supply->SetOutput(false).ok()) continue;
+      supply_on_ = false;
+      Result<bool> on = roles_.supply->OutputState();
+      if (!on.ok() || !*on) break;
+      if (attempt == 2) still_on += std::string(still_on.empty() ? "" : "; ") + "the supply output reads back ON after being switched off";
     }
   }
+  return still_on;
 }
 
 Status RunController::Apply(const Setpoint& sp) {
@@ -46,21 +105,29 @@ Status RunController::Apply(const Setpoint& sp) {
     KP_RETURN_IF_ERROR(roles_.supply->SetOutput(false));
     supply_on_ = false;
   }
+  commanded_.load_on = input_on_ && sp.load_on;
+  commanded_.supply_on = supply_on_ && sp.supply_on;
   if (sp.supply_on) {
     if (roles_.supply == nullptr) return InvalidInput("a charge step needs a supply in the rig");
+    commanded_.supply_v = sp.supply_v;
+    commanded_.supply_a = sp.supply_a;
     KP_RETURN_IF_ERROR(roles_.supply->SetVoltage(sp.supply_v));
     KP_RETURN_IF_ERROR(roles_.supply->SetCurrentLimit(sp.supply_a));
     if (!supply_on_) {
       KP_RETURN_IF_ERROR(roles_.supply->SetOutput(true));
       supply_on_ = true;
     }
+    commanded_.supply_on = true;
   }
   if (sp.load_on) {
     KP_RETURN_IF_ERROR(roles_.load->SetLevel(sp.mode, sp.level));
+    commanded_.mode = sp.mode;
+    commanded_.level = sp.level;
     if (!input_on_) {
       KP_RETURN_IF_ERROR(roles_.load->SetInput(true));
       input_on_ = true;
     }
+    commanded_.load_on = true;
   }
   return Status::Ok();
 }
@@ -109,6 +176,15 @@ class RunSession {
   // Logs a "retry" event when any instrument session had to repeat an
   // exchange since the last check (the run went on; the trace has details).
   Status NoteRetries();
+  // Reads the instruments' state back (rig/reconcile.h): records read-backs
+  // they cannot do as warnings and a mismatch as a "mismatch" event; an error
+  // Status (kProtocol, "instrument state mismatch: ...") when they differ.
+  Status Reconcile(bool with_guards);
+  // Periodic form: with the protections, once per reconcile_period_s.
+  Status MaybeReconcile() {
+    if (options_.reconcile_period_s <= 0 || t_s_ - last_reconcile_t_ < options_.reconcile_period_s) return Status::Ok();
+    return Reconcile(true);
+  }
 
   // Records where the run stands; committed with the next batch so a killed
   // run resumes from exactly its last committed sample. This form keeps a
@@ -159,7 +235,25 @@ class RunSession {
   bool after_edge_ = true;  // the first reading after the load is applied
   std::string last_reason_;
   int retries_seen_ = 0;
+  StateReconciler reconciler_{*rc_.roles_.load, rc_.roles_.supply};
+  StuckWatch stuck_{plan_.cell.rated_mah, plan_.cell.chemistry};
+  double last_dq_mah_ = 0.0;  // charge of the interval the last reading closed
+  OutageAccount outage_;      // resuming: how the outage was counted
+  double last_reconcile_t_ = 0.0;
 };
+
+Status RunSession::Reconcile(bool with_guards) {
+  last_reconcile_t_ = t_s_;
+  Result<std::string> diff = reconciler_.Check(rc_.commanded_, with_guards);
+  for (const std::string& s : reconciler_.TakeSkipped())
+    KP_RETURN_IF_ERROR(rc_.store_.AddEvent(run_id_, t_s_, "warning", "state check: " + s));
+  if (!diff.ok()) return diff.status().WithContext("reading the instruments' state back");
+  if (diff->empty()) return Status::Ok();
+  // Off first, then the record: nothing the run did explains this.
+  (void)rc_.SafeOff();
+  KP_RETURN_IF_ERROR(rc_.store_.AddEvent(run_id_, t_s_, "mismatch", *diff + " (not commanded by this run)"));
+  return ProtocolError("instrument state mismatch: " + *diff);
+}
 
 int TotalRetries(const RigRoles& roles) {
   int total = roles.load->session().retry_count();
@@ -170,6 +264,8 @@ int TotalRetries(const RigRoles& roles) {
 }
 
 Status RunSession::NoteRetries() {
+  if (std::string lost = TakeTraceWriteErrors(); !lost.empty())
+    KP_RETURN_IF_ERROR(rc_.store_.AddEvent(run_id_, t_s_, "trace", lost + " (the SCPI trace is incomplete from here)"));
   int total = TotalRetries(rc_.roles_);
   if (total == retries_seen_) return Status::Ok();
   int fresh = total - retries_seen_;
@@ -180,10 +276,16 @@ Status RunSession::NoteRetries() {
 }
 
 RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_view kind) {
-  rc_.SafeOff();
+  const std::string still_on = rc_.SafeOff();
   result_.outcome = outcome;
   result_.reason = std::move(reason);
   Store& store = rc_.store_;
+  if (!still_on.empty()) {
+    // A load that will not go off is never a completed run.
+    result_.outcome = Outcome::kAborted;
+    result_.reason += "; " + still_on + ": SWITCH IT OFF BY HAND";
+    kind = "fault";
+  }
   Status st = store.EndStep(run_id_, t_s_, result_.reason,
                             {engine_.step_charge_mah(), engine_.step_energy_wh(), engine_.step_voltage_time_vs()});
   if (st.ok()) st = store.AddEvent(run_id_, t_s_, kind, result_.reason);
@@ -197,10 +299,12 @@ RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_vi
 
 Result<Reading> RunSession::TakeReading() {
   t_s_ = Now();
+  last_dq_mah_ = 0.0;
   KP_ASSIGN_OR_RETURN(Reading r, rc_.Read(t_s_));
   if (prev_ && r.t_s > prev_->t_s) {
     double dt = r.t_s - prev_->t_s;
     const double dq = 0.5 * (r.current_a + prev_->current_a) * dt / 3.6;
+    last_dq_mah_ = dq;
     const double de = 0.5 * (r.current_a * r.voltage_v + prev_->current_a * prev_->voltage_v) * dt / 3600.0;
     delivered_mah_ += dq;
     delivered_wh_ += de;
@@ -239,7 +343,10 @@ Status RunSession::LogSample(const Reading& r, int step, bool force, bool regula
 Status RunSession::Handle(const EngineOutput& out) {
   Store& store = rc_.store_;
   // Setpoint first: an edge is applied as close to its time as possible.
-  if (out.setpoint) KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
+  if (out.setpoint) {
+    KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
+    KP_RETURN_IF_ERROR(Reconcile(false));
+  }
   for (const StepResult& res : out.results) {
     DcirRow row;
     row.source = res.source;
@@ -345,6 +452,7 @@ std::optional<RunResult> RunSession::Hold(HoldKind kind, const std::string& why)
       return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     SafetyVerdict v = monitor_.Check(*rr, delivered_mah_);
     if (v.action == SafetyVerdict::kAbort) return Finish(Outcome::kAborted, v.reason, "abort");
+    if (Status st = MaybeReconcile(); !st.ok()) return Finish(Outcome::kAborted, st.ToString(), "fault");
     if (kind == HoldKind::kHeat && monitor_.CooledDown(*rr))
       released_by = fmt::format("cell cooled to {:.1f} °C; continuing", rr->temperature_c);
     if (kind == HoldKind::kLink) {
@@ -380,6 +488,13 @@ Result<RunResult> RunSession::Run() {
     discharge_.discharge_wh = reopened_->progress->discharge_wh;
     discharge_.charged_mah = reopened_->progress->charged_mah;
     discharge_.discharge_open = reopened_->progress->discharge_mah != 0.0;
+    // The charge drawn while nobody logged: counted, with how (an event below).
+    Result<std::vector<EventRow>> before = rc_.store_.LoadEvents(run_id_);
+    const double last_a = reopened_->last_sample ? reopened_->last_sample->current_a : 0.0;
+    outage_ = AccountOutage(reopened_->gap_s, last_a, reopened_->progress->t_s, before.ok() ? *before : std::vector<EventRow>{},
+                            rc_.roles_.load_in_process);
+    delivered_mah_ += outage_.counted_mah;
+    if (discharge_.discharge_open) discharge_.discharge_mah += outage_.counted_mah;
   }
   t0_ = rc_.clock_.Now() - Seconds(t_s_);
   retries_seen_ = TotalRetries(rc_.roles_);  // sessions outlive runs: count this run's only
@@ -404,6 +519,11 @@ Result<RunResult> RunSession::Run() {
     for (const std::string& m : guards.missing)
       if (Status st = rc_.store_.AddEvent(run_id_, t_s_, "warning", m); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+    rc_.commanded_ = CommandedState{};
+    rc_.commanded_.guards = guards.values;
+    // Everything off and the protections as set, read back before the load is
+    // ever on (this also finds which read-backs the instruments answer).
+    if (Status st = Reconcile(true); !st.ok()) return Finish(Outcome::kAborted, "before start: " + st.ToString(), "fault");
 
     // First reading with the load off: the open-circuit voltage at t = 0 (or,
     // resuming, where the run left off). Integration starts here; a resumed
@@ -432,6 +552,11 @@ Result<RunResult> RunSession::Run() {
           fmt::format("resumed after {:.0f} s unattended (last sample at t={:.1f} s, {:.2f} mAh / {:.4f} Wh so far); {}",
                       reopened_->gap_s, reopened_->progress->t_s, delivered_mah_, delivered_wh_, options_.resume->checks));
       if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+      st = rc_.store_.AddEvent(run_id_, t_s_, "outage",
+                               fmt::format("outage of {:.1f} s after t={:.1f} s: {:.3f} mAh counted (method={}; {}; at most {:.3f} mAh)",
+                                           reopened_->gap_s, reopened_->progress->t_s, outage_.counted_mah, outage_.method, outage_.detail,
+                                           outage_.upper_bound_mah));
+      if (!st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     } else {
       out = engine_.Start(t_s_, *ocv);
       NoteProgress();
@@ -459,6 +584,12 @@ Result<RunResult> RunSession::Run() {
       }
       const Reading& r = *rr;
       int step_before = engine_.step_index();
+      if (std::optional<std::string> stuck = stuck_.Observe(r.voltage_v, last_dq_mah_)) {
+        (void)rc_.SafeOff();  // off first; the reading is kept, then the record
+        if (Status st = LogSample(r, step_before, true); !st.ok())
+          return Finish(Outcome::kAborted, "instrument lost: " + *stuck + "; database write failed: " + st.ToString(), "fault");
+        return Finish(Outcome::kAborted, "instrument lost: " + *stuck, "fault");
+      }
 
       SafetyVerdict v = monitor_.Check(r, delivered_mah_);
       if (!v.ok()) {
@@ -489,6 +620,7 @@ Result<RunResult> RunSession::Run() {
       NoteProgress();
       if (Status st = Handle(out); !st.ok()) return Finish(Outcome::kAborted, "step change failed: " + st.ToString(), "fault");
       if (Status st = NoteRetries(); !st.ok()) return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
+      if (Status st = MaybeReconcile(); !st.ok()) return Finish(Outcome::kAborted, st.ToString(), "fault");
       if (Status st = rc_.store_.MaybeCommit(); !st.ok())
         return Finish(Outcome::kAborted, "database write failed: " + st.ToString(), "fault");
     }

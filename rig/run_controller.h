@@ -17,12 +17,14 @@
 #include <cstdint>
 #include <functional>
 #include <string>
+#include <vector>
 
 #include "drivers/clock.h"
 #include "drivers/roles.h"
 #include "drivers/supply.h"
 #include "procedures/engine.h"
 #include "procedures/plan.h"
+#include "rig/reconcile.h"
 #include "rig/store.h"
 
 namespace kp {
@@ -38,7 +40,24 @@ struct RigRoles {
   // verdicts judge the start temperature with it. 0.5 degC is a usual
   // thermistor-probe accuracy (common practice, no source).
   double thermometer_tolerance_c = 0.5;
+  // The load lives in this process (the built-in simulator): it stops with a
+  // dead runner, so an outage drew nothing once the runner was gone.
+  bool load_in_process = false;
 };
+
+// How the charge drawn while nobody logged (a dead runner, until resume) is
+// counted; recorded as an "outage" event (analysis/METHODS.md, "Outages").
+struct OutageAccount {
+  double counted_mah = 0.0;      // added to the delivered charge
+  double upper_bound_mah = 0.0;  // at most this much was drawn
+  std::string method;            // "guardian", "in-process", "estimate"
+  std::string detail;            // what it is based on, in words
+  bool estimated() const { return method == "estimate"; }
+};
+// From the outage's length, the last logged current and the events of the
+// run (the guardian's record of what it found). Pure.
+OutageAccount AccountOutage(double gap_s, double last_current_a, double since_t_s, const std::vector<EventRow>& events,
+                            bool load_in_process);
 
 class ControlChannel;  // rig/control_channel.h
 struct ResumePoint;    // rig/resume.h
@@ -67,6 +86,12 @@ struct RunOptions {
   // where it was, with the outage logged; otherwise the run aborts as
   // "instrument lost". 0 aborts at the first failed reading.
   double link_grace_s = 30.0;
+  // The instruments' state (load input, mode, level, protections; supply
+  // output and settings) is read back after every output change and, with the
+  // protections, at least this often in run time (rig/reconcile.h); a
+  // mismatch is a "mismatch" event and aborts the run with the load off.
+  // <= 0: only after output changes.
+  double reconcile_period_s = 10.0;
 };
 
 struct RunResult {
@@ -89,13 +114,16 @@ class RunController {
   friend class RunSession;
   Result<Reading> Read(double t_s);
   Status Apply(const Setpoint& sp);
-  void SafeOff();
+  // Load off (and supply off), then read back: empty when verified off or
+  // when the instrument cannot say; else what is still on.
+  std::string SafeOff();
 
   Store& store_;
   Clock& clock_;
   RigRoles roles_;
   bool input_on_ = false;
   bool supply_on_ = false;
+  CommandedState commanded_;  // what the instruments should hold (reconciliation)
 };
 
 // True when some step of `plan` needs a supply role (charge steps).

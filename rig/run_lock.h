@@ -17,9 +17,16 @@ namespace kp {
 
 class RunLock {
  public:
-  // Directory for lock files: $KNEEPOINT_LOCK_DIR, else <temp dir>/kneepoint-locks.
+  // Directory for lock files: $KNEEPOINT_LOCK_DIR (a shared folder owned by
+  // root, or your own), else $XDG_RUNTIME_DIR/kneepoint, else
+  // <temp dir>/kneepoint-locks-UID.
   static std::string DefaultDir();
-  // Takes the lock for `key` in `dir` (created when missing) without waiting.
+  // Takes the lock for `key` in `dir` (created 0700 when missing) without
+  // waiting. The folder must be a real directory (not a symlink) of this user
+  // or root and not writable by all without the sticky bit; the lock file is
+  // opened without following symlinks, created exclusively (0600) when
+  // missing, and must be a plain, singly linked file: a planted symlink or
+  // foreign file is refused (kPermissionDenied), never written through.
   // `holder` describes this runner for whoever is refused ("run 7 in lab.db").
   // kUnavailable when another process holds it.
   static Result<std::unique_ptr<RunLock>> Acquire(const std::string& key, const std::string& holder,
@@ -37,6 +44,9 @@ class RunLock {
   int fd_;
   std::string path_;
 };
+
+// The checks Acquire makes on the lock directory (creating its last component).
+Status CheckLockDir(const std::string& dir);
 
 // File name for a lock key: readable characters kept, others replaced, plus a
 // hash so distinct keys never share a file.

@@ -1,5 +1,7 @@
 #include "rig/run_report.h"
 
+#include "rig/judgeable.h"
+
 #include "procedures/procedure_parser.h"
 #include "rig/commanded_segments.h"
 
@@ -77,6 +79,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   if (plan != nullptr) rep.max_temp_c = plan->limits.max_temp_c;
   for (const EventRow& e : events)
     if (e.kind == "abort" && rep.run.outcome == Outcome::kAborted) rep.abort_t_s = e.t_s, rep.abort_reason = e.message;
+  if (plan != nullptr) NoteExpectedSpacing(*plan, ctx.steps);
   // DC-IR points the engine measured (runs recorded with step records).
   ctx.dcir_recorded = !rep.steps.empty() && !migrated;
   for (const DcirRow& p : dcir_rows) {
@@ -96,6 +99,7 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   // Gaps the runner logged (e.g. on resume): the sample interval holding the event.
   for (const EventRow& e : events)
     if (e.kind == "gap") ctx.gap_event_times.push_back(e.t_s);
+  ctx.outage_mah = OutageCharges(events);  // charge counted for outages on resume
   // One pass over the samples, straight from the database: memory stays
   // bounded whatever the run's length.
   KP_ASSIGN_OR_RETURN(auto range, store.SampleTimeRange(run_id));
@@ -110,6 +114,19 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   rep.context = std::move(ctx);
   if (!rep.context.dcir_recorded) rep.dcir_sources.assign(rep.analysis.dcir.size(), "samples at a commanded edge");
   rep.verdict = JudgeCapacity(rep.analysis.discharge_charge_mah, rep.run.rated_mah);
+  // Verdicts only on finished discharges seen (nearly) throughout; an outage
+  // counted on resume is named beside the verdict (rig/judgeable.h).
+  if (std::string why = WhyNotJudged(rep.run, rep.analysis); !why.empty()) {
+    WithholdVerdicts(rep.analysis, why);
+    rep.verdict.pass = false;
+    rep.verdict.text = "not judged: " + why;
+  }
+  bool estimated = false;
+  if (std::string outage = OutageNote(events, estimated); !outage.empty()) {
+    const std::string note = estimated ? " [depends on an estimated outage: " + outage + "]" : " [outage counted: " + outage + "]";
+    rep.analysis.verdict.text += note;
+    rep.verdict.text += note;
+  }
   return rep;
 }
 

@@ -28,6 +28,7 @@ RigRoles SimRig::roles() { RigRoles r;
   r.thermometer = thermometer_.get();
   r.supply = supply_.get();
   r.description = "sim";
+  r.load_in_process = true;
   return r; }
 
 void SimRig::SetTrace(const ScpiTraceHook& hook) {

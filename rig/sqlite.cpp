@@ -1,5 +1,8 @@
 #include "rig/sqlite.h"
 
+#include <fcntl.h>
+#include <unistd.h>
+
 #include <fmt/format.h>
 
 namespace kp::sql {
@@ -89,6 +92,13 @@ std::string Stmt::Text(int col) const {
 
 Result<std::unique_ptr<Db>> Db::Open(const std::string& path, bool create, bool read_only, const std::string& vfs) {
   sqlite3* db = nullptr;
+  if (create && !read_only && !path.empty() && path != ":memory:" && path.rfind("file:", 0) != 0) {
+    // A new database is created 0640 (less when the umask says so) rather
+    // than SQLite's 0644: runs name cells, operators and hosts. Its WAL and
+    // SHM files take the database's mode (SQLite's unix VFS).
+    int fd = ::open(path.c_str(), O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0640);
+    if (fd >= 0) ::close(fd);
+  }
   int flags = read_only ? SQLITE_OPEN_READONLY : (SQLITE_OPEN_READWRITE | (create ? SQLITE_OPEN_CREATE : 0));
   int rc = sqlite3_open_v2(path.c_str(), &db, flags | SQLITE_OPEN_NOMUTEX, vfs.empty() ? nullptr : vfs.c_str());
   if (rc != SQLITE_OK) {

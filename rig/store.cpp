@@ -308,7 +308,7 @@ Store::Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options)
     : db_(std::move(db)), wall_(wall), options_(options) {}
 
 Store::~Store() {
-  if (in_batch_) (void)Commit();
+  if (in_batch_ || !staged_.empty()) (void)Commit();
 }
 
 Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall, Options options) {
@@ -363,16 +363,24 @@ Status Store::EnsureBatch() {
   if (in_batch_) return Status::Ok();
   KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
   in_batch_ = true;
-  batch_started_ = wall_.Now();
+  if (staged_.empty()) batch_started_ = wall_.Now();
   return Status::Ok();
 }
 
+Status Store::FlushStaged() {
+  if (staged_.empty()) return Status::Ok();
+  Status st = EnsureBatch();
+  for (size_t i = 0; st.ok() && i < staged_.size(); ++i) st = WriteSample(staged_[i]);
+  staged_.clear();
+  return st;
+}
+
 Status Store::Commit() {
-  if (!in_batch_) return Status::Ok();
+  if (!in_batch_ && staged_.empty()) return Status::Ok();
   // A heartbeat in the same transaction tells readers the runner is alive.
   // So does the run's progress, which therefore always matches the samples.
-  Status st = Status::Ok();
-  if (seq_run_ >= 0 && block_dirty_) st = WriteBlock();
+  Status st = FlushStaged();
+  if (st.ok() && seq_run_ >= 0 && block_dirty_) st = WriteBlock();
   if (st.ok() && seq_run_ >= 0) {
     if (!has_heartbeat_) {
       auto hb = db_->Prepare(
@@ -430,7 +438,7 @@ Status Store::Commit() {
 }
 
 Status Store::MaybeCommit() {
-  if (in_batch_ && (wall_.Now() - batch_started_).count() >= options_.commit_interval_s) return Commit();
+  if ((in_batch_ || !staged_.empty()) && (wall_.Now() - batch_started_).count() >= options_.commit_interval_s) return Commit();
   return Status::Ok();
 }
 
@@ -582,7 +590,13 @@ Status Store::AppendSample(int64_t run_id, const Sample& s) {
 
 Status Store::StageSample(int64_t run_id, const Sample& s) {
   if (run_id != seq_run_) return InvalidInput(fmt::format("run {} is not the run this store is writing", run_id));
-  KP_RETURN_IF_ERROR(EnsureBatch());
+  if (!in_batch_ && staged_.empty()) batch_started_ = wall_.Now();
+  staged_.push_back(s);
+  return Status::Ok();
+}
+
+Status Store::WriteSample(const Sample& s) {
+  const int64_t run_id = seq_run_;
   if (!has_insert_) {
     KP_ASSIGN_OR_RETURN(insert_sample_, db_->Prepare("INSERT INTO samples(run_id, seq, t_s, voltage_v, current_a, temperature_c, step)"
                                                      " VALUES(?1,?2,?3,?4,?5,?6,?7)"));
@@ -679,6 +693,7 @@ Result<std::vector<DcirRow>> Store::LoadDcirPoints(int64_t run_id) {
 }
 
 Result<std::optional<std::pair<double, double>>> Store::SampleTimeRange(int64_t run_id) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   KP_ASSIGN_OR_RETURN(auto first, db_->Prepare("SELECT t_s FROM samples WHERE run_id=?1 ORDER BY seq LIMIT 1"));
   first.Bind(1, run_id);
   KP_ASSIGN_OR_RETURN(bool any, first.Step());
@@ -691,6 +706,7 @@ Result<std::optional<std::pair<double, double>>> Store::SampleTimeRange(int64_t 
 }
 
 Result<Store::RunTotalsRow> Store::LoadRunTotals(int64_t run_id) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT net_mah, net_wh, delivered_mah, delivered_wh, charged_mah,"
                                            " thermometer_tolerance_c FROM runs WHERE id=?1"));
   q.Bind(1, run_id);
@@ -780,6 +796,15 @@ Status Store::MarkRequestHandled(int64_t request_id) {
   KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE requests SET handled_at=?1 WHERE id=?2"));
   KP_RETURN_IF_ERROR(up.Bind(1, wall_.WallTimeIso()).Bind(2, request_id).Run());
   return Commit();
+}
+
+Result<std::optional<std::string>> Store::RequestHandledAt(int64_t request_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT handled_at FROM requests WHERE id=?1"));
+  q.Bind(1, request_id);
+  KP_ASSIGN_OR_RETURN(bool row, q.Step());
+  if (!row) return NotFound(fmt::format("no request {}", request_id));
+  if (q.IsNull(0)) return std::optional<std::string>();
+  return std::optional<std::string>(q.Text(0));
 }
 
 Result<int> Store::ReconcileOrphans() {
@@ -877,6 +902,7 @@ Result<std::vector<RunRow>> Store::ListRuns() {
 }
 
 Result<RunRow> Store::GetRun(int64_t run_id) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   if (!has_get_run_) {
     KP_ASSIGN_OR_RETURN(get_run_, db_->Prepare(std::string(kRunColumns) + " WHERE r.id=?1"));
     has_get_run_ = true;
@@ -898,6 +924,7 @@ Result<RunRow> Store::GetRun(int64_t run_id) {
 }
 
 Status Store::ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(
                                   "SELECT t_s, voltage_v, current_a, temperature_c, step FROM samples WHERE run_id=?1 ORDER BY seq"));
   q.Bind(1, run_id);
@@ -978,6 +1005,7 @@ Result<std::optional<RunProgress>> Store::LoadProgress(int64_t run_id) {
 }
 
 Result<std::vector<SampleBlock>> Store::LoadBlocks(int64_t run_id, int64_t from_block, int64_t max_blocks) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   if (!has_load_blocks_) {
     KP_ASSIGN_OR_RETURN(load_blocks_, db_->Prepare(std::string(kBlockColumns) + " WHERE run_id=?1 AND block>=?2 ORDER BY block LIMIT ?3"));
     has_load_blocks_ = true;
@@ -989,6 +1017,7 @@ Result<std::vector<SampleBlock>> Store::LoadBlocks(int64_t run_id, int64_t from_
 }
 
 Result<std::vector<Sample>> Store::LoadSampleRange(int64_t run_id, int64_t first_seq, int64_t end_seq) {
+  KP_RETURN_IF_ERROR(FlushStaged());  // this connection sees its own staged samples
   KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, voltage_v, current_a, temperature_c, step FROM samples"
                                            " WHERE run_id=?1 AND seq>=?2 AND seq<?3 ORDER BY seq"));
   q.Bind(1, run_id).Bind(2, first_seq).Bind(3, end_seq);

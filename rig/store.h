@@ -231,6 +231,8 @@ class Store {
   // Requests not yet handled, oldest first.
   Result<std::vector<RequestRow>> PendingRequests(int64_t run_id);
   Status MarkRequestHandled(int64_t request_id);
+  // When the runner took request `request_id` (its handled_at), if it did.
+  Result<std::optional<std::string>> RequestHandledAt(int64_t request_id);
 
   // --- reader side ---
   // Marks runs whose runner process is gone as interrupted; returns how many.
@@ -272,6 +274,10 @@ class Store {
   Status Migrate();
   Result<int64_t> BeginRunWith(const NewRun& run, const std::optional<RunProgress>& initial);
   Status EnsureBatch();
+  // Staged samples go into the open transaction (opening it): at each
+  // commit, and before this connection reads samples back.
+  Status FlushStaged();
+  Status WriteSample(const Sample& s);
   Status WriteBlock();
   Status ClaimRunner(int64_t run_id);
   Result<int64_t> EnsureCell(const NewRun& run);
@@ -281,6 +287,11 @@ class Store {
   Options options_;
   bool in_batch_ = false;
   Seconds batch_started_{0};
+  // Samples staged in memory: the write transaction is opened only when they
+  // are written at the commit, so other writers (control requests, a second
+  // process) find the database free between commits instead of waiting on a
+  // batch held open for a whole commit interval.
+  std::vector<Sample> staged_;
   int64_t next_seq_ = 0;
   int64_t seq_run_ = -1;
   int64_t step_seq_ = 0;

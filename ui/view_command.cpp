@@ -70,7 +70,7 @@ Status WriteLayout(const std::string& path, const Panel& panel) {
     if (it != panel.state().watched.end() && it->second.limits.cutoff_v) j["cutoff_v"] = *it->second.limits.cutoff_v;
   }
   std::ofstream out(path);
-  out << j.dump(2) << "\n";
+  out << j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace) << "\n";
   if (!out) return IoError("cannot write " + path);
   return Status::Ok();
 }

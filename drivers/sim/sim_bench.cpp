@@ -22,6 +22,48 @@ class SimBench::Device final : public LineDevice {
     bench_.AdvanceLocked();
     // Any line to the load feeds its watchdog.
     if (role_ == Role::kLoad) bench_.last_load_line_ = bench_.sim_time_;
+    // A program message may hold several units separated by ';' (SCPI-99
+    // 6.2.3 / 7.4): a unit without a leading ':' or '*' continues the
+    // previous header's path ("SOUR:VOLT 1;CURR 2" sets SOUR:CURR); the
+    // replies of the queries are joined by ';' into one response message.
+    if (line.find(';') == std::string_view::npos) return HandleUnit(line);
+    std::string reply;
+    bool any = false;
+    std::string path;  // the previous header's nodes but the last, with ':'
+    size_t start = 0;
+    bool quoted = false;
+    for (size_t i = 0; i <= line.size(); ++i) {
+      if (i < line.size() && line[i] == '"') quoted = !quoted;
+      if (i < line.size() && (quoted || line[i] != ';')) continue;
+      std::string_view unit = line.substr(start, i - start);
+      start = i + 1;
+      while (!unit.empty() && (unit.front() == ' ' || unit.front() == '\t')) unit.remove_prefix(1);
+      if (unit.empty()) continue;
+      std::string full;
+      if (unit.front() == ':') {
+        full = std::string(unit.substr(1));
+      } else if (unit.front() == '*') {
+        full = std::string(unit);
+      } else {
+        full = path + std::string(unit);
+      }
+      if (full.front() != '*') {
+        std::string_view header = std::string_view(full).substr(0, full.find_first_of(" \t"));
+        size_t last = header.rfind(':');
+        path = last == std::string_view::npos ? std::string() : std::string(header.substr(0, last + 1));
+      }
+      if (std::optional<std::string> r = HandleUnit(full)) {
+        reply += (any ? ";" : "") + *r;
+        any = true;
+      }
+    }
+    if (!any) return std::nullopt;
+    return reply;
+  }
+
+ private:
+  // One program message unit; the bench's lock is held.
+  std::optional<std::string> HandleUnit(std::string_view line) {
     // Kept in a member so that header_ never outlives the text it points to.
     line_ = SplitScpiCommand(line);
     const ScpiCommand& c = line_;
@@ -68,7 +110,6 @@ class SimBench::Device final : public LineDevice {
     return reply;
   }
 
- private:
   std::string Identity() const {
     switch (role_) {
       case Role::kLoad:
@@ -206,8 +247,16 @@ class SimBench::Device final : public LineDevice {
       if (auto v = Number(c, 1e-3, 1e7)) b.level_resistance_ohm_ = *v;
       return true;
     }
+    if (Is("[SOURce:]RESistance[:LEVel][:IMMediate][:AMPLitude]?")) {
+      reply = FormatNr3(b.level_resistance_ohm_);
+      return true;
+    }
     if (Is("[SOURce:]POWer[:LEVel][:IMMediate][:AMPLitude]")) {
       if (auto v = Number(c, 0.0, 1000.0)) b.level_power_w_ = *v;
+      return true;
+    }
+    if (Is("[SOURce:]POWer[:LEVel][:IMMediate][:AMPLitude]?")) {
+      reply = FormatNr3(b.level_power_w_);
       return true;
     }
     if (Is("[SOURce:]VOLTage:PROTection:LOW")) {

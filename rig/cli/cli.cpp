@@ -1,5 +1,7 @@
 #include "rig/cli/cli.h"
 
+#include "drivers/text_hygiene.h"
+
 #include <atomic>
 #include <cmath>
 #include <csignal>
@@ -52,7 +54,8 @@ int ExitCodeFor(const Status& status) {
 }
 
 int Fail(const Status& status) {
-  std::fprintf(stderr, "kneepoint: %s\n", status.message().c_str());
+  // Messages quote instrument replies and user text: no control characters reach the terminal.
+  std::fprintf(stderr, "kneepoint: %s\n", TerminalSafe(status.message()).c_str());
   return ExitCodeFor(status);
 }
 

@@ -6,6 +6,8 @@
 #include <nlohmann/json.hpp>
 
 #include "rig/cli/cli.h"
+#include "rig/cli/output_guard.h"
+#include "drivers/text_hygiene.h"
 #include "rig/cli/db_open.h"
 #include "rig/run_report.h"
 
@@ -24,6 +26,7 @@ void RegisterCompare(CliRegistry& r) {
   db_path = "kneepoint.db", run_ids.clear(), json = false, html_path.clear(), at_text.clear(), csv_path.clear();
   options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* cmd = r.Add("compare", "Compare runs: table, overlays, pulsed vs continuous, Peukert fit", [] {
+    if (Status st = CheckOutputPaths(db_path, {html_path, csv_path}); !st.ok()) return Fail(st);
     std::optional<double> at_a;
     if (!at_text.empty()) {
       ParsedQuantity q = ParseQuantityText(at_text, Dimension::kCurrent, "--at");
@@ -43,9 +46,9 @@ void RegisterCompare(CliRegistry& r) {
       if (Status st = WriteTextFile(csv_path, CompareReportCsv(*rep)); !st.ok()) return Fail(st);
     }
     if (json) {
-      std::cout << CompareReportJson(*rep).dump(2) << "\n";
+      std::cout << CompareReportJson(*rep).dump(2, ' ', false, nlohmann::json::error_handler_t::replace) << "\n";
     } else {
-      std::cout << CompareReportText(*rep);
+      std::cout << TerminalSafe(CompareReportText(*rep));
       if (!html_path.empty()) std::cout << fmt::format("HTML comparison written to {}\n", html_path);
     }
     return kExitOk;

@@ -6,6 +6,7 @@
 #include <nlohmann/json.hpp>
 
 #include "rig/cli/cli.h"
+#include "rig/cli/output_guard.h"
 #include "rig/cli/db_open.h"
 #include "rig/run_report.h"
 
@@ -38,7 +39,7 @@ class CycleOf {
 // written piece by piece; numbers in shortest round-trip form.
 Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std::string& path) {
   auto check = [&]() { return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path)); };
-  out << "{\"run\":" << RunRowJson(run).dump()
+  out << "{\"run\":" << RunRowJson(run).dump(-1, ' ', false, nlohmann::json::error_handler_t::replace)
       << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\",\"step_number\",\"cycle\"],\n";
   KP_ASSIGN_OR_RETURN(auto steps, store.LoadSteps(run.id));
   CycleOf cycle(std::move(steps));
@@ -46,7 +47,7 @@ Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std:
   nlohmann::json ev = nlohmann::json::array();
   for (const EventRow& e : events)
     ev.push_back({{"t_s", e.t_s}, {"kind", e.kind}, {"message", e.message}, {"wall_at", e.wall_at}});
-  out << "\"events\":" << ev.dump() << ",\n\"samples\":[";
+  out << "\"events\":" << ev.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace) << ",\n\"samples\":[";
   bool first = true;
   KP_RETURN_IF_ERROR(store.ForEachSample(run.id, [&](const Sample& s) {
     out << (first ? "\n" : ",\n")
@@ -71,6 +72,7 @@ Status WriteCsv(Store& store, int64_t run_id, std::ofstream& out, const std::str
 
 int RunExport(const ExportOptions& opt) {
   if (opt.csv_path.empty() == opt.json_path.empty()) return Fail(InvalidInput("give exactly one of --csv FILE or --json FILE"));
+  if (Status st = CheckOutputPaths(opt.db_path, {opt.csv_path, opt.json_path}); !st.ok()) return Fail(st);
   SteadyClock wall;
   auto store = OpenExistingDb(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());

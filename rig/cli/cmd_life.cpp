@@ -167,7 +167,7 @@ int RunLife(const LifeOptions& o) {
                       {"compression_factor", profile->compression_factor},
                       {"test_average_current_A", ProfileTestAverageCurrentA(*profile)}};
     }
-    std::cout << j.dump(2) << "\n";
+    std::cout << j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace) << "\n";
     return kExitOk;
   }
   std::cout << fmt::format("capacity         {:.1f} mAh\n", p.capacity_mah);

@@ -7,6 +7,7 @@
 #include "drivers/scpi_trace.h"
 #include "drivers/stream_transport.h"
 #include "rig/cli/cli.h"
+#include "drivers/text_hygiene.h"
 
 namespace kp::cli {
 namespace {
@@ -35,7 +36,7 @@ int RunProbe(const ProbeOptions& o) {
   }
   auto idn = session.Identify();
   if (!idn.ok()) return Fail(idn.status().WithContext("probe: *IDN?"));
-  std::cout << fmt::format("{}  {}\n", o.address, *idn);
+  std::cout << TerminalSafe(fmt::format("{}  {}\n", o.address, *idn));
   return kExitOk;
 }
 

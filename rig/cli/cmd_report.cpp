@@ -6,6 +6,8 @@
 #include <nlohmann/json.hpp>
 
 #include "rig/cli/cli.h"
+#include "rig/cli/output_guard.h"
+#include "drivers/text_hygiene.h"
 #include "rig/cli/db_open.h"
 #include "rig/run_report.h"
 
@@ -42,6 +44,7 @@ void RegisterReport(CliRegistry& r) {
   db_path = "kneepoint.db", json = false, run_id = 0, html_path.clear(), csv_path.clear(), cycles_csv_path.clear();
   options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
+    if (Status st = CheckOutputPaths(db_path, {html_path, csv_path, cycles_csv_path}); !st.ok()) return Fail(st);
     SteadyClock wall;
     auto store = OpenExistingDb(db_path, wall);
     if (!store.ok()) return Fail(store.status());
@@ -58,9 +61,9 @@ void RegisterReport(CliRegistry& r) {
       if (Status st = WriteTextFile(cycles_csv_path, RunReportCyclesCsv(*rep)); !st.ok()) return Fail(st);
     }
     if (json) {
-      std::cout << RunReportJson(*rep).dump(2) << "\n";
+      std::cout << RunReportJson(*rep).dump(2, ' ', false, nlohmann::json::error_handler_t::replace) << "\n";
     } else {
-      std::cout << RunReportText(*rep);
+      std::cout << TerminalSafe(RunReportText(*rep));
       if (!html_path.empty()) std::cout << fmt::format("HTML report written to {}\n", html_path);
       if (!csv_path.empty()) std::cout << fmt::format("per-step CSV written to {}\n", csv_path);
       if (!cycles_csv_path.empty()) std::cout << fmt::format("per-cycle CSV written to {}\n", cycles_csv_path);

@@ -6,6 +6,8 @@
 
 #include <nlohmann/json.hpp>
 
+#include "drivers/text_hygiene.h"
+
 #include "rig/run_report.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
@@ -24,12 +26,15 @@ void RegisterRuns(CliRegistry& r) {
     if (json) {
       nlohmann::json arr = nlohmann::json::array();
       for (const RunRow& row : *rows) arr.push_back(RunRowJson(row));
-      std::cout << arr.dump(2) << "\n";
+      std::cout << arr.dump(2, ' ', false, nlohmann::json::error_handler_t::replace) << "\n";
       return kExitOk;
     }
     // Columns as wide as their longest entry (names longer than 60 characters are cut).
     constexpr size_t kMaxWidth = 60;
-    auto cut = [&](const std::string& text) { return text.size() <= kMaxWidth ? text : text.substr(0, kMaxWidth - 3) + "..."; };
+    auto cut = [&](const std::string& raw) {
+      std::string text = TerminalSafe(raw);  // names may hold anything: no control characters to the terminal
+      return text.size() <= kMaxWidth ? text : text.substr(0, kMaxWidth - 3) + "...";
+    };
     size_t cell_w = 4, proc_w = 9;
     for (const RunRow& row : *rows) {
       cell_w = std::max(cell_w, cut(row.cell).size());

@@ -109,3 +109,33 @@ TEST(ScpiSession, SilentInstrumentTimesOutOnTheClock) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// SCPI-99 6.2.3 / 7.4 (from memory): several program message units in one
+// line separated by ';', a unit without a leading ':' continuing the previous
+// header's path, the responses joined by ';' - as PyVISA users send them.
+TEST(SimBenchCompound, CompoundMessagesAreAnsweredInOneResponse) {
+  VirtualClock clock;
+  sim::SimBench bench(sim::DemoLiIonCell(2.5), clock);
+  LineDevice& load = bench.load();
+  auto both = load.HandleLine("MEAS:VOLT?;:MEAS:CURR?");
+  ASSERT_TRUE(both.has_value());
+  ASSERT_NE(both->find(';'), std::string::npos) << *both;
+  auto v = ParseScpiNumber(both->substr(0, both->find(';')));
+  auto i = ParseScpiNumber(both->substr(both->find(';') + 1));
+  ASSERT_TRUE(v.ok() && i.ok()) << *both;
+  EXPECT_GT(v->value, 3.0);
+  EXPECT_EQ(i->value, 0.0);
+  EXPECT_EQ(load.HandleLine("*CLS;*OPC?").value_or(""), "1");
+  // Relative headers: SOUR:CURR 0.75 then CURR? in the same SOURce path.
+  EXPECT_EQ(load.HandleLine("SOUR:CURR 0.75;CURR?").value_or(""), FormatNr3(0.75));
+  EXPECT_FALSE(load.HandleLine("FUNC CURR;:CURR 0.5;:INP ON").has_value());
+  EXPECT_TRUE(bench.load_input_on());
+  EXPECT_EQ(load.HandleLine("INP?;:CURR?;:SYST:ERR?").value_or(""), "1;" + FormatNr3(0.5) + ";0,\"No error\"");
+  EXPECT_FALSE(load.HandleLine("INP OFF").has_value());
+}
+
+}  // namespace
+}  // namespace kp

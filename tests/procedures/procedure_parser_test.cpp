@@ -451,3 +451,37 @@ TEST(Estimate, LoopsCountPasses) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// One repeat limit, nested counts multiplied, one message at the outer repeat.
+TEST(RepeatLimit, NestedCountsMultiplyUnderOneLimit) {
+  const std::string cell = "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n";
+  auto ok = ParseProcedure(cell + "repeat 1000\nrepeat 1000\nrest 1s\nend\nend\n", "t", {});
+  EXPECT_TRUE(ok.ok()) << (ok.errors.empty() ? "" : ok.errors[0].message);
+  auto over = ParseProcedure(cell + "repeat 1000\nrepeat 1001\nrest 1s\nend\nend\n", "t", {});
+  ASSERT_FALSE(over.ok());
+  ASSERT_EQ(over.errors.size(), 1u);
+  EXPECT_EQ(over.errors[0].line, 2);  // the outer repeat
+  EXPECT_NE(over.errors[0].message.find("at most 1000000"), std::string::npos) << over.errors[0].message;
+  auto single = ParseProcedure(cell + "repeat 1000001\nrest 1s\nend\n", "t", {});
+  ASSERT_FALSE(single.ok());
+  EXPECT_NE(single.errors[0].message.find("1000000"), std::string::npos) << single.errors[0].message;
+}
+
+// `check` multiplies nested loops: a million one-second rests take a million
+// seconds, not the minute the step walk reached before it stopped.
+TEST(RepeatLimit, TheEstimateMultipliesNestedLoops) {
+  const std::string cell = "cell li-ion rated=2500mAh nominal=3.6V max=4.2V cutoff=2.75V max-temp=60degC\n";
+  auto p = ParseProcedure(cell + "repeat 1000\nrepeat 1000\nrest 1s\nend\nend\n", "t", {});
+  ASSERT_TRUE(p.ok());
+  PlanEstimate e = EstimatePlan(p.plan);
+  EXPECT_TRUE(e.extrapolated);
+  EXPECT_EQ(e.steps[0].executions, 1000000);
+  EXPECT_NEAR(e.total_s, 1e6, 1.0);
+  EXPECT_NE(DescribePlan(p.plan, e).find("nested repeat counts multiplied"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace kp

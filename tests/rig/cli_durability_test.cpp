@@ -79,8 +79,8 @@ TEST(CliDurability, ControlCommandsQueueRequestsForARunningRun) {
   ASSERT_TRUE(store.ok());
   auto live = (*store)->BeginRun({"c2", "li-ion", 2500, "p", "t", "sim"});
   ASSERT_TRUE(live.ok());
-  ASSERT_EQ(Cli({"pause", std::to_string(*live), "--db", db, "--as", "night-shift@lab"}), cli::kExitOk);
-  ASSERT_EQ(Cli({"continue", std::to_string(*live), "--db", db}), cli::kExitOk);
+  ASSERT_EQ(Cli({"pause", std::to_string(*live), "--db", db, "--as", "night-shift@lab", "--wait", "0"}), cli::kExitOk);
+  ASSERT_EQ(Cli({"continue", std::to_string(*live), "--db", db, "--wait", "0"}), cli::kExitOk);
   auto pending = (*store)->PendingRequests(*live);
   ASSERT_TRUE(pending.ok());
   ASSERT_EQ(pending->size(), 2u);

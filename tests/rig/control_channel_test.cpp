@@ -5,6 +5,9 @@
 
 #include <gtest/gtest.h>
 
+#include <atomic>
+#include <thread>
+
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "tests/support/fixtures.h"
@@ -80,6 +83,52 @@ TEST(ControlPolling, RunPicksUpARequestWithinHalfAWallSecond) {
   EXPECT_LE(acted_after_s, 0.5);
   EXPECT_LT(channel.queries(), readings / 10);  // about one query per 25 readings
   EXPECT_GE(channel.queries(), readings / 30);
+}
+
+}  // namespace
+}  // namespace kp
+
+namespace kp {
+namespace {
+
+// Under fast virtual-time writing a second connection's requests used to
+// fail after the busy timeout with "database is locked": the runner held its
+// batch open for a whole commit interval. Now the write lock is held only
+// while a commit runs, so pause, continue and abort from another connection
+// are queued and taken, each with the time it was taken.
+TEST(ControlUnderLoad, RequestsFromASecondConnectionAreTakenWhileTheRunnerWritesFlatOut) {
+  testing::StoreFixture f;
+  SimRig rig(f.clock, sim::DemoLiIonCell(2.56));
+  RunController rc(*f.store, f.clock, rig.roles());
+  ControlChannel channel(*f.store, f.wall, 0.05);
+  std::atomic<int64_t> run_id{0};
+  RunOptions o;
+  o.control = &channel;
+  o.on_sample = [&](const Reading&, double) { run_id = 1; };
+  // 200 h at one stored sample per second if nothing stopped it.
+  Plan plan = testing::CompileForCell2500("rest 200h every=1s\n");
+  Result<RunResult> result = InternalError("not run");
+  std::thread runner([&] { result = rc.Execute(plan, o); });
+  while (run_id.load() == 0) std::this_thread::sleep_for(std::chrono::milliseconds(1));
+
+  SteadyClock wall;
+  auto other = Store::Open(f.dir.File("run.db"), wall);
+  ASSERT_TRUE(other.ok()) << other.status().ToString();
+  std::vector<std::string> taken;
+  for (ControlAction a : {ControlAction::kPause, ControlAction::kContinue, ControlAction::kAbort}) {
+    Result<int64_t> id = ControlChannel::RequestPatiently(**other, wall, 1, a, "second-writer", 30.0);
+    ASSERT_TRUE(id.ok()) << id.status().ToString();
+    auto at = ControlChannel::WaitTaken(**other, wall, 1, *id, 30.0);
+    ASSERT_TRUE(at.ok()) << at.status().ToString();
+    ASSERT_TRUE(at->has_value()) << ControlActionName(a) << " not taken";
+    taken.push_back(**at);
+  }
+  runner.join();
+  ASSERT_TRUE(result.ok()) << result.status().ToString();
+  EXPECT_EQ(result->outcome, Outcome::kAborted);
+  EXPECT_EQ(result->reason, "aborted by second-writer");
+  EXPECT_EQ(taken.size(), 3u);
+  EXPECT_FALSE(rig.bench().load_input_on());
 }
 
 }  // namespace

@@ -225,6 +225,10 @@ TEST(Guardian, SigkillOverTcpLeavesTheLoadOffAndTheRunResumable) {
   RunRow run = g.WaitForEnd(run_id);
   EXPECT_EQ(run.outcome, Outcome::kAborted) << run.reason;
   EXPECT_NE(g.Events(run_id, "signal").find("stopped by SIGTERM"), std::string::npos);
+  // The outage is counted from the guardian's record of the load it found on.
+  const std::string outage = g.Events(run_id, "outage");
+  EXPECT_NE(outage.find("method=guardian"), std::string::npos) << outage;
+  EXPECT_NE(outage.find("found the load ON"), std::string::npos) << outage;
 }
 
 TEST(Guardian, InjectedSegfaultOverPtyIsNamedAndSwitchedOff) {

@@ -11,6 +11,8 @@
 #include <fmt/format.h>
 #include <gtest/gtest.h>
 
+#include "rig/device_identity.h"
+
 #include "analysis/metrics.h"
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
@@ -278,7 +280,10 @@ TEST(FileRig, AppliesCalibrationAndRigLimits) {
   EXPECT_EQ(roles.load->SetLevel(LoadMode::kPower, 6.0).code(), StatusCode::kLimitExceeded);
   EXPECT_TRUE(roles.load->SetLevel(LoadMode::kCurrent, 1.5).ok());
   EXPECT_FALSE(s.bench.load_input_on());  // opening a rig never switches the load on
-  EXPECT_NE((*rig)->LockKey().find(s.server->client_addresses()[0]), std::string::npos);
+  // The lock is keyed by the device, not the spelling of its address.
+  auto load_addr = ParseAddress(s.server->client_addresses()[0]);
+  ASSERT_TRUE(load_addr.ok());
+  EXPECT_NE((*rig)->LockKey().find(DeviceIdentity(*load_addr)), std::string::npos) << (*rig)->LockKey();
 }
 
 TEST(FileRig, RefusesACellAboveTheRigVoltageAndAWrongInstrument) {

@@ -177,3 +177,32 @@ TEST(RigFile, UnknownRigSpecIsRefused) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// A rig file's profile path cannot reach files outside the profile search
+// path, and the error names the path, never what the file holds.
+TEST(RigFileProfilePath, PathsOutsideTheSearchPathAreRefusedWithoutEchoingThem) {
+  testing::TempDir dir;
+  std::filesystem::create_directories(dir.File("rigs"));
+  std::ofstream(dir.File("secret.txt")) << "TOP-SECRET first line\n";
+  std::ofstream(dir.File("outside.kpp")) << "TOP-SECRET profile line\n";
+  for (const std::string& ref : {dir.File("secret.txt"), std::string("../secret.txt"), std::string("../outside.kpp"),
+                                 std::string("/etc/passwd")}) {
+    std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"" + ref + "\"");
+    auto spec = ParseRigFile(text, dir.File("rigs/bench.toml"));
+    ASSERT_FALSE(spec.ok()) << ref;
+    EXPECT_EQ(spec.status().message().find("TOP-SECRET"), std::string::npos) << spec.status().message();
+    EXPECT_EQ(spec.status().message().find("root:"), std::string::npos) << spec.status().message();
+    EXPECT_NE(spec.status().message().find("profile"), std::string::npos) << spec.status().message();
+  }
+  // A profile in the rig file's own folder is found.
+  std::filesystem::copy_file(testing::SourcePath("drivers/profiles/generic-scpi-dmm.kpp"), dir.File("rigs/my-dmm.kpp"));
+  std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"my-dmm.kpp\"");
+  auto spec = ParseRigFile(text, dir.File("rigs/bench.toml"));
+  EXPECT_TRUE(spec.ok()) << spec.status().ToString();
+}
+
+}  // namespace
+}  // namespace kp
