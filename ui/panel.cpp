@@ -328,17 +328,33 @@ void Panel::Headline(const RunData& d, const RunStatus& status) {
   }
   const float gap = ImGui::GetFontSize() * 2.0f;
   const char* last = ended ? "  (last reading)" : "";
+  // Figures side by side while they fit, the next on a new line otherwise: none is cut at the edge.
+  auto next_figure = [&](const std::string& value) {
+    ImGui::PushFont(fonts_.big);
+    const float w = ImGui::CalcTextSize(value.c_str()).x;
+    ImGui::PopFont();
+    const float right = ImGui::GetItemRectMax().x + gap + w;
+    if (right <= ImGui::GetWindowPos().x + ImGui::GetWindowContentRegionMax().x) ImGui::SameLine(0, gap);
+  };
   Figure(fonts_, fmt::format("voltage{}", last).c_str(), fmt::format("{:.3f} V", s.voltage_v), vcol);
-  ImGui::SameLine(0, gap);
-  if (status.load_off)
-    Figure(fonts_, "current", "load off", theme_.tick_text, fmt::format("last reading {:.3f} A", s.current_a),
-           theme_.Dimmed(theme_.current));
+  next_figure(status.load_off ? "load off" : fmt::format("{:.3f} A", s.current_a));
+  if (status.load_off) {
+    // The last current drawn while the load was on, dimmed under "load off".
+    std::string note;
+    for (auto it = d.tail.rbegin(); it != d.tail.rend(); ++it)
+      if (std::fabs(it->current_a) > 0.001) {
+        note = fmt::format("last on load: {:.3f} A at {}", it->current_a, Hms(it->t_s));
+        break;
+      }
+    Figure(fonts_, "current", "load off", theme_.tick_text, note, theme_.Dimmed(theme_.current));
+  }
   else
     Figure(fonts_, "current", fmt::format("{:.3f} A", s.current_a), theme_.current);
-  ImGui::SameLine(0, gap);
-  Figure(fonts_, fmt::format("temperature{}", last).c_str(), fmt::format("{:.1f} °C", s.temperature_c), tcol);
-  ImGui::SameLine(0, gap);
-  Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.discharged_mah()), theme_.tick_text);
+  const std::string temp = fmt::format("{:.1f} °C", s.temperature_c), delivered = fmt::format("{:.0f} mAh", f.discharged_mah());
+  next_figure(temp);
+  Figure(fonts_, fmt::format("temperature{}", last).c_str(), temp, tcol);
+  next_figure(delivered);
+  Figure(fonts_, "delivered", delivered, theme_.tick_text);
   std::string remaining = "—";
   if (live) {
     if (auto r = EstimateRemainingS(d.tail, f.discharged_since_charge_mah(), d.row.rated_mah, d.limits.cutoff_v))
@@ -367,8 +383,12 @@ void Panel::Headline(const RunData& d, const RunStatus& status) {
   StepNow step = CurrentStep(d.steps);
   if (step.index >= 0) {
     std::string text = fmt::format("step {}  [{}]  {}", step.index + 1, step.kind, step.label);
-    text += step.ended ? fmt::format("  · ended at {}: {}", Hms(s.t_s), step.end_reason)
-                       : fmt::format("  · running for {}", Hms(s.t_s - step.started_s));
+    if (step.ended)
+      text += fmt::format("  · ended at {}: {}", Hms(s.t_s), step.end_reason);
+    else if (status.state == RunState::kPaused || status.state == RunState::kHeld)
+      text += fmt::format("  · {} at {}; its clock stands still meanwhile", RunStateWord(status.state), Hms(status.since_s));
+    else
+      text += fmt::format("  · running for {}", Hms(s.t_s - step.started_s));
     FittedText(text);
   }
   std::string lim;
@@ -528,7 +548,8 @@ void Panel::LiveView() {
   if (d.limits.cutoff_v) vspec.lines.push_back({*d.limits.cutoff_v, theme_.cutoff, "cutoff", 0, false, true});
   if (d.limits.min_voltage_v) vspec.lines.push_back({*d.limits.min_voltage_v, theme_.limit, "safety min", 0, true, true});
   if (d.limits.max_voltage_v) vspec.lines.push_back({*d.limits.max_voltage_v, theme_.limit, "safety max", 0, true, true});
-  voltage_plot_ = Plot("##voltage", "voltage", vspec, live_x_, {0, avail_h * 0.42f});
+  const float strip_min = ImGui::GetFontSize() * 7.0f;  // a strip keeps room for its ticks and a readable trace
+  voltage_plot_ = Plot("##voltage", "voltage", vspec, live_x_, {0, std::max(avail_h * 0.40f, strip_min * 1.6f)});
 
   // Current and temperature each on their own strip and axis, sharing the x view.
   PlotSpec ispec;
@@ -537,7 +558,7 @@ void Panel::LiveView() {
   ispec.traces.push_back(
       MakeTrace(xs, raw ? &d.window.current : &d.overview.current, theme_.current, "current", "A", xs_end, last_i, &breaks));
   if (status.load_off) ispec.traces.back().legend_note = "load off";
-  Plot("##current", "current", ispec, live_x_, {0, avail_h * 0.19f});
+  Plot("##current", "current", ispec, live_x_, {0, std::max(avail_h * 0.18f, strip_min)});
 
   PlotSpec tspec;
   tspec.data_x = data_x;
@@ -547,7 +568,7 @@ void Panel::LiveView() {
                                    "°C", xs_end, last_c, &breaks));
   // The limit is drawn where it falls, but does not squash the strip to reach it.
   if (d.limits.max_temp_c) tspec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 0, true, false});
-  Plot("##temperature", "temperature", tspec, live_x_, {0, avail_h * 0.17f});
+  Plot("##temperature", "temperature", tspec, live_x_, {0, std::max(avail_h * 0.17f, strip_min)});
   ImGui::TextDisabled("wheel: zoom · drag: pan · double-click/Home: whole run · F: follow newest (%s)",
                       live_x_.follow ? "on" : "off");
   CycleTable(d);
@@ -724,6 +745,7 @@ void Panel::CycleCapacityPlot(const std::vector<const RunData*>& runs, float hei
     spec.traces.push_back(MakeTrace(&xs[r], &ys[r], theme_.Series(static_cast<int>(r)), fmt::format("#{} {}", d->row.id, d->row.cell), "mAh"));
   }
   spec.markers = true;
+  spec.legend_room = 0.12f * static_cast<float>(spec.traces.size());  // the legend sits above the points
   Plot("##cmp_cycles", "capacity per cycle", spec, cmp_cycle_x_, {0, std::max(height - ImGui::GetFontSize() * 2.0f, 80.0f)});
 }
 

@@ -34,7 +34,9 @@ Range FitAxis(const PlotSpec& spec, int axis, Range x) {
   }
   for (const HLine& l : spec.lines)
     if (l.axis == axis && l.fit) r.Include(l.value);
-  return PadRange(r, 0.06, spec.min_y_span[axis]);
+  Range padded = PadRange(r, 0.06, spec.min_y_span[axis]);
+  if (axis == 0) padded.hi += padded.Span() * spec.legend_room;
+  return padded;
 }
 
 void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap& ym, float px0, int width, float thick,
@@ -154,7 +156,7 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
   dl->AddRectFilled(p0, p1, theme.plot_bg);
   // Grid and ticks.
   // One label style for every tick of a time axis, named in the axis title.
-  const int x_target = std::max(2, width / 130);
+  const int x_target = std::max(2, width / 100);
   TimeAxis ta = spec.time_x ? MakeTimeAxis(x.lo, x.hi, x_target) : TimeAxis{NiceTicks(x.lo, x.hi, x_target), TimeStyle::kSeconds};
   if (spec.integer_x && ta.ticks.step < 1.0) ta.ticks = NiceTicks(x.lo, x.hi, std::max(1, static_cast<int>(x.Span())));
   const Ticks& xt = ta.ticks;
@@ -209,6 +211,7 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
 
   // Legend, top left, with the latest value of each trace.
   float ly = p0.y + fh * 0.3f, lx = p0.x + fh * 0.5f;
+  res.legend_max = p0;
   for (const Trace& t : spec.traces) {
     std::string text = t.name;
     if (!t.legend_note.empty())
@@ -221,6 +224,7 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
     dl->AddRectFilled({lx - 4, ly - 2}, {lx + fh * 1.4f + ts.x + 4, ly + ts.y + 2}, (theme.plot_bg & 0x00FFFFFF) | 0xD0000000);
     dl->AddRectFilled({lx, ly + ts.y * 0.35f}, {lx + fh, ly + ts.y * 0.65f}, t.colour);
     dl->AddText({lx + fh * 1.4f, ly}, theme.tick_text, text.c_str());
+    res.legend_max = {std::max(res.legend_max.x, lx + fh * 1.4f + ts.x + 4), ly + ts.y + 2};
     ly += ts.y + 4;
   }
 

@@ -58,6 +58,7 @@ struct PlotSpec {
   bool time_x = true;
   bool integer_x = false;  // a count (cycle number): ticks at whole numbers only
   bool markers = false;    // a dot at every point drawn as a line
+  float legend_room = 0.0f;  // left axis: this fraction of its span added on top, so the legend covers no data
   std::string x_label;  // on a time axis, followed by the label style: "time (m:ss)"
   std::string y_label[2];
   float min_y_span[2] = {0.05f, 0.5f};  // smallest half-span per axis
@@ -73,6 +74,7 @@ struct PlotResult {
   std::vector<std::string> x_labels;
   TimeStyle x_style = TimeStyle::kSeconds;
   std::string x_title;
+  ImVec2 legend_max;  // bottom-right corner of the legend (top-left corner: rect_min)
 };
 
 // Draws at the cursor position with `size` (a non-positive component takes the

@@ -74,6 +74,8 @@ Status WriteLayout(const std::string& path, const Panel& panel) {
                           {"x1", d.result.rect_max.x},
                           {"y1", d.result.rect_max.y},
                           {"x_title", d.result.x_title},
+                          {"legend_x1", d.result.legend_max.x},
+                          {"legend_y1", d.result.legend_max.y},
                           {"x_labels", d.result.x_labels},
                           {"traces", traces}});
   }

@@ -89,10 +89,13 @@ int CheckElements(int argc, char** argv) {
     const int ink = total - bg_px;
     std::cout << "plot '" << name << "': " << ink << " drawn px of " << total;
     if (ink < total / 200) return Fail("plot '" + name + "' is empty");
+    // Trace colours are counted outside the legend (its colour swatches
+    // alone must not pass for a drawn trace).
+    const int lx1 = static_cast<int>(p.value("legend_x1", 0.0)) + 1, ly1 = static_cast<int>(p.value("legend_y1", 0.0)) + 1;
     for (const auto& rgb : p["traces"]) {
-      const int n = CountNear(img, x0, y0, x1, y1, rgb, 40, nullptr);
+      const int n = CountNear(img, x0, y0, x1, y1, rgb, 40, nullptr) - CountNear(img, x0, y0, std::min(lx1, x1), std::min(ly1, y1), rgb, 40, nullptr);
       std::cout << ", trace " << rgb.dump() << ": " << n << " px";
-      if (n < 20) return Fail("plot '" + name + "': trace colour " + rgb.dump() + " not drawn");
+      if (n < 30) return Fail("plot '" + name + "': trace colour " + rgb.dump() + " not drawn");
     }
     std::cout << "\n";
   }
