@@ -645,7 +645,9 @@ void Panel::CompareView() {
     const RunData* d = runs[r];
     const DischargeOverlay& o = overlays[r];
     ImU32 c = theme_.Series(static_cast<int>(r));
-    std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
+    // Named by what usually differs between compared runs: the procedure (its current, its kind) and the cell.
+    std::string name = fmt::format("#{} {} · {}", d->row.id, Ellipsize(d->row.procedure_name, ImGui::GetFontSize() * 16.0f, MeasureText, nullptr),
+                                   d->row.cell);
     if (o.t_s.empty()) continue;
     by_q.traces.push_back(MakeTrace(&o.charge_mah, &o.voltage, c, name, "V"));
     by_t.traces.push_back(MakeTrace(&o.t_s, &o.voltage, c, name, "V", o.raw ? nullptr : &o.t_end_s));

@@ -15,16 +15,17 @@ here=$(cd "$(dirname "$0")" && pwd)
 work=$(mktemp -d)
 pids=""
 trap 'for p in $pids; do kill "$p" 2>/dev/null || true; done; rm -rf "$work"' EXIT
-db=$work/bench.db
+cd "$work"
+db=lab.db  # relative: the panel's title bar shows this name
 for mode in completed aborted cycling slow; do
   "$bench" "$db" "$mode" >/dev/null
 done
 # The paused and the running run keep their runner process alive while the
 # pictures are taken.
 for mode in paused running; do
-  "$bench" "$db" "$mode" >"$work/$mode.out" 2>&1 &
+  "$bench" "$db" "$mode" >"$mode.out" 2>&1 &
   pids="$pids $!"
-  until grep -q ready "$work/$mode.out"; do sleep 0.1; done
+  until grep -q ready "$mode.out"; do sleep 0.1; done
 done
 xvfb-run -a -s '-screen 0 1600x1000x24' sh -c "
   set -e
