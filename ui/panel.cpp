@@ -641,13 +641,17 @@ void Panel::CompareView() {
   by_q.y_label[0] = "voltage (V)";
   by_t.x_label = "time from the discharge start";
   by_t.y_label[0] = "voltage (V)";
+  // Curves named by what differs between the runs' procedures (their current,
+  // their kind); the table below gives cell and procedure in full.
+  std::vector<std::string> procedures;
+  for (const RunData* d : runs) procedures.push_back(d->row.procedure_name);
+  const std::vector<std::string> labels = DistinctLabels(procedures);
+  by_q.legend_values = by_t.legend_values = false;
   for (size_t r = 0; r < runs.size(); ++r) {
     const RunData* d = runs[r];
     const DischargeOverlay& o = overlays[r];
     ImU32 c = theme_.Series(static_cast<int>(r));
-    // Named by what usually differs between compared runs: the procedure (its current, its kind) and the cell.
-    std::string name = fmt::format("#{} {} · {}", d->row.id, Ellipsize(d->row.procedure_name, ImGui::GetFontSize() * 16.0f, MeasureText, nullptr),
-                                   d->row.cell);
+    std::string name = fmt::format("#{} {}", d->row.id, Ellipsize(labels[r], half_w * 0.55f, MeasureText, nullptr));
     if (o.t_s.empty()) continue;
     by_q.traces.push_back(MakeTrace(&o.charge_mah, &o.voltage, c, name, "V"));
     by_t.traces.push_back(MakeTrace(&o.t_s, &o.voltage, c, name, "V", o.raw ? nullptr : &o.t_end_s));
@@ -714,10 +718,10 @@ void Panel::CompareView() {
     }
     ImGui::EndTable();
   }
-  if (cycling) CycleCapacityPlot(runs, ImGui::GetContentRegionAvail().y);
+  if (cycling) CycleCapacityPlot(runs, labels, ImGui::GetContentRegionAvail().y);
 }
 
-void Panel::CycleCapacityPlot(const std::vector<const RunData*>& runs, float height) {
+void Panel::CycleCapacityPlot(const std::vector<const RunData*>& runs, const std::vector<std::string>& labels, float height) {
   ImGui::PushFont(fonts_.medium);
   ImGui::TextUnformatted("Capacity per cycle");
   ImGui::PopFont();
@@ -744,7 +748,7 @@ void Panel::CycleCapacityPlot(const std::vector<const RunData*>& runs, float hei
     ys[r].Append(v.data(), v.size());
     spec.data_x.Include(xs[r].front() - 0.5);
     spec.data_x.Include(xs[r].back() + 0.5);
-    spec.traces.push_back(MakeTrace(&xs[r], &ys[r], theme_.Series(static_cast<int>(r)), fmt::format("#{} {}", d->row.id, d->row.cell), "mAh"));
+    spec.traces.push_back(MakeTrace(&xs[r], &ys[r], theme_.Series(static_cast<int>(r)), fmt::format("#{} {}", d->row.id, labels[r]), "mAh"));
   }
   spec.markers = true;
   spec.legend_room = 0.12f * static_cast<float>(spec.traces.size());  // the legend sits above the points

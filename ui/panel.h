@@ -78,7 +78,7 @@ class Panel {
   void EventLog(const RunData& d);
   void CycleTable(const RunData& d);
   void ControlButtons(const RunData& d, const RunStatus& status);
-  void CycleCapacityPlot(const std::vector<const RunData*>& runs, float height);
+  void CycleCapacityPlot(const std::vector<const RunData*>& runs, const std::vector<std::string>& labels, float height);
   PlotResult Plot(const char* id, const char* name, const PlotSpec& spec, XView& view, ImVec2 size);
   void SetTheme(bool dark);
   // True when `d`'s raw window covers `x` and the overview is coarser than

@@ -216,6 +216,8 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
     std::string text = t.name;
     if (!t.legend_note.empty())
       text += "  " + t.legend_note;
+    else if (!spec.legend_values)
+      ;
     else if (t.latest)
       text += fmt::format("  {:.3f} {}", *t.latest, t.unit);
     else if (t.ys && t.ys->size() > 0)

@@ -58,6 +58,7 @@ struct PlotSpec {
   bool time_x = true;
   bool integer_x = false;  // a count (cycle number): ticks at whole numbers only
   bool markers = false;    // a dot at every point drawn as a line
+  bool legend_values = true;  // the latest value after each name
   float legend_room = 0.0f;  // left axis: this fraction of its span added on top, so the legend covers no data
   std::string x_label;  // on a time axis, followed by the label style: "time (m:ss)"
   std::string y_label[2];

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
+#include <sstream>
 #include <cstdlib>
 
 #include <fmt/format.h>
@@ -281,6 +282,32 @@ std::vector<double> GapTimes(const std::vector<EventRow>& events) {
   for (const EventRow& e : events)
     if (e.kind == "gap") out.push_back(e.t_s);
   std::sort(out.begin(), out.end());
+  return out;
+}
+
+std::vector<std::string> DistinctLabels(const std::vector<std::string>& names) {
+  if (names.size() < 2) return names;
+  std::vector<std::vector<std::string>> words;
+  for (const std::string& n : names) {
+    std::vector<std::string> w;
+    std::istringstream in(n);
+    for (std::string x; in >> x;) w.push_back(x);
+    words.push_back(std::move(w));
+  }
+  // The shared leading words, cut back to the last one that ends in ':'.
+  size_t shared = 0, head = 0;
+  for (;; ++shared) {
+    bool same = true;
+    for (const auto& w : words) same = same && shared < w.size() && w[shared] == words[0][shared];
+    if (!same) break;
+    if (words[0][shared].back() == ':') head = shared + 1;
+  }
+  std::vector<std::string> out;
+  for (size_t k = 0; k < names.size(); ++k) {
+    std::string label;
+    for (size_t i = head; i < words[k].size(); ++i) label += (label.empty() ? "" : " ") + words[k][i];
+    out.push_back(label.empty() ? names[k] : label);
+  }
   return out;
 }
 

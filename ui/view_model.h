@@ -134,6 +134,13 @@ const char* RunStateWord(RunState s);  // "running", "paused", "held", "complete
 // trace may stop. Sparse logging (log-change) leaves no such event.
 std::vector<double> GapTimes(const std::vector<EventRow>& events);
 
+// Labels for compared runs that say what differs: the names without the
+// family prefix they all share (leading words up to one ending in ':', as
+// in "bench check: capacity at 1 It" / "bench check: peak load 2 A" ->
+// "capacity at 1 It" / "peak load 2 A"). A single name, or one that would be
+// left empty, stays whole.
+std::vector<std::string> DistinctLabels(const std::vector<std::string>& names);
+
 // `text` cut to fit `width` (as measured by `measure`) with "…" at the end;
 // unchanged when it fits. Cuts between UTF-8 characters.
 std::string Ellipsize(const std::string& text, float width, float (*measure)(const std::string&, void*), void* ctx);

@@ -215,6 +215,19 @@ TEST(GapTimes, OnlyGapEvents) {
   EXPECT_TRUE(GapTimes({{10, "step", "rest", ""}}).empty());
 }
 
+TEST(DistinctLabels, KeepsWhatDiffers) {
+  EXPECT_EQ(DistinctLabels({"bench check: capacity at 1 It", "bench check: capacity at 0.5 It", "bench check: peak load 2 A"}),
+            (std::vector<std::string>{"capacity at 1 It", "capacity at 0.5 It", "peak load 2 A"}));
+  // Only a family prefix ending in ':' goes; shared plain words stay, so two rates read as rates.
+  EXPECT_EQ(DistinctLabels({"demo: rate 1 A", "demo: rate 2 A"}), (std::vector<std::string>{"rate 1 A", "rate 2 A"}));
+  EXPECT_EQ(DistinctLabels({"rate 1 A", "rate 2 A"}), (std::vector<std::string>{"rate 1 A", "rate 2 A"}));
+  // Identical names (the same procedure twice) and single names stay whole.
+  EXPECT_EQ(DistinctLabels({"rated capacity", "rated capacity"}), (std::vector<std::string>{"rated capacity", "rated capacity"}));
+  EXPECT_EQ(DistinctLabels({"one"}), (std::vector<std::string>{"one"}));
+  // A name that is all shared prefix keeps its whole text.
+  EXPECT_EQ(DistinctLabels({"lab:", "lab: capacity at 2 A"}), (std::vector<std::string>{"lab:", "capacity at 2 A"}));
+}
+
 float CharWidth(const std::string& s, void*) {
   // Every UTF-8 character 1 unit wide.
   float n = 0;
