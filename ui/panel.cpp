@@ -22,17 +22,62 @@ ImU32 OutcomeColour(const Theme& t, Outcome o) {
     case Outcome::kRunning: return t.ok;
     case Outcome::kCompleted: return t.idle;
     case Outcome::kAborted: return t.alarm;
-    case Outcome::kInterrupted: return t.caution;
+    case Outcome::kInterrupted: return t.interrupted;
   }
   return t.idle;
 }
 
-// The run's state as every other view names it (the store's OutcomeName:
-// running, completed, aborted, interrupted), in capitals for the badge.
-std::string OutcomeBadge(Outcome o) {
-  std::string s = OutcomeName(o);
-  for (char& c : s) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
-  return s;
+ImU32 StateColour(const Theme& t, RunState s) {
+  switch (s) {
+    case RunState::kRunning: return t.ok;
+    case RunState::kPaused:
+    case RunState::kHeld: return t.caution;
+    case RunState::kCompleted: return t.idle;
+    case RunState::kAborted: return t.alarm;
+    case RunState::kInterrupted: return t.interrupted;
+  }
+  return t.idle;
+}
+
+// A filled box in `fill` with the word on it, at the cursor, as tall as a line of `font`.
+DrawnBadge Badge(const char* text, ImU32 fill, ImU32 ink, ImFont* font) {
+  ImGui::PushFont(font);
+  const ImVec2 ts = ImGui::CalcTextSize(text);
+  const float pad_x = ImGui::GetFontSize() * 0.45f, pad_y = ImGui::GetFontSize() * 0.12f;
+  const ImVec2 p0 = ImGui::GetCursorScreenPos();
+  const ImVec2 p1 = {p0.x + ts.x + 2 * pad_x, p0.y + ts.y + 2 * pad_y};
+  ImDrawList* dl = ImGui::GetWindowDrawList();
+  dl->AddRectFilled(p0, p1, fill, ImGui::GetFontSize() * 0.2f);
+  dl->AddText({p0.x + pad_x, p0.y + pad_y}, ink, text);
+  ImGui::Dummy({p1.x - p0.x, p1.y - p0.y});
+  ImGui::PopFont();
+  return {p0, p1, fill, text};
+}
+
+Trace MakeTrace(const std::vector<double>* xs, const MinMaxPyramid* ys, ImU32 colour, std::string name, std::string unit,
+                const std::vector<double>* xs_end = nullptr, std::optional<double> latest = std::nullopt,
+                const std::vector<double>* breaks = nullptr) {
+  Trace t;
+  t.xs = xs;
+  t.ys = ys;
+  t.colour = colour;
+  t.name = std::move(name);
+  t.unit = std::move(unit);
+  t.xs_end = xs_end;
+  t.latest = latest;
+  t.breaks = breaks;
+  return t;
+}
+
+float MeasureText(const std::string& s, void*) { return ImGui::CalcTextSize(s.c_str()).x; }
+
+// Text cut to the column width with "…", the whole text in a tooltip when cut.
+void FittedText(const std::string& text, const std::string& tooltip = {}) {
+  const float w = ImGui::GetContentRegionAvail().x;
+  std::string shown = Ellipsize(text, w, MeasureText, nullptr);
+  ImGui::TextUnformatted(shown.c_str());
+  if ((shown != text || !tooltip.empty()) && ImGui::IsItemHovered())
+    ImGui::SetTooltip("%s", tooltip.empty() ? text.c_str() : tooltip.c_str());
 }
 
 std::string Hms(double s) { return cli::FormatDuration(std::max(0.0, s)); }
@@ -41,7 +86,8 @@ bool TypingText() { return ImGui::GetIO().WantTextInput; }
 
 bool Key(int glfw_key) { return !TypingText() && ImGui::IsKeyPressed(glfw_key, false); }
 
-void Figure(const Fonts& f, const char* caption, const std::string& value, ImU32 colour) {
+void Figure(const Fonts& f, const char* caption, const std::string& value, ImU32 colour, const std::string& note = {},
+            ImU32 note_colour = 0) {
   ImGui::BeginGroup();
   ImGui::TextDisabled("%s", caption);
   ImGui::PushFont(f.big);
@@ -49,6 +95,7 @@ void Figure(const Fonts& f, const char* caption, const std::string& value, ImU32
   ImGui::TextUnformatted(value.c_str());
   ImGui::PopStyleColor();
   ImGui::PopFont();
+  if (!note.empty()) ImGui::TextColored(ImColor(note_colour), "%s", note.c_str());
   ImGui::EndGroup();
 }
 
@@ -80,6 +127,8 @@ void Panel::Frame() {
   if (selected_) watch.insert(*selected_);
   feed_.Watch(watch);
 
+  plots_.clear();
+  badge_.reset();
   Shortcuts();
   const ImGuiViewport* vp = ImGui::GetMainViewport();
   ImGui::SetNextWindowPos(vp->WorkPos);
@@ -88,7 +137,7 @@ void Panel::Frame() {
                ImGuiWindowFlags_NoDecoration | ImGuiWindowFlags_NoMove | ImGuiWindowFlags_NoBringToFrontOnFocus |
                    ImGuiWindowFlags_NoSavedSettings);
   TopBar();
-  float side_w = std::min(ImGui::GetContentRegionAvail().x * 0.36f, ImGui::GetFontSize() * 34.0f);
+  float side_w = std::min(ImGui::GetContentRegionAvail().x * 0.38f, ImGui::GetFontSize() * 38.0f);
   ImGui::BeginChild("runs", {side_w, 0}, false);
   RunsList();
   ImGui::EndChild();
@@ -130,10 +179,12 @@ void Panel::Shortcuts() {
       live_x_ = XView{};
     }
   }
-  if (selected_ && state_.watched.count(*selected_) && state_.watched.at(*selected_).row.outcome == Outcome::kRunning) {
-    if (Key(GLFW_KEY_P)) feed_.Request(*selected_, "pause");
-    if (Key(GLFW_KEY_C)) feed_.Request(*selected_, "continue");
-    if (Key(GLFW_KEY_A)) open_abort_ = true;
+  if (selected_ && state_.watched.count(*selected_)) {
+    const RunData& d = state_.watched.at(*selected_);
+    const RunStatus st = StatusOf(d.row, d.events);
+    if (st.can_pause && Key(GLFW_KEY_P)) feed_.Request(*selected_, "pause");
+    if (st.can_continue && Key(GLFW_KEY_C)) feed_.Request(*selected_, "continue");
+    if (st.can_abort && Key(GLFW_KEY_A)) open_abort_ = true;
   }
 }
 
@@ -171,19 +222,21 @@ void Panel::RunsList() {
   }
   ImGui::SetNextItemWidth(-1);
   ImGui::InputTextWithHint("##filter", "filter: cell, state, procedure, pass…  (Ctrl+F)", filter_, sizeof(filter_));
+  // Short columns fit their widest entry (and their header); cell and
+  // procedure share what is left, cut with "…" and shown whole on hover.
   ImGuiTableFlags flags = ImGuiTableFlags_RowBg | ImGuiTableFlags_ScrollY | ImGuiTableFlags_BordersInnerV |
-                          ImGuiTableFlags_SizingStretchProp | ImGuiTableFlags_Resizable;
+                          ImGuiTableFlags_SizingFixedFit | ImGuiTableFlags_Resizable;
   bool cmp = tab_ == Tab::kCompare;
   if (!ImGui::BeginTable("runs_table", cmp ? 8 : 7, flags)) return;
   ImGui::TableSetupScrollFreeze(0, 1);
-  if (cmp) ImGui::TableSetupColumn("cmp", ImGuiTableColumnFlags_WidthFixed, ImGui::GetFontSize() * 1.6f);
-  ImGui::TableSetupColumn("#", ImGuiTableColumnFlags_WidthFixed, ImGui::GetFontSize() * 2.0f);
-  ImGui::TableSetupColumn("state", 0, 1.4f);
-  ImGui::TableSetupColumn("cell", 0, 1.8f);
-  ImGui::TableSetupColumn("procedure", 0, 1.8f);
-  ImGui::TableSetupColumn("elapsed", 0, 1.1f);
-  ImGui::TableSetupColumn("mAh", 0, 0.9f);
-  ImGui::TableSetupColumn("verdict", 0, 1.9f);
+  if (cmp) ImGui::TableSetupColumn("cmp", ImGuiTableColumnFlags_WidthFixed);
+  ImGui::TableSetupColumn("#", ImGuiTableColumnFlags_WidthFixed);
+  ImGui::TableSetupColumn("state", ImGuiTableColumnFlags_WidthFixed);
+  ImGui::TableSetupColumn("cell", ImGuiTableColumnFlags_WidthStretch, 1.0f);
+  ImGui::TableSetupColumn("procedure", ImGuiTableColumnFlags_WidthStretch, 1.3f);
+  ImGui::TableSetupColumn("elapsed", ImGuiTableColumnFlags_WidthFixed);
+  ImGui::TableSetupColumn("mAh", ImGuiTableColumnFlags_WidthFixed);
+  ImGui::TableSetupColumn("verdict", ImGuiTableColumnFlags_WidthFixed);
   ImGui::TableHeadersRow();
   for (const RunListRow& r : state_.runs) {
     if (!MatchesFilter(r, filter_)) continue;
@@ -206,12 +259,19 @@ void Panel::RunsList() {
       selected_ = r.id;
       if (!cmp) tab_ = Tab::kLive;
     }
+    if (ImGui::IsItemHovered()) {
+      std::string tip = fmt::format("run {}  ·  {}\ncell {} ({}, {:.0f} mAh rated)\n{}\nstarted {}", r.id, r.state, r.cell,
+                                    r.chemistry, r.rated_mah, r.procedure, r.started_at);
+      if (!r.reason.empty()) tip += "\n" + r.reason;
+      if (!r.verdict.empty() && r.verdict != "-") tip += "\nverdict: " + r.verdict;
+      ImGui::SetTooltip("%s", tip.c_str());
+    }
     ImGui::TableSetColumnIndex(col++);
-    ImGui::TextColored(ImColor(OutcomeColour(theme_, r.outcome)), "%s", r.state.c_str());
+    ImGui::TextColored(ImColor(StateColour(theme_, r.run_state)), "%s", r.state.c_str());
     ImGui::TableSetColumnIndex(col++);
-    ImGui::TextUnformatted(r.cell.c_str());
+    FittedText(r.cell);
     ImGui::TableSetColumnIndex(col++);
-    ImGui::TextUnformatted(r.procedure.c_str());
+    FittedText(r.procedure);
     ImGui::TableSetColumnIndex(col++);
     ImGui::TextUnformatted(Hms(r.elapsed_s).c_str());
     ImGui::TableSetColumnIndex(col++);
@@ -227,25 +287,29 @@ void Panel::RunsList() {
   ImGui::EndTable();
 }
 
-void Panel::Headline(const RunData& d) {
+void Panel::Headline(const RunData& d, const RunStatus& status) {
   const RunningFigures& f = d.figures;
   const Sample& s = f.last();
-  bool live = d.row.outcome == Outcome::kRunning;
-  // State badge.
-  ImGui::PushFont(fonts_.medium);
-  if (live && IsPaused(d.events))
-    ImGui::TextColored(ImColor(theme_.caution), "PAUSED");
-  else
-    ImGui::TextColored(ImColor(OutcomeColour(theme_, d.row.outcome)), "%s", OutcomeBadge(d.row.outcome).c_str());
-  ImGui::PopFont();
+  const bool live = status.state == RunState::kRunning;
+  const bool ended = d.row.outcome != Outcome::kRunning;
+  // State badge, then why (paused by whom, what held it, how it ended).
+  badge_ = Badge(status.badge.c_str(), StateColour(theme_, status.state), theme_.badge_text, fonts_.medium);
   ImGui::SameLine();
-  ImGui::Text("run %lld  ·  cell %s (%s, %.0f mAh rated)  ·  %s  ·  rig %s", static_cast<long long>(d.row.id),
-              d.row.cell.c_str(), d.row.chemistry.c_str(), d.row.rated_mah, d.row.procedure_name.c_str(), d.row.rig.c_str());
-  if (!d.row.reason.empty()) {
+  ImGui::PushFont(fonts_.medium);
+  ImGui::Text("run %lld", static_cast<long long>(d.row.id));
+  ImGui::PopFont();
+  if (!status.reason.empty()) {
     ImGui::SameLine();
-    ImGui::TextColored(ImColor(d.row.outcome == Outcome::kAborted ? theme_.alarm : theme_.tick_text), "— %s",
-                       d.row.reason.c_str());
+    std::string why = status.reason;
+    if (status.state == RunState::kPaused || status.state == RunState::kHeld) why += fmt::format("  (at {})", Hms(status.since_s));
+    ImU32 c = status.state == RunState::kAborted ? theme_.alarm : status.state == RunState::kRunning ? theme_.tick_text
+                                                                                                      : StateColour(theme_, status.state);
+    ImGui::PushStyleColor(ImGuiCol_Text, c);
+    ImGui::TextWrapped("%s", why.c_str());
+    ImGui::PopStyleColor();
   }
+  ImGui::TextWrapped("cell %s (%s, %.0f mAh rated)  ·  %s  ·  rig %s", d.row.cell.c_str(), d.row.chemistry.c_str(),
+                     d.row.rated_mah, d.row.procedure_name.c_str(), d.row.rig.c_str());
   if (f.count() == 0) {
     ImGui::TextDisabled("no samples yet");
     return;
@@ -257,15 +321,41 @@ void Panel::Headline(const RunData& d) {
     vcol = margin <= 0.0 ? theme_.alarm : margin < 0.15 ? theme_.caution : theme_.voltage;
   }
   ImU32 tcol = theme_.temperature;
-  if (live && d.limits.max_temp_c && s.temperature_c > *d.limits.max_temp_c - 5.0) tcol = theme_.alarm;
-  float gap = ImGui::GetFontSize() * 2.0f;
-  Figure(fonts_, "voltage", fmt::format("{:.3f} V", s.voltage_v), vcol);
-  ImGui::SameLine(0, gap);
-  Figure(fonts_, "current", fmt::format("{:.3f} A", s.current_a), theme_.current);
-  ImGui::SameLine(0, gap);
-  Figure(fonts_, "temperature", fmt::format("{:.1f} °C", s.temperature_c), tcol);
-  ImGui::SameLine(0, gap);
-  Figure(fonts_, "delivered", fmt::format("{:.0f} mAh", f.discharged_mah()), theme_.tick_text);
+  if (!ended && d.limits.max_temp_c && s.temperature_c > *d.limits.max_temp_c - 5.0) tcol = theme_.alarm;
+  // After the run ended the figures are its last reading, not live values.
+  if (ended) {
+    vcol = theme_.Dimmed(vcol);
+    tcol = theme_.Dimmed(tcol);
+  }
+  const float gap = ImGui::GetFontSize() * 2.0f;
+  const char* last = ended ? "  (last reading)" : "";
+  // Figures side by side while they fit, the next on a new line otherwise: none is cut at the edge.
+  auto next_figure = [&](const std::string& value) {
+    ImGui::PushFont(fonts_.big);
+    const float w = ImGui::CalcTextSize(value.c_str()).x;
+    ImGui::PopFont();
+    const float right = ImGui::GetItemRectMax().x + gap + w;
+    if (right <= ImGui::GetWindowPos().x + ImGui::GetWindowContentRegionMax().x) ImGui::SameLine(0, gap);
+  };
+  Figure(fonts_, fmt::format("voltage{}", last).c_str(), fmt::format("{:.3f} V", s.voltage_v), vcol);
+  next_figure(status.load_off ? "load off" : fmt::format("{:.3f} A", s.current_a));
+  if (status.load_off) {
+    // The last current drawn while the load was on, dimmed under "load off".
+    std::string note;
+    for (auto it = d.tail.rbegin(); it != d.tail.rend(); ++it)
+      if (std::fabs(it->current_a) > 0.001) {
+        note = fmt::format("last on load: {:.3f} A at {}", it->current_a, Hms(it->t_s));
+        break;
+      }
+    Figure(fonts_, "current", "load off", theme_.tick_text, note, theme_.Dimmed(theme_.current));
+  }
+  else
+    Figure(fonts_, "current", fmt::format("{:.3f} A", s.current_a), theme_.current);
+  const std::string temp = fmt::format("{:.1f} °C", s.temperature_c), delivered = fmt::format("{:.0f} mAh", f.discharged_mah());
+  next_figure(temp);
+  Figure(fonts_, fmt::format("temperature{}", last).c_str(), temp, tcol);
+  next_figure(delivered);
+  Figure(fonts_, "delivered", delivered, theme_.tick_text);
   std::string remaining = "—";
   if (live) {
     if (auto r = EstimateRemainingS(d.tail, f.discharged_since_charge_mah(), d.row.rated_mah, d.limits.cutoff_v))
@@ -293,12 +383,14 @@ void Panel::Headline(const RunData& d) {
 
   StepNow step = CurrentStep(d.steps);
   if (step.index >= 0) {
-    ImGui::Text("step %d  [%s]  %s", step.index + 1, step.kind.c_str(), step.label.c_str());
-    ImGui::SameLine();
+    std::string text = fmt::format("step {}  [{}]  {}", step.index + 1, step.kind, step.label);
     if (step.ended)
-      ImGui::TextDisabled("· ended at %s: %s", Hms(s.t_s).c_str(), step.end_reason.c_str());
+      text += fmt::format("  · ended at {}: {}", Hms(s.t_s), step.end_reason);
+    else if (status.state == RunState::kPaused || status.state == RunState::kHeld)
+      text += fmt::format("  · {} at {}; its clock stands still meanwhile", RunStateWord(status.state), Hms(status.since_s));
     else
-      ImGui::TextDisabled("· running for %s", Hms(s.t_s - step.started_s).c_str());
+      text += fmt::format("  · running for {}", Hms(s.t_s - step.started_s));
+    FittedText(text);
   }
   std::string lim;
   if (d.limits.cutoff_v) lim += fmt::format("cutoff {:.3f} V   ", *d.limits.cutoff_v);
@@ -306,24 +398,33 @@ void Panel::Headline(const RunData& d) {
   if (d.limits.max_voltage_v) lim += fmt::format("max {:.2f} V   ", *d.limits.max_voltage_v);
   if (d.limits.max_temp_c) lim += fmt::format("max temp {:.0f} °C", *d.limits.max_temp_c);
   if (!lim.empty()) {
-    ImGui::TextDisabled("limits drawn: %s", lim.c_str());
+    ImGui::TextDisabled("limits: %s", lim.c_str());
   }
 }
 
-void Panel::ControlButtons(const RunData& d) {
-  if (d.row.outcome != Outcome::kRunning) return;
-  if (ImGui::Button("Pause  [P]")) feed_.Request(d.row.id, "pause");
-  ImGui::SameLine();
-  if (ImGui::Button("Continue  [C]")) feed_.Request(d.row.id, "continue");
-  ImGui::SameLine();
+void Panel::ControlButtons(const RunData& d, const RunStatus& status) {
+  if (!status.can_abort) return;  // the run has ended: nothing to act on
+  // Only the actions that apply: pause a running run, continue a paused one;
+  // a hold (heat, lost instrument) ends by itself, abort ends any of them.
+  if (status.can_pause) {
+    if (ImGui::Button("Pause  [P]")) feed_.Request(d.row.id, "pause");
+    ImGui::SameLine();
+  }
+  if (status.can_continue) {
+    if (ImGui::Button("Continue  [C]")) feed_.Request(d.row.id, "continue");
+    ImGui::SameLine();
+  }
   ImGui::PushStyleColor(ImGuiCol_Button, ImColor(theme_.alarm).Value);
+  ImGui::PushStyleColor(ImGuiCol_Text, ImColor(theme_.badge_text).Value);
   if (ImGui::Button("Abort…  [A]")) open_abort_ = true;
-  ImGui::PopStyleColor();
+  ImGui::PopStyleColor(2);
   ImGui::SameLine();
   if (!d.requests.empty()) {
     std::string waiting;
     for (const RequestRow& r : d.requests) waiting += (waiting.empty() ? "" : ", ") + r.action;
     ImGui::TextColored(ImColor(theme_.caution), "sent, waiting for the runner: %s", waiting.c_str());
+  } else if (status.state == RunState::kHeld) {
+    ImGui::TextDisabled("held by the runner: it continues by itself when the cause clears");
   } else {
     ImGui::TextDisabled("requests go through the database; the runner acts on them even if this panel closes");
   }
@@ -360,7 +461,9 @@ void Panel::CycleTable(const RunData& d) {
     if (r.retention) ImGui::Text("%.1f %%", *r.retention * 100.0); else ImGui::TextDisabled("-");
     ImGui::TableSetColumnIndex(5);
     // Capacity versus cycle, as a bar against the largest cycle.
+    ImGui::PushStyleColor(ImGuiCol_PlotHistogram, ImColor(theme_.current).Value);
     ImGui::ProgressBar(most > 0 ? static_cast<float>(r.discharged_mah / most) : 0.0f, {-1, 0}, "");
+    ImGui::PopStyleColor();
   }
   ImGui::EndTable();
 }
@@ -392,6 +495,15 @@ void Panel::EventLog(const RunData& d) {
   ImGui::EndTable();
 }
 
+PlotResult Panel::Plot(const char* id, const char* name, const PlotSpec& spec, XView& view, ImVec2 size) {
+  DrawnPlot p;
+  p.name = name;
+  p.result = DrawPlot(id, spec, view, size, theme_);
+  for (const Trace& t : spec.traces) p.trace_colours.push_back(t.colour);
+  plots_.push_back(p);
+  return p.result;
+}
+
 void Panel::LiveView() {
   if (!selected_) {
     ImGui::TextDisabled(state_.connected ? "No runs in this database yet. Start one with Ctrl+N." : "Opening the database…");
@@ -408,8 +520,9 @@ void Panel::LiveView() {
                        static_cast<long long>(d.row.id), d.SampleCount(), d.BacklogSize(),
                        static_cast<long long>(kSamplesPerBlock));
   }
-  Headline(d);
-  ControlButtons(d);
+  const RunStatus status = StatusOf(d.row, d.events);
+  Headline(d, status);
+  ControlButtons(d, status);
 
   Range data_x = d.DataX();
   // Raw samples when the view shows fewer block summaries than pixels,
@@ -417,6 +530,9 @@ void Panel::LiveView() {
   const bool raw = UseRaw(d, ResolveX(live_x_, data_x), ImGui::GetContentRegionAvail().x);
   const std::vector<double>* xs = raw ? &d.window.t_s : &d.overview.t_s;
   const std::vector<double>* xs_end = raw ? nullptr : &d.overview.t_end_s;
+  // Traces stop only where readings were missing (gap events); sparse
+  // logging (a rest logged on change) is joined up as the line it is.
+  const std::vector<double> breaks = GapTimes(d.events);
   const RunningFigures& f = d.figures;
   std::optional<double> last_v, last_i, last_c;
   if (f.count() > 0) {
@@ -427,23 +543,33 @@ void Panel::LiveView() {
   float avail_h = ImGui::GetContentRegionAvail().y;
   PlotSpec vspec;
   vspec.data_x = data_x;
-  vspec.x_label = "time (h:mm)";
-  vspec.traces.push_back({xs, raw ? &d.window.voltage : &d.overview.voltage, theme_.voltage, "voltage", "V", 0, xs_end, last_v});
+  vspec.x_label = "time";
+  vspec.traces.push_back(
+      MakeTrace(xs, raw ? &d.window.voltage : &d.overview.voltage, theme_.voltage, "voltage", "V", xs_end, last_v, &breaks));
   if (d.limits.cutoff_v) vspec.lines.push_back({*d.limits.cutoff_v, theme_.cutoff, "cutoff", 0, false, true});
   if (d.limits.min_voltage_v) vspec.lines.push_back({*d.limits.min_voltage_v, theme_.limit, "safety min", 0, true, true});
   if (d.limits.max_voltage_v) vspec.lines.push_back({*d.limits.max_voltage_v, theme_.limit, "safety max", 0, true, true});
-  voltage_plot_ = DrawPlot("##voltage", vspec, live_x_, {0, avail_h * 0.50f}, theme_);
+  const float strip_min = ImGui::GetFontSize() * 7.0f;  // a strip keeps room for its ticks and a readable trace
+  voltage_plot_ = Plot("##voltage", "voltage", vspec, live_x_, {0, std::max(avail_h * 0.40f, strip_min * 1.6f)});
 
+  // Current and temperature each on their own strip and axis, sharing the x view.
   PlotSpec ispec;
   ispec.data_x = data_x;
-  ispec.x_label = "time (h:mm)";
-  ispec.y_label[0] = "A";
-  ispec.y_label[1] = "°C";
-  ispec.traces.push_back({xs, raw ? &d.window.current : &d.overview.current, theme_.current, "current", "A", 0, xs_end, last_i});
+  ispec.x_label = "time";
   ispec.traces.push_back(
-      {xs, raw ? &d.window.temperature : &d.overview.temperature, theme_.temperature, "temperature", "°C", 1, xs_end, last_c});
-  if (d.limits.max_temp_c) ispec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 1, true, true});
-  DrawPlot("##current", ispec, live_x_, {0, avail_h * 0.28f}, theme_);
+      MakeTrace(xs, raw ? &d.window.current : &d.overview.current, theme_.current, "current", "A", xs_end, last_i, &breaks));
+  if (status.load_off) ispec.traces.back().legend_note = "load off";
+  Plot("##current", "current", ispec, live_x_, {0, std::max(avail_h * 0.18f, strip_min)});
+
+  PlotSpec tspec;
+  tspec.data_x = data_x;
+  tspec.x_label = "time";
+  tspec.min_y_span[0] = 1.0f;  // ±1 °C at least: sensor noise is not drawn as a swing
+  tspec.traces.push_back(MakeTrace(xs, raw ? &d.window.temperature : &d.overview.temperature, theme_.temperature, "temperature",
+                                   "°C", xs_end, last_c, &breaks));
+  // The limit is drawn where it falls, but does not squash the strip to reach it.
+  if (d.limits.max_temp_c) tspec.lines.push_back({*d.limits.max_temp_c, theme_.limit, "max temp", 0, true, false});
+  Plot("##temperature", "temperature", tspec, live_x_, {0, std::max(avail_h * 0.17f, strip_min)});
   ImGui::TextDisabled("wheel: zoom · drag: pan · double-click/Home: whole run · F: follow newest (%s)",
                       live_x_.follow ? "on" : "off");
   CycleTable(d);
@@ -484,91 +610,150 @@ void Panel::CompareView() {
     ImGui::TextDisabled("Tick runs in the 'cmp' column to overlay them here.");
     return;
   }
+  // A new set of runs: fit the views to it again.
+  if (compare_ != cmp_shown_) {
+    cmp_shown_ = compare_;
+    cmp_time_x_ = cmp_charge_x_ = cmp_cycle_x_ = XView{};
+  }
   // Each run is shown by its latest discharge (step records), aligned on the
   // discharge's start: charge and time count from there, so a charge before it
   // or a rest after it is not in the curves or the figures.
   std::vector<DischargeOverlay> overlays;
   std::vector<std::optional<DischargeSpan>> spans;
   overlays.reserve(runs.size());
+  bool cycling = false;
   for (const RunData* d : runs) {
     const Range whole = d->DataX();
     spans.push_back(whole.Empty() ? std::nullopt : LatestDischarge(d->steps, whole.hi));
     overlays.push_back(spans.back() ? OverlayOfDischarge(*d, *spans.back()) : DischargeOverlay{});
+    if (!whole.Empty() && CycleRows(d->overview, d->steps, whole.hi).size() >= 2) cycling = true;
   }
-  float avail_h = ImGui::GetContentRegionAvail().y;
-  float half_w = ImGui::GetContentRegionAvail().x * 0.5f - ImGui::GetStyle().ItemSpacing.x;
+  const float line = ImGui::GetTextLineHeightWithSpacing();
+  const float avail_h = ImGui::GetContentRegionAvail().y;
+  const float table_h = line * (static_cast<float>(runs.size()) + 1.6f) + ImGui::GetStyle().CellPadding.y * 2.0f * (runs.size() + 1);
+  const float title_h = ImGui::GetFontSize() * 2.0f;
+  // The overlays take what the table and the cycle plot leave: no empty space below.
+  const float cycle_h = cycling ? std::max(avail_h * 0.26f, ImGui::GetFontSize() * 10.0f) : 0.0f;
+  const float plots_h = std::max(ImGui::GetFontSize() * 12.0f, avail_h - table_h - title_h - cycle_h - line * (cycling ? 2.5f : 1.0f));
+  const float half_w = ImGui::GetContentRegionAvail().x * 0.5f - ImGui::GetStyle().ItemSpacing.x;
   PlotSpec by_q, by_t;
   by_q.time_x = false;
   by_q.x_label = "charge delivered in the discharge (mAh)";
   by_q.y_label[0] = "voltage (V)";
   by_t.x_label = "time from the discharge start";
   by_t.y_label[0] = "voltage (V)";
-  int k = 0;
+  // Curves named by what differs between the runs' procedures (their current,
+  // their kind); the table below gives cell and procedure in full.
+  std::vector<std::string> procedures;
+  for (const RunData* d : runs) procedures.push_back(d->row.procedure_name);
+  const std::vector<std::string> labels = DistinctLabels(procedures);
+  by_q.legend_values = by_t.legend_values = false;
   for (size_t r = 0; r < runs.size(); ++r) {
     const RunData* d = runs[r];
     const DischargeOverlay& o = overlays[r];
-    ImU32 c = theme_.Series(k++);
-    std::string name = fmt::format("#{} {}", d->row.id, d->row.cell);
+    ImU32 c = theme_.Series(static_cast<int>(r));
+    std::string name = fmt::format("#{} {}", d->row.id, Ellipsize(labels[r], half_w * 0.55f, MeasureText, nullptr));
     if (o.t_s.empty()) continue;
-    by_q.traces.push_back({&o.charge_mah, &o.voltage, c, name, "V", 0});
-    by_t.traces.push_back({&o.t_s, &o.voltage, c, name, "V", 0, o.raw ? nullptr : &o.t_end_s});
+    by_q.traces.push_back(MakeTrace(&o.charge_mah, &o.voltage, c, name, "V"));
+    by_t.traces.push_back(MakeTrace(&o.t_s, &o.voltage, c, name, "V", o.raw ? nullptr : &o.t_end_s));
     by_t.data_x.Include(0.0);
     by_t.data_x.Include(o.t_end_s.back());
     by_q.data_x.Include(0.0);
     by_q.data_x.Include(o.charge_mah.back());
   }
-  DrawPlot("##cmp_q", by_q, cmp_charge_x_, {half_w, avail_h * 0.58f}, theme_);
+  Plot("##cmp_q", "compare by charge", by_q, cmp_charge_x_, {half_w, plots_h});
   ImGui::SameLine();
-  DrawPlot("##cmp_t", by_t, cmp_time_x_, {0, avail_h * 0.58f}, theme_);
+  Plot("##cmp_t", "compare by time", by_t, cmp_time_x_, {0, plots_h});
 
   ImGui::PushFont(fonts_.medium);
   ImGui::TextUnformatted("Figures of the latest discharge");
   ImGui::PopFont();
-  if (!ImGui::BeginTable("cmp_figs", 11, ImGuiTableFlags_RowBg | ImGuiTableFlags_BordersInner | ImGuiTableFlags_ScrollY))
-    return;
-  for (const char* h : {"run", "cell", "procedure", "state", "mAh", "Wh", "mean V", "min V", "max °C", "duration", "of rated"})
-    ImGui::TableSetupColumn(h);
-  ImGui::TableHeadersRow();
-  k = 0;
+  ImGui::SameLine();
+  ImGui::TextDisabled("(from its start to its end: a charge or rest around it is not counted)");
+  if (ImGui::BeginTable("cmp_figs", 10,
+                        ImGuiTableFlags_RowBg | ImGuiTableFlags_BordersInner | ImGuiTableFlags_ScrollY | ImGuiTableFlags_SizingStretchProp,
+                        {0, table_h})) {
+    for (const char* h : {"run", "cell", "procedure", "state", "mAh", "Wh", "mean V", "min V", "duration", "of rated"})
+      ImGui::TableSetupColumn(h);
+    ImGui::TableHeadersRow();
+    for (size_t r = 0; r < runs.size(); ++r) {
+      const RunData* d = runs[r];
+      const RunningFigures& f = d->figures;
+      const DischargeOverlay& o = overlays[r];
+      // The runner keeps the latest discharge on the runs row (schema v3);
+      // older runs fall back to what the record discharged.
+      const double mah = d->row.delivered_mah.value_or(f.discharged_mah());
+      const double wh = d->row.delivered_wh.value_or(f.discharged_wh());
+      const RunStatus st = StatusOf(d->row, d->events);
+      ImGui::TableNextRow();
+      ImGui::TableSetColumnIndex(0);
+      ImGui::TextColored(ImColor(theme_.Series(static_cast<int>(r))), "■ %lld", static_cast<long long>(d->row.id));
+      ImGui::TableSetColumnIndex(1);
+      FittedText(d->row.cell);
+      ImGui::TableSetColumnIndex(2);
+      FittedText(d->row.procedure_name);
+      ImGui::TableSetColumnIndex(3);
+      ImGui::TextColored(ImColor(StateColour(theme_, st.state)), "%s", RunStateWord(st.state));
+      ImGui::TableSetColumnIndex(4);
+      ImGui::Text("%.0f", mah);
+      ImGui::TableSetColumnIndex(5);
+      ImGui::Text("%.3f", wh);
+      ImGui::TableSetColumnIndex(6);
+      if (o.mean_voltage_v)
+        ImGui::Text("%.3f", *o.mean_voltage_v);
+      else
+        ImGui::TextDisabled("-");
+      ImGui::TableSetColumnIndex(7);
+      float vmin = 0, vmax = 0;
+      if (o.voltage.Query(0, o.voltage.size(), &vmin, &vmax))
+        ImGui::Text("%.3f", vmin);
+      else
+        ImGui::TextDisabled("-");
+      ImGui::TableSetColumnIndex(8);
+      ImGui::TextUnformatted(Hms(spans[r] ? o.duration_s : 0.0).c_str());
+      ImGui::TableSetColumnIndex(9);
+      if (d->row.rated_mah > 0)
+        ImGui::Text("%.1f %%", PercentOfRated(mah, d->row.rated_mah));
+      else
+        ImGui::TextDisabled("-");
+    }
+    ImGui::EndTable();
+  }
+  if (cycling) CycleCapacityPlot(runs, labels, ImGui::GetContentRegionAvail().y);
+}
+
+void Panel::CycleCapacityPlot(const std::vector<const RunData*>& runs, const std::vector<std::string>& labels, float height) {
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted("Capacity per cycle");
+  ImGui::PopFont();
+  ImGui::SameLine();
+  ImGui::TextDisabled("(discharged mAh of each cycle, from the step records)");
+  // One series per cycling run: x = cycle number, y = what its discharge delivered.
+  std::vector<std::vector<double>> xs(runs.size());
+  std::vector<MinMaxPyramid> ys(runs.size());
+  PlotSpec spec;
+  spec.time_x = false;
+  spec.integer_x = true;
+  spec.x_label = "cycle";
+  spec.min_y_span[0] = 10.0f;
   for (size_t r = 0; r < runs.size(); ++r) {
     const RunData* d = runs[r];
-    const RunningFigures& f = d->figures;
-    const DischargeOverlay& o = overlays[r];
-    // The runner keeps the latest discharge on the runs row (schema v3);
-    // older runs fall back to what the record discharged.
-    const double mah = d->row.delivered_mah.value_or(f.discharged_mah());
-    const double wh = d->row.delivered_wh.value_or(f.discharged_wh());
-    ImGui::TableNextRow();
-    ImGui::TableSetColumnIndex(0);
-    ImGui::TextColored(ImColor(theme_.Series(k++)), "■ %lld", static_cast<long long>(d->row.id));
-    ImGui::TableSetColumnIndex(1);
-    ImGui::TextUnformatted(d->row.cell.c_str());
-    ImGui::TableSetColumnIndex(2);
-    ImGui::TextUnformatted(d->row.procedure_name.c_str());
-    ImGui::TableSetColumnIndex(3);
-    ImGui::TextColored(ImColor(OutcomeColour(theme_, d->row.outcome)), "%s", OutcomeName(d->row.outcome));
-    ImGui::TableSetColumnIndex(4);
-    ImGui::Text("%.0f", mah);
-    ImGui::TableSetColumnIndex(5);
-    ImGui::Text("%.3f", wh);
-    ImGui::TableSetColumnIndex(6);
-    if (o.mean_voltage_v)
-      ImGui::Text("%.3f", *o.mean_voltage_v);
-    else
-      ImGui::TextDisabled("-");
-    ImGui::TableSetColumnIndex(7);
-    ImGui::Text("%.3f", f.min_voltage_v());
-    ImGui::TableSetColumnIndex(8);
-    ImGui::Text("%.1f", f.max_temperature_c());
-    ImGui::TableSetColumnIndex(9);
-    ImGui::TextUnformatted(Hms(spans[r] ? o.duration_s : 0.0).c_str());
-    ImGui::TableSetColumnIndex(10);
-    if (d->row.rated_mah > 0)
-      ImGui::Text("%.1f %%", PercentOfRated(mah, d->row.rated_mah));
-    else
-      ImGui::TextDisabled("-");
+    const Range whole = d->DataX();
+    if (whole.Empty()) continue;
+    std::vector<float> v;
+    for (const CycleRow& c : CycleRows(d->overview, d->steps, whole.hi)) {
+      xs[r].push_back(c.cycle);
+      v.push_back(static_cast<float>(c.discharged_mah));
+    }
+    if (v.size() < 2) continue;
+    ys[r].Append(v.data(), v.size());
+    spec.data_x.Include(xs[r].front() - 0.5);
+    spec.data_x.Include(xs[r].back() + 0.5);
+    spec.traces.push_back(MakeTrace(&xs[r], &ys[r], theme_.Series(static_cast<int>(r)), fmt::format("#{} {}", d->row.id, labels[r]), "mAh"));
   }
-  ImGui::EndTable();
+  spec.markers = true;
+  spec.legend_room = 0.12f * static_cast<float>(spec.traces.size());  // the legend sits above the points
+  Plot("##cmp_cycles", "capacity per cycle", spec, cmp_cycle_x_, {0, std::max(height - ImGui::GetFontSize() * 2.0f, 80.0f)});
 }
 
 void Panel::StartDialog() {

@@ -23,6 +23,20 @@ namespace kp::ui {
 
 enum class Tab { kLive, kCompare };
 
+// A state badge as last drawn (for the headless check).
+struct DrawnBadge {
+  ImVec2 min, max;
+  ImU32 colour = 0;
+  std::string text;
+};
+
+// A plot as last drawn, with the colours of its traces (for the headless check).
+struct DrawnPlot {
+  std::string name;
+  PlotResult result;
+  std::vector<ImU32> trace_colours;
+};
+
 struct PanelOptions {
   std::string db_path;
   std::optional<int64_t> run_id;  // the run shown first (newest when absent)
@@ -40,9 +54,13 @@ class Panel {
   void Frame();
   // Where the live voltage plot was last drawn (for the headless check).
   const PlotResult& voltage_plot() const { return voltage_plot_; }
+  // Every plot and the state badge of the last frame.
+  const std::vector<DrawnPlot>& plots() const { return plots_; }
+  const std::optional<DrawnBadge>& badge() const { return badge_; }
   const Theme& theme() const { return theme_; }
   const FeedState& state() const { return state_; }
   std::optional<int64_t> selected() const { return selected_; }
+  Tab tab() const { return tab_; }
   // True while something outside the data feed may change what is drawn
   // (a plan check running in a child process).
   bool Waiting() const { return check_job_.valid(); }
@@ -56,10 +74,12 @@ class Panel {
   void StartDialog();
   void AbortDialog();
   void FileBrowser(char* path, size_t size, const char* id);
-  void Headline(const RunData& d);
+  void Headline(const RunData& d, const RunStatus& status);
   void EventLog(const RunData& d);
   void CycleTable(const RunData& d);
-  void ControlButtons(const RunData& d);
+  void ControlButtons(const RunData& d, const RunStatus& status);
+  void CycleCapacityPlot(const std::vector<const RunData*>& runs, const std::vector<std::string>& labels, float height);
+  PlotResult Plot(const char* id, const char* name, const PlotSpec& spec, XView& view, ImVec2 size);
   void SetTheme(bool dark);
   // True when `d`'s raw window covers `x` and the overview is coarser than
   // `width_px` pixel columns there; asks the feed for that window otherwise.
@@ -76,7 +96,11 @@ class Panel {
   XView live_x_;
   XView cmp_time_x_;
   XView cmp_charge_x_;
+  XView cmp_cycle_x_;
+  std::set<int64_t> cmp_shown_;  // the compare set the views were fitted to
   PlotResult voltage_plot_;
+  std::vector<DrawnPlot> plots_;
+  std::optional<DrawnBadge> badge_;
   std::map<int64_t, std::pair<int64_t, int64_t>> asked_windows_;  // run -> seq range last asked
   char filter_[128] = "";
   bool focus_filter_ = false;

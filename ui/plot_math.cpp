@@ -48,6 +48,8 @@ Ticks TimeTicks(double lo_s, double hi_s, int target) {
   if (!(hi_s > lo_s) || target < 1) return {};
   static constexpr double kSteps[] = {1,    2,    5,    10,    15,    30,    60,    120,   300,   600,
                                       900,  1800, 3600, 7200,  10800, 21600, 43200, 86400, 172800, 604800};
+  // Sub-second steps only while a second would be too coarse; past a minute
+  // the smallest step is a whole second, so clock labels stay exact.
   double raw = (hi_s - lo_s) / target;
   if (raw < 1.0) return NiceTicks(lo_s, hi_s, target);
   for (double s : kSteps)
@@ -55,15 +57,60 @@ Ticks TimeTicks(double lo_s, double hi_s, int target) {
   return TicksWithStep(lo_s, hi_s, std::ceil(raw / 604800.0) * 604800.0);
 }
 
+TimeStyle ChooseTimeStyle(double step_s, double max_abs_s) {
+  if (step_s < 1.0 || max_abs_s < 60.0) return TimeStyle::kSeconds;
+  const bool whole_minutes = std::fmod(step_s, 60.0) == 0.0;
+  if (max_abs_s < 3600.0) return TimeStyle::kMinSec;
+  if (!whole_minutes) return TimeStyle::kHourMinSec;
+  if (step_s >= 86400.0 && std::fmod(step_s, 86400.0) == 0.0) return TimeStyle::kDays;
+  if (max_abs_s < 86400.0) return TimeStyle::kHourMin;
+  return TimeStyle::kDayHourMin;
+}
+
+const char* TimeStyleUnit(TimeStyle style) {
+  switch (style) {
+    case TimeStyle::kSeconds: return "s";
+    case TimeStyle::kMinSec: return "m:ss";
+    case TimeStyle::kHourMinSec: return "h:mm:ss";
+    case TimeStyle::kHourMin: return "h:mm";
+    case TimeStyle::kDayHourMin: return "d hh:mm";
+    case TimeStyle::kDays: return "days";
+  }
+  return "s";
+}
+
+std::string FormatTime(double t_s, TimeStyle style, double step_s) {
+  const std::string sign = t_s < 0 ? "-" : "";
+  const double a = std::fabs(t_s);
+  if (style == TimeStyle::kSeconds) {
+    int decimals = step_s >= 1.0 ? 0 : std::min(6, static_cast<int>(std::ceil(-std::log10(step_s) - 1e-9)));
+    return fmt::format("{}{:.{}f}", sign, a, decimals);
+  }
+  if (style == TimeStyle::kDays) return sign + FormatValueTick(a / 86400.0, step_s / 86400.0);
+  const long long total = std::llround(a);
+  const long long d = total / 86400, h = total / 3600, m = (total / 60) % 60, s = total % 60;
+  switch (style) {
+    case TimeStyle::kMinSec: return fmt::format("{}{}:{:02}", sign, total / 60, s);
+    case TimeStyle::kHourMinSec: return fmt::format("{}{}:{:02}:{:02}", sign, h, m, s);
+    case TimeStyle::kHourMin: return fmt::format("{}{}:{:02}", sign, h, m);
+    case TimeStyle::kDayHourMin: return fmt::format("{}{}d {:02}:{:02}", sign, d, h % 24, m);
+    default: break;
+  }
+  return fmt::format("{}{}", sign, total);
+}
+
+TimeAxis MakeTimeAxis(double lo_s, double hi_s, int target) {
+  TimeAxis a;
+  a.ticks = TimeTicks(lo_s, hi_s, target);
+  a.style = ChooseTimeStyle(a.ticks.step, std::max(std::fabs(lo_s), std::fabs(hi_s)));
+  return a;
+}
+
 std::string FormatTimeTick(double t_s, double step_s) {
-  if (step_s < 1.0) return fmt::format("{:.{}f} s", t_s, std::max(0, static_cast<int>(std::ceil(-std::log10(step_s)))));
-  bool neg = t_s < 0;
-  long total = std::lround(std::fabs(t_s));
-  long h = total / 3600, m = (total / 60) % 60, s = total % 60;
-  std::string sign = neg ? "-" : "";
-  if (h > 0) return step_s >= 60.0 ? fmt::format("{}{}:{:02}", sign, h, m) + "h" : fmt::format("{}{}:{:02}:{:02}", sign, h, m, s);
-  if (m > 0 || step_s >= 60.0) return fmt::format("{}{}:{:02}", sign, m, s);
-  return fmt::format("{}{} s", sign, s);
+  TimeStyle style = ChooseTimeStyle(step_s, std::fabs(t_s));
+  if (style == TimeStyle::kSeconds) return FormatTime(t_s, style, step_s) + " s";
+  if (style == TimeStyle::kDays) return FormatTime(t_s, style, step_s) + " d";
+  return FormatTime(t_s, style, step_s);
 }
 
 std::string FormatValueTick(double v, double step) {
@@ -181,8 +228,14 @@ bool MinMaxPyramid::Query(size_t begin, size_t end, float* min_out, float* max_o
   return true;
 }
 
+bool BreakBetween(const std::vector<double>* breaks, double a, double b) {
+  if (breaks == nullptr || breaks->empty() || !(b > a)) return false;
+  auto it = std::upper_bound(breaks->begin(), breaks->end(), a);  // first break > a
+  return it != breaks->end() && *it <= b;
+}
+
 std::vector<Column> ReduceColumns(const std::vector<double>& xs, const MinMaxPyramid& pyramid, double x_lo, double x_hi,
-                                  int width) {
+                                  int width, const std::vector<double>* breaks) {
   std::vector<Column> cols(static_cast<size_t>(std::max(width, 0)));
   size_t n = std::min(xs.size(), pyramid.size());
   if (width <= 0 || n == 0 || !(x_hi > x_lo)) return cols;
@@ -195,12 +248,23 @@ std::vector<Column> ReduceColumns(const std::vector<double>& xs, const MinMaxPyr
     if (c == width - 1) j = static_cast<size_t>(std::upper_bound(begin_it + static_cast<ptrdiff_t>(i), end_it, x_hi) - begin_it);
     Column& col = cols[static_cast<size_t>(c)];
     col.has_data = pyramid.Query(i, j, &col.min, &col.max);
+    if (!col.has_data && i > 0 && i < n && !BreakBetween(breaks, xs[i - 1], xs[i])) {
+      // Between two samples: the line joining them, at the column's middle.
+      const double xm = x_lo + (c + 0.5) * dx, x0 = xs[i - 1], x1 = xs[i];
+      const double f = x1 > x0 ? std::clamp((xm - x0) / (x1 - x0), 0.0, 1.0) : 0.0;
+      col.min = col.max = static_cast<float>(pyramid.At(i - 1) + f * (pyramid.At(i) - pyramid.At(i - 1)));
+      col.has_data = true;
+      col.bridged = true;
+    }
     i = j;
   }
   // Join neighbours: a column's band reaches the previous column's band.
   const Column* prev = nullptr;
   for (Column& col : cols) {
-    if (!col.has_data) continue;
+    if (!col.has_data) {
+      prev = nullptr;  // a break: the next column starts afresh
+      continue;
+    }
     if (prev) {
       if (col.min > prev->max) col.min = prev->max;
       if (col.max < prev->min) col.max = prev->min;

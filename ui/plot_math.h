@@ -36,9 +36,33 @@ struct Ticks {
 };
 Ticks NiceTicks(double lo, double hi, int target);
 // Same for a time axis in seconds: steps of 1/2/5/10/15/30 s, 1/2/5/10/15/30 min,
-// 1/2/3/6/12 h, then days.
+// 1/2/3/6/12 h, then 1/2/7 days and whole weeks.
 Ticks TimeTicks(double lo_s, double hi_s, int target);
-// "2:30:00" / "45:10" / "12.5 s" style label for a time tick, given the step.
+// How the labels of one time axis are written; every tick of an axis uses the
+// same style, and the axis title names it, so "2:00" never means two minutes on
+// one plot and two hours on the next.
+enum class TimeStyle {
+  kSeconds,      // "12.5"            (title "s")      sub-second steps or spans under a minute
+  kMinSec,       // "8:30"            (title "m:ss")   second or minute steps, under an hour
+  kHourMinSec,   // "1:08:30"         (title "h:mm:ss") second steps past the hour
+  kHourMin,      // "6:30"            (title "h:mm")   minute or hour steps past the hour, under a day
+  kDayHourMin,   // "1d 06:30"        (title "d hh:mm") minute or hour steps past a day
+  kDays,         // "3"               (title "days")   steps of whole days
+};
+// The style for ticks `step_s` apart on an axis whose largest |value| is `max_abs_s`.
+TimeStyle ChooseTimeStyle(double step_s, double max_abs_s);
+// The axis title's unit for a style ("m:ss", "h:mm", "days"...).
+const char* TimeStyleUnit(TimeStyle style);
+// A tick label in `style`; `step_s` sets the decimals of kSeconds and kDays.
+std::string FormatTime(double t_s, TimeStyle style, double step_s);
+// Ticks of a time axis with their style.
+struct TimeAxis {
+  Ticks ticks;
+  TimeStyle style = TimeStyle::kSeconds;
+};
+TimeAxis MakeTimeAxis(double lo_s, double hi_s, int target);
+// "2:30:00" / "45:10" / "12.5 s" style label for a time tick, given the step
+// (the style ChooseTimeStyle picks for that value alone; for read-outs).
 std::string FormatTimeTick(double t_s, double step_s);
 // A value label with as many decimals as the tick step needs.
 std::string FormatValueTick(double v, double step);
@@ -90,13 +114,22 @@ struct Column {
   float min = 0.0f;
   float max = 0.0f;
   bool has_data = false;
+  bool bridged = false;  // no sample in the column: the line between its neighbours
 };
 
 // Reduces a series with ascending x (`xs`) and values held in `pyramid` to
 // `width` pixel columns covering [x_lo, x_hi). Neighbouring columns are made
-// to overlap so the band reads as one connected trace.
+// to overlap so the band reads as one connected trace. A column that falls
+// between two samples (sparse logging: a rest logged only on change) gets the
+// straight line between them, as a polyline would draw it, unless a break
+// lies between the two: a time in `breaks` (ascending; the run's "gap"
+// events, where readings were really missing) with x_before < b <= x_after.
+// Only there does the trace stop.
 std::vector<Column> ReduceColumns(const std::vector<double>& xs, const MinMaxPyramid& pyramid, double x_lo, double x_hi,
-                                  int width);
+                                  int width, const std::vector<double>* breaks = nullptr);
+
+// True when some time of `breaks` (ascending) lies in (a, b].
+bool BreakBetween(const std::vector<double>* breaks, double a, double b);
 
 // Index range [first, last) of `xs` (ascending) with x in [lo, hi], widened by
 // one sample on each side so a line drawn from it reaches the edges.

@@ -34,19 +34,25 @@ Range FitAxis(const PlotSpec& spec, int axis, Range x) {
   }
   for (const HLine& l : spec.lines)
     if (l.axis == axis && l.fit) r.Include(l.value);
-  return PadRange(r, 0.06, spec.min_y_span[axis]);
+  Range padded = PadRange(r, 0.06, spec.min_y_span[axis]);
+  if (axis == 0) padded.hi += padded.Span() * spec.legend_room;
+  return padded;
 }
 
-void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap& ym, float px0, int width, float thick) {
+void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap& ym, float px0, int width, float thick,
+               bool markers) {
   if (!t.xs || !t.ys || t.xs->empty()) return;
   IndexRange ir = VisibleIndices(*t.xs, xm.value.lo, xm.value.hi);
   size_t count = ir.last - ir.first;
   if (count == 0) return;
   if (count <= static_cast<size_t>(width) && t.xs_end != nullptr) {
-    // Few bands: a box per block from its first to its last sample time.
+    // Few bands: a box per block from its first sample time to the next
+    // block's first (its last own sample when a gap event lies between).
     for (size_t i = ir.first; i < ir.last; ++i) {
       float x0 = static_cast<float>(xm.ToPixel((*t.xs)[i]));
-      float x1 = std::max(x0 + 1.0f, static_cast<float>(xm.ToPixel((*t.xs_end)[i])));
+      double end = (*t.xs_end)[i];
+      if (i + 1 < t.xs->size() && !BreakBetween(t.breaks, end, (*t.xs)[i + 1])) end = (*t.xs)[i + 1];
+      float x1 = std::max(x0 + 1.0f, static_cast<float>(xm.ToPixel(end)));
       float y_top = static_cast<float>(ym.ToPixel(t.ys->MaxAt(i))) - thick * 0.5f;
       float y_bot = static_cast<float>(ym.ToPixel(t.ys->MinAt(i))) + thick * 0.5f;
       dl->AddRectFilled({x0, y_top}, {x1, y_bot}, t.colour);
@@ -58,7 +64,17 @@ void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap&
     constexpr size_t kChunk = 2000;
     std::vector<ImVec2> pts;
     pts.reserve(std::min(count, kChunk + 1));
+    auto flush = [&] {
+      if (pts.size() == 1) dl->AddCircleFilled(pts[0], thick, t.colour);
+      if (pts.size() > 1) dl->AddPolyline(pts.data(), static_cast<int>(pts.size()), t.colour, ImDrawFlags_None, thick);
+      pts.clear();
+    };
+    if (markers)
+      for (size_t i = ir.first; i < ir.last; ++i)
+        dl->AddCircleFilled({static_cast<float>(xm.ToPixel((*t.xs)[i])), static_cast<float>(ym.ToPixel(t.ys->At(i)))}, thick * 1.8f,
+                            t.colour);
     for (size_t i = ir.first; i < ir.last; ++i) {
+      if (i > ir.first && BreakBetween(t.breaks, (*t.xs)[i - 1], (*t.xs)[i])) flush();  // readings were missing here
       pts.push_back({static_cast<float>(xm.ToPixel((*t.xs)[i])), static_cast<float>(ym.ToPixel(t.ys->At(i)))});
       if (pts.size() > kChunk) {
         dl->AddPolyline(pts.data(), static_cast<int>(pts.size()), t.colour, ImDrawFlags_None, thick);
@@ -67,12 +83,11 @@ void DrawTrace(ImDrawList* dl, const Trace& t, const AxisMap& xm, const AxisMap&
         pts.push_back(last);
       }
     }
-    if (pts.size() == 1) dl->AddCircleFilled(pts[0], thick, t.colour);
-    if (pts.size() > 1) dl->AddPolyline(pts.data(), static_cast<int>(pts.size()), t.colour, ImDrawFlags_None, thick);
+    flush();
     return;
   }
   // Many points: one filled rectangle per pixel column, min to max.
-  std::vector<Column> cols = ReduceColumns(*t.xs, *t.ys, xm.value.lo, xm.value.hi, width);
+  std::vector<Column> cols = ReduceColumns(*t.xs, *t.ys, xm.value.lo, xm.value.hi, width, t.breaks);
   float half = std::max(1.0f, thick * 0.5f);
   for (int c = 0; c < width; ++c) {
     const Column& col = cols[static_cast<size_t>(c)];
@@ -140,12 +155,19 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
   ImDrawList* dl = ImGui::GetWindowDrawList();
   dl->AddRectFilled(p0, p1, theme.plot_bg);
   // Grid and ticks.
-  Ticks xt = spec.time_x ? TimeTicks(x.lo, x.hi, std::max(2, width / 130)) : NiceTicks(x.lo, x.hi, std::max(2, width / 130));
+  // One label style for every tick of a time axis, named in the axis title.
+  const int x_target = std::max(2, width / 100);
+  TimeAxis ta = spec.time_x ? MakeTimeAxis(x.lo, x.hi, x_target) : TimeAxis{NiceTicks(x.lo, x.hi, x_target), TimeStyle::kSeconds};
+  if (spec.integer_x && ta.ticks.step < 1.0) ta.ticks = NiceTicks(x.lo, x.hi, std::max(1, static_cast<int>(x.Span())));
+  const Ticks& xt = ta.ticks;
+  res.x_ticks = xt.values;
+  res.x_style = ta.style;
   for (double v : xt.values) {
     float px = std::round(static_cast<float>(xm.ToPixel(v))) + 0.5f;
     if (px < p0.x || px > p1.x) continue;
     dl->AddLine({px, p0.y}, {px, p1.y}, theme.grid);
-    std::string label = spec.time_x ? FormatTimeTick(v, xt.step) : FormatValueTick(v, xt.step);
+    std::string label = spec.time_x ? FormatTime(v, ta.style, xt.step) : FormatValueTick(v, xt.step);
+    res.x_labels.push_back(label);
     ImVec2 ts = ImGui::CalcTextSize(label.c_str());
     dl->AddText({px - ts.x * 0.5f, p1.y + fh * 0.2f}, theme.tick_text, label.c_str());
   }
@@ -167,8 +189,9 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
   }
   // x title centred under the ticks; the y quantities are named in the legend.
   if (!spec.x_label.empty()) {
-    ImVec2 ts = ImGui::CalcTextSize(spec.x_label.c_str());
-    dl->AddText({0.5f * (p0.x + p1.x - ts.x), p1.y + fh * 1.25f}, theme.tick_text, spec.x_label.c_str());
+    res.x_title = spec.time_x ? fmt::format("{} ({})", spec.x_label, TimeStyleUnit(ta.style)) : spec.x_label;
+    ImVec2 ts = ImGui::CalcTextSize(res.x_title.c_str());
+    dl->AddText({0.5f * (p0.x + p1.x - ts.x), p1.y + fh * 1.25f}, theme.tick_text, res.x_title.c_str());
   }
 
   dl->PushClipRect(p0, p1, true);
@@ -184,13 +207,18 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
     float ty = py - ts.y - 1 < p0.y ? py + 2 : py - ts.y - 1;  // below the line when it hugs the top
     dl->AddText({p1.x - ts.x - fh * 0.3f - (p1.x - p0.x) * 0.08f, ty}, l.colour, text.c_str());
   }
-  for (const Trace& t : spec.traces) DrawTrace(dl, t, xm, ym[t.axis], p0.x, width, thick);
+  for (const Trace& t : spec.traces) DrawTrace(dl, t, xm, ym[t.axis], p0.x, width, thick, spec.markers);
 
   // Legend, top left, with the latest value of each trace.
   float ly = p0.y + fh * 0.3f, lx = p0.x + fh * 0.5f;
+  res.legend_max = p0;
   for (const Trace& t : spec.traces) {
     std::string text = t.name;
-    if (t.latest)
+    if (!t.legend_note.empty())
+      text += "  " + t.legend_note;
+    else if (!spec.legend_values)
+      ;
+    else if (t.latest)
       text += fmt::format("  {:.3f} {}", *t.latest, t.unit);
     else if (t.ys && t.ys->size() > 0)
       text += fmt::format("  {:.3f} {}", t.ys->At(t.ys->size() - 1), t.unit);
@@ -198,6 +226,7 @@ PlotResult DrawPlot(const char* id, const PlotSpec& spec, XView& view, ImVec2 si
     dl->AddRectFilled({lx - 4, ly - 2}, {lx + fh * 1.4f + ts.x + 4, ly + ts.y + 2}, (theme.plot_bg & 0x00FFFFFF) | 0xD0000000);
     dl->AddRectFilled({lx, ly + ts.y * 0.35f}, {lx + fh, ly + ts.y * 0.65f}, t.colour);
     dl->AddText({lx + fh * 1.4f, ly}, theme.tick_text, text.c_str());
+    res.legend_max = {std::max(res.legend_max.x, lx + fh * 1.4f + ts.x + 4), ly + ts.y + 2};
     ly += ts.y + 4;
   }
 

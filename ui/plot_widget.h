@@ -28,6 +28,11 @@ struct Trace {
   const std::vector<double>* xs_end = nullptr;
   // The newest value for the legend (default: the last element's).
   std::optional<double> latest;
+  // Times where readings were really missing ("gap" events, ascending): the
+  // trace stops across them and nowhere else (sparse logging is joined up).
+  const std::vector<double>* breaks = nullptr;
+  // Legend text after the name instead of the latest value (e.g. "load off").
+  std::string legend_note;
 };
 
 struct HLine {
@@ -51,7 +56,11 @@ struct PlotSpec {
   std::vector<HLine> lines;
   Range data_x;  // full extent of the data on x
   bool time_x = true;
-  std::string x_label;
+  bool integer_x = false;  // a count (cycle number): ticks at whole numbers only
+  bool markers = false;    // a dot at every point drawn as a line
+  bool legend_values = true;  // the latest value after each name
+  float legend_room = 0.0f;  // left axis: this fraction of its span added on top, so the legend covers no data
+  std::string x_label;  // on a time axis, followed by the label style: "time (m:ss)"
   std::string y_label[2];
   float min_y_span[2] = {0.05f, 0.5f};  // smallest half-span per axis
 };
@@ -61,6 +70,12 @@ struct PlotResult {
   Range x;
   Range y[2];
   bool hovered = false;
+  // The x ticks drawn, their labels (those inside the frame) and the axis title.
+  std::vector<double> x_ticks;
+  std::vector<std::string> x_labels;
+  TimeStyle x_style = TimeStyle::kSeconds;
+  std::string x_title;
+  ImVec2 legend_max;  // bottom-right corner of the legend (top-left corner: rect_min)
 };
 
 // Draws at the cursor position with `size` (a non-positive component takes the

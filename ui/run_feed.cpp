@@ -533,7 +533,12 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
     SampleSummary total = c.done;
     total.Merge(c.last);
     rows.push_back(MakeRunListRow(run, RunningFigures(total)));
-    signature.emplace_back(run.id, static_cast<int>(run.outcome), run.sample_count, total.count, run.reason);
+    if (run.outcome == Outcome::kRunning) {
+      // Running runs are few: their events say whether they are paused or held.
+      KP_ASSIGN_OR_RETURN(auto events, store.LoadEvents(run.id));
+      SetListState(rows.back(), StatusOf(run, events));
+    }
+    signature.emplace_back(run.id, static_cast<int>(rows.back().run_state), run.sample_count, total.count, rows.back().reason);
   }
   std::sort(rows.begin(), rows.end(), [](const RunListRow& a, const RunListRow& b) { return a.id > b.id; });
   const bool runs_changed = signature != runs_signature_;

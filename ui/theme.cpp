@@ -11,56 +11,71 @@ constexpr ImU32 Rgb(int r, int g, int b, int a = 255) { return IM_COL32(r, g, b,
 Theme Theme::Night() {
   Theme t;
   t.dark = true;
-  t.plot_bg = Rgb(14, 18, 26);
-  t.plot_frame = Rgb(70, 80, 98);
-  t.grid = Rgb(40, 47, 60);
-  t.tick_text = Rgb(170, 178, 192);
+  t.window_bg = Rgb(26, 29, 36);
+  t.plot_bg = Rgb(32, 36, 44);  // slate
+  t.plot_frame = Rgb(84, 92, 108);
+  t.grid = Rgb(50, 56, 68);
+  t.tick_text = Rgb(190, 196, 206);
   t.cursor = Rgb(200, 205, 215, 160);
-  t.voltage = Rgb(255, 196, 40);      // amber
-  t.current = Rgb(64, 200, 236);      // glacier cyan
-  t.temperature = Rgb(244, 108, 160);  // rose
-  t.charge = Rgb(140, 220, 120);
-  t.cutoff = Rgb(236, 60, 48);
-  t.limit = Rgb(255, 136, 0);
-  t.ok = Rgb(72, 210, 120);
-  t.caution = Rgb(255, 190, 60);
-  t.alarm = Rgb(255, 72, 64);
-  t.idle = Rgb(120, 160, 230);
-  t.alarm_row = Rgb(120, 20, 24, 220);
-  t.notice_row = Rgb(90, 70, 10, 200);
+  t.voltage = Rgb(242, 142, 60);      // ember
+  t.current = Rgb(104, 156, 255);     // periwinkle
+  t.temperature = Rgb(170, 230, 200);  // sage
+  t.charge = Rgb(236, 232, 220);
+  t.cutoff = Rgb(230, 60, 70);
+  t.limit = Rgb(200, 120, 130);
+  t.ok = Rgb(96, 200, 130);
+  t.caution = Rgb(236, 180, 80);
+  t.alarm = Rgb(240, 96, 88);
+  t.idle = Rgb(150, 170, 200);
+  t.interrupted = Rgb(190, 150, 230);
+  t.badge_text = Rgb(24, 27, 33);
+  t.alarm_row = Rgb(110, 30, 36, 220);
+  t.notice_row = Rgb(84, 68, 28, 200);
   return t;
 }
 
 Theme Theme::Day() {
   Theme t;
   t.dark = false;
-  t.plot_bg = Rgb(252, 252, 248);
+  t.window_bg = Rgb(240, 239, 234);
+  t.plot_bg = Rgb(252, 251, 247);  // paper
   t.plot_frame = Rgb(150, 150, 150);
-  t.grid = Rgb(225, 225, 220);
+  t.grid = Rgb(226, 225, 218);
   t.tick_text = Rgb(60, 60, 70);
   t.cursor = Rgb(40, 40, 40, 140);
-  t.voltage = Rgb(196, 104, 0);  // burnt orange
-  t.current = Rgb(0, 110, 180);
-  t.temperature = Rgb(190, 30, 110);
-  t.charge = Rgb(40, 140, 40);
-  t.cutoff = Rgb(210, 20, 20);
-  t.limit = Rgb(230, 120, 0);
-  t.ok = Rgb(20, 150, 70);
-  t.caution = Rgb(200, 130, 0);
-  t.alarm = Rgb(210, 30, 30);
-  t.idle = Rgb(50, 90, 180);
-  t.alarm_row = Rgb(255, 190, 190, 255);
-  t.notice_row = Rgb(255, 236, 170, 255);
+  t.voltage = Rgb(200, 90, 0);       // burnt ember
+  t.current = Rgb(30, 90, 200);      // ink blue
+  t.temperature = Rgb(0, 125, 95);   // teal
+  t.charge = Rgb(40, 40, 40);
+  t.cutoff = Rgb(170, 0, 20);
+  t.limit = Rgb(170, 80, 90);
+  t.ok = Rgb(20, 130, 70);
+  t.caution = Rgb(160, 100, 0);
+  t.alarm = Rgb(190, 30, 30);
+  t.idle = Rgb(70, 90, 130);
+  t.interrupted = Rgb(110, 70, 170);
+  t.badge_text = Rgb(255, 255, 255);
+  t.alarm_row = Rgb(250, 200, 200, 255);
+  t.notice_row = Rgb(250, 232, 190, 255);
   return t;
 }
 
 ImU32 Theme::Series(int i) const {
-  static constexpr ImU32 kNight[] = {Rgb(255, 196, 40), Rgb(64, 200, 236), Rgb(244, 108, 160), Rgb(140, 220, 120),
-                                     Rgb(190, 150, 255), Rgb(255, 140, 90),  Rgb(200, 200, 200)};
-  static constexpr ImU32 kDay[] = {Rgb(196, 104, 0),  Rgb(0, 110, 180),  Rgb(190, 30, 110), Rgb(40, 140, 40),
-                                   Rgb(110, 60, 190), Rgb(200, 70, 20), Rgb(80, 80, 80)};
-  constexpr int n = static_cast<int>(sizeof(kNight) / sizeof(kNight[0]));
-  return (dark ? kNight : kDay)[((i % n) + n) % n];
+  // The first four stay apart under simulated protanopia and deuteranopia
+  // (tests/ui/palette_test.cpp); later ones repeat hues at other lightness.
+  static constexpr ImU32 kNight[kSeriesCount] = {Rgb(242, 142, 60),  Rgb(104, 156, 255), Rgb(236, 232, 220),
+                                                 Rgb(190, 100, 180), Rgb(120, 200, 110), Rgb(160, 160, 170)};
+  static constexpr ImU32 kDay[kSeriesCount] = {Rgb(200, 90, 0),   Rgb(30, 90, 200),  Rgb(40, 40, 40),
+                                               Rgb(160, 50, 140), Rgb(40, 140, 60), Rgb(130, 130, 130)};
+  return (dark ? kNight : kDay)[((i % kSeriesCount) + kSeriesCount) % kSeriesCount];
+}
+
+ImU32 Theme::Dimmed(ImU32 c) const {
+  int a[3], b[3];
+  UnpackRgb(c, a);
+  UnpackRgb(plot_bg, b);
+  // Halfway to the background: still legible, plainly not a live value.
+  return Rgb((a[0] + b[0]) / 2, (a[1] + b[1]) / 2, (a[2] + b[2]) / 2);
 }
 
 Fonts LoadFonts(float scale) {
@@ -93,17 +108,17 @@ void ApplyTheme(const Theme& theme, float scale) {
   ImGuiStyle style;
   if (theme.dark) {
     ImGui::StyleColorsDark(&style);
-    style.Colors[ImGuiCol_WindowBg] = ImColor(22, 27, 36);
-    style.Colors[ImGuiCol_ChildBg] = ImColor(22, 27, 36);
+    style.Colors[ImGuiCol_WindowBg] = ImColor(theme.window_bg);
+    style.Colors[ImGuiCol_ChildBg] = ImColor(theme.window_bg);
     style.Colors[ImGuiCol_Header] = ImColor(52, 70, 100);
     style.Colors[ImGuiCol_HeaderHovered] = ImColor(66, 90, 130);
     style.Colors[ImGuiCol_Button] = ImColor(48, 62, 86);
     style.Colors[ImGuiCol_ButtonHovered] = ImColor(66, 86, 120);
-    style.Colors[ImGuiCol_TableRowBgAlt] = ImColor(30, 36, 48);
+    style.Colors[ImGuiCol_TableRowBgAlt] = ImColor(33, 37, 46);
   } else {
     ImGui::StyleColorsLight(&style);
-    style.Colors[ImGuiCol_WindowBg] = ImColor(238, 238, 232);
-    style.Colors[ImGuiCol_ChildBg] = ImColor(238, 238, 232);
+    style.Colors[ImGuiCol_WindowBg] = ImColor(theme.window_bg);
+    style.Colors[ImGuiCol_ChildBg] = ImColor(theme.window_bg);
     style.Colors[ImGuiCol_TableRowBgAlt] = ImColor(228, 228, 220);
     style.Colors[ImGuiCol_FrameBg] = ImColor(222, 224, 216);
     style.Colors[ImGuiCol_PopupBg] = ImColor(246, 246, 242);

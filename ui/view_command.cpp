@@ -63,6 +63,29 @@ Status WriteLayout(const std::string& path, const Panel& panel) {
   nlohmann::json j;
   j["voltage_plot"] = {{"x0", p.rect_min.x}, {"y0", p.rect_min.y}, {"x1", p.rect_max.x}, {"y1", p.rect_max.y},
                        {"t_lo", p.x.lo},     {"t_hi", p.x.hi},     {"v_lo", p.y[0].lo},  {"v_hi", p.y[0].hi}};
+  // Every plot drawn, with its background and trace colours, and the state
+  // badge: the headless check looks for each of them in the picture.
+  j["plot_bg_rgb"] = Rgb(panel.theme().plot_bg);
+  j["plots"] = nlohmann::json::array();
+  for (const DrawnPlot& d : panel.plots()) {
+    nlohmann::json traces = nlohmann::json::array();
+    for (ImU32 c : d.trace_colours) traces.push_back(Rgb(c));
+    j["plots"].push_back({{"name", d.name},
+                          {"x0", d.result.rect_min.x},
+                          {"y0", d.result.rect_min.y},
+                          {"x1", d.result.rect_max.x},
+                          {"y1", d.result.rect_max.y},
+                          {"x_title", d.result.x_title},
+                          {"legend_x1", d.result.legend_max.x},
+                          {"legend_y1", d.result.legend_max.y},
+                          {"x_labels", d.result.x_labels},
+                          {"traces", traces}});
+  }
+  if (panel.badge()) {
+    const DrawnBadge& b = *panel.badge();
+    j["badge"] = {{"text", b.text}, {"x0", b.min.x}, {"y0", b.min.y}, {"x1", b.max.x}, {"y1", b.max.y}, {"rgb", Rgb(b.colour)}};
+  }
+  j["tab"] = panel.tab() == Tab::kLive ? "live" : "compare";
   j["voltage_rgb"] = Rgb(panel.theme().voltage);
   j["cutoff_rgb"] = Rgb(panel.theme().cutoff);
   if (panel.selected()) {

@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
+#include <sstream>
 #include <cstdlib>
 
 #include <fmt/format.h>
@@ -153,6 +154,10 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
   r.delivered_mah = run.delivered_mah.value_or(figures.discharged_mah());
   r.rated_mah = run.rated_mah;
   r.reason = run.reason;
+  r.run_state = run.outcome == Outcome::kCompleted ? RunState::kCompleted
+                : run.outcome == Outcome::kAborted  ? RunState::kAborted
+                : run.outcome == Outcome::kInterrupted ? RunState::kInterrupted
+                                                       : RunState::kRunning;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
     r.verdict = std::string("incomplete");  // a capacity verdict needs a discharge that reached its end
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
@@ -212,13 +217,113 @@ Severity EventSeverity(const EventRow& e) {
   return Severity::kInfo;
 }
 
-bool IsPaused(const std::vector<EventRow>& events) {
-  for (auto it = events.rbegin(); it != events.rend(); ++it) {
-    std::string k = Lower(it->kind);
-    if (k.find("pause") != std::string::npos) return true;
-    if (k.find("continue") != std::string::npos || k.find("resume") != std::string::npos) return false;
+const char* RunStateWord(RunState s) {
+  switch (s) {
+    case RunState::kRunning: return "running";
+    case RunState::kPaused: return "paused";
+    case RunState::kHeld: return "held";
+    case RunState::kCompleted: return "completed";
+    case RunState::kAborted: return "aborted";
+    case RunState::kInterrupted: return "interrupted";
   }
-  return false;
+  return "?";
+}
+
+RunStatus StatusOf(const RunRow& run, const std::vector<EventRow>& events) {
+  RunStatus st;
+  st.reason = run.reason;
+  switch (run.outcome) {
+    case Outcome::kCompleted: st.state = RunState::kCompleted; break;
+    case Outcome::kAborted: st.state = RunState::kAborted; break;
+    case Outcome::kInterrupted: st.state = RunState::kInterrupted; break;
+    case Outcome::kRunning: {
+      st.state = RunState::kRunning;
+      st.reason.clear();
+      for (auto it = events.rbegin(); it != events.rend(); ++it) {
+        const EventRow& e = *it;
+        if (e.kind == "control") {
+          if (e.message.rfind("paused by", 0) == 0) {
+            st.state = RunState::kPaused;
+          } else if (e.message.rfind("continued by", 0) == 0) {
+            break;
+          } else {
+            continue;  // a request the runner ignored
+          }
+        } else if (e.kind == "pause" || e.kind == "fault") {
+          st.state = RunState::kHeld;
+        } else if (e.kind == "resume") {
+          break;
+        } else {
+          continue;
+        }
+        st.reason = e.message;
+        st.since_s = e.t_s;
+        break;
+      }
+      break;
+    }
+  }
+  for (char& c : st.badge = RunStateWord(st.state)) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  st.load_off = st.state != RunState::kRunning;
+  st.can_pause = st.state == RunState::kRunning;
+  st.can_continue = st.state == RunState::kPaused;  // a hold ends by itself (cooled, instrument back)
+  st.can_abort = st.state == RunState::kRunning || st.state == RunState::kPaused || st.state == RunState::kHeld;
+  return st;
+}
+
+void SetListState(RunListRow& row, const RunStatus& status) {
+  row.run_state = status.state;
+  row.state = RunStateWord(status.state);
+  row.reason = status.reason;
+}
+
+std::vector<double> GapTimes(const std::vector<EventRow>& events) {
+  std::vector<double> out;
+  for (const EventRow& e : events)
+    if (e.kind == "gap") out.push_back(e.t_s);
+  std::sort(out.begin(), out.end());
+  return out;
+}
+
+std::vector<std::string> DistinctLabels(const std::vector<std::string>& names) {
+  if (names.size() < 2) return names;
+  std::vector<std::vector<std::string>> words;
+  for (const std::string& n : names) {
+    std::vector<std::string> w;
+    std::istringstream in(n);
+    for (std::string x; in >> x;) w.push_back(x);
+    words.push_back(std::move(w));
+  }
+  // The shared leading words, cut back to the last one that ends in ':'.
+  size_t shared = 0, head = 0;
+  for (;; ++shared) {
+    bool same = true;
+    for (const auto& w : words) same = same && shared < w.size() && w[shared] == words[0][shared];
+    if (!same) break;
+    if (words[0][shared].back() == ':') head = shared + 1;
+  }
+  std::vector<std::string> out;
+  for (size_t k = 0; k < names.size(); ++k) {
+    std::string label;
+    for (size_t i = head; i < words[k].size(); ++i) label += (label.empty() ? "" : " ") + words[k][i];
+    out.push_back(label.empty() ? names[k] : label);
+  }
+  return out;
+}
+
+std::string Ellipsize(const std::string& text, float width, float (*measure)(const std::string&, void*), void* ctx) {
+  if (measure(text, ctx) <= width) return text;
+  static const std::string kDots = "\xE2\x80\xA6";  // U+2026
+  size_t n = text.size();
+  while (n > 0) {
+    // Step back over one UTF-8 character (continuation bytes are 10xxxxxx).
+    do --n;
+    while (n > 0 && (static_cast<unsigned char>(text[n]) & 0xC0) == 0x80);
+    std::string cut = text.substr(0, n);
+    while (!cut.empty() && cut.back() == ' ') cut.pop_back();
+    if (measure(cut + kDots, ctx) <= width) return cut + kDots;
+  }
+  return kDots;
 }
 
 StepNow CurrentStep(const std::vector<StepRow>& steps) {

@@ -68,11 +68,14 @@ DrawnLimits ScanLimits(const std::string& procedure_text, const std::vector<Step
 // parser refuses (an older or hand-written record) falls back to ScanLimits.
 DrawnLimits LimitsForRun(const std::string& procedure_text, const std::string& procedure_name, const std::vector<StepRow>& steps);
 
+// Where a run stands (see StatusOf below).
+enum class RunState { kRunning, kPaused, kHeld, kCompleted, kAborted, kInterrupted };
+
 // One line of the runs list.
 struct RunListRow {
   int64_t id = 0;
   Outcome outcome = Outcome::kRunning;
-  std::string state;  // "running", "completed", ...
+  std::string state;  // "running", "paused", "held", "completed", ... (RunStateWord)
   std::string cell;
   std::string chemistry;
   std::string procedure;
@@ -83,6 +86,7 @@ struct RunListRow {
   std::string verdict;  // "PASS 102 %", "FAIL 87 %" (completed runs), "incomplete" (aborted,
                         // interrupted), "-" while running or without a rating
   std::string reason;
+  RunState run_state = RunState::kRunning;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 // The run list's verdict of a completed run, without the full analysis: the
@@ -108,9 +112,38 @@ enum class Severity { kInfo, kNotice, kAlarm };
 // pauses are notices; the rest is information.
 Severity EventSeverity(const EventRow& e);
 
-// True when the newest pause/continue event of a running run is a pause
-// (event kinds containing "pause" versus "continue" or "resume").
-bool IsPaused(const std::vector<EventRow>& events);
+// Where a run stands, for its badge and the actions offered. A running run
+// is paused (an operator's pause: "control" event "paused by ...") or held
+// (the runner's own hold with the load off: "pause" for heat, "fault" for an
+// instrument that stopped answering) until the matching release ("control"
+// "continued by ...", or "resume"); the newest of these events decides.
+struct RunStatus {
+  RunState state = RunState::kRunning;
+  std::string badge;   // "RUNNING", "PAUSED", "HELD", "COMPLETED", "ABORTED", "INTERRUPTED"
+  std::string reason;  // why paused / held / ended (the event message or the run's reason); may be empty
+  double since_s = 0.0;  // run time of the pause or hold
+  bool load_off = false;  // the load input is off: readings are the last ones, not live
+  bool can_pause = false, can_continue = false, can_abort = false;
+};
+RunStatus StatusOf(const RunRow& run, const std::vector<EventRow>& events);
+// Puts a running run's pause or hold into its list row (state word and reason).
+void SetListState(RunListRow& row, const RunStatus& status);
+const char* RunStateWord(RunState s);  // "running", "paused", "held", "completed", ...
+
+// Run times of the "gap" events (readings really missing), ascending: where a
+// trace may stop. Sparse logging (log-change) leaves no such event.
+std::vector<double> GapTimes(const std::vector<EventRow>& events);
+
+// Labels for compared runs that say what differs: the names without the
+// family prefix they all share (leading words up to one ending in ':', as
+// in "bench check: capacity at 1 It" / "bench check: peak load 2 A" ->
+// "capacity at 1 It" / "peak load 2 A"). A single name, or one that would be
+// left empty, stays whole.
+std::vector<std::string> DistinctLabels(const std::vector<std::string>& names);
+
+// `text` cut to fit `width` (as measured by `measure`) with "…" at the end;
+// unchanged when it fits. Cuts between UTF-8 characters.
+std::string Ellipsize(const std::string& text, float width, float (*measure)(const std::string&, void*), void* ctx);
 
 // The step in force at the latest sample and its end condition text (the
 // step's label as written in the plan), or empty when no step is recorded.

@@ -57,6 +57,25 @@ class HeadlessPanel : public ::testing::Test {
     return *run;
   }
 
+  // A running run paused by an operator: `n` samples at 1 A, then the
+  // runner's pause event and 60 load-off samples. Not finished: this
+  // process is its runner of record, so it stays "running".
+  int64_t WritePausedRun(const std::string& db, int n) {
+    VirtualClock clock;
+    auto store = Store::Open(db, clock);
+    EXPECT_TRUE(store.ok());
+    auto run = (*store)->BeginRun(AbortedRun());
+    EXPECT_TRUE(run.ok());
+    EXPECT_TRUE((*store)->BeginStep(*run, 0, "discharge", "discharge 1 A", 0.0).ok());
+    for (int k = 0; k < n; ++k)
+      EXPECT_TRUE((*store)->AppendSample(*run, {k * 1.0, 4.10 - 0.0005 * k, 1.0, 25.0 + 0.01 * k, 0}).ok());
+    EXPECT_TRUE((*store)->AddEvent(*run, n - 1.0, "control", "paused by panel").ok());
+    for (int k = n; k < n + 60; ++k)
+      EXPECT_TRUE((*store)->AppendSample(*run, {k * 1.0, 3.90, 0.0, 25.0 + 0.01 * n, 0}).ok());
+    EXPECT_TRUE((*store)->Commit().ok());
+    return *run;
+  }
+
   // Draws frames until the feed has delivered everything (bounded).
   void DrawUntilLoaded(RunFeed& feed, Panel& panel) {
     DrawFrame(panel);  // tells the feed which runs to read
@@ -117,6 +136,64 @@ TEST_F(HeadlessPanel, LiveViewPlotsTheWholeRun) {
   EXPECT_GE(p.y[0].hi, 4.10);
 }
 
+const DrawnPlot* FindPlot(const Panel& panel, const std::string& name) {
+  for (const DrawnPlot& p : panel.plots())
+    if (p.name == name) return &p;
+  return nullptr;
+}
+
+TEST_F(HeadlessPanel, AbortedRunShowsItsBadgeAndOwnStrips) {
+  testing::TempDir dir;
+  const std::string db = dir.File("panel.db");
+  const int n = 1800;
+  int64_t run = WriteRun(db, n);
+  RunFeed::Options fo;
+  fo.db_path = db;
+  RunFeed feed(fo);
+  PanelOptions po;
+  po.db_path = db;
+  po.run_id = run;
+  Panel panel(feed, po, fonts_);
+  DrawUntilLoaded(feed, panel);
+
+  ASSERT_TRUE(panel.badge());
+  EXPECT_EQ(panel.badge()->text, "ABORTED");
+  EXPECT_EQ(panel.badge()->colour, panel.theme().alarm);
+  // Voltage, current and temperature each on their own plot.
+  ASSERT_EQ(panel.plots().size(), 3u);
+  const DrawnPlot* temp = FindPlot(panel, "temperature");
+  ASSERT_NE(temp, nullptr);
+  ASSERT_EQ(temp->trace_colours.size(), 1u);
+  EXPECT_EQ(temp->trace_colours[0], panel.theme().temperature);
+  // The strip fits the temperatures (25 to 43 degC), not the 50 degC limit far above them.
+  EXPECT_LE(temp->result.y[0].lo, 25.0);
+  EXPECT_GE(temp->result.y[0].hi, 25.0 + 0.01 * (n - 1));
+  EXPECT_LT(temp->result.y[0].hi, 48.0);
+  // A half-hour run: the time axis is written m:ss and says so.
+  EXPECT_EQ(panel.voltage_plot().x_style, TimeStyle::kMinSec);
+  EXPECT_EQ(panel.voltage_plot().x_title, "time (m:ss)");
+}
+
+TEST_F(HeadlessPanel, PausedRunReadsPaused) {
+  testing::TempDir dir;
+  const std::string db = dir.File("panel.db");
+  int64_t run = WritePausedRun(db, 900);
+  RunFeed::Options fo;
+  fo.db_path = db;
+  RunFeed feed(fo);
+  PanelOptions po;
+  po.db_path = db;
+  po.run_id = run;
+  Panel panel(feed, po, fonts_);
+  DrawUntilLoaded(feed, panel);
+
+  ASSERT_TRUE(panel.badge());
+  EXPECT_EQ(panel.badge()->text, "PAUSED");
+  EXPECT_EQ(panel.badge()->colour, panel.theme().caution);
+  ASSERT_EQ(panel.state().runs.size(), 1u);
+  EXPECT_EQ(panel.state().runs[0].state, "paused");  // the runs list too, not "running"
+}
+
 TEST_F(HeadlessPanel, CompareTabDrawsTwoRuns) {
   testing::TempDir dir;
   const std::string db = dir.File("panel.db");
@@ -138,6 +215,10 @@ TEST_F(HeadlessPanel, CompareTabDrawsTwoRuns) {
   ASSERT_EQ(panel.state().watched.count(b), 1u);
   EXPECT_EQ(panel.state().watched.at(a).SampleCount(), 600u);
   EXPECT_EQ(panel.state().watched.at(b).SampleCount(), 900u);
+  // Both overlays drawn; no state badge in the compare view.
+  EXPECT_NE(FindPlot(panel, "compare by charge"), nullptr);
+  EXPECT_NE(FindPlot(panel, "compare by time"), nullptr);
+  EXPECT_FALSE(panel.badge());
 }
 
 }  // namespace

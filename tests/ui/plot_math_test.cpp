@@ -5,6 +5,9 @@
 #include <algorithm>
 #include <cmath>
 #include <random>
+#include <set>
+#include <string>
+#include <cstdio>
 
 namespace kp::ui {
 namespace {
@@ -38,12 +41,94 @@ TEST(NiceTicks, NoNegativeZero) {
 TEST(TimeTicks, PicksClockSteps) {
   EXPECT_DOUBLE_EQ(TimeTicks(0, 5 * 3600, 6).step, 3600.0);  // raw 3000 s -> 1 h
   EXPECT_DOUBLE_EQ(TimeTicks(0, 600, 6).step, 120.0);         // raw 100 s -> 2 min
-  EXPECT_EQ(FormatTimeTick(7200, 3600), "2:00h");
+  EXPECT_EQ(FormatTimeTick(7200, 3600), "2:00");
   EXPECT_EQ(FormatTimeTick(150, 60), "2:30");
   EXPECT_EQ(FormatTimeTick(20, 5), "20 s");
   EXPECT_EQ(FormatValueTick(3.2, 0.2), "3.2");
   EXPECT_EQ(FormatValueTick(3.25, 0.05), "3.25");
   EXPECT_EQ(FormatValueTick(500, 100), "500");
+}
+
+// Reads a tick label back in the style its axis title names.
+double ParseTimeLabel(const std::string& label, TimeStyle style) {
+  double sign = 1.0;
+  std::string s = label;
+  if (!s.empty() && s[0] == '-') {
+    sign = -1.0;
+    s = s.substr(1);
+  }
+  int d = 0, h = 0, m = 0, sec = 0;
+  switch (style) {
+    case TimeStyle::kSeconds: return sign * std::stod(s);
+    case TimeStyle::kDays: return sign * std::stod(s) * 86400.0;
+    case TimeStyle::kMinSec:
+      EXPECT_EQ(std::sscanf(s.c_str(), "%d:%2d", &m, &sec), 2) << label;
+      EXPECT_LT(sec, 60) << label;
+      return sign * (m * 60.0 + sec);
+    case TimeStyle::kHourMinSec:
+      EXPECT_EQ(std::sscanf(s.c_str(), "%d:%2d:%2d", &h, &m, &sec), 3) << label;
+      EXPECT_LT(m, 60) << label;
+      return sign * (h * 3600.0 + m * 60.0 + sec);
+    case TimeStyle::kHourMin:
+      EXPECT_EQ(std::sscanf(s.c_str(), "%d:%2d", &h, &m), 2) << label;
+      EXPECT_LT(m, 60) << label;
+      return sign * (h * 3600.0 + m * 60.0);
+    case TimeStyle::kDayHourMin:
+      EXPECT_EQ(std::sscanf(s.c_str(), "%dd %2d:%2d", &d, &h, &m), 3) << label;
+      EXPECT_LT(h, 24) << label;
+      return sign * (d * 86400.0 + h * 3600.0 + m * 60.0);
+  }
+  return 0.0;
+}
+
+// At every zoom, from a 3 s window to a three-week run and at offsets inside a
+// long run, every tick label read back in its axis's style is the tick's own
+// value, and the labels of one axis all differ: "2:00" on a 9-minute run means
+// two minutes and says so in the title (m:ss), never h:mm.
+TEST(TimeAxis, LabelsMatchTheirTicksAtEveryZoom) {
+  const double spans[] = {3, 8, 45, 90, 540, 1500, 3000, 5400, 4 * 3600, 9 * 3600, 30 * 3600, 3 * 86400, 21 * 86400};
+  const double offsets[] = {0, 37, 3500, 7 * 3600 + 125, 2 * 86400 + 3 * 3600};
+  for (double span : spans)
+    for (double lo : offsets)
+      for (int target : {3, 6, 10}) {
+        TimeAxis a = MakeTimeAxis(lo, lo + span, target);
+        ASSERT_FALSE(a.ticks.values.empty()) << span;
+        std::set<std::string> seen;
+        for (double v : a.ticks.values) {
+          std::string label = FormatTime(v, a.style, a.ticks.step);
+          EXPECT_NEAR(ParseTimeLabel(label, a.style), v, a.style == TimeStyle::kSeconds ? a.ticks.step * 1e-3 : 0.5)
+              << "span " << span << " from " << lo << ": " << label << " (" << TimeStyleUnit(a.style) << ")";
+          EXPECT_TRUE(seen.insert(label).second) << "repeated label " << label << " span " << span << " from " << lo;
+        }
+      }
+}
+
+TEST(TimeAxis, StyleFollowsTheAxis) {
+  // A 9-minute run: 2-minute ticks written m:ss.
+  TimeAxis nine = MakeTimeAxis(0, 540, 5);
+  EXPECT_EQ(nine.style, TimeStyle::kMinSec);
+  EXPECT_STREQ(TimeStyleUnit(nine.style), "m:ss");
+  EXPECT_EQ(FormatTime(240, nine.style, nine.ticks.step), "4:00");
+  // Seven hours: hour ticks written h:mm.
+  TimeAxis seven = MakeTimeAxis(0, 7 * 3600, 7);
+  EXPECT_EQ(seven.style, TimeStyle::kHourMin);
+  EXPECT_EQ(FormatTime(7200, seven.style, seven.ticks.step), "2:00");
+  // Zoomed to half a minute two hours in: seconds matter, h:mm:ss.
+  TimeAxis zoom = MakeTimeAxis(7200, 7230, 6);
+  EXPECT_EQ(zoom.style, TimeStyle::kHourMinSec);
+  EXPECT_EQ(FormatTime(7215, zoom.style, zoom.ticks.step), "2:00:15");
+  // Past a day: days and the time of day.
+  TimeAxis days = MakeTimeAxis(0, 40 * 3600, 6);
+  EXPECT_EQ(days.style, TimeStyle::kDayHourMin);
+  EXPECT_EQ(FormatTime(30 * 3600, days.style, days.ticks.step), "1d 06:00");
+  // Weeks: whole days.
+  TimeAxis weeks = MakeTimeAxis(0, 20 * 86400, 5);
+  EXPECT_EQ(weeks.style, TimeStyle::kDays);
+  EXPECT_EQ(FormatTime(7 * 86400, weeks.style, weeks.ticks.step), "7");
+  // A short window: plain seconds with the decimals the step needs.
+  TimeAxis secs = MakeTimeAxis(10, 12, 4);
+  EXPECT_EQ(secs.style, TimeStyle::kSeconds);
+  EXPECT_EQ(FormatTime(10.5, secs.style, secs.ticks.step), "10.5");
 }
 
 TEST(AxisMap, RoundTripsAndFlips) {
@@ -129,6 +214,41 @@ TEST(ReduceColumns, JoinsSteps) {
   EXPECT_EQ(cols[2].min, 1.0f);  // reaches down to the previous column
   EXPECT_EQ(cols[2].max, 5.0f);
   EXPECT_EQ(cols[3].min, 5.0f);
+}
+
+// A rest logged on change: samples minutes apart. Every pixel column between
+// them carries the straight line joining them, so the trace is drawn whole,
+// not as dots; only a gap event (readings really missing) leaves columns empty.
+TEST(ReduceColumns, JoinsSparseSamplesAndStopsOnlyAtGaps) {
+  std::vector<double> xs = {0, 600, 1200, 1800};
+  std::vector<float> vs = {4.0f, 3.9f, 3.9f, 3.6f};
+  MinMaxPyramid p;
+  p.Append(vs.data(), vs.size());
+  auto cols = ReduceColumns(xs, p, 0.0, 1800.0, 90);
+  int bridged = 0;
+  for (const Column& c : cols) {
+    EXPECT_TRUE(c.has_data);
+    bridged += c.bridged ? 1 : 0;
+  }
+  EXPECT_GT(bridged, 80);
+  // Column 15 (x 300..320, middle 310) lies on the line from 4.0 V to 3.9 V.
+  EXPECT_NEAR(cols[15].min, 4.0 - 0.1 * 310.0 / 600.0, 1e-4);
+
+  std::vector<double> gap = {1500.0};  // readings missing between 1200 s and 1800 s
+  auto cut = ReduceColumns(xs, p, 0.0, 1800.0, 90, &gap);
+  EXPECT_TRUE(cut[45].bridged);    // 900..920 s: no gap between 600 s and 1200 s, joined
+  EXPECT_FALSE(cut[70].has_data);  // 1400..1420 s: inside the gap
+  EXPECT_FALSE(cut[88].has_data);
+  EXPECT_TRUE(cut[89].has_data);   // the column holding the 1800 s sample
+}
+
+TEST(BreakBetween, HalfOpenInterval) {
+  std::vector<double> b = {10.0, 50.0};
+  EXPECT_TRUE(BreakBetween(&b, 5.0, 10.0));
+  EXPECT_FALSE(BreakBetween(&b, 10.0, 20.0));  // a gap ends at its event: (a, b]
+  EXPECT_TRUE(BreakBetween(&b, 20.0, 60.0));
+  EXPECT_FALSE(BreakBetween(&b, 11.0, 49.0));
+  EXPECT_FALSE(BreakBetween(nullptr, 0.0, 100.0));
 }
 
 TEST(VisibleIndices, WidensByOne) {

@@ -127,14 +127,122 @@ TEST(Events, AlarmsStandOut) {
   EXPECT_EQ(EventSeverity({0, "step", "discharge", ""}), Severity::kInfo);
 }
 
-TEST(Events, PausedFollowsTheNewestPauseOrContinue) {
-  std::vector<EventRow> e = {{0, "step", "discharge", ""}};
-  EXPECT_FALSE(IsPaused(e));
-  e.push_back({10, "paused", "by panel", ""});
-  e.push_back({11, "retry", "meter", ""});
-  EXPECT_TRUE(IsPaused(e));
-  e.push_back({20, "continued", "by panel", ""});
-  EXPECT_FALSE(IsPaused(e));
+RunRow RunIn(Outcome o, std::string reason = "") {
+  RunRow r;
+  r.id = 4;
+  r.outcome = o;
+  r.reason = std::move(reason);
+  return r;
+}
+
+// The event kinds and messages are the runner's own (rig/run_controller.cpp:
+// Hold and PollControl).
+TEST(RunStatus, PausedHeldAndReleasedFromTheRunnersEvents) {
+  std::vector<EventRow> e = {{0, "step", "step 1: discharge", ""}};
+  RunStatus st = StatusOf(RunIn(Outcome::kRunning), e);
+  EXPECT_EQ(st.state, RunState::kRunning);
+  EXPECT_EQ(st.badge, "RUNNING");
+  EXPECT_FALSE(st.load_off);
+  EXPECT_TRUE(st.can_pause);
+  EXPECT_FALSE(st.can_continue);
+  EXPECT_TRUE(st.can_abort);
+
+  e.push_back({600, "control", "paused by panel", ""});
+  e.push_back({620, "control", "pause by panel ignored: run is paused", ""});
+  e.push_back({630, "retry", "meter: 1 exchange repeated", ""});
+  st = StatusOf(RunIn(Outcome::kRunning), e);
+  EXPECT_EQ(st.state, RunState::kPaused);
+  EXPECT_EQ(st.badge, "PAUSED");
+  EXPECT_EQ(st.reason, "paused by panel");
+  EXPECT_DOUBLE_EQ(st.since_s, 600);
+  EXPECT_TRUE(st.load_off);
+  EXPECT_FALSE(st.can_pause);  // only the actions that apply
+  EXPECT_TRUE(st.can_continue);
+  EXPECT_TRUE(st.can_abort);
+
+  e.push_back({900, "control", "continued by panel", ""});
+  EXPECT_EQ(StatusOf(RunIn(Outcome::kRunning), e).state, RunState::kRunning);
+
+  // The runner's own hold for heat, released when the cell cooled.
+  e.push_back({1200, "pause", "temperature 56.0 degC above 55 degC: load off until the cell cools", ""});
+  st = StatusOf(RunIn(Outcome::kRunning), e);
+  EXPECT_EQ(st.state, RunState::kHeld);
+  EXPECT_EQ(st.badge, "HELD");
+  EXPECT_NE(st.reason.find("temperature"), std::string::npos);
+  EXPECT_FALSE(st.can_pause);
+  EXPECT_FALSE(st.can_continue);  // a hold ends by itself
+  EXPECT_TRUE(st.can_abort);
+  e.push_back({1500, "resume", "cell cooled to 45.0 degC; continuing", ""});
+  EXPECT_EQ(StatusOf(RunIn(Outcome::kRunning), e).state, RunState::kRunning);
+
+  // A lost instrument: held, then a gap and a resume.
+  e.push_back({1800, "fault", "meter: no answer (timeout)", ""});
+  EXPECT_EQ(StatusOf(RunIn(Outcome::kRunning), e).state, RunState::kHeld);
+  e.push_back({1812, "gap", "no readings for 12.0 s while an instrument did not answer", ""});
+  EXPECT_EQ(StatusOf(RunIn(Outcome::kRunning), e).state, RunState::kHeld);
+  e.push_back({1812, "resume", "instruments answer again after 12.0 s with the load off; continuing", ""});
+  EXPECT_EQ(StatusOf(RunIn(Outcome::kRunning), e).state, RunState::kRunning);
+}
+
+TEST(RunStatus, EndedRunsHaveTheLoadOffAndNoActions) {
+  std::vector<EventRow> paused = {{600, "control", "paused by panel", ""}};
+  for (auto [o, badge] : {std::pair{Outcome::kCompleted, "COMPLETED"}, std::pair{Outcome::kAborted, "ABORTED"},
+                          std::pair{Outcome::kInterrupted, "INTERRUPTED"}}) {
+    RunStatus st = StatusOf(RunIn(o, "why it ended"), paused);  // the outcome wins over an old pause
+    EXPECT_EQ(st.badge, badge);
+    EXPECT_EQ(st.reason, "why it ended");
+    EXPECT_TRUE(st.load_off);
+    EXPECT_FALSE(st.can_pause || st.can_continue || st.can_abort);
+  }
+  // The word every other view uses.
+  EXPECT_STREQ(RunStateWord(RunState::kCompleted), "completed");
+}
+
+TEST(RunStatus, ListRowShowsThePause) {
+  RunListRow row;
+  row.state = "running";
+  SetListState(row, StatusOf(RunIn(Outcome::kRunning), {{600, "control", "paused by panel", ""}}));
+  EXPECT_EQ(row.state, "paused");
+  EXPECT_EQ(row.run_state, RunState::kPaused);
+  EXPECT_TRUE(MatchesFilter(row, "paused"));
+}
+
+TEST(GapTimes, OnlyGapEvents) {
+  std::vector<EventRow> e = {{50, "gap", "resumed after 40 s unattended", ""},
+                             {10, "step", "rest (log-change)", ""},
+                             {30, "gap", "no readings for 5.0 s", ""}};
+  EXPECT_EQ(GapTimes(e), (std::vector<double>{30, 50}));
+  EXPECT_TRUE(GapTimes({{10, "step", "rest", ""}}).empty());
+}
+
+TEST(DistinctLabels, KeepsWhatDiffers) {
+  EXPECT_EQ(DistinctLabels({"bench check: capacity at 1 It", "bench check: capacity at 0.5 It", "bench check: peak load 2 A"}),
+            (std::vector<std::string>{"capacity at 1 It", "capacity at 0.5 It", "peak load 2 A"}));
+  // Only a family prefix ending in ':' goes; shared plain words stay, so two rates read as rates.
+  EXPECT_EQ(DistinctLabels({"demo: rate 1 A", "demo: rate 2 A"}), (std::vector<std::string>{"rate 1 A", "rate 2 A"}));
+  EXPECT_EQ(DistinctLabels({"rate 1 A", "rate 2 A"}), (std::vector<std::string>{"rate 1 A", "rate 2 A"}));
+  // Identical names (the same procedure twice) and single names stay whole.
+  EXPECT_EQ(DistinctLabels({"rated capacity", "rated capacity"}), (std::vector<std::string>{"rated capacity", "rated capacity"}));
+  EXPECT_EQ(DistinctLabels({"one"}), (std::vector<std::string>{"one"}));
+  // A name that is all shared prefix keeps its whole text.
+  EXPECT_EQ(DistinctLabels({"lab:", "lab: capacity at 2 A"}), (std::vector<std::string>{"lab:", "capacity at 2 A"}));
+}
+
+float CharWidth(const std::string& s, void*) {
+  // Every UTF-8 character 1 unit wide.
+  float n = 0;
+  for (unsigned char c : s)
+    if ((c & 0xC0) != 0x80) n += 1;
+  return n;
+}
+
+TEST(Ellipsize, CutsWithDotsOnlyWhenNeeded) {
+  EXPECT_EQ(Ellipsize("LN-2500 #1", 20, CharWidth, nullptr), "LN-2500 #1");
+  EXPECT_EQ(Ellipsize("bench check: capacity", 10, CharWidth, nullptr), "bench che\xE2\x80\xA6");
+  // No trailing space before the dots, and never half a UTF-8 character.
+  EXPECT_EQ(Ellipsize("ab cd", 4, CharWidth, nullptr), "ab\xE2\x80\xA6");
+  EXPECT_EQ(Ellipsize("25\xC2\xB0" "C to 45\xC2\xB0" "C", 4, CharWidth, nullptr), "25\xC2\xB0\xE2\x80\xA6");
+  EXPECT_LE(CharWidth(Ellipsize("a long procedure name", 7, CharWidth, nullptr), nullptr), 7);
 }
 
 TEST(CurrentStep, TakesTheLatest) {

@@ -2,14 +2,21 @@
 // blank, the voltage trace's colour where the stored samples map to inside the
 // plot rectangle (and not far away from them), and the cutoff line at its level.
 // Usage: kp_panel_png_check PNG LAYOUT_JSON DB RUN WIDTH HEIGHT
+// Second form, the elements of any view (live or compare, either palette):
+//   kp_panel_png_check --elements PNG LAYOUT_JSON WIDTH HEIGHT BADGE MIN_PLOTS
+// every plot the layout lists shows its background and, inside its frame,
+// drawn pixels and the colour of each of its traces; at least MIN_PLOTS plots;
+// and the state badge reads BADGE ("-": no badge expected) in its colour.
 #include <stb_image.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
 #include <fstream>
 #include <iostream>
 #include <set>
+#include <string>
 
 #include <nlohmann/json.hpp>
 
@@ -43,7 +50,74 @@ int Fail(const std::string& why) {
 
 }  // namespace
 
+int CountNear(const Image& img, int x0, int y0, int x1, int y1, const nlohmann::json& rgb, int tol, int* total) {
+  int n = 0, all = 0;
+  for (int y = std::max(0, y0); y < std::min(img.h, y1); ++y)
+    for (int x = std::max(0, x0); x < std::min(img.w, x1); ++x) {
+      ++all;
+      if (Near(img.At(x, y), rgb, tol)) ++n;
+    }
+  if (total) *total = all;
+  return n;
+}
+
+int CheckElements(int argc, char** argv) {
+  if (argc != 8) return Fail("usage: kp_panel_png_check --elements PNG LAYOUT_JSON WIDTH HEIGHT BADGE MIN_PLOTS");
+  Image img;
+  int comp = 0;
+  img.px = stbi_load(argv[2], &img.w, &img.h, &comp, 3);
+  if (!img.px) return Fail(std::string("cannot read ") + argv[2]);
+  if (img.w != std::atoi(argv[4]) || img.h != std::atoi(argv[5])) return Fail("unexpected picture size");
+  std::ifstream lf(argv[3]);
+  nlohmann::json lay = nlohmann::json::parse(lf, nullptr, false);
+  if (lay.is_discarded() || !lay.contains("plots")) return Fail("cannot parse layout json");
+  const std::string want_badge = argv[6];
+  const size_t min_plots = static_cast<size_t>(std::atoi(argv[7]));
+  const auto& bg = lay["plot_bg_rgb"];
+  if (lay["plots"].size() < min_plots)
+    return Fail("only " + std::to_string(lay["plots"].size()) + " plots drawn, expected " + argv[7]);
+  for (const auto& p : lay["plots"]) {
+    const std::string name = p["name"];
+    const int x0 = static_cast<int>(p["x0"].get<double>()) + 2, y0 = static_cast<int>(p["y0"].get<double>()) + 2;
+    const int x1 = static_cast<int>(p["x1"].get<double>()) - 2, y1 = static_cast<int>(p["y1"].get<double>()) - 2;
+    if (x1 - x0 < 100 || y1 - y0 < 40) return Fail("plot '" + name + "' is too small");
+    int total = 0;
+    const int bg_px = CountNear(img, x0, y0, x1, y1, bg, 6, &total);
+    // The palette's background fills most of the frame...
+    if (bg_px < total / 3) return Fail("plot '" + name + "': its background colour covers only " + std::to_string(bg_px) + " px");
+    // ...and something is drawn on it.
+    const int ink = total - bg_px;
+    std::cout << "plot '" << name << "': " << ink << " drawn px of " << total;
+    if (ink < total / 200) return Fail("plot '" + name + "' is empty");
+    // Trace colours are counted outside the legend (its colour swatches
+    // alone must not pass for a drawn trace).
+    const int lx1 = static_cast<int>(p.value("legend_x1", 0.0)) + 1, ly1 = static_cast<int>(p.value("legend_y1", 0.0)) + 1;
+    for (const auto& rgb : p["traces"]) {
+      const int n = CountNear(img, x0, y0, x1, y1, rgb, 40, nullptr) - CountNear(img, x0, y0, std::min(lx1, x1), std::min(ly1, y1), rgb, 40, nullptr);
+      std::cout << ", trace " << rgb.dump() << ": " << n << " px";
+      if (n < 30) return Fail("plot '" + name + "': trace colour " + rgb.dump() + " not drawn");
+    }
+    std::cout << "\n";
+  }
+  if (want_badge == "-") {
+    if (lay.contains("badge")) return Fail("a state badge was drawn where none was expected");
+  } else {
+    if (!lay.contains("badge")) return Fail("no state badge drawn, expected " + want_badge);
+    const auto& b = lay["badge"];
+    if (b["text"] != want_badge) return Fail("badge reads " + b["text"].get<std::string>() + ", expected " + want_badge);
+    int total = 0;
+    const int n = CountNear(img, static_cast<int>(b["x0"].get<double>()), static_cast<int>(b["y0"].get<double>()),
+                            static_cast<int>(b["x1"].get<double>()), static_cast<int>(b["y1"].get<double>()), b["rgb"], 12, &total);
+    std::cout << "badge " << want_badge << ": " << n << " of " << total << " px in its colour\n";
+    if (total < 100 || n < total / 3) return Fail("badge colour missing where the badge was drawn");
+  }
+  std::cout << "panel elements check passed (" << argv[2] << ")\n";
+  stbi_image_free(img.px);
+  return 0;
+}
+
 int main(int argc, char** argv) {
+  if (argc > 1 && std::string(argv[1]) == "--elements") return CheckElements(argc, argv);
   if (argc != 7) return Fail("usage: kp_panel_png_check PNG LAYOUT_JSON DB RUN WIDTH HEIGHT");
   Image img;
   int comp = 0;
