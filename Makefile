@@ -11,7 +11,7 @@ PKGS := build-essential cmake ninja-build pkg-config ccache \
         libserialport-dev libsqlite3-dev sqlite3 \
         libimgui-dev libglfw3-dev libgl-dev libstb-dev \
         libgtest-dev libgmock-dev libbenchmark-dev \
-        libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev \
+        libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev libxlsxwriter-dev \
         libgsl-dev libboost-dev \
         xvfb xauth libgl1-mesa-dri librsvg2-bin
 

@@ -25,6 +25,7 @@ std::string RenderHtmlPage(const std::string& title, const std::vector<HtmlSecti
        "table{border-collapse:collapse;margin:0.6em 0}td,th{border:1px solid #ccc;padding:0.2em 0.6em;text-align:right}\n"
        "th{background:#eef1f4}td.t{text-align:left}caption{text-align:left;font-style:italic}\n"
        "svg.plot{display:block;margin:0.8em 0}\n"
+       "pre{background:#f6f7f9;border:1px solid #ddd;padding:0.5em;overflow-x:auto;font-size:0.9em}\n"
        "</style>\n</head>\n<body>\n";
   o += fmt::format("<h1>{}</h1>\n", XmlEscape(title));
   for (const HtmlSection& s : sections) {
@@ -51,6 +52,8 @@ std::string RenderHtmlPage(const std::string& title, const std::vector<HtmlSecti
       }
       o += "</table>\n";
     }
+    for (const HtmlSection::Preformatted& p : s.preformatted)
+      o += fmt::format("<p>{}:</p>\n<pre>{}</pre>\n", XmlEscape(p.caption), XmlEscape(p.text));
     for (const PlotSpec& p : s.plots) o += RenderSvgPlot(p);
   }
   o += "</body>\n</html>\n";

@@ -38,6 +38,11 @@ struct RigRoles {
   // verdicts judge the start temperature with it. 0.5 degC is a usual
   // thermistor-probe accuracy (common practice, no source).
   double thermometer_tolerance_c = 0.5;
+  // What the run is made with, stored with it (schema v5): one record per
+  // instrument, the rig file's text, the bench's name.
+  std::vector<InstrumentRecord> instruments;
+  std::string rig_text;
+  std::string bench;
 };
 
 class ControlChannel;  // rig/control_channel.h
@@ -45,6 +50,10 @@ struct ResumePoint;    // rig/resume.h
 
 struct RunOptions {
   std::string cell_name;
+  // The traceable fields of a new run: bench (empty: the rig's), operator,
+  // cell serial, lot and part, tags, a note. Execute fills in the cell, the
+  // procedure and the rig's equipment; the rest is stored as given.
+  NewRun record;
   // Set from a signal handler or another thread: the run ends as aborted by operator.
   const std::atomic<bool>* stop = nullptr;
   std::string stop_reason = "stopped by operator (signal)";

@@ -171,7 +171,7 @@ void Panel::RunsList() {
     focus_filter_ = false;
   }
   ImGui::SetNextItemWidth(-1);
-  ImGui::InputTextWithHint("##filter", "filter: cell, state, procedure, pass…  (Ctrl+F)", filter_, sizeof(filter_));
+  ImGui::InputTextWithHint("##filter", "filter: cell, serial, lot, tag, operator, state, pass…  (Ctrl+F)", filter_, sizeof(filter_));
   ImGuiTableFlags flags = ImGuiTableFlags_RowBg | ImGuiTableFlags_ScrollY | ImGuiTableFlags_BordersInnerV |
                           ImGuiTableFlags_SizingStretchProp | ImGuiTableFlags_Resizable;
   bool cmp = tab_ == Tab::kCompare;
@@ -311,6 +311,21 @@ void Panel::Headline(const RunData& d) {
   }
 }
 
+// A note for the selected run (live or finished), stored as a timestamped
+// `note` event through the feed's worker, like `kneepoint note`.
+void Panel::NoteField(const RunData& d) {
+  ImGui::SetNextItemWidth(ImGui::GetFontSize() * 28);
+  const bool enter = ImGui::InputTextWithHint("##run-note", "note for this run (serial checked, probe re-taped…)", run_note_,
+                                              sizeof(run_note_), ImGuiInputTextFlags_EnterReturnsTrue);
+  ImGui::SameLine();
+  const bool click = ImGui::Button("Add note");
+  std::string text = run_note_;
+  if ((enter || click) && text.find_first_not_of(" \t") != std::string::npos) {
+    feed_.AddNote(d.row.id, text);
+    run_note_[0] = '\0';
+  }
+}
+
 void Panel::ControlButtons(const RunData& d) {
   if (d.row.outcome != Outcome::kRunning) return;
   if (ImGui::Button("Pause  [P]")) feed_.Request(d.row.id, "pause");
@@ -411,6 +426,7 @@ void Panel::LiveView() {
   }
   Headline(d);
   ControlButtons(d);
+  NoteField(d);
 
   Range data_x = d.DataX();
   // Raw samples when the view shows fewer block summaries than pixels,

@@ -60,6 +60,7 @@ class Panel {
   void EventLog(const RunData& d);
   void CycleTable(const RunData& d);
   void ControlButtons(const RunData& d);
+  void NoteField(const RunData& d);
   void SetTheme(bool dark);
   // True when `d`'s raw window covers `x` and the overview is coarser than
   // `width_px` pixel columns there; asks the feed for that window otherwise.
@@ -79,6 +80,7 @@ class Panel {
   PlotResult voltage_plot_;
   std::map<int64_t, std::pair<int64_t, int64_t>> asked_windows_;  // run -> seq range last asked
   char filter_[128] = "";
+  char run_note_[512] = "";
   bool focus_filter_ = false;
   bool open_start_ = false;
   bool open_abort_ = false;

@@ -83,6 +83,9 @@ struct RunListRow {
   std::string verdict;  // "PASS 102 %", "FAIL 87 %" (completed runs), "incomplete" (aborted,
                         // interrupted), "-" while running or without a rating
   std::string reason;
+  // The traceable record the filter also searches: UUID, cell serial, lot and
+  // part, operator, bench, tags (space-separated).
+  std::string record;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 // The run list's verdict of a completed run, without the full analysis: the
@@ -92,7 +95,8 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 std::string ListVerdict(const RunRow& run, double delivered_mah);
 
 // True when every whitespace-separated word of `filter` occurs (ignoring case)
-// in the row's id, state, cell, chemistry, procedure, verdict or start time.
+// in the row's id, state, cell, chemistry, procedure, verdict, start time or
+// record (UUID, serial, lot, part, operator, bench, tags).
 bool MatchesFilter(const RunListRow& row, const std::string& filter);
 
 // Estimated seconds left in a running discharge, or nullopt when nothing

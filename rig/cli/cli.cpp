@@ -8,6 +8,8 @@
 
 #include <fmt/format.h>
 
+#include "rig/version.h"
+
 namespace kp::cli {
 namespace {
 
@@ -100,7 +102,7 @@ std::string FormatDuration(double seconds) {
 int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   CLI::App app{"kneepoint: bench controller and data logger for battery discharge tests"};
   app.require_subcommand(1);
-  app.set_version_flag("--version", "kneepoint 0.1.0");
+  app.set_version_flag("--version", VersionLine());
   CliRegistry registry(app);
   RegisterDemo(registry);
   RegisterRuns(registry);
@@ -115,6 +117,7 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterLife(registry);
   RegisterControl(registry);
   RegisterResume(registry);
+  RegisterNote(registry);
   for (Registrar r : extra) r(registry);
   try {
     app.parse(argc, argv);

@@ -72,6 +72,7 @@ void RegisterCompare(CliRegistry& r);
 void RegisterLife(CliRegistry& r);
 void RegisterControl(CliRegistry& r);  // abort / pause / continue
 void RegisterResume(CliRegistry& r);
+void RegisterNote(CliRegistry& r);
 
 // "5:02:13" for a duration in seconds.
 std::string FormatDuration(double seconds);

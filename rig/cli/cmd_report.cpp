@@ -44,7 +44,7 @@ void RegisterReport(CliRegistry& r) {
   options = ReportOptions{}, brownout_v = 0.0;
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     SteadyClock wall;
-    auto store = OpenExistingDb(db_path, wall);
+    auto store = OpenDbForReading(db_path, wall);
     if (!store.ok()) return Fail(store.status());
     if (brownout_v > 0) options.brownout_v = brownout_v;
     auto rep = BuildRunReport(**store, run_id, options);
