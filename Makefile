@@ -11,7 +11,7 @@ PKGS := build-essential cmake ninja-build pkg-config ccache \
         libserialport-dev libsqlite3-dev sqlite3 \
         libimgui-dev libglfw3-dev libgl-dev libstb-dev \
         libgtest-dev libbenchmark-dev libxml2-utils \
-        libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev \
+        libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev libxlsxwriter-dev \
         libgsl-dev \
         xvfb xauth libgl1-mesa-dri help2man dpkg-dev
 

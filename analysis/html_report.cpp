@@ -41,6 +41,7 @@ std::string RenderHtmlPage(const std::string& title, const std::vector<HtmlSecti
        "@media print{@page{size:auto;margin:15mm 12mm}body{margin:0;padding:0;max-width:none;font-size:10pt}"
        "h2{break-after:avoid}table,svg.plot,div.callout{break-inside:avoid}thead{display:table-header-group}"
        "div.callout{-webkit-print-color-adjust:exact;print-color-adjust:exact}}\n"
+       "pre{background:#f6f7f9;border:1px solid #ddd;padding:0.5em;overflow-x:auto;font-size:0.9em;white-space:pre-wrap}\n"
        "</style>\n</head>\n<body>\n";
   o += fmt::format("<h1>{}</h1>\n", XmlEscape(title));
   if (!meta.subtitle.empty()) o += fmt::format("<p class=\"sub\">{}</p>\n", XmlEscape(meta.subtitle));
@@ -71,6 +72,8 @@ std::string RenderHtmlPage(const std::string& title, const std::vector<HtmlSecti
       }
       o += "</tbody>\n</table>\n";
     }
+    for (const HtmlSection::Preformatted& p : s.preformatted)
+      o += fmt::format("<p>{}:</p>\n<pre>{}</pre>\n", XmlEscape(p.caption), XmlEscape(p.text));
     for (const PlotSpec& p : s.plots) o += RenderSvgPlot(p);
   }
   if (!meta.generator.empty() || !meta.generated_at.empty()) {

@@ -36,6 +36,12 @@ struct HtmlSection {
   std::vector<std::string> paragraphs;  // plain text, escaped on output
   std::vector<HtmlTable> tables;
   std::vector<PlotSpec> plots;
+  // Texts shown verbatim (line breaks and spacing kept), each under its caption.
+  struct Preformatted {
+    std::string caption;
+    std::string text;
+  };
+  std::vector<Preformatted> preformatted;
 };
 
 // Who made the page and when: shown in the page's header line and footer.

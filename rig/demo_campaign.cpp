@@ -88,6 +88,7 @@ class Campaign {
     if (options_.on_progress) options_.on_progress(done_estimate_s_ / total_estimate_s_, p.part);
 
     KP_ASSIGN_OR_RETURN(RunReport rep, BuildRunReport(store_, result.run_id, p.report));
+    KP_RETURN_IF_ERROR(RecordVerdict(store_, rep));
     DemoRun run;
     run.run_id = result.run_id;
     run.part = p.part;

@@ -22,6 +22,9 @@ class FileRig final : public Rig {
     r.supply = supply_.get();
     r.description = description_;
     r.thermometer_tolerance_c = thermometer_tolerance_c_;
+    r.instruments = instruments_;
+    r.rig_text = rig_text_;
+    r.bench = bench_;
     return r;
   }
   Clock& clock() override { return *clock_; }
@@ -31,6 +34,8 @@ class FileRig final : public Rig {
   Status Open(const RigFileSpec& spec, const RigOpenOptions& o) {
     description_ = spec.path;
     limits_ = spec.limits;
+    rig_text_ = spec.text;
+    bench_ = spec.name;
     if (o.clock != nullptr) {
       clock_ = o.clock;
     } else {
@@ -66,6 +71,18 @@ class FileRig final : public Rig {
         return InvalidInput(fmt::format("{} answered *IDN? with '{}', but profile '{}' expects '{}'", where, *idn, is.profile_ref,
                                         is.profile.identity));
       if (Status st = session->DrainErrors(); !st.ok()) note(fmt::format("{}: errors queued before the run: {}", is.name, st.message()));
+      InstrumentRecord rec;
+      rec.name = is.name;
+      for (const std::string& role : is.roles) rec.roles += (rec.roles.empty() ? "" : ",") + role;
+      rec.address = is.address;
+      rec.profile = is.profile_ref;
+      rec.identity = *idn;
+      SplitIdentity(rec);
+      rec.voltage_gain = is.voltage.gain, rec.voltage_offset_v = is.voltage.offset;
+      rec.current_gain = is.current.gain, rec.current_offset_a = is.current.offset;
+      rec.temperature_gain = is.temperature.gain, rec.temperature_offset_c = is.temperature.offset;
+      rec.calibrated_on = is.calibrated_on;
+      instruments_.push_back(std::move(rec));
       ScpiSession& s = *session;
       sessions_.push_back(std::move(session));
       addresses.push_back(DeviceIdentity(addr));  // one key however the address is spelt
@@ -118,7 +135,8 @@ class FileRig final : public Rig {
   std::unique_ptr<ThermometerDriver> thermometer_;
   double thermometer_tolerance_c_ = 0.5;
   std::unique_ptr<SupplyDriver> supply_;
-  std::string description_, lock_key_;
+  std::string description_, lock_key_, rig_text_, bench_;
+  std::vector<InstrumentRecord> instruments_;
   BenchLimits limits_;
 };
 

@@ -3,6 +3,7 @@
 #include "drivers/profile_path.h"
 
 #include <algorithm>
+#include <cctype>
 #include <filesystem>
 #include <fstream>
 #include <map>
@@ -128,6 +129,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
   if (base_dir.empty()) base_dir = ".";
   RigFileSpec spec;
   spec.path = path;
+  spec.text = std::string(text);
   KP_RETURN_IF_ERROR(r.OnlyKnown(root, "", {"bench", "instrument"}));
 
   if (const toml::node* bn = root.get("bench")) {
@@ -162,7 +164,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     const std::string p = fmt::format("instrument[{}].", i + 1);
     KP_RETURN_IF_ERROR(r.OnlyKnown(t, p, {"name", "address", "profile", "roles", "channel", "timeout_s", "retries", "confirm_writes",
                                           "remote_sense", "stuck_after", "late_reply_s", "voltage_offset_v", "voltage_gain", "current_offset_a", "current_gain",
-                                          "temperature_offset_c", "temperature_gain", "unguarded", "temperature_tolerance_c"}));
+                                          "temperature_offset_c", "temperature_gain", "unguarded", "temperature_tolerance_c", "calibrated_on"}));
     KP_RETURN_IF_ERROR(r.String(t, p, "name", is.name, false, is.line));
     if (is.name.empty()) is.name = fmt::format("instrument {}", i + 1);
     if (!names.insert(is.name).second) return r.Error(t.get("name"), p + "name", fmt::format("'{}' is used twice", is.name));
@@ -246,6 +248,21 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
       }
     }
     is.profile = std::move(*prof);
+    if (const toml::node* cd = t.get("calibrated_on")) {
+      // A TOML date (2026-03-14) or the same in quotes: stored with each run.
+      if (const auto* d = cd->as_date()) {
+        const toml::date v = d->get();
+        is.calibrated_on = fmt::format("{:04}-{:02}-{:02}", v.year, v.month, v.day);
+      } else if (cd->is_string()) {
+        is.calibrated_on = *cd->value<std::string>();
+        const std::string& c = is.calibrated_on;
+        bool ok = c.size() == 10 && c[4] == '-' && c[7] == '-';
+        for (size_t k : {0, 1, 2, 3, 5, 6, 8, 9}) ok = ok && c.size() == 10 && std::isdigit(static_cast<unsigned char>(c[k]));
+        if (!ok) return r.Error(cd, p + "calibrated_on", "must be a date, YYYY-MM-DD");
+      } else {
+        return r.Error(cd, p + "calibrated_on", "must be a date, YYYY-MM-DD");
+      }
+    }
     if (!is.channel.empty()) ApplyChannel(is.profile, is.channel);
     spec.instruments.push_back(std::move(is));
   }

@@ -22,6 +22,7 @@
 //   temperature_offset_c / temperature_gain  (reading * gain + offset)
 //   temperature_tolerance_c = 0.5          # thermometer: its accuracy (±), stored with each run;
 //                                          # verdicts judge the start temperature with it
+//   calibrated_on = 2026-03-14             # date of the calibration above (stored with each run)
 //   unguarded = ["watchdog"]               # load: its own protections the profile lacks
 //                                          # (undervoltage, overcurrent, overpower, watchdog)
 //
@@ -61,11 +62,13 @@ struct InstrumentSpec {
   std::vector<std::string> unguarded;  // load: protections acknowledged as missing (LoadGuardName)
   double temperature_tolerance_c = 0.5;  // thermometer: accuracy (±), for the start-temperature condition
   Calibration voltage, current, temperature;
+  std::string calibrated_on;  // YYYY-MM-DD, empty when not given
   int line = 0;  // where the [[instrument]] table starts
 };
 
 struct RigFileSpec {
   std::string path;
+  std::string text;  // the file as read: stored with every run made on it
   std::string name;
   double clock_speed = 1.0;
   std::string trace;  // resolved path, empty for none

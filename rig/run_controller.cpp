@@ -649,8 +649,17 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
     if (!reopened->progress) return InvalidInput(fmt::format("run {} has no committed progress to resume from", options.resume->run_id));
     run_id = options.resume->run_id;
   } else {
-    NewRun nr{options.cell_name, plan.cell.chemistry, plan.cell.rated_mah, plan.name, plan.source_text, roles_.description};
+    NewRun nr = options.record;
+    nr.cell_name = options.cell_name;
+    nr.chemistry = plan.cell.chemistry;
+    nr.rated_mah = plan.cell.rated_mah;
+    nr.procedure_name = plan.name;
+    nr.procedure_text = plan.source_text;
+    nr.rig = roles_.description;
     nr.thermometer_tolerance_c = roles_.thermometer_tolerance_c;
+    if (nr.bench.empty()) nr.bench = roles_.bench;
+    if (nr.rig_text.empty()) nr.rig_text = roles_.rig_text;
+    if (nr.instruments.empty()) nr.instruments = roles_.instruments;
     StepEngine at_start(plan);
     (void)at_start.Start(0.0);
     RunProgress initial;

@@ -43,6 +43,11 @@ struct RigRoles {
   // The load lives in this process (the built-in simulator): it stops with a
   // dead runner, so an outage drew nothing once the runner was gone.
   bool load_in_process = false;
+  // What the run is made with, stored with it (schema v5): one record per
+  // instrument, the rig file's text, the bench's name.
+  std::vector<InstrumentRecord> instruments;
+  std::string rig_text;
+  std::string bench;
 };
 
 // How the charge drawn while nobody logged (a dead runner, until resume) is
@@ -64,6 +69,10 @@ struct ResumePoint;    // rig/resume.h
 
 struct RunOptions {
   std::string cell_name;
+  // The traceable fields of a new run: bench (empty: the rig's), operator,
+  // cell serial, lot and part, tags, a note. Execute fills in the cell, the
+  // procedure and the rig's equipment; the rest is stored as given.
+  NewRun record;
   // Set from a signal handler or another thread: the run ends as aborted by operator.
   const std::atomic<bool>* stop = nullptr;
   std::string stop_reason = "stopped by operator (signal)";

@@ -17,6 +17,7 @@
 #include "analysis/html_report.h"
 #include "analysis/svg_plot.h"
 #include "rig/cli/cli.h"
+#include "rig/version.h"
 
 namespace kp {
 namespace {
@@ -49,6 +50,9 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
   KP_ASSIGN_OR_RETURN(std::vector<EventRow> events, store.LoadEvents(run_id));
   KP_ASSIGN_OR_RETURN(rep.totals, store.LoadRunTotals(run_id));
   KP_ASSIGN_OR_RETURN(std::vector<DcirRow> dcir_rows, store.LoadDcirPoints(run_id));
+  KP_ASSIGN_OR_RETURN(rep.equipment, store.LoadEquipment(run_id));
+  for (const EventRow& e : events)
+    if (e.kind == "note") rep.notes.push_back(e);
 
   RunContext ctx;
   ctx.rated_mah = rep.run.rated_mah;
@@ -141,7 +145,54 @@ nlohmann::json RunRowJson(const RunRow& r) {
               {"started_at", r.started_at},
               {"ended_at", r.ended_at},
               {"rated_mAh", r.rated_mah},
-              {"samples", r.sample_count}};
+              {"samples", r.sample_count},
+              {"schema_version", kRunRecordSchemaVersion},
+              {"uuid", r.uuid},
+              {"bench", r.bench},
+              {"host", r.host},
+              {"operator", r.operator_name},
+              {"cell_serial", r.cell_serial},
+              {"cell_lot", r.cell_lot},
+              {"cell_part", r.cell_part},
+              {"tags", r.tags},
+              {"verdict", r.verdict.empty() ? json(nullptr) : json(r.verdict)}};
+}
+
+nlohmann::json EquipmentJson(const EquipmentRow& e) {
+  json inst = json::array();
+  for (const InstrumentRecord& i : e.instruments)
+    inst.push_back({{"name", i.name},
+                    {"roles", i.roles},
+                    {"address", i.address},
+                    {"profile", i.profile},
+                    {"identity", i.identity},
+                    {"manufacturer", i.manufacturer},
+                    {"model", i.model},
+                    {"serial", i.serial},
+                    {"firmware", i.firmware},
+                    {"voltage_gain", i.voltage_gain},
+                    {"voltage_offset_V", i.voltage_offset_v},
+                    {"current_gain", i.current_gain},
+                    {"current_offset_A", i.current_offset_a},
+                    {"temperature_gain", i.temperature_gain},
+                    {"temperature_offset_C", i.temperature_offset_c},
+                    {"calibrated_on", i.calibrated_on.empty() ? json(nullptr) : json(i.calibrated_on)}});
+  return json{{"instruments", inst},
+              {"rig_text", e.rig_text},
+              {"software_version", e.software_version},
+              {"software_commit", e.software_commit}};
+}
+
+std::string VerdictWord(const RunReport& rep) {
+  const CapacityJudgement& v = rep.analysis.verdict;
+  if (!v.judged) return "not judged";
+  return v.capacity_pass ? "pass" : "fail";
+}
+
+Status RecordVerdict(Store& store, const RunReport& rep) {
+  if (rep.run.outcome == Outcome::kRunning) return Status::Ok();
+  const CapacityJudgement& v = rep.analysis.verdict;
+  return store.SetVerdict(rep.run.id, VerdictWord(rep), v.text, v.judged ? std::optional<double>(v.percent_of_rated) : std::nullopt);
 }
 
 std::vector<MethodNote> MethodNotes(const RunReport& rep) {
@@ -206,9 +257,14 @@ nlohmann::json RunReportJson(const RunReport& rep) {
     conds.push_back({{"name", c.name}, {"required", c.required}, {"observed", c.observed}, {"met", c.met}});
   j["conditions"] = conds;
   j["schema_version"] = kReportSchemaVersion;
+  json methods = json::array();
+  for (const MethodNote& n : MethodNotes(rep)) methods.push_back({{"figure", n.figure}, {"method", n.method}, {"source", n.source}});
+  j["methods"] = methods;
+  j["run_record"] = RunRowJson(rep.run);
+  j["equipment"] = EquipmentJson(rep.equipment);
   json notes = json::array();
-  for (const MethodNote& n : MethodNotes(rep)) notes.push_back({{"figure", n.figure}, {"method", n.method}, {"source", n.source}});
-  j["methods"] = notes;
+  for (const EventRow& n : rep.notes) notes.push_back({{"t_s", n.t_s}, {"wall_at", n.wall_at}, {"text", n.message}});
+  j["notes"] = notes;
   j["net_charge_mAh"] = rep.totals.net_mah;
   j["net_energy_Wh"] = rep.totals.net_wh;
   j["charged_mAh"] = Optional(rep.totals.charged_mah);
@@ -331,12 +387,59 @@ nlohmann::json RunReportJson(const RunReport& rep) {
   return j;
 }
 
+namespace {
+
+std::string OrDash(const std::string& s) { return s.empty() ? "-" : s; }
+
+std::string CalibrationText(const InstrumentRecord& i) {
+  std::string c;
+  auto one = [&](const char* what, double gain, double offset, const char* unit) {
+    if (gain == 1.0 && offset == 0.0) return;
+    c += fmt::format("{}{} x{} {:+g} {}", c.empty() ? "" : ", ", what, gain, offset, unit);
+  };
+  one("voltage", i.voltage_gain, i.voltage_offset_v, "V");
+  one("current", i.current_gain, i.current_offset_a, "A");
+  one("temperature", i.temperature_gain, i.temperature_offset_c, "degC");
+  if (c.empty()) c = "none applied";
+  if (!i.calibrated_on.empty()) c += ", calibrated " + i.calibrated_on;
+  return c;
+}
+
+}  // namespace
+
+// The traceable record: identity, who, where, with what.
+std::string RunRecordText(const RunReport& rep) {
+  const RunRow& r = rep.run;
+  std::string out;
+  if (!r.uuid.empty()) out += fmt::format("  run id           {}\n", r.uuid);
+  out += fmt::format("  cell             {}  serial {}  lot {}  part {}\n", r.cell, OrDash(r.cell_serial), OrDash(r.cell_lot),
+                     OrDash(r.cell_part));
+  out += fmt::format("  operator         {}  bench {}  host {}\n", OrDash(r.operator_name), OrDash(r.bench), OrDash(r.host));
+  out += fmt::format("  started          {}{}\n", r.started_at, r.ended_at.empty() ? "" : ", ended " + r.ended_at);
+  if (!r.tags.empty()) {
+    std::string t;
+    for (const std::string& x : r.tags) t += (t.empty() ? "" : ", ") + x;
+    out += fmt::format("  tags             {}\n", t);
+  }
+  const EquipmentRow& e = rep.equipment;
+  if (!e.software_version.empty())
+    out += fmt::format("  software         kneepoint {} (commit {})\n", e.software_version, OrDash(e.software_commit));
+  for (const InstrumentRecord& i : e.instruments) {
+    out += fmt::format("  instrument       {} ({}): {} {} serial {} firmware {}, at {}, profile {}\n", i.name, i.roles,
+                       OrDash(i.manufacturer), OrDash(i.model), OrDash(i.serial), OrDash(i.firmware), i.address, i.profile);
+    out += fmt::format("    calibration    {}\n", CalibrationText(i));
+  }
+  for (const EventRow& n : rep.notes) out += fmt::format("  note             {} (t = {:.0f} s): {}\n", n.wall_at, n.t_s, n.message);
+  return out;
+}
+
 std::string RunReportText(const RunReport& rep) {
   const RunFigures& f = rep.figures;
   const RunAnalysis& a = rep.analysis;
   std::string out;
   out += fmt::format("run {}  cell {}  procedure {}\n", rep.run.id, rep.run.cell, rep.run.procedure_name);
   out += fmt::format("  outcome          {} ({})\n", OutcomeName(rep.run.outcome), rep.run.reason);
+  out += RunRecordText(rep);
   out += fmt::format("  delivered        {:.1f} mAh   {:.3f} Wh   ({})\n", a.discharge_charge_mah, a.discharge_energy_wh,
                      IntegrationMethodName(a.method));
   if (a.main_discharge) {
@@ -426,7 +529,7 @@ std::string VerdictTone(const RunReport& rep) {
   return "neutral";
 }
 
-std::string ReportGenerator() { return "kneepoint"; }
+std::string ReportGenerator() { return VersionLine(); }
 
 // Who made the page and when (UTC, to the second).
 HtmlPageMeta ReportPageMeta(std::string subtitle) {
@@ -477,6 +580,51 @@ HtmlTable SummaryTable(const RunReport& rep) {
 }
 
 
+// Who, which cell, where, with which instruments and software: everything a
+// filed record needs, from the run's stored record.
+HtmlSection EquipmentSection(const RunReport& rep) {
+  const RunRow& r = rep.run;
+  const EquipmentRow& e = rep.equipment;
+  HtmlSection s;
+  s.title = "Equipment and conditions";
+  HtmlTable id;
+  id.header = {"record", "value"};
+  auto row = [&](const std::string& k, const std::string& v) { id.rows.push_back({TextCell(k), TextCell(OrDash(v))}); };
+  std::string tags;
+  for (const std::string& t : r.tags) tags += (tags.empty() ? "" : ", ") + t;
+  row("run", fmt::format("{} ({})", r.id, OrDash(r.uuid)));
+  row("cell", r.cell);
+  row("cell serial", r.cell_serial);
+  row("cell lot", r.cell_lot);
+  row("cell part number", r.cell_part);
+  row("tags", tags);
+  row("operator", r.operator_name);
+  row("bench", r.bench);
+  row("host", r.host);
+  row("rig", r.rig);
+  row("started (UTC)", r.started_at);
+  row("ended (UTC)", r.ended_at);
+  if (rep.totals.thermometer_tolerance_c) row("thermometer tolerance", fmt::format("±{} degC", *rep.totals.thermometer_tolerance_c));
+  row("software", e.software_version.empty() ? "" : fmt::format("kneepoint {} (commit {})", e.software_version, OrDash(e.software_commit)));
+  s.tables.push_back(id);
+  if (e.instruments.empty()) {
+    s.paragraphs.push_back("No instrument record (a run stored before schema version 5).");
+  } else {
+    HtmlTable it;
+    it.caption = "Instruments (*IDN? reply as received; calibration applied as reading x gain + offset)";
+    it.header = {"instrument", "roles", "manufacturer", "model", "serial", "firmware", "address", "profile", "calibration"};
+    for (const InstrumentRecord& i : e.instruments)
+      it.rows.push_back({TextCell(i.name), TextCell(i.roles), TextCell(OrDash(i.manufacturer)), TextCell(OrDash(i.model)),
+                         TextCell(OrDash(i.serial)), TextCell(OrDash(i.firmware)), TextCell(i.address), TextCell(i.profile),
+                         TextCell(CalibrationText(i))});
+    s.tables.push_back(it);
+  }
+  for (const EventRow& n : rep.notes) s.paragraphs.push_back(fmt::format("Note ({}, t = {:.0f} s): {}", n.wall_at, n.t_s, n.message));
+  if (!e.rig_text.empty()) s.preformatted.push_back({"Rig file as used", e.rig_text});
+  s.preformatted.push_back({"Procedure as run", r.procedure_text});
+  return s;
+}
+
 }  // namespace
 
 std::string RunReportHtml(const RunReport& rep) {
@@ -504,6 +652,7 @@ std::string RunReportHtml(const RunReport& rep) {
   }
   sum.tables.push_back(SummaryTable(rep));
   sections.push_back(sum);
+  sections.push_back(EquipmentSection(rep));
 
   HtmlSection ver;
   ver.title = "Verdict";
@@ -754,7 +903,8 @@ Result<CompareReport> BuildCompareReport(Store& store, const std::vector<int64_t
 
 nlohmann::json CompareReportJson(const CompareReport& c) {
   json runs = json::array();
-  for (const RunSummary& s : c.summaries)
+  for (size_t k = 0; k < c.summaries.size(); ++k) {
+    const RunSummary& s = c.summaries[k];
     runs.push_back({{"label", s.label},
                     {"charge_mAh", s.charge_mah},
                     {"energy_Wh", s.energy_wh},
@@ -766,6 +916,11 @@ nlohmann::json CompareReportJson(const CompareReport& c) {
                     {"resistance_ohm", Optional(s.resistance_ohm)},
                     {"verdict", s.verdict},
                     {"verdict_brief", s.verdict_brief}});
+    if (k < c.runs.size()) {
+      runs.back()["run"] = c.runs[k].run.id;
+      runs.back()["run_record"] = RunRowJson(c.runs[k].run);
+    }
+  }
   json ratios = json::array();
   for (const RatioFigures& r : c.ratios)
     ratios.push_back({{"pulsed", r.pulsed_label},
@@ -773,7 +928,7 @@ nlohmann::json CompareReportJson(const CompareReport& c) {
                       {"basis", r.basis},
                       {"capacity_ratio", r.capacity_ratio},
                       {"energy_ratio", r.energy_ratio}});
-  json j{{"runs", runs}, {"pulsed_vs_continuous", ratios}};
+  json j{{"runs", runs}, {"pulsed_vs_continuous", ratios}, {"schema_version", kReportSchemaVersion}};
   if (c.peukert.fit) {
     const PeukertFit& f = *c.peukert.fit;
     j["peukert"] = {{"exponent_k", f.exponent_k},

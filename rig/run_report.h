@@ -39,13 +39,24 @@ struct RunReport {
   std::optional<double> max_temp_c;
   std::optional<double> abort_t_s;
   std::string abort_reason;
+  EquipmentRow equipment;       // instruments, rig file text, software (schema v5)
+  std::vector<EventRow> notes;  // the run's notes, oldest first
 };
 
 // Version of the `report --json` / `compare --json` layout. 2: schema_version,
 // per-instance step records (number, pass, cycle, method), discharges, cycles,
 // attempts, DC-IR sources and left-out points. Keys of version 1 keep their
-// names and meanings.
-inline constexpr int kReportSchemaVersion = 2;
+// names and meanings. 3: run_record (the run in the one shape every JSON
+// output uses, RunRowJson), equipment, notes; compare --json carries
+// schema_version and each run's run_record; methods (how each figure was
+// obtained, with its source and this run's deviations).
+inline constexpr int kReportSchemaVersion = 3;
+// Version of the run object (RunRowJson) used by `runs --json`, `export
+// --json` ("run") and `report --json` ("run_record"). 2: uuid, bench, host,
+// operator, cell_serial, cell_lot, cell_part, tags, verdict; keys of version
+// 1 (id, cell, chemistry, procedure, rig, outcome, reason, started_at,
+// ended_at, rated_mAh, samples) keep their names and meanings.
+inline constexpr int kRunRecordSchemaVersion = 2;
 
 // How each headline figure was obtained: the method, any deviation from it in
 // this run, and the source (standard, clause, edition). Shown in the report's
@@ -63,9 +74,20 @@ Result<RunReport> BuildRunReport(Store& store, int64_t run_id, const ReportOptio
 // the HTML page is also here, at the JSON pointer named by its cell.
 nlohmann::json RunReportJson(const RunReport& report);
 nlohmann::json RunRowJson(const RunRow& run);
+nlohmann::json EquipmentJson(const EquipmentRow& equipment);
+
+// "pass", "fail" or "not judged", as `runs --verdict` filters: the report's
+// capacity verdict (judged and the capacity criterion met).
+std::string VerdictWord(const RunReport& report);
+// Stores the report's verdict on its run (Store::SetVerdict); nothing for a
+// run still running.
+Status RecordVerdict(Store& store, const RunReport& report);
 
 // Human-readable block printed by `report` and `demo`.
 std::string RunReportText(const RunReport& report);
+// Its traceable-record lines: run UUID, cell serial/lot/part, operator, bench,
+// host, tags, software, instruments with their calibration, notes.
+std::string RunRecordText(const RunReport& report);
 // Per-step figures as CSV (one header row, one row per step).
 std::string RunReportStepsCsv(const RunReport& report);
 // Per-cycle figures as CSV (one header row, one row per cycle; empty cells

@@ -20,6 +20,24 @@ SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : be
   thermometer_ = std::make_unique<ThermometerDriver>(*thermo_session_);
   supply_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.supply(), clock, "inproc:sim-supply"), clock);
   supply_ = std::make_unique<SupplyDriver>(*supply_session_);
+  // The equipment record: each simulated instrument's *IDN? reply, asked of
+  // the device itself (no query goes through the sessions the run counts).
+  struct Dev {
+    const char* name;
+    const char* roles;
+    LineDevice& device;
+  };
+  for (const Dev& d : {Dev{"sim-load", "load", bench_.load()}, Dev{"sim-meter", "meter", bench_.meter()},
+                       Dev{"sim-temp", "thermometer", bench_.thermometer()}, Dev{"sim-supply", "supply", bench_.supply()}}) {
+    InstrumentRecord r;
+    r.name = d.name;
+    r.roles = d.roles;
+    r.address = std::string("inproc:") + d.name;
+    r.profile = "built-in simulator";
+    r.identity = d.device.HandleLine("*IDN?").value_or("");
+    SplitIdentity(r);
+    instruments_.push_back(std::move(r));
+  }
 }
 
 RigRoles SimRig::roles() { RigRoles r;
@@ -29,6 +47,8 @@ RigRoles SimRig::roles() { RigRoles r;
   r.supply = supply_.get();
   r.description = "sim";
   r.load_in_process = true;
+  r.bench = "sim";
+  r.instruments = instruments_;
   return r; }
 
 void SimRig::SetTrace(const ScpiTraceHook& hook) {

@@ -38,6 +38,7 @@ class SimRig {
   std::unique_ptr<MeterDriver> meter_;
   std::unique_ptr<ThermometerDriver> thermometer_;
   std::unique_ptr<SupplyDriver> supply_;
+  std::vector<InstrumentRecord> instruments_;  // asked once, at construction
 };
 
 // Which simulated cell a run on the built-in simulator uses: a preset (or a

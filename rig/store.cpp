@@ -1,15 +1,20 @@
 #include "rig/store.h"
 
 #include <fmt/format.h>
+
 #include <signal.h>
 #include <unistd.h>
 
 #include <algorithm>
+#include <cctype>
 #include <chrono>
 #include <cerrno>
 #include <ctime>
 #include <fstream>
 #include <sstream>
+
+#include "rig/uuid.h"
+#include "rig/version.h"
 
 namespace kp {
 namespace {
@@ -229,8 +234,105 @@ Status MigrateTo4(sql::Db& db) {
   return flush();
 }
 
+// v5: the traceable record. Each run gets a random UUID (drawn here for the
+// runs already stored), the bench, host and operator, the cell's serial, lot
+// and part number, tags (run_tags), the capacity verdict recorded at its end,
+// the rig file's text, the software version and commit, and one row per
+// instrument (instruments: *IDN?, profile, calibration). heartbeat_at keeps
+// its meaning (Unix seconds, fractional); heartbeat_utc shows it as ISO 8601.
+// Views for readers outside the program: run_summary, step_summary,
+// cycle_summary (documented in rig/DATABASE.md). The database is marked as
+// Kneepoint's with PRAGMA application_id.
+constexpr const char* kViewsV5 = R"sql(
+    CREATE VIEW run_summary AS
+      SELECT r.id AS run, r.uuid, c.name AS cell, c.chemistry, r.cell_serial, r.cell_lot, r.cell_part,
+        (SELECT group_concat(tag, ',') FROM (SELECT tag FROM run_tags t WHERE t.run_id = r.id ORDER BY tag)) AS tags,
+        r.operator, r.bench, r.host, r.procedure_name AS procedure, r.rig, r.started_at, r.ended_at, r.outcome, r.reason,
+        r.rated_mah, r.delivered_mah, r.delivered_wh,
+        CASE WHEN r.delivered_mah IS NOT NULL AND r.rated_mah > 0 THEN 100.0 * r.delivered_mah / r.rated_mah END
+          AS delivered_pct_of_rated,
+        r.charged_mah, r.net_mah, r.net_wh, r.progress_t_s AS run_time_s, r.sample_count AS samples, r.resumes,
+        r.verdict, r.verdict_pct_of_rated, r.verdict_text, r.software_version, r.software_commit
+      FROM runs r JOIN cells c ON c.id = r.cell_id;
+    CREATE VIEW step_summary AS
+      SELECT s.run_id AS run, s.seq, s.idx + 1 AS step_number, s.kind, s.label, s.mode, s.level,
+        CASE s.mode WHEN 'current' THEN 'A' WHEN 'charge' THEN 'A' WHEN 'power' THEN 'W' WHEN 'resistance' THEN 'Ohm' END
+          AS level_unit,
+        s.loop_pass AS pass, s.cycle, s.started_s, s.ended_s, s.ended_s - s.started_s AS duration_s, s.held_s,
+        s.end_reason, s.charge_mah, s.energy_wh,
+        CASE WHEN s.ended_s > s.started_s THEN s.charge_mah * 3.6 / (s.ended_s - s.started_s) END AS mean_current_a,
+        CASE WHEN s.ended_s > s.started_s THEN s.voltage_time_vs / (s.ended_s - s.started_s) END AS mean_voltage_v,
+        s.record
+      FROM steps s;
+    CREATE VIEW cycle_summary AS
+      SELECT run, cycle, steps, started_s, ended_s, charge_in_mah, charge_in_wh, discharged_mah, discharged_wh,
+        CASE WHEN charge_in_mah > 0 AND discharged_mah > 0 THEN discharged_mah / charge_in_mah END AS coulombic_efficiency,
+        CASE WHEN charge_in_wh > 0 AND discharged_wh > 0 THEN discharged_wh / charge_in_wh END AS energy_efficiency
+      FROM (SELECT run_id AS run, cycle, COUNT(*) AS steps, MIN(started_s) AS started_s, MAX(ended_s) AS ended_s,
+              SUM(CASE WHEN kind = 'charge' AND charge_mah < 0 THEN -charge_mah ELSE 0 END) AS charge_in_mah,
+              SUM(CASE WHEN kind = 'charge' AND energy_wh < 0 THEN -energy_wh ELSE 0 END) AS charge_in_wh,
+              SUM(CASE WHEN kind <> 'charge' AND charge_mah > 0 THEN charge_mah ELSE 0 END) AS discharged_mah,
+              SUM(CASE WHEN kind <> 'charge' AND energy_wh > 0 THEN energy_wh ELSE 0 END) AS discharged_wh
+            FROM steps GROUP BY run_id, cycle);
+)sql";
+
+Status MigrateTo5(sql::Db& db) {
+  KP_RETURN_IF_ERROR(db.Exec(R"sql(
+    ALTER TABLE runs ADD COLUMN uuid TEXT;
+    ALTER TABLE runs ADD COLUMN bench TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN host TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN operator TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN cell_serial TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN cell_lot TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN cell_part TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN rig_text TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN software_version TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN software_commit TEXT NOT NULL DEFAULT '';
+    ALTER TABLE runs ADD COLUMN verdict TEXT CHECK(verdict IN ('pass','fail','not judged'));
+    ALTER TABLE runs ADD COLUMN verdict_text TEXT;
+    ALTER TABLE runs ADD COLUMN verdict_pct_of_rated REAL;
+    ALTER TABLE runs ADD COLUMN heartbeat_utc TEXT GENERATED ALWAYS AS
+      (CASE WHEN heartbeat_at IS NULL THEN NULL ELSE strftime('%Y-%m-%dT%H:%M:%fZ', heartbeat_at, 'unixepoch') END) VIRTUAL;
+    UPDATE runs SET host = COALESCE(runner_host, '');
+    CREATE INDEX runs_by_started ON runs(started_at);
+    CREATE TABLE run_tags(
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      tag TEXT NOT NULL,
+      PRIMARY KEY(run_id, tag)) WITHOUT ROWID;
+    CREATE INDEX run_tags_by_tag ON run_tags(tag);
+    CREATE TABLE instruments(
+      run_id INTEGER NOT NULL REFERENCES runs(id),
+      seq INTEGER NOT NULL,
+      name TEXT NOT NULL, roles TEXT NOT NULL, address TEXT NOT NULL, profile TEXT NOT NULL,
+      identity TEXT NOT NULL, manufacturer TEXT NOT NULL, model TEXT NOT NULL, serial TEXT NOT NULL, firmware TEXT NOT NULL,
+      voltage_gain REAL NOT NULL, voltage_offset_v REAL NOT NULL,
+      current_gain REAL NOT NULL, current_offset_a REAL NOT NULL,
+      temperature_gain REAL NOT NULL, temperature_offset_c REAL NOT NULL,
+      calibrated_on TEXT NOT NULL DEFAULT '',
+      PRIMARY KEY(run_id, seq)) WITHOUT ROWID;
+  )sql"));
+  KP_RETURN_IF_ERROR(db.Exec(kViewsV5));
+  // Runs stored before v5 get their UUID now: unique from here on, whatever
+  // databases they are later copied into.
+  std::vector<int64_t> ids;
+  {
+    KP_ASSIGN_OR_RETURN(auto q, db.Prepare("SELECT id FROM runs WHERE uuid IS NULL ORDER BY id"));
+    for (;;) {
+      KP_ASSIGN_OR_RETURN(bool row, q.Step());
+      if (!row) break;
+      ids.push_back(q.Int(0));
+    }
+  }
+  KP_ASSIGN_OR_RETURN(auto up, db.Prepare("UPDATE runs SET uuid=?1 WHERE id=?2"));
+  for (int64_t id : ids) {
+    KP_ASSIGN_OR_RETURN(std::string uuid, NewUuidV4());
+    KP_RETURN_IF_ERROR(up.Bind(1, uuid).Bind(2, id).Run());
+  }
+  return db.Exec(fmt::format("CREATE UNIQUE INDEX runs_by_uuid ON runs(uuid); PRAGMA application_id={};", kApplicationId));
+}
+
 using Migration = Status (*)(sql::Db&);
-constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3, &MigrateTo4};
+constexpr Migration kMigrations[] = {&MigrateTo1, &MigrateTo2, &MigrateTo3, &MigrateTo4, &MigrateTo5};
 static_assert(std::size(kMigrations) == kSchemaVersion);
 
 // Heartbeats are calendar time (they must compare across processes), with
@@ -314,17 +416,39 @@ Store::~Store() {
 Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall, Options options) {
   KP_ASSIGN_OR_RETURN(auto db, sql::Db::Open(path, options.create && !options.read_only, options.read_only, options.vfs));
   std::unique_ptr<Store> store(new Store(std::move(db), wall, options));
+  KP_ASSIGN_OR_RETURN(int app, store->ApplicationId());
+  if (app != 0 && app != kApplicationId)
+    return InvalidInput(fmt::format("{} is not a kneepoint database (PRAGMA application_id is 0x{:08x}, kneepoint's is 0x{:08x})", path,
+                                    static_cast<uint32_t>(app), static_cast<uint32_t>(kApplicationId)));
+  KP_ASSIGN_OR_RETURN(int v, store->SchemaVersion());
+  if (v > kSchemaVersion) {
+    if (!options.read_only_if_newer)
+      return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
+                                      path, v, kSchemaVersion));
+    if (!options.read_only) {
+      store.reset();
+      Options ro = options;
+      ro.read_only = true;
+      return Open(path, wall, ro);
+    }
+    store->newer_schema_ = v;
+    return store;
+  }
   if (!options.read_only) {
     KP_RETURN_IF_ERROR(store->db_->Exec("PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")
                            .WithContext("setting up " + path));
     KP_RETURN_IF_ERROR(store->Migrate());
-  } else {
-    KP_ASSIGN_OR_RETURN(int v, store->SchemaVersion());
-    if (v != kSchemaVersion)
-      return InvalidInput(fmt::format("{}: schema version {} (this kneepoint reads {}); open it read-write once to upgrade", path, v,
-                                      kSchemaVersion));
+  } else if (v != kSchemaVersion) {
+    return InvalidInput(fmt::format("{}: schema version {} (this kneepoint reads {}); open it read-write once to upgrade", path, v,
+                                    kSchemaVersion));
   }
   return store;
+}
+
+Result<int> Store::ApplicationId() {
+  KP_ASSIGN_OR_RETURN(auto st, db_->Prepare("PRAGMA application_id"));
+  KP_ASSIGN_OR_RETURN(bool row, st.Step());
+  return row ? static_cast<int>(st.Int(0)) : 0;
 }
 
 Result<int> Store::SchemaVersion() {
@@ -473,6 +597,7 @@ Result<int64_t> Store::BeginRunWith(const NewRun& run, const std::optional<RunPr
                          .Run());
   int64_t id = sqlite3_last_insert_rowid(db_->raw());
   KP_RETURN_IF_ERROR(ClaimRunner(id));
+  KP_RETURN_IF_ERROR(WriteRecord(id, run));
   seq_run_ = id;
   next_seq_ = 0;
   committed_seq_ = 0;
@@ -485,6 +610,41 @@ Result<int64_t> Store::BeginRunWith(const NewRun& run, const std::optional<RunPr
   block_dirty_ = false;
   KP_RETURN_IF_ERROR(Commit());
   return id;
+}
+
+// The traceable record of a new run, in its BeginRun transaction.
+Status Store::WriteRecord(int64_t id, const NewRun& run) {
+  std::string uuid = run.uuid;
+  if (uuid.empty()) {
+    KP_ASSIGN_OR_RETURN(uuid, NewUuidV4());
+  } else if (!LooksLikeUuid(uuid)) {
+    return InvalidInput(fmt::format("'{}' is not a UUID", uuid));
+  }
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET uuid=?1, bench=?2, host=?3, operator=?4, cell_serial=?5, cell_lot=?6,"
+                                            " cell_part=?7, rig_text=?8, software_version=?9, software_commit=?10 WHERE id=?11"));
+  up.Bind(1, uuid).Bind(2, run.bench).Bind(3, run.host.empty() ? HostName() : run.host).Bind(4, run.operator_name);
+  up.Bind(5, run.cell_serial).Bind(6, run.cell_lot).Bind(7, run.cell_part).Bind(8, run.rig_text);
+  up.Bind(9, run.software_version.empty() ? std::string(SoftwareVersion()) : run.software_version);
+  KP_RETURN_IF_ERROR(up.Bind(10, run.software_commit.empty() ? BuildCommit() : run.software_commit).Bind(11, id).Run());
+  if (!run.tags.empty()) {
+    KP_ASSIGN_OR_RETURN(auto tag, db_->Prepare("INSERT OR IGNORE INTO run_tags(run_id, tag) VALUES(?1,?2)"));
+    for (const std::string& t : run.tags) KP_RETURN_IF_ERROR(tag.Bind(1, id).Bind(2, t).Run());
+  }
+  if (!run.instruments.empty()) {
+    KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO instruments VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18)"));
+    int64_t seq = 0;
+    for (const InstrumentRecord& r : run.instruments) {
+      ins.Bind(1, id).Bind(2, seq++).Bind(3, r.name).Bind(4, r.roles).Bind(5, r.address).Bind(6, r.profile).Bind(7, r.identity);
+      ins.Bind(8, r.manufacturer).Bind(9, r.model).Bind(10, r.serial).Bind(11, r.firmware);
+      ins.Bind(12, r.voltage_gain).Bind(13, r.voltage_offset_v).Bind(14, r.current_gain).Bind(15, r.current_offset_a);
+      KP_RETURN_IF_ERROR(ins.Bind(16, r.temperature_gain).Bind(17, r.temperature_offset_c).Bind(18, r.calibrated_on).Run());
+    }
+  }
+  if (!run.note.empty()) {
+    KP_ASSIGN_OR_RETURN(auto ev, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at) VALUES(?1,0,'note',?2,?3)"));
+    KP_RETURN_IF_ERROR(ev.Bind(1, id).Bind(2, run.note).Bind(3, wall_.WallTimeIso()).Run());
+  }
+  return Status::Ok();
 }
 
 Status Store::ClaimRunner(int64_t run_id) {
@@ -758,6 +918,29 @@ Status Store::FinishRun(int64_t run_id, Outcome outcome, std::string_view reason
   return st;
 }
 
+Status Store::SetVerdict(int64_t run_id, std::string_view verdict, std::string_view text, std::optional<double> percent) {
+  if (verdict != "pass" && verdict != "fail" && verdict != "not judged")
+    return InvalidInput(fmt::format("unknown verdict '{}': pass, fail or not judged", verdict));
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  KP_ASSIGN_OR_RETURN(auto up, db_->Prepare("UPDATE runs SET verdict=?1, verdict_text=?2, verdict_pct_of_rated=?3 WHERE id=?4"));
+  up.Bind(1, verdict).Bind(2, text).Bind(4, run_id);
+  if (percent) up.Bind(3, *percent);
+  KP_RETURN_IF_ERROR(up.Run());
+  return Commit();
+}
+
+Status Store::AddNote(int64_t run_id, std::string_view text) {
+  if (text.empty()) return InvalidInput("an empty note");
+  KP_RETURN_IF_ERROR(GetRun(run_id).status());
+  KP_RETURN_IF_ERROR(EnsureBatch());
+  // At the run time the run has reached: the latest committed sample of a
+  // live run, the end of a finished one.
+  KP_ASSIGN_OR_RETURN(auto ins, db_->Prepare("INSERT INTO events(run_id, t_s, kind, message, wall_at)"
+                                             " SELECT id, COALESCE(progress_t_s, 0), 'note', ?1, ?2 FROM runs WHERE id=?3"));
+  KP_RETURN_IF_ERROR(ins.Bind(1, text).Bind(2, wall_.WallTimeIso()).Bind(3, run_id).Run());
+  return Commit();
+}
+
 Result<int64_t> Store::AddRequest(int64_t run_id, std::string_view action, std::string_view requested_by) {
   if (action != "abort" && action != "pause" && action != "continue")
     return InvalidInput(fmt::format("unknown request '{}': use abort, pause or continue", action));
@@ -845,7 +1028,10 @@ Result<int> Store::ReconcileOrphans() {
 namespace {
 constexpr const char* kRunColumns =
     "SELECT r.id, c.name, c.chemistry, r.rated_mah, r.procedure_name, r.procedure_text, r.rig, r.started_at,"
-    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count, r.delivered_mah, r.delivered_wh, r.net_mah"
+    " COALESCE(r.ended_at,''), r.outcome, r.reason, r.sample_count, r.delivered_mah, r.delivered_wh, r.net_mah,"
+    " COALESCE(r.uuid,''), r.bench, r.host, r.operator, r.cell_serial, r.cell_lot, r.cell_part,"
+    " (SELECT group_concat(tag, char(31)) FROM (SELECT tag FROM run_tags t WHERE t.run_id=r.id ORDER BY tag)),"
+    " COALESCE(r.verdict,'')"
     " FROM runs r JOIN cells c ON c.id=r.cell_id";
 
 // Steps a kept statement to its end, reading each row into `out`; the
@@ -882,7 +1068,47 @@ RunRow ReadRun(const sql::Stmt& q) {
   if (!q.IsNull(12)) r.delivered_mah = q.Real(12);
   if (!q.IsNull(13)) r.delivered_wh = q.Real(13);
   r.net_mah = q.Real(14);
+  r.uuid = q.Text(15);
+  r.bench = q.Text(16);
+  r.host = q.Text(17);
+  r.operator_name = q.Text(18);
+  r.cell_serial = q.Text(19);
+  r.cell_lot = q.Text(20);
+  r.cell_part = q.Text(21);
+  if (!q.IsNull(22)) {
+    const std::string all = q.Text(22);
+    size_t b = 0;
+    for (;;) {
+      size_t e = all.find('\x1f', b);
+      r.tags.push_back(all.substr(b, e == std::string::npos ? std::string::npos : e - b));
+      if (e == std::string::npos) break;
+      b = e + 1;
+    }
+  }
+  r.verdict = q.Text(23);
   return r;
+}
+
+// A user's field pattern as a LIKE pattern: `*` and `?` are the wildcards,
+// LIKE's own `%` and `_` (and the escape) are taken literally.
+std::string LikePattern(std::string_view glob) {
+  std::string out;
+  for (char c : glob) {
+    if (c == '*') out += '%';
+    else if (c == '?') out += '_';
+    else if (c == '%' || c == '_' || c == '\\') out += '\\', out += c;
+    else out += c;
+  }
+  return out;
+}
+
+std::string LikeSubstring(std::string_view text) {
+  std::string out = "%";
+  for (char c : text) {
+    if (c == '%' || c == '_' || c == '\\') out += '\\';
+    out += c;
+  }
+  return out + "%";
 }
 }  // namespace
 
@@ -898,6 +1124,117 @@ Result<std::vector<RunRow>> Store::ListRuns() {
   out.reserve(listed_runs_ + 1);
   KP_RETURN_IF_ERROR(CollectRows(list_runs_, out, ReadRun));
   listed_runs_ = out.size();
+  return out;
+}
+
+bool RunFilter::empty() const {
+  return cell.empty() && serial.empty() && lot.empty() && part.empty() && tag.empty() && operator_name.empty() &&
+         procedure.empty() && bench.empty() && !outcome && verdict.empty() && since.empty() && until.empty() && text.empty();
+}
+
+// Built per call with every value bound (never spliced into the SQL).
+Result<std::vector<RunRow>> Store::FindRuns(const RunFilter& f) {
+  if (f.empty()) return ListRuns();
+  std::string where;
+  std::vector<std::string> values;
+  auto add = [&](const std::string& clause, std::string value) {
+    where += where.empty() ? " WHERE " : " AND ";
+    values.push_back(std::move(value));
+    std::string c = clause;
+    for (size_t p = c.find('#'); p != std::string::npos; p = c.find('#')) c.replace(p, 1, "?" + std::to_string(values.size()));
+    where += c;
+  };
+  const char* kLike = " LIKE # ESCAPE '\\'";
+  if (!f.cell.empty()) add(std::string("c.name") + kLike, LikePattern(f.cell));
+  if (!f.serial.empty()) add(std::string("r.cell_serial") + kLike, LikePattern(f.serial));
+  if (!f.lot.empty()) add(std::string("r.cell_lot") + kLike, LikePattern(f.lot));
+  if (!f.part.empty()) add(std::string("r.cell_part") + kLike, LikePattern(f.part));
+  if (!f.operator_name.empty()) add(std::string("r.operator") + kLike, LikePattern(f.operator_name));
+  if (!f.procedure.empty()) add(std::string("r.procedure_name") + kLike, LikePattern(f.procedure));
+  if (!f.bench.empty()) add(std::string("r.bench") + kLike, LikePattern(f.bench));
+  if (!f.tag.empty())
+    add(std::string("EXISTS (SELECT 1 FROM run_tags t WHERE t.run_id=r.id AND t.tag") + kLike + ")", LikePattern(f.tag));
+  if (f.outcome) add("r.outcome = #", OutcomeName(*f.outcome));
+  if (!f.verdict.empty()) add("r.verdict = #", f.verdict);
+  if (!f.since.empty()) add("r.started_at >= #", f.since);
+  // Inclusive: "2026-03-01" keeps every run started that day ('~' sorts after
+  // every character of an ISO 8601 time).
+  if (!f.until.empty()) add("r.started_at <= #", f.until + "~");
+  // Every `#` of a clause is its one value.
+  if (!f.text.empty()) {
+    add("(c.name LIKE # ESCAPE '\\' OR r.cell_serial LIKE # ESCAPE '\\' OR r.cell_lot LIKE # ESCAPE '\\'"
+        " OR r.cell_part LIKE # ESCAPE '\\' OR r.operator LIKE # ESCAPE '\\' OR r.bench LIKE # ESCAPE '\\'"
+        " OR r.procedure_name LIKE # ESCAPE '\\' OR r.reason LIKE # ESCAPE '\\' OR r.uuid LIKE # ESCAPE '\\'"
+        " OR EXISTS (SELECT 1 FROM run_tags t WHERE t.run_id=r.id AND t.tag LIKE # ESCAPE '\\')"
+        " OR EXISTS (SELECT 1 FROM events e WHERE e.run_id=r.id AND e.kind='note' AND e.message LIKE # ESCAPE '\\'))",
+        LikeSubstring(f.text));
+  }
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare(std::string(kRunColumns) + where + " ORDER BY r.id"));
+  for (size_t i = 0; i < values.size(); ++i) q.Bind(static_cast<int>(i + 1), values[i]);
+  std::vector<RunRow> out;
+  KP_RETURN_IF_ERROR(CollectRows(q, out, ReadRun));
+  return out;
+}
+
+Result<int64_t> Store::ResolveRun(std::string_view ref) {
+  if (ref.empty()) return InvalidInput("no run given");
+  if (ref.find_first_not_of("0123456789") == std::string_view::npos && ref.size() <= 18) {
+    const int64_t id = std::stoll(std::string(ref));
+    KP_RETURN_IF_ERROR(GetRun(id).status());
+    return id;
+  }
+  std::string lower;
+  for (char c : ref) lower += static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  if (lower.size() < 8 || lower.size() > 36 || lower.find_first_not_of("0123456789abcdef-") != std::string::npos)
+    return InvalidInput(fmt::format("'{}' is neither a run number nor a run UUID (or a prefix of 8 or more of its characters)", ref));
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT id FROM runs WHERE substr(uuid, 1, ?2) = ?1 ORDER BY id LIMIT 2"));
+  q.Bind(1, lower).Bind(2, static_cast<int64_t>(lower.size()));
+  std::vector<int64_t> ids;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    ids.push_back(q.Int(0));
+  }
+  if (ids.empty()) return NotFound(fmt::format("no run with UUID {} in {}", ref, db_->path()));
+  if (ids.size() > 1) return InvalidInput(fmt::format("'{}' is the start of more than one run's UUID: give more of it", ref));
+  return ids[0];
+}
+
+Result<EquipmentRow> Store::LoadEquipment(int64_t run_id) {
+  EquipmentRow out;
+  KP_ASSIGN_OR_RETURN(auto r, db_->Prepare("SELECT rig_text, software_version, software_commit FROM runs WHERE id=?1"));
+  r.Bind(1, run_id);
+  KP_ASSIGN_OR_RETURN(bool found, r.Step());
+  if (!found) return NotFound(fmt::format("no run {} in {}", run_id, db_->path()));
+  out.rig_text = r.Text(0);
+  out.software_version = r.Text(1);
+  out.software_commit = r.Text(2);
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT name, roles, address, profile, identity, manufacturer, model, serial, firmware,"
+                                           " voltage_gain, voltage_offset_v, current_gain, current_offset_a, temperature_gain,"
+                                           " temperature_offset_c, calibrated_on FROM instruments WHERE run_id=?1 ORDER BY seq"));
+  q.Bind(1, run_id);
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    InstrumentRecord i;
+    i.name = q.Text(0), i.roles = q.Text(1), i.address = q.Text(2), i.profile = q.Text(3), i.identity = q.Text(4);
+    i.manufacturer = q.Text(5), i.model = q.Text(6), i.serial = q.Text(7), i.firmware = q.Text(8);
+    i.voltage_gain = q.Real(9), i.voltage_offset_v = q.Real(10), i.current_gain = q.Real(11), i.current_offset_a = q.Real(12);
+    i.temperature_gain = q.Real(13), i.temperature_offset_c = q.Real(14), i.calibrated_on = q.Text(15);
+    out.instruments.push_back(std::move(i));
+  }
+  return out;
+}
+
+Result<std::vector<EventRow>> Store::LoadNotes(int64_t run_id) {
+  KP_ASSIGN_OR_RETURN(auto q, db_->Prepare("SELECT t_s, kind, message, wall_at FROM events WHERE run_id=?1 AND kind='note' ORDER BY id"));
+  q.Bind(1, run_id);
+  std::vector<EventRow> out;
+  for (;;) {
+    KP_ASSIGN_OR_RETURN(bool row, q.Step());
+    if (!row) break;
+    out.push_back({q.Real(0), q.Text(1), q.Text(2), q.Text(3)});
+  }
   return out;
 }
 

@@ -21,12 +21,16 @@
 #include "analysis/sample.h"
 #include "drivers/clock.h"
 #include "drivers/status.h"
+#include "rig/equipment.h"
 #include "rig/sample_summary.h"
 #include "rig/sqlite.h"
 
 namespace kp {
 
-inline constexpr int kSchemaVersion = 4;
+inline constexpr int kSchemaVersion = 5;
+// PRAGMA application_id of every Kneepoint database (set from schema v5 on):
+// the bytes "KnPt". A database with another non-zero id is refused.
+inline constexpr int32_t kApplicationId = 0x4B6E5074;
 // Samples per stored block summary (sample_blocks, schema v4): a block's
 // samples are seq / kSamplesPerBlock.
 inline constexpr int64_t kSamplesPerBlock = 128;
@@ -43,6 +47,18 @@ struct NewRun {
   std::string procedure_text;
   std::string rig;  // rig description ("sim", rig file path...)
   std::optional<double> thermometer_tolerance_c{};  // ± degC, stored with the run
+  // The traceable record (schema v5). Everything optional: empty text is stored
+  // as empty.
+  std::string uuid{};           // empty: a new random (v4) UUID is drawn
+  std::string bench{};          // bench name (rig file [bench] name, or `run --bench`)
+  std::string host{};           // empty: this machine's host name
+  std::string operator_name{};  // who ran it
+  std::string cell_serial{}, cell_lot{}, cell_part{};  // the cell's serial, lot and manufacturer part number
+  std::vector<std::string> tags{};
+  std::string note{};           // free text, recorded as a `note` event at t = 0
+  std::string rig_text{};       // the rig file's text (empty for the built-in simulator)
+  std::vector<InstrumentRecord> instruments{};
+  std::string software_version{}, software_commit{};  // empty: this binary's (rig/version.h)
 };
 
 struct RunRow {
@@ -62,6 +78,36 @@ struct RunRow {
   // runs), and the net charge of the whole record.
   std::optional<double> delivered_mah, delivered_wh;
   double net_mah = 0.0;
+  // The traceable record (schema v5; runs stored before it have a UUID drawn
+  // when the database was migrated and empty text elsewhere).
+  std::string uuid, bench, host, operator_name, cell_serial, cell_lot, cell_part;
+  std::vector<std::string> tags;  // sorted
+  // The capacity verdict recorded when the run ended: "pass", "fail", "not
+  // judged"; empty when none was recorded (runs before v5, a live run).
+  std::string verdict;
+};
+
+// What a run was made with (schema v5): instruments, the rig file's text, the
+// software. Empty for runs recorded before v5.
+struct EquipmentRow {
+  std::vector<InstrumentRecord> instruments;
+  std::string rig_text;
+  std::string software_version, software_commit;
+};
+
+// `kneepoint runs` filters. Text filters are case-insensitive (ASCII) and
+// match the whole field, with `*` for any run of characters and `?` for one;
+// every filter given must hold.
+struct RunFilter {
+  std::string cell, serial, lot, part, tag, operator_name, procedure, bench;
+  std::optional<Outcome> outcome;
+  std::string verdict;  // "pass", "fail" or "not judged"
+  // started_at bounds, ISO 8601 (a date or a date and time, UTC), both inclusive.
+  std::string since, until;
+  // Substring searched (case-insensitive) in the cell name, serial, lot, part,
+  // tags, operator, bench, procedure name, outcome reason, UUID and notes.
+  std::string text;
+  bool empty() const;
 };
 
 // Where a run stands, written in the same transaction as the samples it
@@ -174,6 +220,9 @@ class Store {
     bool create = true;
     bool read_only = false;
     std::string vfs;  // SQLite VFS name; empty = default (tests inject faults with a wrapper)
+    // A database with a newer schema than this binary's is opened read-only
+    // (newer_schema() says so) instead of refused. Readers set it; writers never.
+    bool read_only_if_newer = false;
   };
   // Opens or creates `path`, migrating an older schema in a transaction;
   // refuses a newer schema. `wall` times the batch commits.
@@ -222,6 +271,13 @@ class Store {
   // Events commit the open batch with them.
   Status AddEvent(int64_t run_id, double t_s, std::string_view kind, std::string_view message);
   Status FinishRun(int64_t run_id, Outcome outcome, std::string_view reason);
+  // Records the capacity verdict of a finished run (what `runs --verdict`
+  // filters on): `verdict` "pass", "fail" or "not judged", its text and the
+  // percentage of the rated capacity it judged (empty when not judged).
+  Status SetVerdict(int64_t run_id, std::string_view verdict, std::string_view text, std::optional<double> percent_of_rated);
+  // A free-text note on any run, live or finished, from any process: an
+  // event of kind `note` at the run's latest committed run time, committed at once.
+  Status AddNote(int64_t run_id, std::string_view text);
   Status Commit();
   Status MaybeCommit();
 
@@ -239,6 +295,14 @@ class Store {
   Result<int> ReconcileOrphans();
   Result<std::vector<RunRow>> ListRuns();
   Result<RunRow> GetRun(int64_t run_id);
+  // The runs that pass every filter given, in id order.
+  Result<std::vector<RunRow>> FindRuns(const RunFilter& filter);
+  // A run named by its number ("12") or its UUID (or a unique prefix of at
+  // least 8 characters of it).
+  Result<int64_t> ResolveRun(std::string_view number_or_uuid);
+  Result<EquipmentRow> LoadEquipment(int64_t run_id);
+  // The run's notes (events of kind `note`), oldest first.
+  Result<std::vector<EventRow>> LoadNotes(int64_t run_id);
   Result<std::vector<Sample>> LoadSamples(int64_t run_id);
   // Streams samples in order without holding them all in memory.
   Status ForEachSample(int64_t run_id, const std::function<Status(const Sample&)>& fn);
@@ -266,12 +330,17 @@ class Store {
   Result<std::vector<Sample>> LatestSamples(int64_t run_id, int n);
 
   Result<int> SchemaVersion();
+  Result<int> ApplicationId();
+  // Non-zero when the database's schema is newer than this binary's: it was
+  // opened read-only (Options::read_only_if_newer) and holds that version.
+  int newer_schema() const { return newer_schema_; }
   Result<std::string> JournalMode();
   sql::Db& db() { return *db_; }
 
  private:
   Store(std::unique_ptr<sql::Db> db, Clock& wall, Options options);
   Status Migrate();
+  Status WriteRecord(int64_t run_id, const NewRun& run);
   Result<int64_t> BeginRunWith(const NewRun& run, const std::optional<RunProgress>& initial);
   Status EnsureBatch();
   // Staged samples go into the open transaction (opening it): at each
@@ -320,6 +389,7 @@ class Store {
   sql::Stmt list_runs_;
   bool has_get_run_ = false;
   sql::Stmt get_run_;
+  int newer_schema_ = 0;
 };
 
 }  // namespace kp

@@ -221,7 +221,7 @@ void Panel::RunsList() {
     focus_filter_ = false;
   }
   ImGui::SetNextItemWidth(-1);
-  ImGui::InputTextWithHint("##filter", "filter: cell, state, procedure, pass…  (Ctrl+F)", filter_, sizeof(filter_));
+  ImGui::InputTextWithHint("##filter", "filter: cell, serial, lot, tag, operator, state, pass…  (Ctrl+F)", filter_, sizeof(filter_));
   // Short columns fit their widest entry (and their header); cell and
   // procedure share what is left, cut with "…" and shown whole on hover.
   ImGuiTableFlags flags = ImGuiTableFlags_RowBg | ImGuiTableFlags_ScrollY | ImGuiTableFlags_BordersInnerV |
@@ -402,6 +402,21 @@ void Panel::Headline(const RunData& d, const RunStatus& status) {
   }
 }
 
+// A note for the selected run (live or finished), stored as a timestamped
+// `note` event through the feed's worker, like `kneepoint note`.
+void Panel::NoteField(const RunData& d) {
+  ImGui::SetNextItemWidth(ImGui::GetFontSize() * 28);
+  const bool enter = ImGui::InputTextWithHint("##run-note", "note for this run (serial checked, probe re-taped…)", run_note_,
+                                              sizeof(run_note_), ImGuiInputTextFlags_EnterReturnsTrue);
+  ImGui::SameLine();
+  const bool click = ImGui::Button("Add note");
+  std::string text = run_note_;
+  if ((enter || click) && text.find_first_not_of(" \t") != std::string::npos) {
+    feed_.AddNote(d.row.id, text);
+    run_note_[0] = '\0';
+  }
+}
+
 void Panel::ControlButtons(const RunData& d, const RunStatus& status) {
   if (!status.can_abort) return;  // the run has ended: nothing to act on
   // Only the actions that apply: pause a running run, continue a paused one;
@@ -523,6 +538,7 @@ void Panel::LiveView() {
   const RunStatus status = StatusOf(d.row, d.events);
   Headline(d, status);
   ControlButtons(d, status);
+  NoteField(d);
 
   Range data_x = d.DataX();
   // Raw samples when the view shows fewer block summaries than pixels,

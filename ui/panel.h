@@ -80,6 +80,7 @@ class Panel {
   void ControlButtons(const RunData& d, const RunStatus& status);
   void CycleCapacityPlot(const std::vector<const RunData*>& runs, const std::vector<std::string>& labels, float height);
   PlotResult Plot(const char* id, const char* name, const PlotSpec& spec, XView& view, ImVec2 size);
+  void NoteField(const RunData& d);
   void SetTheme(bool dark);
   // True when `d`'s raw window covers `x` and the overview is coarser than
   // `width_px` pixel columns there; asks the feed for that window otherwise.
@@ -103,6 +104,7 @@ class Panel {
   std::optional<DrawnBadge> badge_;
   std::map<int64_t, std::pair<int64_t, int64_t>> asked_windows_;  // run -> seq range last asked
   char filter_[128] = "";
+  char run_note_[512] = "";
   bool focus_filter_ = false;
   bool open_start_ = false;
   bool open_abort_ = false;

@@ -314,6 +314,12 @@ void RunFeed::Request(int64_t run_id, const std::string& action) {
   wake_ = true;
 }
 
+void RunFeed::AddNote(int64_t run_id, const std::string& text) {
+  std::lock_guard<std::mutex> lock(mu_);
+  run_notes_.emplace_back(run_id, text);
+  wake_ = true;
+}
+
 void RunFeed::FetchWindow(int64_t run_id, int64_t first_seq, int64_t end_seq) {
   std::lock_guard<std::mutex> lock(mu_);
   window_asks_[run_id] = {first_seq, end_seq};
@@ -449,7 +455,7 @@ Status RunFeed::ReadBlocks(Store& store, const RunRow& run, BlockCursor& cursor,
 
 Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled) {
   std::set<int64_t> watch;
-  std::vector<std::pair<int64_t, std::string>> requests;
+  std::vector<std::pair<int64_t, std::string>> requests, run_notes;
   std::map<int64_t, std::pair<int64_t, int64_t>> window_asks;
   // Watched runs with max_pending_blocks summaries waiting for the UI: read
   // no more of them until they are taken (bounds the memory a slow UI can
@@ -459,6 +465,7 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
     std::lock_guard<std::mutex> lock(mu_);
     watch = watch_;
     requests.swap(requests_);
+    run_notes.swap(run_notes_);
     window_asks.swap(window_asks_);
     for (const auto& [id, p] : pending_)
       if (p.blocks.size() >= options_.max_pending_blocks) still_pending.insert(id);
@@ -468,6 +475,13 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
     std::lock_guard<std::mutex> lock(mu_);
     notes_.push_back(r.ok() ? fmt::format("{} requested for run {} (request {})", action, run_id, *r)
                             : fmt::format("{} request for run {} failed: {}", action, run_id, r.status().message()));
+    *news = true;
+  }
+  for (auto& [run_id, text] : run_notes) {
+    Status st = store.AddNote(run_id, text);
+    std::lock_guard<std::mutex> lock(mu_);
+    notes_.push_back(st.ok() ? fmt::format("note added to run {}", run_id)
+                             : fmt::format("note for run {} failed: {}", run_id, st.message()));
     *news = true;
   }
 

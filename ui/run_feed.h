@@ -183,6 +183,9 @@ class RunFeed {
   void FetchWindow(int64_t run_id, int64_t first_seq, int64_t end_seq);
   // Queues "abort", "pause" or "continue" for `run_id`; the outcome shows up in notes.
   void Request(int64_t run_id, const std::string& action);
+  // Queues a free-text note for `run_id` (Store::AddNote, live or finished
+  // run); the outcome shows up in notes.
+  void AddNote(int64_t run_id, const std::string& text);
   // Blocks until a poll that began after this call has found nothing more to
   // read (or `timeout_s` wall seconds pass). For headless screenshots and tests.
   // A run with max_pending_blocks block summaries waiting undrained is read
@@ -229,6 +232,7 @@ class RunFeed {
   // shared, under mu_
   std::set<int64_t> watch_;
   std::vector<std::pair<int64_t, std::string>> requests_;
+  std::vector<std::pair<int64_t, std::string>> run_notes_;  // notes to write, from AddNote
   std::vector<RunListRow> runs_;
   bool runs_fresh_ = false;
   std::map<int64_t, Pending> pending_;

@@ -158,6 +158,8 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
                 : run.outcome == Outcome::kAborted  ? RunState::kAborted
                 : run.outcome == Outcome::kInterrupted ? RunState::kInterrupted
                                                        : RunState::kRunning;
+  r.record = fmt::format("{} {} {} {} {} {}", run.uuid, run.cell_serial, run.cell_lot, run.cell_part, run.operator_name, run.bench);
+  for (const std::string& t : run.tags) r.record += " " + t;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
     r.verdict = std::string("incomplete");  // a capacity verdict needs a discharge that reached its end
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {
@@ -169,8 +171,8 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
 }
 
 bool MatchesFilter(const RunListRow& row, const std::string& filter) {
-  std::string hay = Lower(fmt::format("#{} {} {} {} {} {} {} {}", row.id, row.id, row.state, row.cell, row.chemistry,
-                                      row.procedure, row.verdict, row.started_at));
+  std::string hay = Lower(fmt::format("#{} {} {} {} {} {} {} {} {}", row.id, row.id, row.state, row.cell, row.chemistry,
+                                      row.procedure, row.verdict, row.started_at, row.record));
   for (const std::string& word : Words(Lower(filter)))
     if (hay.find(word) == std::string::npos) return false;
   return true;

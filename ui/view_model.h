@@ -87,6 +87,9 @@ struct RunListRow {
                         // interrupted), "-" while running or without a rating
   std::string reason;
   RunState run_state = RunState::kRunning;
+  // The traceable record the filter also searches: UUID, cell serial, lot and
+  // part, operator, bench, tags (space-separated).
+  std::string record;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 // The run list's verdict of a completed run, without the full analysis: the
@@ -96,7 +99,8 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 std::string ListVerdict(const RunRow& run, double delivered_mah);
 
 // True when every whitespace-separated word of `filter` occurs (ignoring case)
-// in the row's id, state, cell, chemistry, procedure, verdict or start time.
+// in the row's id, state, cell, chemistry, procedure, verdict, start time or
+// record (UUID, serial, lot, part, operator, bench, tags).
 bool MatchesFilter(const RunListRow& row, const std::string& filter);
 
 // Estimated seconds left in a running discharge, or nullopt when nothing

@@ -14,6 +14,7 @@
 
 #include "drivers/spelling.h"
 #include "rig/config.h"
+#include "rig/version.h"
 
 namespace kp::cli {
 namespace {
@@ -182,8 +183,11 @@ void ApplyConfigDefaults(CLI::App& app, const UserConfig& cfg) {
       }
     }
     set("--rig", cfg.rig);
-    set("--bench", cfg.bench);
-    set("--operator", cfg.operator_name);
+    // The record of a new run; elsewhere (`runs`) these names are filters.
+    if (sub->get_name() == "run") {
+      set("--bench", cfg.bench);
+      set("--operator", cfg.operator_name);
+    }
   }
   // Dialect folders: searched like $KNEEPOINT_PROFILES, before it.
   if (!cfg.dialect_path.empty()) {
@@ -199,7 +203,7 @@ void ApplyConfigDefaults(CLI::App& app, const UserConfig& cfg) {
 int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   CLI::App app{"kneepoint: bench controller and data logger for battery discharge tests"};
   app.require_subcommand(1);
-  app.set_version_flag("--version", "kneepoint 0.1.0");
+  app.set_version_flag("--version", VersionLine());
   CliRegistry registry(app);
   RegisterDemo(registry);
   RegisterRuns(registry);
@@ -214,6 +218,7 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterLife(registry);
   RegisterControl(registry);
   RegisterResume(registry);
+  RegisterNote(registry);
   for (Registrar r : extra) r(registry);
   Result<UserConfig> config = LoadUserConfig();
   if (!config.ok()) return Fail(config.status());

@@ -78,6 +78,7 @@ void RegisterCompare(CliRegistry& r);
 void RegisterLife(CliRegistry& r);
 void RegisterControl(CliRegistry& r);  // abort / pause / continue
 void RegisterResume(CliRegistry& r);
+void RegisterNote(CliRegistry& r);
 
 // An option taking a physical value with its unit, read by the one unit
 // parser (procedures/units.h) while the command line is parsed: a bare number

@@ -34,7 +34,7 @@ void RegisterCompare(CliRegistry& r) {
       at_a = *q.value;
     }
     SteadyClock wall;
-    auto store = OpenExistingDb(db_path, wall);
+    auto store = OpenDbForReading(db_path, wall);
     if (!store.ok()) return Fail(store.status());
     if (brownout_v > 0) options.brownout_v = brownout_v;
     auto rep = BuildCompareReport(**store, run_ids, at_a, options);

@@ -1,5 +1,6 @@
 // `export`: write a run's samples to a file, streamed (constant memory: one
-// sample at a time from the database to the file), as CSV or JSON.
+// sample at a time from the database to the file), as CSV (RFC 4180, or
+// semicolon-separated with decimal commas), JSON or an .xlsx workbook.
 #include <fmt/format.h>
 
 #include <fstream>
@@ -9,16 +10,24 @@
 #include "rig/cli/output_guard.h"
 #include "rig/cli/db_open.h"
 #include "rig/run_report.h"
+#include "rig/sample_export.h"
 
 namespace kp::cli {
 namespace {
 
 struct ExportOptions {
   std::string db_path = "kneepoint.db";
-  int64_t run_id = 0;
+  std::string run_ref;
   std::string csv_path;
   std::string json_path;
+  std::string xlsx_path;
+  bool decimal_comma = false;
 };
+
+// Version of the `export --json` layout. 2: schema_version, the run in the
+// shape every JSON output uses (RunRowJson, schema v5 record fields) and the
+// equipment record. Keys of version 1 keep their names and meanings.
+constexpr int kExportSchemaVersion = 2;
 
 // The cycle of the step instance that owns a sample (t in (start, end]),
 // walking the instances in time order as the samples stream by.
@@ -39,7 +48,10 @@ class CycleOf {
 // written piece by piece; numbers in shortest round-trip form.
 Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std::string& path) {
   auto check = [&]() { return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path)); };
-  out << "{\"run\":" << RunRowJson(run).dump(-1, ' ', false, nlohmann::json::error_handler_t::replace)
+  KP_ASSIGN_OR_RETURN(auto equipment, store.LoadEquipment(run.id));
+  constexpr auto kReplace = nlohmann::json::error_handler_t::replace;  // invalid UTF-8 from instruments never breaks the file
+  out << "{\"schema_version\":" << kExportSchemaVersion << ",\"run\":" << RunRowJson(run).dump(-1, ' ', false, kReplace)
+      << ",\n\"equipment\":" << EquipmentJson(equipment).dump(-1, ' ', false, kReplace)
       << ",\n\"sample_columns\":[\"t_s\",\"voltage_V\",\"current_A\",\"temperature_C\",\"step\",\"step_number\",\"cycle\"],\n";
   KP_ASSIGN_OR_RETURN(auto steps, store.LoadSteps(run.id));
   CycleOf cycle(std::move(steps));
@@ -59,30 +71,30 @@ Status WriteJson(Store& store, const RunRow& run, std::ofstream& out, const std:
   return check();
 }
 
-// Every number in shortest round-trip form: a 1.5 uA run exports 1.5e-06, not 0.000002.
-Status WriteCsv(Store& store, int64_t run_id, std::ofstream& out, const std::string& path) {
-  out << "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle\n";
-  KP_ASSIGN_OR_RETURN(auto steps, store.LoadSteps(run_id));
-  CycleOf cycle(std::move(steps));
-  return store.ForEachSample(run_id, [&](const Sample& s) {
-    out << fmt::format("{},{},{},{},{},{},{}\n", s.t_s, s.voltage_v, s.current_a, s.temperature_c, s.step, s.step + 1, cycle(s.t_s));
-    return out ? Status::Ok() : IoError(fmt::format("writing '{}' failed (disk full?)", path));
-  });
-}
-
 int RunExport(const ExportOptions& opt) {
-  if (opt.csv_path.empty() == opt.json_path.empty()) return Fail(InvalidInput("give exactly one of --csv FILE or --json FILE"));
-  if (Status st = CheckOutputPaths(opt.db_path, {opt.csv_path, opt.json_path}); !st.ok()) return Fail(st);
+  const int formats = !opt.csv_path.empty() + !opt.json_path.empty() + !opt.xlsx_path.empty();
+  if (formats != 1) return Fail(InvalidInput("give exactly one of --csv FILE, --json FILE or --xlsx FILE"));
+  if (opt.decimal_comma && opt.csv_path.empty()) return Fail(InvalidInput("--decimal-comma is an option of --csv"));
+  if (Status st = CheckOutputPaths(opt.db_path, {opt.csv_path, opt.json_path, opt.xlsx_path}); !st.ok()) return Fail(st);
   SteadyClock wall;
-  auto store = OpenExistingDb(opt.db_path, wall);
+  auto store = OpenDbForReading(opt.db_path, wall);
   if (!store.ok()) return Fail(store.status());
-  auto run = (*store)->GetRun(opt.run_id);
+  auto id = (*store)->ResolveRun(opt.run_ref);
+  if (!id.ok()) return Fail(id.status());
+  auto run = (*store)->GetRun(*id);
   if (!run.ok()) return Fail(run.status());
+  if (!opt.xlsx_path.empty()) {
+    auto rep = BuildRunReport(**store, *id);
+    if (!rep.ok()) return Fail(rep.status());
+    if (Status st = WriteRunXlsx(**store, *rep, opt.xlsx_path); !st.ok()) return Fail(st);
+    return kExitOk;
+  }
   const std::string& path = opt.csv_path.empty() ? opt.json_path : opt.csv_path;
-  std::ofstream out(path, std::ios::trunc);
+  std::ofstream out(path, std::ios::trunc | std::ios::binary);
   if (!out) return Fail(IoError(fmt::format("cannot write '{}'", path)));
-  Status st = opt.csv_path.empty() ? WriteJson(**store, *run, out, path) : WriteCsv(**store, opt.run_id, out, path);
-  if (!st.ok()) return Fail(st);
+  Status st = opt.csv_path.empty() ? WriteJson(**store, *run, out, path)
+                                   : WriteSamplesCsv(**store, *run, out, opt.decimal_comma ? kCsvDecimalComma : CsvStyle{});
+  if (!st.ok()) return Fail(st.WithContext(path));
   out.flush();
   if (!out) return Fail(IoError(fmt::format("writing '{}' failed (disk full?)", path)));
   return kExitOk;
@@ -93,11 +105,16 @@ int RunExport(const ExportOptions& opt) {
 void RegisterExport(CliRegistry& r) {
   static ExportOptions opt;
   opt = ExportOptions{};  // fresh defaults for each command line parsed
-  CLI::App* exp = r.Add("export", "Write a run's samples as CSV or JSON (streamed)", [] { return RunExport(opt); });
-  exp->add_option("RUN", opt.run_id, "Run id")->required();
+  CLI::App* exp = r.Add("export", "Write a run's samples as CSV, JSON or .xlsx (streamed)", [] { return RunExport(opt); });
+  exp->add_option("RUN", opt.run_ref, "Run number or UUID")->required();
   exp->add_option("--db", opt.db_path, "Database file")->capture_default_str();
-  exp->add_option("--csv", opt.csv_path, "Output CSV file (t_s, voltage_V, current_A, temperature_C, step, step_number, cycle)");
-  exp->add_option("--json", opt.json_path, "Output JSON file (run record, events, sample rows)");
+  exp->add_option("--csv", opt.csv_path,
+                  "Output CSV file, RFC 4180 (t_s, voltage_V, current_A, temperature_C, step, step_number, cycle, time_utc, "
+                  "step_kind, charge_Ah, energy_Wh)");
+  exp->add_flag("--decimal-comma", opt.decimal_comma,
+                "CSV for spreadsheets in decimal-comma locales: fields separated by ';', numbers with ',' as decimal mark");
+  exp->add_option("--json", opt.json_path, "Output JSON file (run record, equipment, events, sample rows)");
+  exp->add_option("--xlsx", opt.xlsx_path, "Output .xlsx workbook (sheets: summary, samples)");
 }
 
 }  // namespace kp::cli

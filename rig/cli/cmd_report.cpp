@@ -46,7 +46,7 @@ void RegisterReport(CliRegistry& r) {
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     if (Status st = CheckOutputPaths(db_path, {html_path, csv_path, cycles_csv_path}); !st.ok()) return Fail(st);
     SteadyClock wall;
-    auto store = OpenExistingDb(db_path, wall);
+    auto store = OpenDbForReading(db_path, wall);
     if (!store.ok()) return Fail(store.status());
     if (brownout_v > 0) options.brownout_v = brownout_v;
     auto rep = BuildRunReport(**store, run_id, options);

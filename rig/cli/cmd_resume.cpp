@@ -15,6 +15,7 @@
 #include "rig/resume.h"
 #include "rig/rig.h"
 #include "rig/run_lock.h"
+#include "rig/run_report.h"
 #include "rig/sim_rig.h"
 
 namespace kp::cli {
@@ -111,6 +112,10 @@ int RunResume(const ResumeOptions& opt) {
   auto result = controller.Execute(*plan, options);
   if (!result.ok()) return Fail(result.status());
   NoteStopSignal(**store, *result);
+  // The verdict of the whole record, now that the run has ended again.
+  if (auto rep = BuildRunReport(**store, result->run_id); rep.ok()) {
+    if (Status st = RecordVerdict(**store, *rep); !st.ok()) std::cerr << "kneepoint: verdict not recorded: " << st.message() << "\n";
+  }
   std::cout << fmt::format("run {} {}: {}\n", result->run_id, OutcomeName(result->outcome), result->reason);
   if (result->outcome != Outcome::kCompleted) {
     std::fprintf(stderr, "kneepoint: run %lld %s: %s\n", static_cast<long long>(result->run_id), OutcomeName(result->outcome),

@@ -14,6 +14,7 @@
 #include "procedures/estimate.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
+#include "rig/cli/record_options.h"
 #include "rig/cli/run_guard.h"
 #include "rig/control_channel.h"
 #include "rig/load_guards.h"
@@ -42,6 +43,7 @@ struct RunCmdOptions {
   double progress_s = 600.0;
   double link_grace_s = 30.0;
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
+  RecordOptions record;
 };
 
 // Records which simulated cell the run just begun uses (event "sim-cell").
@@ -143,6 +145,7 @@ int RunRun(const RunCmdOptions& opt) {
   RunOptions run;
   run.control = &control;
   run.cell_name = cell;
+  if (Status st = FillRecord(opt.record, run.record); !st.ok()) return Fail(st);
   run.stop = stop;
   run.stop_reason = "stopped by operator (signal)";
   if (std::string warn = MissingGuardsWarning(*roles.load); !warn.empty()) {
@@ -178,7 +181,10 @@ int RunRun(const RunCmdOptions& opt) {
       if (e.kind == "result" || e.kind == "pause" || e.kind == "resume")
         std::cout << fmt::format("  {} {}: {}\n", FormatDuration(e.t_s), e.kind, e.message);
   }
-  if (auto rep = BuildRunReport(**store, result->run_id); rep.ok()) std::cout << RunReportText(*rep);
+  if (auto rep = BuildRunReport(**store, result->run_id); rep.ok()) {
+    if (Status st = RecordVerdict(**store, *rep); !st.ok()) std::cerr << "kneepoint: verdict not recorded: " << st.message() << "\n";
+    std::cout << RunReportText(*rep);
+  }
   return result->outcome == Outcome::kCompleted ? kExitOk : kExitFailure;
 }
 
@@ -208,6 +214,7 @@ void RegisterRun(CliRegistry& r) {
                     "How long an instrument may stay silent (load off, step held) before the run aborts; 0s: abort at once",
                     0.0, 3600.0);
   AddHangLimitOption(c, opt.hang_limit_s);
+  AddRecordOptions(c, opt.record);
 }
 
 }  // namespace kp::cli

@@ -55,7 +55,7 @@ TEST(CliDurability, ExportWritesCsvAndJsonWithEverySample) {
   // switched on, then one per second.
   ASSERT_EQ(stored.size(), 122u);
   std::string csv = Slurp(dir.File("o.csv"));
-  EXPECT_EQ(csv.substr(0, csv.find('\n')), "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle");
+  EXPECT_EQ(csv.substr(0, csv.find('\n')), "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle,time_utc,step_kind,charge_Ah,energy_Wh\r");
   EXPECT_EQ(std::count(csv.begin(), csv.end(), '\n'), 1 + static_cast<long>(stored.size()));  // header + every sample
   ASSERT_EQ(Cli({"export", std::to_string(run), "--db", db, "--json", dir.File("o.json")}), cli::kExitOk);
   auto j = nlohmann::json::parse(Slurp(dir.File("o.json")));

@@ -425,7 +425,7 @@ TEST(Figures, ExportsKeepMicroampsAndTheDcirTableItsUnits) {
   std::ifstream in(csv);
   std::string line;
   std::getline(in, line);
-  EXPECT_EQ(line, "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle");
+  EXPECT_EQ(line, "t_s,voltage_V,current_A,temperature_C,step,step_number,cycle,time_utc,step_kind,charge_Ah,energy_Wh\r");
   std::vector<Sample> s;
   while (std::getline(in, line)) {
     std::stringstream ls(line);

@@ -284,6 +284,23 @@ TEST(FileRig, AppliesCalibrationAndRigLimits) {
   auto load_addr = ParseAddress(s.server->client_addresses()[0]);
   ASSERT_TRUE(load_addr.ok());
   EXPECT_NE((*rig)->LockKey().find(DeviceIdentity(*load_addr)), std::string::npos) << (*rig)->LockKey();
+  // The equipment record every run on this rig stores: *IDN? as each
+  // instrument answered it, profile, address, calibration; the file's text.
+  ASSERT_EQ(roles.instruments.size(), 3u);
+  const InstrumentRecord& meter = roles.instruments[1];
+  EXPECT_EQ(meter.name, "meter");
+  EXPECT_EQ(meter.roles, "meter");
+  EXPECT_EQ(meter.model, "KP-SIM-METER");
+  EXPECT_EQ(meter.serial, "SN0002");
+  EXPECT_EQ(meter.identity, "Kneepoint Simulation,KP-SIM-METER,SN0002,1.0");
+  EXPECT_EQ(meter.address, s.server->client_addresses()[1]);
+  EXPECT_EQ(meter.profile, "kneepoint-sim");
+  EXPECT_DOUBLE_EQ(meter.voltage_gain, 1.01);
+  EXPECT_DOUBLE_EQ(meter.voltage_offset_v, 0.005);
+  EXPECT_DOUBLE_EQ(roles.instruments[2].temperature_offset_c, 0.5);
+  EXPECT_EQ(roles.instruments[0].model, "KP-SIM-LOAD");
+  EXPECT_EQ(roles.bench, "cal");  // no [bench] name: the file's stem
+  EXPECT_NE(roles.rig_text.find("voltage_gain = 1.01"), std::string::npos);
 }
 
 TEST(FileRig, RefusesACellAboveTheRigVoltageAndAWrongInstrument) {

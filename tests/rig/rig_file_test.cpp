@@ -204,5 +204,23 @@ TEST(RigFileProfilePath, PathsOutsideTheSearchPathAreRefusedWithoutEchoingThem) 
   EXPECT_TRUE(spec.ok()) << spec.status().ToString();
 }
 
+// The calibration date goes with each run's equipment record; the file's
+// text is kept as read.
+TEST(RigFile, CalibrationDateAndTheTextAreKept) {
+  std::string text = Replace(kGood, "current_gain = 1.001\n", "current_gain = 1.001\ncalibrated_on = 2026-02-14\n");
+  text = Replace(text, "voltage_gain = 0.9995\n", "voltage_gain = 0.9995\ncalibrated_on = \"2025-11-30\"\n");
+  auto spec = ParseRigFile(text, "/tmp/bench.toml");
+  ASSERT_TRUE(spec.ok()) << spec.status().ToString();
+  EXPECT_EQ(spec->text, text);
+  EXPECT_EQ(spec->instruments[0].calibrated_on, "2026-02-14");
+  EXPECT_EQ(spec->instruments[1].calibrated_on, "2025-11-30");
+  EXPECT_EQ(spec->instruments[2].calibrated_on, "");
+  for (const char* bad : {"calibrated_on = \"14.02.2026\"\n", "calibrated_on = 20260214\n", "calibrated_on = \"2026-2-14\"\n"}) {
+    auto r = ParseRigFile(Replace(kGood, "current_gain = 1.001\n", std::string("current_gain = 1.001\n") + bad), "/tmp/bench.toml");
+    ASSERT_FALSE(r.ok()) << bad;
+    EXPECT_NE(r.status().message().find("instrument[1].calibrated_on"), std::string::npos) << r.status().message();
+  }
+}
+
 }  // namespace
 }  // namespace kp

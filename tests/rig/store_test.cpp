@@ -364,12 +364,20 @@ TEST(StoreBlocks, MigrationBackfillsBlocksOfStoredRuns) {
     ASSERT_TRUE(run.ok());
     for (int i = 0; i < 700; ++i) ASSERT_OK((*store)->AppendSample(*run, Cycling(i)));
     ASSERT_OK((*store)->FinishRun(*run, Outcome::kCompleted, "done"));
-    // Back to a version 3 database: no count column values, no blocks.
+    // Back to a version 3 database: none of v5, no count column values, no blocks.
+    ASSERT_OK((*store)->db().Exec(
+        "DROP VIEW run_summary; DROP VIEW step_summary; DROP VIEW cycle_summary; DROP TABLE run_tags; DROP TABLE instruments;"
+        "DROP INDEX runs_by_uuid; DROP INDEX runs_by_started; ALTER TABLE runs DROP COLUMN heartbeat_utc;"
+        "ALTER TABLE runs DROP COLUMN uuid; ALTER TABLE runs DROP COLUMN bench; ALTER TABLE runs DROP COLUMN host;"
+        "ALTER TABLE runs DROP COLUMN operator; ALTER TABLE runs DROP COLUMN cell_serial; ALTER TABLE runs DROP COLUMN cell_lot;"
+        "ALTER TABLE runs DROP COLUMN cell_part; ALTER TABLE runs DROP COLUMN rig_text; ALTER TABLE runs DROP COLUMN software_version;"
+        "ALTER TABLE runs DROP COLUMN software_commit; ALTER TABLE runs DROP COLUMN verdict; ALTER TABLE runs DROP COLUMN verdict_text;"
+        "ALTER TABLE runs DROP COLUMN verdict_pct_of_rated; PRAGMA application_id=0;"));
     ASSERT_OK((*store)->db().Exec("DROP TABLE sample_blocks; ALTER TABLE runs DROP COLUMN sample_count; PRAGMA user_version=3;"));
   }
   auto store = Store::Open(dir.File("m.db"), wall);
   ASSERT_TRUE(store.ok()) << store.status().ToString();
-  EXPECT_EQ(*(*store)->SchemaVersion(), 4);
+  EXPECT_EQ(*(*store)->SchemaVersion(), kSchemaVersion);
   EXPECT_EQ((*store)->GetRun(1)->sample_count, 700);
   EXPECT_EQ((*store)->LoadBlocks(1, 0, 100)->size(), static_cast<size_t>((700 + kSamplesPerBlock - 1) / kSamplesPerBlock));
   ExpectBlocksMatchSamples(**store, 1);

@@ -415,3 +415,40 @@ TEST(CycleRows, ChargeAndDischargePerCycle) {
 
 }  // namespace
 }  // namespace kp::ui
+
+namespace kp::ui {
+namespace {
+
+// A note typed in the panel reaches the database through the feed's worker,
+// as a timestamped `note` event of the run.
+TEST(RunFeed, WritesTheNotesThePanelQueues) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  int64_t id = 0;
+  {
+    auto store = Store::Open(dir.File("notes.db"), wall);
+    ASSERT_OK(store.status());
+    auto run = (*store)->BeginRun(LiveRun());
+    ASSERT_OK(run.status());
+    id = *run;
+    ASSERT_OK((*store)->FinishRun(id, Outcome::kCompleted, "done"));
+  }
+  RunFeed::Options o;
+  o.db_path = dir.File("notes.db");
+  {
+    RunFeed feed(o);
+    feed.AddNote(id, "lid closed at 14:02");
+    ASSERT_TRUE(feed.WaitCaughtUp(30.0));
+    FeedState state;
+    feed.Drain(state);
+  }
+  auto store = Store::Open(dir.File("notes.db"), wall);
+  ASSERT_OK(store.status());
+  auto notes = (*store)->LoadNotes(id);
+  ASSERT_OK(notes.status());
+  ASSERT_EQ(notes->size(), 1u);
+  EXPECT_EQ((*notes)[0].message, "lid closed at 14:02");
+}
+
+}  // namespace
+}  // namespace kp::ui

@@ -80,6 +80,18 @@ TEST(RunList, VerdictAndFilter) {
   EXPECT_TRUE(MatchesFilter(row, "pass"));
   EXPECT_FALSE(MatchesFilter(row, "aborted"));
   EXPECT_FALSE(MatchesFilter(row, "A1 nimh"));
+  // The traceable record is searched too: serial, lot, tags, operator, UUID.
+  run.cell_serial = "SN-4711";
+  run.cell_lot = "LOT-B";
+  run.operator_name = "Ann Lee";
+  run.tags = {"incoming", "shelf-3"};
+  run.uuid = "123e4567-e89b-42d3-a456-426614174000";
+  RunListRow traced = MakeRunListRow(run, f);
+  EXPECT_TRUE(MatchesFilter(traced, "sn-4711"));
+  EXPECT_TRUE(MatchesFilter(traced, "lot-b shelf-3"));
+  EXPECT_TRUE(MatchesFilter(traced, "ann 123e4567"));
+  EXPECT_FALSE(MatchesFilter(traced, "SN-4712"));
+  EXPECT_FALSE(MatchesFilter(row, "sn-4711"));
   run.outcome = Outcome::kRunning;
   EXPECT_EQ(MakeRunListRow(run, f).verdict, "-");
   run.outcome = Outcome::kCompleted;
