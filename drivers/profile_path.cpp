@@ -7,9 +7,9 @@
 #include <filesystem>
 #include <string_view>
 
-#ifndef KP_PROFILE_DIR
-#define KP_PROFILE_DIR "drivers/profiles"
-#endif
+#include "drivers/data_dir.h"
+#include "drivers/profile.h"
+
 
 namespace kp {
 
@@ -25,7 +25,7 @@ std::vector<std::string> ProfileSearchRoots(const std::string& base_dir) {
       rest = colon == std::string_view::npos ? std::string_view() : rest.substr(colon + 1);
     }
   }
-  roots.emplace_back(KP_PROFILE_DIR);
+  if (std::optional<fs::path> shipped = DataSubdir("profiles")) roots.push_back(shipped->string());
   return roots;
 }
 
@@ -33,8 +33,9 @@ Status ConfineProfilePath(const std::string& path, const std::string& base_dir) 
   std::error_code ec;
   fs::path real = fs::canonical(path, ec);
   if (ec) return InvalidInput(fmt::format("profile file '{}' cannot be opened", path));
-  if (real.extension() != ".kpp" || !fs::is_regular_file(real, ec))
-    return InvalidInput(fmt::format("'{}' is not a profile file (.kpp)", path));
+  // .kpd, or .kpp so that a dialect in the older format gets its own message.
+  if ((real.extension() != kDialectExtension && real.extension() != ".kpp") || !fs::is_regular_file(real, ec))
+    return InvalidInput(fmt::format("'{}' is not an instrument dialect file ({})", path, kDialectExtension));
   for (const std::string& root : ProfileSearchRoots(base_dir)) {
     fs::path r = fs::canonical(root, ec);
     if (ec) continue;

@@ -187,8 +187,8 @@ TEST(RigFileProfilePath, PathsOutsideTheSearchPathAreRefusedWithoutEchoingThem) 
   testing::TempDir dir;
   std::filesystem::create_directories(dir.File("rigs"));
   std::ofstream(dir.File("secret.txt")) << "TOP-SECRET first line\n";
-  std::ofstream(dir.File("outside.kpp")) << "TOP-SECRET profile line\n";
-  for (const std::string& ref : {dir.File("secret.txt"), std::string("../secret.txt"), std::string("../outside.kpp"),
+  std::ofstream(dir.File("outside.kpd")) << "TOP-SECRET profile line\n";
+  for (const std::string& ref : {dir.File("secret.txt"), std::string("../secret.txt"), std::string("../outside.kpd"),
                                  std::string("/etc/passwd")}) {
     std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"" + ref + "\"");
     auto spec = ParseRigFile(text, dir.File("rigs/bench.toml"));
@@ -198,8 +198,8 @@ TEST(RigFileProfilePath, PathsOutsideTheSearchPathAreRefusedWithoutEchoingThem) 
     EXPECT_NE(spec.status().message().find("profile"), std::string::npos) << spec.status().message();
   }
   // A profile in the rig file's own folder is found.
-  std::filesystem::copy_file(testing::SourcePath("drivers/profiles/generic-scpi-dmm.kpp"), dir.File("rigs/my-dmm.kpp"));
-  std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"my-dmm.kpp\"");
+  std::filesystem::copy_file(testing::SourcePath("drivers/profiles/generic-scpi-dmm.kpd"), dir.File("rigs/my-dmm.kpd"));
+  std::string text = Replace(kGood, "profile = \"generic-scpi-dmm\"", "profile = \"my-dmm.kpd\"");
   auto spec = ParseRigFile(text, dir.File("rigs/bench.toml"));
   EXPECT_TRUE(spec.ok()) << spec.status().ToString();
 }
