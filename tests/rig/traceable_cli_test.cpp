@@ -389,7 +389,7 @@ s1 = z.read('xl/worksheets/sheet1.xml').decode()
 s2 = z.read('xl/worksheets/sheet2.xml').decode()
 shared = z.read('xl/sharedStrings.xml').decode() if 'xl/sharedStrings.xml' in names else ''
 row2 = re.search(r'<row r="2"[^>]*>(.*?)</row>', s2, re.S).group(1)
-kinds = sorted(set(re.findall(r'<c r="I[0-9]+"[^>]*><is><t>([^<]*)</t>', s2)))
+kinds = sorted(set(re.findall(r'<c r="I(?!1")[0-9]+"[^>]*><is><t>([^<]*)</t>', s2)))
 print(json.dumps({'sheets': sheets, 'rows': len(re.findall(r'<row ', s2)),
                   'row2': re.findall(r'<v>([^<]*)</v>', row2), 'text': s1 + shared + s2[:4000], 'kinds': kinds}))
 )py";
