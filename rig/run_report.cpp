@@ -425,9 +425,9 @@ std::string RunRecordText(const RunReport& rep) {
   if (!e.software_version.empty())
     out += fmt::format("  software         kneepoint {} (commit {})\n", e.software_version, OrDash(e.software_commit));
   for (const InstrumentRecord& i : e.instruments) {
-    out += fmt::format("  instrument       {} ({}): {} {} serial {} firmware {}, at {}, profile {}\n", i.name, i.roles,
-                       OrDash(i.manufacturer), OrDash(i.model), OrDash(i.serial), OrDash(i.firmware), i.address, i.profile);
-    out += fmt::format("    calibration    {}\n", CalibrationText(i));
+    out += fmt::format("  instrument       {} ({}): {} {} serial {} firmware {}, at {}, profile {}; calibration {}\n", i.name,
+                       i.roles, OrDash(i.manufacturer), OrDash(i.model), OrDash(i.serial), OrDash(i.firmware), i.address,
+                       i.profile, CalibrationText(i));
   }
   for (const EventRow& n : rep.notes) out += fmt::format("  note             {} (t = {:.0f} s): {}\n", n.wall_at, n.t_s, n.message);
   return out;

@@ -1178,11 +1178,15 @@ Result<std::vector<RunRow>> Store::FindRuns(const RunFilter& f) {
 
 Result<int64_t> Store::ResolveRun(std::string_view ref) {
   if (ref.empty()) return InvalidInput("no run given");
-  if (ref.find_first_not_of("0123456789") == std::string_view::npos && ref.size() <= 18) {
+  const bool digits = ref.find_first_not_of("0123456789") == std::string_view::npos;
+  auto by_number = [&]() -> Result<int64_t> {
     const int64_t id = std::stoll(std::string(ref));
     KP_RETURN_IF_ERROR(GetRun(id).status());
     return id;
-  }
+  };
+  // Up to 7 digits is a run number; 8 or more hex digits (and dashes) the
+  // start of a UUID, else a number when it is all digits.
+  if (digits && ref.size() < 8) return by_number();
   std::string lower;
   for (char c : ref) lower += static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
   if (lower.size() < 8 || lower.size() > 36 || lower.find_first_not_of("0123456789abcdef-") != std::string::npos)
@@ -1195,9 +1199,10 @@ Result<int64_t> Store::ResolveRun(std::string_view ref) {
     if (!row) break;
     ids.push_back(q.Int(0));
   }
-  if (ids.empty()) return NotFound(fmt::format("no run with UUID {} in {}", ref, db_->path()));
   if (ids.size() > 1) return InvalidInput(fmt::format("'{}' is the start of more than one run's UUID: give more of it", ref));
-  return ids[0];
+  if (ids.size() == 1) return ids[0];
+  if (digits && ref.size() <= 18) return by_number();
+  return NotFound(fmt::format("no run with UUID {} in {}", ref, db_->path()));
 }
 
 Result<EquipmentRow> Store::LoadEquipment(int64_t run_id) {

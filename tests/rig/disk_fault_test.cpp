@@ -128,7 +128,8 @@ TEST(DiskFault, OneFailedWriteIsRecordedAsTheReason) {
 TEST(DiskFault, ReadOnlyFileMidRunAbortsWithLoadOff) {
   testing::FaultyVfs vfs("kp-read-only");
   testing::TempDir dir;
-  Outcome_ o = RunWithFault(dir.File("h.db"), vfs, 30, SQLITE_READONLY, false);
+  // Write 60: past the run record (with its equipment rows, schema v5) into the samples.
+  Outcome_ o = RunWithFault(dir.File("h.db"), vfs, 60, SQLITE_READONLY, false);
   ASSERT_TRUE(o.recorded);
   EXPECT_FALSE(o.load_on);
   EXPECT_EQ(o.result.outcome, Outcome::kAborted);

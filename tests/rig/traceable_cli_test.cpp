@@ -389,8 +389,9 @@ s1 = z.read('xl/worksheets/sheet1.xml').decode()
 s2 = z.read('xl/worksheets/sheet2.xml').decode()
 shared = z.read('xl/sharedStrings.xml').decode() if 'xl/sharedStrings.xml' in names else ''
 row2 = re.search(r'<row r="2"[^>]*>(.*?)</row>', s2, re.S).group(1)
+kinds = sorted(set(re.findall(r'<c r="I(?!1")[0-9]+"[^>]*><is><t>([^<]*)</t>', s2)))
 print(json.dumps({'sheets': sheets, 'rows': len(re.findall(r'<row ', s2)),
-                  'row2': re.findall(r'<v>([^<]*)</v>', row2), 'text': s1 + shared + s2[:4000]}))
+                  'row2': re.findall(r'<v>([^<]*)</v>', row2), 'text': s1 + shared + s2[:4000], 'kinds': kinds}))
 )py";
 
 TEST_F(Traced, XlsxHasASummaryAndTheSamples) {
@@ -416,9 +417,11 @@ TEST_F(Traced, XlsxHasASummaryAndTheSamples) {
   // 2026-01-01T00:00:00Z is serial day 46023 (1900 date system; from memory).
   EXPECT_GT(std::stod(v[7].get<std::string>()), 46023.0);
   const std::string text = j["text"].get<std::string>();
-  for (const std::string& want : {run->uuid, std::string("SN-9"), std::string("KP-SIM-LOAD"), std::string("constant-current discharge"),
-                                  std::string("charge_Ah"), std::string("start note")})
+  for (const std::string& want : {run->uuid, std::string("SN-9"), std::string("KP-SIM-LOAD"), std::string("charge_Ah"),
+                                  std::string("start note")})
     EXPECT_NE(text.find(want), std::string::npos) << want;
+  // The step kinds of column I (step_kind) across the sheet.
+  EXPECT_EQ(j["kinds"], (nlohmann::json{"charge", "constant-current discharge", "rest"}));
 }
 
 TEST(Version, FlagPrintsTheVersionAndCommit) {
