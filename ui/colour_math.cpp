@@ -26,7 +26,9 @@ double ContrastRatio(Rgb8 a, Rgb8 b) {
 }
 
 Rgb8 SimulateCvd(Rgb8 c, Dichromacy kind) {
-  // Machado et al. 2009, severity 1.0 (rows act on linear R, G, B).
+  // Machado et al. 2009, severity 1.0 (rows act on linear R, G, B); the
+  // coefficients as reproduced by open-source colour libraries, not checked
+  // against the paper's own table. Each row sums to 1 (neutrals stay neutral).
   static constexpr double kProtan[3][3] = {
       {0.152286, 1.052583, -0.204868}, {0.114503, 0.786281, 0.099216}, {-0.003882, -0.048116, 1.051998}};
   static constexpr double kDeutan[3][3] = {
