@@ -399,7 +399,7 @@ std::string CalibrationText(const InstrumentRecord& i) {
   };
   one("voltage", i.voltage_gain, i.voltage_offset_v, "V");
   one("current", i.current_gain, i.current_offset_a, "A");
-  one("temperature", i.temperature_gain, i.temperature_offset_c, "degC");
+  one("temperature", i.temperature_gain, i.temperature_offset_c, "°C");
   if (c.empty()) c = "none applied";
   if (!i.calibrated_on.empty()) c += ", calibrated " + i.calibrated_on;
   return c;
@@ -604,7 +604,7 @@ HtmlSection EquipmentSection(const RunReport& rep) {
   row("rig", r.rig);
   row("started (UTC)", r.started_at);
   row("ended (UTC)", r.ended_at);
-  if (rep.totals.thermometer_tolerance_c) row("thermometer tolerance", fmt::format("±{} degC", *rep.totals.thermometer_tolerance_c));
+  if (rep.totals.thermometer_tolerance_c) row("thermometer tolerance", fmt::format("±{} °C", *rep.totals.thermometer_tolerance_c));
   row("software", e.software_version.empty() ? "" : fmt::format("kneepoint {} (commit {})", e.software_version, OrDash(e.software_commit)));
   s.tables.push_back(id);
   if (e.instruments.empty()) {

@@ -216,7 +216,7 @@ Status WriteRunXlsx(Store& store, const RunReport& rep, const std::string& path)
   number("minimum voltage", rep.figures.min_voltage_v, "V");
   number("record duration", rep.figures.duration_s, "s");
   number("time to cutoff", a.time_to_cutoff_s, "s");
-  number("maximum temperature", a.max_temperature_c, "degC");
+  number("maximum temperature", a.max_temperature_c, "°C");
   number("samples", static_cast<double>(rep.figures.sample_count), "");
   text("verdict", a.verdict.text);
   for (const InstrumentRecord& i : rep.equipment.instruments) {
@@ -235,7 +235,7 @@ Status WriteRunXlsx(Store& store, const RunReport& rep, const std::string& path)
     number("current gain", i.current_gain, "");
     number("current offset", i.current_offset_a, "A");
     number("temperature gain", i.temperature_gain, "");
-    number("temperature offset", i.temperature_offset_c, "degC");
+    number("temperature offset", i.temperature_offset_c, "°C");
     text("calibrated on", i.calibrated_on);
   }
   for (const EventRow& n : rep.notes) text("note " + n.wall_at, n.message);

@@ -5,6 +5,8 @@
 
 #include <gtest/gtest.h>
 
+#include "drivers/data_dir.h"
+
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -154,12 +156,14 @@ TEST(RigFile, MalformedProfileNamesBothFiles) {
 }
 
 TEST(RigFile, ShippedExamplesParse) {
-  // The source tree is found through the shipped profiles (drivers/profiles).
+  // The shipped dialects are found beside the program (the build tree's
+  // share/kneepoint), and so are the example rig files that name them.
   auto shipped = FindProfile("generic-scpi-dmm", "/nonexistent");
-  ASSERT_TRUE(shipped.ok());
-  std::filesystem::path root = std::filesystem::path(*shipped).parent_path().parent_path().parent_path();
+  ASSERT_TRUE(shipped.ok()) << shipped.status().ToString();
+  std::optional<std::filesystem::path> rigs = DataSubdir("rigs");
+  ASSERT_TRUE(rigs.has_value());
   for (const char* name : {"sim-tcp.toml", "bench-generic.toml"}) {
-    std::string path = (root / "rig" / "examples" / name).string();
+    std::string path = (*rigs / name).string();
     auto spec = LoadRigFile(path);
     EXPECT_TRUE(spec.ok()) << path << ": " << spec.status().ToString();
   }
