@@ -30,8 +30,14 @@ struct Range {
 };
 
 std::string Tick(double v, double step) {
-  int decimals = step >= 1 ? 0 : static_cast<int>(std::ceil(-std::log10(step) - 1e-9));
-  decimals = std::clamp(decimals, 0, 6);
+  // As many decimals as the step needs to be written exactly (0.025 needs 3),
+  // so neighbouring ticks never share a label.
+  int decimals = 0;
+  while (decimals < 6) {
+    double scaled = step * std::pow(10.0, decimals);
+    if (std::abs(scaled - std::round(scaled)) < 1e-6 * std::max(1.0, scaled)) break;
+    ++decimals;
+  }
   if (std::abs(v) < step * 1e-6) v = 0.0;
   return fmt::format("{:.{}f}", v, decimals);
 }

@@ -702,7 +702,7 @@ std::string RunReportHtml(const RunReport& rep) {
       if (c.discharge) cap.x.push_back(c.cycle), cap.y.push_back(c.discharge_mah);
     }
     cy.tables.push_back(ctab);
-    if (cap.x.size() >= 1)
+    if (cap.x.size() >= 2)  // one point is a table row, not a trend
       cy.plots.push_back({"plot-capacity-cycle", "Discharged capacity versus cycle", "cycle", "discharged (mAh)", "", {cap}});
     sections.push_back(cy);
   }

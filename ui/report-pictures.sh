@@ -34,9 +34,9 @@ shot() {
 run_page() {  # the report page of the demo run whose row in the index names $1
   perl -ne 'if (/<td class="t">\Q'"$1"'\E<\/td>.*?href="([^"]+)"/) { print $1; exit }' report/index.html
 }
-shot "$(run_page 'Q1 rated capacity')" report-run-capacity.png 2400
-shot "$(run_page 'Q2 pulses at 2 A')" report-run-pulsed.png 2400
-shot "$(run_page 'Q6 failing cell')" report-run-aborted.png 2400
+shot "$(run_page 'Q1 rated capacity')" report-run-capacity.png 5200
+shot "$(run_page 'Q2 pulses at 2 A')" report-run-pulsed.png 5200
+shot "$(run_page 'Q6 failing cell')" report-run-aborted.png 4600
 shot compare-product-load.html report-compare.png 1700
 shot index.html report-index.png 1400
 # The README's overlay picture: the comparison page's first plot alone.

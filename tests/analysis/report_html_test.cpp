@@ -1,6 +1,7 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <cctype>
 #include <sstream>
 
 #include "analysis/compare.h"
@@ -69,6 +70,26 @@ TEST(SvgPlot, ReductionKeepsExtremes) {
   EXPECT_NE(std::find(idx.begin(), idx.end(), 77777u), idx.end());
   EXPECT_EQ(idx.front(), 0u);
   EXPECT_EQ(idx.back(), 99999u);
+}
+
+// A step of 0.025 needs three decimals: rounded to two, 0.975 and 0.98 would
+// read the same as their neighbours.
+TEST(SvgPlot, NeighbouringTicksNeverShareALabel) {
+  PlotSpec p;
+  p.id = "plot-q";
+  p.series = {{"q", {0.95, 1.05}, {1.0, 2.0}, false, false}};
+  std::string svg = RenderSvgPlot(p);
+  std::vector<testing::XmlElement> els;
+  ASSERT_EQ(testing::CheckXml(svg, &els), "");
+  std::vector<std::string> labels;
+  for (const auto& e : els)
+    if (e.name == "text" && e.attributes.count("text-anchor") && e.attributes.at("text-anchor") == "middle" &&
+        !e.text.empty() && (std::isdigit(static_cast<unsigned char>(e.text[0])) != 0))
+      labels.push_back(e.text);
+  ASSERT_GE(labels.size(), 3u);
+  for (size_t a = 0; a < labels.size(); ++a)
+    for (size_t b = a + 1; b < labels.size(); ++b) EXPECT_NE(labels[a], labels[b]);
+  EXPECT_NE(std::find(labels.begin(), labels.end(), "0.975"), labels.end());
 }
 
 TEST(SvgPlot, NiceTicks) {
