@@ -864,7 +864,8 @@ std::string FormatDiagnostics(const std::string& file, const std::vector<Diagnos
 }
 
 Result<std::vector<DutyPattern>> ReadDutyPatterns(std::string_view text, const std::string& file) {
-  Parser p(file, RigLimits{});
+  const RigLimits no_rig{};  // Parser keeps a reference: the limits must outlive it
+  Parser p(file, no_rig);
   p.PatternsOnly();
   ParseOutput out = p.Run(text);
   if (!out.ok()) {

@@ -27,7 +27,11 @@ Result<UserConfig> ParseUserConfig(std::string_view text, const std::string& fil
   }
   UserConfig c;
   c.file = file;
-  for (const auto& [key, node] : t) {
+  for (const auto& entry : t) {
+    // Named references, not structured bindings: lambdas below use them
+    // (clang 14 cannot capture a structured binding).
+    const toml::key& key = entry.first;
+    const toml::node& node = entry.second;
     const auto& src = key.source().begin;
     std::string where = fmt::format("{}:{}:{}: {}", file, src.line, src.column, key.str());
     auto text_value = [&](std::optional<std::string>& out) -> Status {

@@ -31,9 +31,7 @@ class StepOf {
 
 std::optional<double> EpochOf(const std::string& iso) {
   std::tm tm{};
-  int y, mo, d, h, mi, s;
-  if (std::sscanf(iso.c_str(), "%4d-%2d-%2dT%2d:%2d:%2d", &y, &mo, &d, &h, &mi, &s) != 6) return std::nullopt;
-  tm.tm_year = y - 1900, tm.tm_mon = mo - 1, tm.tm_mday = d, tm.tm_hour = h, tm.tm_min = mi, tm.tm_sec = s;
+  if (strptime(iso.c_str(), "%Y-%m-%dT%H:%M:%S", &tm) == nullptr) return std::nullopt;
   return static_cast<double>(timegm(&tm));
 }
 

@@ -265,7 +265,8 @@ RunStatus StatusOf(const RunRow& run, const std::vector<EventRow>& events) {
       break;
     }
   }
-  for (char& c : st.badge = RunStateWord(st.state)) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  st.badge = RunStateWord(st.state);
+  for (char& c : st.badge) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
   st.load_off = st.state != RunState::kRunning;
   st.can_pause = st.state == RunState::kRunning;
   st.can_continue = st.state == RunState::kPaused;  // a hold ends by itself (cooled, instrument back)

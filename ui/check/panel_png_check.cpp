@@ -61,18 +61,27 @@ int CountNear(const Image& img, int x0, int y0, int x1, int y1, const nlohmann::
   return n;
 }
 
+// A whole number from the command line; -1 when it is not one.
+long WholeNumber(const char* text) {
+  char* end = nullptr;
+  long v = std::strtol(text, &end, 10);
+  return (end == text || *end != '\0') ? -1 : v;
+}
+
 int CheckElements(int argc, char** argv) {
   if (argc != 8) return Fail("usage: kp_panel_png_check --elements PNG LAYOUT_JSON WIDTH HEIGHT BADGE MIN_PLOTS");
   Image img;
   int comp = 0;
   img.px = stbi_load(argv[2], &img.w, &img.h, &comp, 3);
   if (!img.px) return Fail(std::string("cannot read ") + argv[2]);
-  if (img.w != std::atoi(argv[4]) || img.h != std::atoi(argv[5])) return Fail("unexpected picture size");
+  if (img.w != WholeNumber(argv[4]) || img.h != WholeNumber(argv[5])) return Fail("unexpected picture size");
   std::ifstream lf(argv[3]);
   nlohmann::json lay = nlohmann::json::parse(lf, nullptr, false);
   if (lay.is_discarded() || !lay.contains("plots")) return Fail("cannot parse layout json");
   const std::string want_badge = argv[6];
-  const size_t min_plots = static_cast<size_t>(std::atoi(argv[7]));
+  const long min_plots_arg = WholeNumber(argv[7]);
+  if (min_plots_arg < 0) return Fail(std::string("MIN_PLOTS must be a whole number, not ") + argv[7]);
+  const size_t min_plots = static_cast<size_t>(min_plots_arg);
   const auto& bg = lay["plot_bg_rgb"];
   if (lay["plots"].size() < min_plots)
     return Fail("only " + std::to_string(lay["plots"].size()) + " plots drawn, expected " + argv[7]);
