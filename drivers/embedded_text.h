@@ -1,6 +1,6 @@
 // A shipped text file compiled into the program (see kp_embed_texts in
 // CMakeLists.txt): the generated headers list these for the cell presets
-// (drivers/sim/cell_presets.h) and the demo procedures (rig/demo_procedures.h).
+// (drivers/sim/cell_presets.h) and the demo procedures (ui/cli/demo_procedures.h).
 #pragma once
 
 #include <string_view>

@@ -30,4 +30,13 @@ SafetyVerdict SafetyMonitor::Check(const Reading& r, double delivered_mah) const
   return {};
 }
 
+const char* SafetyCautions() {
+  return "SAFETY: lithium cells can vent, catch fire or explode when abused.\n"
+         "  - Fuse the leads close to the cell and use wiring rated for the test current.\n"
+         "  - Tape the thermal probe to the cell body; keep the over-temperature limit set.\n"
+         "  - Test inside a fire-safe container, away from flammables, with a way to cut power.\n"
+         "  - Never leave a test unattended without limits that stop it safely.\n"
+         "  - Follow your local codes and your lab's safety rules; they take precedence.\n";
+}
+
 }  // namespace kp

@@ -30,4 +30,8 @@ class SafetyMonitor {
   SafetyLimits limits_;
 };
 
+// The usual cautions for lithium cells, shown by every face that starts a
+// run (the command line at start-up, the panel, the report's footer notes).
+const char* SafetyCautions();
+
 }  // namespace kp

@@ -10,9 +10,9 @@
 #include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
-#include "ui/gl_window.h"
-#include "ui/panel.h"
-#include "ui/run_feed.h"
+#include "ui/panel/gl_window.h"
+#include "ui/panel/panel.h"
+#include "ui/panel/run_feed.h"
 
 namespace kp::ui {
 namespace {

@@ -16,10 +16,10 @@
 #include <imgui.h>
 
 #include "drivers/clock.h"
-#include "ui/gl_window.h"
-#include "ui/plot_widget.h"
-#include "ui/run_feed.h"
-#include "ui/theme.h"
+#include "ui/panel/gl_window.h"
+#include "ui/panel/plot_widget.h"
+#include "ui/panel/run_feed.h"
+#include "ui/panel/theme.h"
 
 namespace {
 

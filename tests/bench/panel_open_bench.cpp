@@ -14,7 +14,7 @@
 
 #include "bench_support.h"
 #include "rig/store.h"
-#include "ui/panel.h"
+#include "ui/panel/panel.h"
 
 namespace {
 

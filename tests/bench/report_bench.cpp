@@ -12,8 +12,8 @@
 #include <string>
 
 #include "bench_support.h"
-#include "rig/run_report.h"
 #include "rig/store.h"
+#include "ui/report/run_report.h"
 
 namespace {
 

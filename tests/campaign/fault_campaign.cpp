@@ -59,8 +59,8 @@
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
 #include "drivers/stream_transport.h"
-#include "rig/cli/cli.h"
 #include "rig/store.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

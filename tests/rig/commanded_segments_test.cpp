@@ -3,9 +3,9 @@
 #include <gtest/gtest.h>
 
 #include "procedures/procedure_parser.h"
-#include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "tests/support/test_support.h"
+#include "ui/report/run_report.h"
 
 namespace kp {
 namespace {

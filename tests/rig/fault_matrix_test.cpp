@@ -33,10 +33,10 @@
 #include "drivers/sim/fault_injector.h"
 #include "drivers/sim/sim_bench.h"
 #include "procedures/procedure_parser.h"
-#include "rig/cli/cli.h"
 #include "rig/run_controller.h"
 #include "tests/support/faulty_vfs.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

@@ -16,12 +16,12 @@
 #include "drivers/sim/cell_model.h"
 #include "procedures/procedure_parser.h"
 #include "rig/run_controller.h"
-#include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "rig/store.h"
 #include "tests/support/batch_analysis.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
+#include "ui/report/run_report.h"
 
 namespace kp {
 namespace {

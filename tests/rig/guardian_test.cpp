@@ -30,11 +30,11 @@
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
 #include "drivers/stream_transport.h"
-#include "rig/cli/cli.h"
 #include "rig/guardian.h"
 #include "rig/rig_file.h"
 #include "rig/store.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

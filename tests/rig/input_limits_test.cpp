@@ -11,9 +11,9 @@
 #include "drivers/text_limits.h"
 #include "procedures/procedure_parser.h"
 #include "procedures/units.h"
-#include "rig/cli/procedure_file.h"
 #include "rig/rig_file.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/procedure_file.h"
 
 namespace kp {
 namespace {

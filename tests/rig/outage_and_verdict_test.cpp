@@ -12,11 +12,11 @@
 #include "drivers/text_hygiene.h"
 #include "rig/judgeable.h"
 #include "rig/run_controller.h"
-#include "rig/run_report.h"
 #include "rig/sim_rig.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/hostile_device.h"
 #include "tests/support/test_support.h"
+#include "ui/report/run_report.h"
 
 namespace kp {
 namespace {

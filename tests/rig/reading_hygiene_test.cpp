@@ -4,11 +4,11 @@
 #include <gtest/gtest.h>
 
 #include "analysis/metrics.h"
-#include "rig/run_report.h"
 #include "rig/stuck_watch.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/hostile_device.h"
 #include "tests/support/test_support.h"
+#include "ui/report/run_report.h"
 
 namespace kp {
 namespace {

@@ -13,11 +13,11 @@
 #include <string>
 #include <vector>
 
-#include "rig/cli/cli.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

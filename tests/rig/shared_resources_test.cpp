@@ -9,13 +9,13 @@
 #include <fstream>
 
 #include "drivers/address.h"
-#include "rig/cli/cli.h"
 #include "rig/device_identity.h"
 #include "rig/run_controller.h"
 #include "rig/run_lock.h"
 #include "rig/sim_rig.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

@@ -9,13 +9,13 @@
 
 #include "analysis/metrics.h"
 #include "drivers/sim/cell_file.h"
-#include "rig/cli/cli.h"
 #include "rig/resume.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "tests/sim/sim_helpers.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
+#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {

@@ -1,7 +1,9 @@
 #include "tests/support/fixtures.h"
 
+#include <utility>
+
 #include "procedures/procedure_parser.h"
-#include "rig/cli/cli.h"
+#include "ui/cli/cli.h"
 
 namespace kp::testing {
 
@@ -10,6 +12,16 @@ int RunKneepoint(std::vector<std::string> args) {
   std::vector<char*> argv;
   for (std::string& a : args) argv.push_back(a.data());
   return cli::RunCli(static_cast<int>(argv.size()), argv.data());
+}
+
+CliResult RunKneepointCaptured(std::vector<std::string> args) {
+  ::testing::internal::CaptureStdout();
+  ::testing::internal::CaptureStderr();
+  CliResult r;
+  r.code = RunKneepoint(std::move(args));
+  r.out = ::testing::internal::GetCapturedStdout();
+  r.err = ::testing::internal::GetCapturedStderr();
+  return r;
 }
 
 Plan CompileForCell2500(const std::string& body) {

@@ -18,6 +18,14 @@ namespace kp::testing {
 // Runs `kneepoint ARGS...` in this process, as main() would; returns the exit code.
 int RunKneepoint(std::vector<std::string> args);
 
+// The same with stdout and stderr captured (GoogleTest's capture), for tests
+// that check what a command prints.
+struct CliResult {
+  int code = 0;
+  std::string out, err;
+};
+CliResult RunKneepointCaptured(std::vector<std::string> args);
+
 // A 2,500 mAh Li-ion cell: 3.6 V nominal, 4.2 V full, 2.75 V cutoff, 60 degC
 // limit (the simulator's DemoLiIonCell(2.56) stands in for it).
 CellSpec Cell2500();

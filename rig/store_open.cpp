@@ -1,0 +1,36 @@
+#include "rig/store_open.h"
+
+#include <cstdio>
+#include <filesystem>
+
+#include <fmt/format.h>
+
+namespace kp {
+namespace {
+
+Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, bool reading) {
+  std::error_code ec;
+  if (!std::filesystem::exists(path, ec)) return NotFound(fmt::format("no database at '{}' (give one with --db)", path));
+  Store::Options o;
+  o.create = false;
+  o.read_only_if_newer = reading;
+  auto store = Store::Open(path, wall, o);
+  if (!store.ok()) return store.status();
+  if (int v = (*store)->newer_schema(); v != 0) {
+    std::fprintf(stderr,
+                 "kneepoint: %s has schema version %d, newer than this kneepoint's (%d): opened read-only; what the newer "
+                 "version added is not shown\n",
+                 path.c_str(), v, kSchemaVersion);
+    return store;
+  }
+  (void)(*store)->ReconcileOrphans();
+  return store;
+}
+
+}  // namespace
+
+Result<std::unique_ptr<Store>> OpenExistingDb(const std::string& path, Clock& wall) { return Open(path, wall, false); }
+
+Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall) { return Open(path, wall, true); }
+
+}  // namespace kp
