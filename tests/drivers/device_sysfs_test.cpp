@@ -9,71 +9,14 @@
 
 #include "drivers/device_sysfs.h"
 #include "drivers/stream_transport.h"
+#include "tests/support/fake_sysfs.h"
 
 namespace kp {
 namespace {
 
 namespace fs = std::filesystem;
 
-class FakeSysfs {
- public:
-  FakeSysfs() {
-    root_ = fs::temp_directory_path() / ("kp-sysfs-" + std::to_string(::getpid()) + "-" +
-                                         ::testing::UnitTest::GetInstance()->current_test_info()->name());
-    fs::remove_all(root_);
-    fs::create_directories(sys() / "class" / "tty");
-    fs::create_directories(dev() / "serial" / "by-id");
-    fs::create_directories(sys() / "bus" / "usb");
-    fs::create_directories(sys() / "bus" / "platform");
-    fs::create_directories(sys() / "bus" / "serial-base");
-    fs::create_directories(sys() / "bus" / "pnp");
-    fs::create_directories(sys() / "bus" / "usb-serial" / "drivers" / "ftdi_sio");
-    fs::create_directories(sys() / "bus" / "platform" / "drivers" / "serial8250");
-  }
-  ~FakeSysfs() { fs::remove_all(root_); }
-  fs::path sys() const { return root_ / "sys"; }
-  fs::path dev() const { return root_ / "dev"; }
-  SysfsRoots roots() const { return {sys().string(), dev().string()}; }
-
-  static void Write(const fs::path& p, const std::string& text) {
-    fs::create_directories(p.parent_path());
-    std::ofstream(p) << text << "\n";
-  }
-  // A USB device folder with its identity.
-  fs::path UsbDevice(const std::string& bus_path, const std::string& vid, const std::string& pid, const std::string& serial,
-                     const std::string& product) {
-    fs::path d = sys() / "devices" / "pci0000:00" / "0000:00:14.0" / bus_path;
-    Write(d / "idVendor", vid);
-    Write(d / "idProduct", pid);
-    if (!serial.empty()) Write(d / "serial", serial);
-    Write(d / "manufacturer", "Example Instruments");
-    Write(d / "product", product);
-    Link(d / "subsystem", sys() / "bus" / "usb");
-    return d;
-  }
-  void Usbtmc(const std::string& name, const fs::path& usb_device, const std::string& iface, int number) {
-    fs::path i = usb_device / iface;
-    Write(i / "bInterfaceNumber", fmt(number));
-    Link(i / "subsystem", sys() / "bus" / "usb");
-    fs::path cls = i / "usbmisc" / name;
-    fs::create_directories(cls);
-    Link(cls / "device", i);
-    fs::create_directories(sys() / "class" / "usbmisc");
-    Link(sys() / "class" / "usbmisc" / name, cls);
-  }
-  static std::string fmt(int n) {
-    char b[8];
-    std::snprintf(b, sizeof b, "%02x", n);
-    return b;
-  }
-  static void Link(const fs::path& at, const fs::path& to) {
-    fs::create_directories(at.parent_path());
-    fs::create_symlink(fs::relative(to, at.parent_path()), at);
-  }
-
- private:
-  fs::path root_;
-};
+using testing::FakeSysfs;
 
 TEST(DeviceSysfs, UsbtmcDevicesWithTheirUsbIdentity) {
   FakeSysfs f;
@@ -146,13 +89,7 @@ TEST(DeviceSysfs, SerialPortsAreLabelledByTheBusTheKernelNames) {
   FakeSysfs f;
   // A USB adapter: ttyUSB0 -> the usb-serial port under the USB interface.
   fs::path adapter = f.UsbDevice("usb1/1-1", "0403", "6001", "A12345", "FT232R USB UART");
-  fs::path port = adapter / "1-1:1.0" / "ttyUSB0";
-  fs::create_directories(port);
-  FakeSysfs::Link(port / "subsystem", f.sys() / "bus" / "usb-serial");
-  FakeSysfs::Link(port / "driver", f.sys() / "bus" / "usb-serial" / "drivers" / "ftdi_sio");
-  FakeSysfs::Link(f.sys() / "class" / "tty" / "ttyUSB0", port / "tty" / "ttyUSB0");
-  FakeSysfs::Link(port / "tty" / "ttyUSB0" / "device", port);
-  FakeSysfs::Link(f.dev() / "serial" / "by-id" / "usb-FTDI_FT232R_USB_UART_A12345-if00-port0", f.dev() / "ttyUSB0");
+  f.UsbSerialPort("ttyUSB0", adapter, "usb-FTDI_FT232R_USB_UART_A12345-if00-port0");
 
   // A built-in UART: ttyS0 -> serial-base port -> serial-base controller -> platform device.
   fs::path plat = f.sys() / "devices" / "platform" / "serial8250";
