@@ -69,6 +69,10 @@ const std::map<std::string, KeySpec>& Keys() {
       {"output-off", {"supply", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.supply.output_off; }}},
       {"supply-read-voltage", {"supply", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.supply.measure_voltage; }}},
       {"supply-read-current", {"supply", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.supply.measure_current; }}},
+      {"chamber-setpoint", {"chamber", Arg::kNumber, [](InstrumentProfile& p) -> std::string& { return p.chamber.set_temperature; }}},
+      {"chamber-read", {"chamber", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.chamber.read_temperature; }}},
+      {"chamber-run", {"chamber", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.chamber.run_on; }}},
+      {"chamber-stop", {"chamber", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.chamber.run_off; }}},
   };
   return keys;
 }
@@ -80,6 +84,7 @@ const std::map<std::string, std::vector<std::string>>& Required() {
       {"meter", {"meter-read-voltage"}},
       {"thermometer", {"read-temperature"}},
       {"supply", {"supply-voltage", "supply-current", "output-on", "output-off", "supply-read-voltage", "supply-read-current"}},
+      {"chamber", {"chamber-setpoint", "chamber-read"}},
   };
   return req;
 }
@@ -224,8 +229,8 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
     std::optional<std::string> role = r.value<std::string>();
     if (!role) return InvalidInput(fmt::format("{}every role is a quoted word", where(&r, "roles")));
     if (!Required().count(*role))
-      return InvalidInput(fmt::format("{}unknown role '{}'{} (load, meter, thermometer, supply)", where(&r, "roles"), *role,
-                                      DidYouMean(*role, {"load", "meter", "thermometer", "supply"})));
+      return InvalidInput(fmt::format("{}unknown role '{}'{} (load, meter, thermometer, supply, chamber)", where(&r, "roles"), *role,
+                                      DidYouMean(*role, {"load", "meter", "thermometer", "supply", "chamber"})));
     p.roles.push_back(*role);
   }
   if (p.roles.empty()) return InvalidInput(fmt::format("{}lists no role", where(roles, "roles")));

@@ -4,7 +4,7 @@
 // recompile. See drivers/profiles/*.kpd and DEVELOPERS.md:
 //
 //   format = "kneepoint-dialect 1"   # optional; the format's version
-//   roles = ["load"]                 # load, meter, thermometer, supply
+//   roles = ["load"]                 # load, meter, thermometer, supply, chamber
 //   description = "free text"
 //   identity = "*,MY-LOAD*"          # glob (* and ?) the *IDN? reply must match, case-insensitive
 //   [commands]
@@ -28,6 +28,7 @@
 #include <string_view>
 #include <vector>
 
+#include "drivers/chamber.h"
 #include "drivers/roles.h"
 #include "drivers/status.h"
 #include "drivers/supply.h"
@@ -43,6 +44,7 @@ struct InstrumentProfile {
   MeterCommands meter;
   ThermometerCommands thermometer;
   SupplyCommands supply;
+  ChamberCommands chamber;
   std::vector<std::string> init, teardown;
   bool check_settings = false;
   std::string error_query = "SYST:ERR?";
