@@ -158,7 +158,7 @@ Status ParseBehaviour(const toml::table& doc, InstrumentProfile& p,
   for (const char* key : {"check-settings", "strip-reply-units"}) {
     const toml::node* n = doc.get(key);
     if (n == nullptr) continue;
-    std::optional<bool> v = n->value<bool>();
+    std::optional<bool> v = n->is_boolean() ? n->value<bool>() : std::nullopt;
     if (!v) return InvalidInput(fmt::format("{}must be true or false", where(n, key)));
     (std::string_view(key) == "check-settings" ? p.check_settings : p.strip_units) = *v;
   }

@@ -33,12 +33,13 @@ TEST(Chamber, FollowsTheSetPointAsAFirstOrderLag) {
   c.clock.Advance(Seconds(600));
   auto t = d.ReadTemperature();
   ASSERT_TRUE(t.ok()) << t.status().ToString();
-  EXPECT_NEAR(*t, 45.0 - 22.0 * std::exp(-1.0), 1e-6);
+  // (Replies carry six significant digits, NR3 with five decimals.)
+  EXPECT_NEAR(*t, 45.0 - 22.0 * std::exp(-1.0), 1e-4);
   EXPECT_NEAR((*t - 23.0) / 22.0, 0.632, 0.001);
   c.clock.Advance(Seconds(1800));  // four time constants in all
   t = d.ReadTemperature();
   ASSERT_TRUE(t.ok());
-  EXPECT_NEAR(*t, 45.0 - 22.0 * std::exp(-4.0), 1e-6);
+  EXPECT_NEAR(*t, 45.0 - 22.0 * std::exp(-4.0), 1e-4);
   // The cell's surroundings are the chamber's air.
   c.clock.Advance(Seconds(4 * 3600));
   (void)d.ReadTemperature();
@@ -76,7 +77,7 @@ TEST(Chamber, SoakEndsAfterHoldingInTheBandInVirtualTime) {
 
 TEST(Chamber, SoakTimesOutAndAReadingOutsideTheBandRestartsTheHold) {
   SoakJudge never(SoakSpec{.setpoint_c = 45.0, .band_c = 0.5, .hold_s = 600.0, .max_s = 1800.0}, 100.0);
-  for (double t = 100.0; t < 1900.0 && never.state() == SoakJudge::State::kSettling; t += 60.0) never.OnReading(t, 40.0);
+  for (double t = 100.0; t <= 2000.0 && never.state() == SoakJudge::State::kSettling; t += 60.0) never.OnReading(t, 40.0);
   EXPECT_EQ(never.state(), SoakJudge::State::kTimedOut);
   EXPECT_NE(never.Describe().find("not stable"), std::string::npos);
 

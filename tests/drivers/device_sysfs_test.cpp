@@ -56,7 +56,9 @@ TEST(DeviceSysfs, UsbtmcDevicesWithTheirUsbIdentity) {
   EXPECT_NE(st.message().find("USB0::0x1AB1::0x0E11::DP8B000123::INSTR"), std::string::npos) << "lists what is there: " << st.message();
 
   // Opening goes through the same lookup.
-  auto t = OpenTransport("USB0::0x1AB1::0x0E11::OTHER::INSTR", StreamOptions{.usbtmc = {.sysfs = f.roots()}});
+  StreamOptions so;
+  so.usbtmc.sysfs = f.roots();
+  auto t = OpenTransport("USB0::0x1AB1::0x0E11::OTHER::INSTR", so);
   ASSERT_FALSE(t.ok());
   EXPECT_EQ(t.status().code(), StatusCode::kNotFound);
 }

@@ -140,11 +140,11 @@ TEST(DialectKeys, CheckSettingsNamesTheRefusedCommand) {
   sim::FaultInjector faulty(bench.load(), f);
   ScpiSession fs(std::make_unique<InProcTransport>(faulty, clock, "faulty-load"), clock, o);
   ASSERT_OK(fs.Write("CURR 1.0"));
-  ASSERT_OK(fs.Write("INP OFF")) << "no number: not a setting";
+  ASSERT_OK(fs.Write("INP OFF"));  // no number: not a setting
   Status second = fs.Write("CURR 1.2");
   EXPECT_EQ(second.code(), StatusCode::kInstrumentError) << second.ToString();
   EXPECT_EQ(faulty.faults_injected(), 1);
-  ASSERT_OK(fs.Write("CURR 1.3")) << "only the N-th";
+  ASSERT_OK(fs.Write("CURR 1.3"));  // only the N-th
 }
 
 }  // namespace

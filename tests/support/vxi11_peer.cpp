@@ -178,9 +178,9 @@ void Vxi11Peer::ServeUdp() {
     socklen_t len = sizeof from;
     ssize_t n = ::recvfrom(pmap_udp_, buf, sizeof buf, 0, reinterpret_cast<sockaddr*>(&from), &len);
     if (n <= 0) continue;
-    std::string reply = Answer(std::string_view(buf, static_cast<size_t>(n)), [&](uint32_t prog, uint32_t, uint32_t proc,
+    std::string reply = Answer(std::string_view(buf, static_cast<size_t>(n)), [&](uint32_t prog, uint32_t vers, uint32_t proc,
                                                                                      const std::string& args, std::string& r) {
-      return Dispatch(false, prog, proc, args, r);
+      return Dispatch(false, prog, vers, proc, args, r);
     });
     if (!reply.empty()) ::sendto(pmap_udp_, reply.data(), reply.size(), 0, reinterpret_cast<sockaddr*>(&from), len);
   }
@@ -222,8 +222,8 @@ void Vxi11Peer::ServeTcp(int fd, bool core) {
       }
       msg += frag;
     }
-    std::string reply = Answer(msg, [&](uint32_t prog, uint32_t, uint32_t proc, const std::string& args, std::string& r) {
-      return Dispatch(core, prog, proc, args, r);
+    std::string reply = Answer(msg, [&](uint32_t prog, uint32_t vers, uint32_t proc, const std::string& args, std::string& r) {
+      return Dispatch(core, prog, vers, proc, args, r);
     });
     if (reply.empty()) continue;
     std::string framed;
@@ -236,15 +236,23 @@ void Vxi11Peer::ServeTcp(int fd, bool core) {
   }
 }
 
-bool Vxi11Peer::Dispatch(bool core, uint32_t prog, uint32_t proc, const std::string& args, std::string& r) {
+bool Vxi11Peer::Dispatch(bool core, uint32_t prog, uint32_t vers, uint32_t proc, const std::string& args, std::string& r) {
   if (proc == 0) return true;  // NULL, either program
   Xdr x{args};
   if (!core) {
     if (prog != kPortmapper || proc != 3) return false;
     uint32_t want = x.U32();
     x.U32();  // version
-    uint32_t protocol = x.U32();
-    PutU32(r, want == kDeviceCore && protocol == IPPROTO_TCP ? static_cast<uint32_t>(core_port_) : 0u);
+    if (vers == 2) {  // PMAPPROC_GETPORT: mapping {prog, vers, prot, port} -> port
+      uint32_t protocol = x.U32();
+      PutU32(r, want == kDeviceCore && protocol == IPPROTO_TCP ? static_cast<uint32_t>(core_port_) : 0u);
+      return true;
+    }
+    // RPCBPROC_GETADDR (versions 3 and 4): rpcb {prog, vers, netid, addr,
+    // owner} -> universal address "h1.h2.h3.h4.p1.p2" ("" when not served).
+    std::string netid = x.Opaque();
+    bool tcp = netid == "tcp" || netid == "tcp6";
+    PutOpaque(r, want == kDeviceCore && tcp ? fmt::format("127.0.0.1.{}.{}", core_port_ >> 8, core_port_ & 0xff) : std::string());
     return true;
   }
   if (prog != kDeviceCore) return false;

@@ -1,8 +1,8 @@
 // A VXI-11 instrument for tests: just enough ONC RPC (RFC 5531: call and
 // accepted-reply headers, XDR, record marking on TCP) to serve
-//   - the portmapper (program 100000 version 2, RFC 1833): NULL and GETPORT,
-//     on UDP and TCP at a given port (111 is where clients look), answering
-//     DEVICE_CORE's TCP port;
+//   - the portmapper / rpcbind (program 100000, RFC 1833): NULL, version 2
+//     GETPORT and versions 3-4 GETADDR, on UDP and TCP at a given port (111
+//     is where clients look), answering DEVICE_CORE's TCP port;
 //   - DEVICE_CORE (program 0x0607AF version 1, VXI-11 rev 1.0 B.6):
 //     create_link, device_write, device_read, destroy_link, over TCP;
 // with a LineDevice answering the lines written. A device_read with no reply
@@ -45,7 +45,7 @@ class Vxi11Peer {
   void ServeTcp(int fd, bool core);
   // One call's reply body (after the accepted-reply header), or false for a
   // procedure this peer does not serve.
-  bool Dispatch(bool core, uint32_t prog, uint32_t proc, const std::string& args, std::string& result);
+  bool Dispatch(bool core, uint32_t prog, uint32_t vers, uint32_t proc, const std::string& args, std::string& result);
 
   LineDevice& device_;
   int pmap_udp_ = -1, pmap_tcp_ = -1, core_tcp_ = -1;
