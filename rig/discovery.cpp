@@ -153,7 +153,8 @@ std::string RigFileLines(const FoundInstrument& f, const std::string& name) {
   } else {
     out += "profile = \"generic-scpi-load\"  # no shipped dialect knows this identity: choose or write one\n";
   }
-  out += fmt::format("roles = [{}]\n", roles);
+  out += fmt::format("roles = [{}]{}\n", roles,
+                     roles.find(',') != std::string::npos ? "  # keep the roles this instrument plays on your bench" : "");
   return out;
 }
 

@@ -12,7 +12,9 @@
 
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
+#include "rig/guardian.h"
 #include "rig/rig.h"
+#include "rig/rig_file.h"
 #include "rig/run_controller.h"
 #include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
@@ -139,6 +141,35 @@ TEST(DialectBehaviour, ARefusedSetpointAbortsTheRunWithTheLoadOff) {
   EXPECT_NE(r->reason.find("-222,\"Data out of range\""), std::string::npos) << r->reason;
   EXPECT_FALSE(s.bench.load_input_on());
   EXPECT_LT(s.clock.Now().count(), 60.0) << "caught at the setpoint, not minutes later";
+}
+
+// The guardian switches loads off by itself when the runner dies: it refuses
+// a load it cannot reach (VXI-11) with the fix, and looks a USB identity up
+// before it forks (here: none present, so it says so).
+TEST(DialectBehaviour, GuardianRefusesLoadsItCannotReachBeforeForking) {
+  testing::TempDir dir;
+  auto spec_for = [&](const std::string& address) {
+    std::string text = fmt::format(
+        "[bench]\nname = \"g\"\n\n[[instrument]]\nname = \"load\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\n"
+        "roles = [\"load\"]\n",
+        address);
+    std::string path = dir.File("g.toml");
+    std::ofstream(path) << text;
+    return LoadRigFile(path);
+  };
+  GuardianOptions go;
+  go.db_path = dir.File("g.db");
+  auto vxi = spec_for("TCPIP0::192.0.2.7::INSTR");
+  ASSERT_TRUE(vxi.ok()) << vxi.status().ToString();
+  auto g = Guardian::Start(*vxi, go);
+  ASSERT_FALSE(g.ok());
+  EXPECT_NE(g.status().message().find("cannot speak VXI-11; address it by its raw socket"), std::string::npos) << g.status().message();
+  auto usb = spec_for("USB0::0x1AB1::0x0E11::KP-NO-SUCH-SERIAL::INSTR");
+  ASSERT_TRUE(usb.ok()) << usb.status().ToString();
+  auto h = Guardian::Start(*usb, go);
+  ASSERT_FALSE(h.ok());
+  EXPECT_NE(h.status().message().find("no usbtmc device is 1ab1:0e11 serial 'KP-NO-SUCH-SERIAL'"), std::string::npos)
+      << h.status().message();
 }
 
 }  // namespace

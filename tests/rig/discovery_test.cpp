@@ -57,16 +57,17 @@ TEST(Discovery, LocalInstrumentsWithIdentityAndPasteableLines) {
   std::string lines = RigFileLines(found[1], "load");
   EXPECT_NE(lines.find("address = \"USB0::0x1AB1::0x0E11::LD0042::INSTR\""), std::string::npos) << lines;
   EXPECT_NE(lines.find("# *IDN? Kneepoint Simulation,KP-SIM-LOAD"), std::string::npos) << lines;
-  std::string rig = "[bench]\nname = \"found\"\n\n" + lines + "\n" + RigFileLines(found[0], "adapter");
+  std::string rig = "[bench]\nname = \"found\"\n\n" + lines;
   testing::TempDir dir;
   std::string path = dir.File("found.toml");
   std::ofstream(path) << rig;
   Result<RigFileSpec> spec = LoadRigFile(path);
-  // The matched dialect lists every role of the simulator; the adapter's
-  // placeholder dialect is a load. Both are accepted as written.
   ASSERT_TRUE(spec.ok()) << spec.status().ToString() << "\n" << rig;
-  ASSERT_EQ(spec->instruments.size(), 2u);
+  ASSERT_EQ(spec->instruments.size(), 1u);
   EXPECT_EQ(spec->instruments[0].address, "USB0::0x1AB1::0x0E11::LD0042::INSTR");
+  EXPECT_EQ(spec->instruments[0].profile_ref, found[1].dialect);
+  // The adapter nobody answered on gets a placeholder dialect to replace.
+  EXPECT_NE(RigFileLines(found[0], "adapter").find("choose or write one"), std::string::npos);
 }
 
 TEST(Discovery, PortsCommandLabelsByBus) {
@@ -79,6 +80,19 @@ TEST(Discovery, PortsCommandLabelsByBus) {
   EXPECT_EQ(rc, 0);
   EXPECT_NE(text.find("usb 0403:6001 Example Instruments FT232R USB UART (serial A12345) [ftdi_sio]"), std::string::npos) << text;
   EXPECT_NE(text.find("usb-FTDI_FT232R_USB_UART_A12345-if00-port0"), std::string::npos) << text;
+}
+
+TEST(Discovery, DiscoverCommandPrintsInstrumentBlocks) {
+  testing::FakeSysfs f;
+  fs::path load_dev = f.UsbDevice("usb1/1-2", "1ab1", "0e11", "LD0042", "Sim Load");
+  f.Usbtmc("usbtmc0", load_dev, "1-2:1.0", 0);
+  ::testing::internal::CaptureStdout();
+  int rc = testing::RunKneepoint({"discover", "--no-lan", "--sysfs-root", f.sys().string(), "--dev-root", f.dev().string()});
+  std::string text = ::testing::internal::GetCapturedStdout();
+  EXPECT_EQ(rc, 0);
+  EXPECT_NE(text.find("[[instrument]]\nname = \"usbtmc 1\"\naddress = \"USB0::0x1AB1::0x0E11::LD0042::INSTR\""), std::string::npos)
+      << text;
+  EXPECT_NE(text.find("add --identify"), std::string::npos) << text;
 }
 
 }  // namespace
