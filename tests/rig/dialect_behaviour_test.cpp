@@ -119,28 +119,37 @@ TEST(DialectBehaviour, ModeChangesWaitTheSettleTime) {
   EXPECT_EQ((s.clock.Now() - t0).count(), 0.0) << "no mode change, no wait";
 }
 
-TEST(DialectBehaviour, ARefusedSetpointAbortsTheRunWithTheLoadOff) {
-  // Load settings in order: CURR:PROT 5 (the rig's max current, at open),
-  // then the run's CURR 0.5: the second is refused.
-  sim::FaultOptions faults;
-  faults.refuse_setting_at = 2;
-  Served s(faults);
-  std::string rig_path = s.RigFile("kneepoint-sim-checked");
-  Plan plan = testing::CompileForCell2500("discharge 500mA until time>=10min every=10s\n");
-  RigOpenOptions ro;
-  ro.clock = &s.clock;
-  ro.note = [](std::string_view) {};
-  auto rig = OpenRig(rig_path, ro);
-  ASSERT_TRUE(rig.ok()) << rig.status().ToString();
-  testing::StoreFixture f;
-  RunController rc(*f.store, s.clock, (*rig)->roles());
-  auto r = rc.Execute(plan, {});
-  ASSERT_TRUE(r.ok()) << r.status().ToString();
-  EXPECT_EQ(r->outcome, Outcome::kAborted);
-  EXPECT_NE(r->reason.find("refused 'CURR +5"), std::string::npos) << r->reason;
-  EXPECT_NE(r->reason.find("-222,\"Data out of range\""), std::string::npos) << r->reason;
-  EXPECT_FALSE(s.bench.load_input_on());
-  EXPECT_LT(s.clock.Now().count(), 60.0) << "caught at the setpoint, not minutes later";
+TEST(DialectBehaviour, ARefusedSettingStopsTheRunWithTheLoadOff) {
+  // Load settings in order: CURR:PROT 5 (the rig's max current, at open);
+  // at the run's start the protections from the procedure: VOLT:PROT:LOW,
+  // CURR:PROT, POW:PROT; then the setpoint CURR 0.5. A refused protection
+  // keeps the run from starting, a refused setpoint aborts it at once.
+  struct Case {
+    int refuse_at;
+    const char* says;
+  } cases[] = {{2, "refused 'VOLT:PROT:LOW +2.40000E+00': -222,\"Data out of range\""},
+               {5, "refused 'CURR +5.00000E-01': -222,\"Data out of range\""}};
+  for (const Case& c : cases) {
+    SCOPED_TRACE(c.refuse_at);
+    sim::FaultOptions faults;
+    faults.refuse_setting_at = c.refuse_at;
+    Served s(faults);
+    std::string rig_path = s.RigFile("kneepoint-sim-checked");
+    Plan plan = testing::CompileForCell2500("discharge 500mA until time>=10min every=10s\n");
+    RigOpenOptions ro;
+    ro.clock = &s.clock;
+    ro.note = [](std::string_view) {};
+    auto rig = OpenRig(rig_path, ro);
+    ASSERT_TRUE(rig.ok()) << rig.status().ToString();
+    testing::StoreFixture f;
+    RunController rc(*f.store, s.clock, (*rig)->roles());
+    auto r = rc.Execute(plan, {});
+    ASSERT_TRUE(r.ok()) << r.status().ToString();
+    EXPECT_EQ(r->outcome, Outcome::kAborted);
+    EXPECT_NE(r->reason.find(c.says), std::string::npos) << r->reason;
+    EXPECT_FALSE(s.bench.load_input_on());
+    EXPECT_LT(s.clock.Now().count(), 60.0) << "caught at the command, not minutes later";
+  }
 }
 
 // The guardian switches loads off by itself when the runner dies: it refuses
@@ -151,7 +160,7 @@ TEST(DialectBehaviour, GuardianRefusesLoadsItCannotReachBeforeForking) {
   auto spec_for = [&](const std::string& address) {
     std::string text = fmt::format(
         "[bench]\nname = \"g\"\n\n[[instrument]]\nname = \"load\"\naddress = \"{}\"\nprofile = \"kneepoint-sim\"\n"
-        "roles = [\"load\"]\n",
+        "roles = [\"load\", \"thermometer\"]\n",
         address);
     std::string path = dir.File("g.toml");
     std::ofstream(path) << text;
