@@ -1,16 +1,22 @@
 #include "drivers/address.h"
 
+#include <algorithm>
 #include <cctype>
 #include <charconv>
 
 #include <fmt/format.h>
+
+#include "drivers/visa_address.h"
 
 namespace kp {
 namespace {
 
 constexpr const char* kForms =
     "expected tcp:HOST:PORT (or HOST:PORT; IPv6 as tcp:[::1]:5025), serial:PATH?baud=N&parity=none&data=8&stop=1&flow=none&eol=lf "
-    "(or a bare device path such as /dev/ttyUSB0), or pty";
+    "(or a bare device path such as /dev/ttyUSB0), usbtmc:/dev/usbtmcN, vxi11:HOST[:DEVICE], a VISA resource string "
+    "(TCPIP0::HOST::5025::SOCKET, TCPIP0::HOST::INSTR, ASRL/dev/ttyUSB0::INSTR, USB0::VID::PID::SERIAL::INSTR), or pty";
+
+bool IsUsbtmcPath(std::string_view path) { return path.starts_with("/dev/usbtmc"); }
 
 Result<int> ParseInt(std::string_view text, std::string_view what, const std::string& address) {
   int v = 0;
@@ -32,7 +38,7 @@ Status ParseOption(std::string_view key, std::string_view v, Address& a) {
   const std::string& t = a.text;
   if (key == "eol") return ParseEol(v, a);
   if (a.kind != Address::Kind::kSerial)
-    return InvalidInput(fmt::format("address '{}': option '{}' applies to serial ports only (tcp takes eol)", t, key));
+    return InvalidInput(fmt::format("address '{}': option '{}' applies to serial ports only (tcp, usbtmc and vxi11 take eol)", t, key));
   SerialSettings& s = a.serial;
   if (key == "baud") {
     KP_ASSIGN_OR_RETURN(s.baud, ParseInt(v, "baud", t));
@@ -104,6 +110,37 @@ Status ParseHostPort(std::string_view rest, std::string_view text, Address& a) {
   return Status::Ok();
 }
 
+// vxi11:HOST[:DEVICE], HOST an IPv6 literal in brackets or a name/IPv4 address.
+Status ParseVxi11(std::string_view rest, std::string_view text, Address& a) {
+  std::string_view device;
+  if (rest.starts_with("[")) {
+    size_t close = rest.find(']');
+    if (close == std::string_view::npos || close == 1)
+      return InvalidInput(fmt::format("address '{}': an IPv6 host goes in brackets, as in vxi11:[2001:db8::7]", text));
+    a.host = std::string(rest.substr(1, close - 1));
+    std::string_view after = rest.substr(close + 1);
+    if (!after.empty() && after.front() != ':')
+      return InvalidInput(fmt::format("address '{}': expected ':DEVICE' after ']'", text));
+    if (!after.empty()) device = after.substr(1);
+  } else {
+    size_t colon = rest.find(':');
+    a.host = std::string(rest.substr(0, colon));
+    if (colon != std::string_view::npos) device = rest.substr(colon + 1);
+    if (device.find(':') != std::string_view::npos)
+      return InvalidInput(fmt::format("address '{}': an IPv6 host goes in brackets, as in vxi11:[2001:db8::7]", text));
+  }
+  if (a.host.empty()) return InvalidInput(fmt::format("address '{}': vxi11 needs a host, as in vxi11:192.0.2.7", text));
+  if (rest.find(':') != std::string_view::npos && !rest.starts_with("[") && device.empty())
+    return InvalidInput(fmt::format("address '{}': empty device name after ':' (inst0 is the usual one)", text));
+  if (!device.empty()) {
+    if (std::all_of(device.begin(), device.end(), [](char c) { return c >= '0' && c <= '9'; }))
+      return InvalidInput(fmt::format("address '{}': '{}' looks like a port; VXI-11 finds its port by itself (a raw socket is tcp:HOST:PORT)",
+                                      text, device));
+    a.vxi11_device = std::string(device);
+  }
+  return Status::Ok();
+}
+
 // "host:5025" (a name or IPv4 address and a port, nothing else): TCP.
 bool LooksLikeHostPort(std::string_view head) {
   if (head.starts_with("[")) return head.find("]:") != std::string_view::npos;
@@ -143,10 +180,23 @@ Result<Address> ParseAddress(std::string_view text) {
     a.kind = Address::Kind::kSerial;
     a.path = std::string(head.substr(7));
     if (a.path.empty()) return InvalidInput(fmt::format("address '{}': serial needs a device path", text));
+    if (IsUsbtmcPath(a.path))
+      return InvalidInput(fmt::format("address '{}': {} is a USB-TMC device, not a serial port: write usbtmc:{}", text, a.path, a.path));
+  } else if (head.starts_with("usbtmc:")) {
+    a.kind = Address::Kind::kUsbtmc;
+    a.path = std::string(head.substr(7));
+    if (a.path.empty() || a.path.front() != '/')
+      return InvalidInput(fmt::format("address '{}': usbtmc needs a device path, as in usbtmc:/dev/usbtmc0", text));
+  } else if (head.starts_with("vxi11:")) {
+    a.kind = Address::Kind::kVxi11;
+    KP_RETURN_IF_ERROR(ParseVxi11(head.substr(6), text, a));
   } else if (head.starts_with("/")) {
-    // A bare device path: a serial port with the default settings.
-    a.kind = Address::Kind::kSerial;
+    // A bare device path: a serial port with the default settings, or a
+    // USB-TMC device by its name.
+    a.kind = IsUsbtmcPath(head) ? Address::Kind::kUsbtmc : Address::Kind::kSerial;
     a.path = std::string(head);
+  } else if (LooksLikeVisaResource(head)) {
+    KP_RETURN_IF_ERROR(ParseVisaResource(head, a));
   } else if (LooksLikeHostPort(head)) {
     a.kind = Address::Kind::kTcp;
     KP_RETURN_IF_ERROR(ParseHostPort(head, text, a));

@@ -69,6 +69,10 @@ const std::map<std::string, KeySpec>& Keys() {
       {"output-off", {"supply", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.supply.output_off; }}},
       {"supply-read-voltage", {"supply", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.supply.measure_voltage; }}},
       {"supply-read-current", {"supply", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.supply.measure_current; }}},
+      {"chamber-setpoint", {"chamber", Arg::kNumber, [](InstrumentProfile& p) -> std::string& { return p.chamber.set_temperature; }}},
+      {"chamber-read", {"chamber", Arg::kQuery, [](InstrumentProfile& p) -> std::string& { return p.chamber.read_temperature; }}},
+      {"chamber-run", {"chamber", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.chamber.run_on; }}},
+      {"chamber-stop", {"chamber", Arg::kNone, [](InstrumentProfile& p) -> std::string& { return p.chamber.run_off; }}},
   };
   return keys;
 }
@@ -80,6 +84,7 @@ const std::map<std::string, std::vector<std::string>>& Required() {
       {"meter", {"meter-read-voltage"}},
       {"thermometer", {"read-temperature"}},
       {"supply", {"supply-voltage", "supply-current", "output-on", "output-off", "supply-read-voltage", "supply-read-current"}},
+      {"chamber", {"chamber-setpoint", "chamber-read"}},
   };
   return req;
 }
@@ -110,6 +115,69 @@ bool LooksLikeOlderDialect(std::string_view text) {
 
 int LineOf(const toml::node* n) { return n != nullptr ? static_cast<int>(n->source().begin.line) : 1; }
 
+// "INP ON" and "inp  on" are the same command.
+std::string Normalised(std::string_view c) {
+  std::string out;
+  bool blank = false;
+  for (char ch : Trim(c)) {
+    if (ch == ' ' || ch == '\t') {
+      blank = true;
+      continue;
+    }
+    if (blank && !out.empty()) out += ' ';
+    blank = false;
+    out += static_cast<char>(std::toupper(static_cast<unsigned char>(ch)));
+  }
+  return out;
+}
+
+// init, teardown and the behaviour switches (see profile.h).
+Status ParseBehaviour(const toml::table& doc, InstrumentProfile& p,
+                      const std::function<std::string(const toml::node*, const std::string&)>& where) {
+  for (const char* key : {"init", "teardown"}) {
+    const toml::node* n = doc.get(key);
+    if (n == nullptr) continue;
+    const toml::array* list = n->as_array();
+    if (list == nullptr)
+      return InvalidInput(fmt::format("{}a list of commands in quotes, as in {} = [\"*CLS\", \"SYST:REM\"]", where(n, key), key));
+    std::vector<std::string>& out = std::string_view(key) == "init" ? p.init : p.teardown;
+    for (const toml::node& e : *list) {
+      std::optional<std::string> c = e.value<std::string>();
+      if (!c) return InvalidInput(fmt::format("{}every command is a quoted text", where(&e, key)));
+      if (Trim(*c).empty()) return InvalidInput(fmt::format("{}empty command", where(&e, key)));
+      if (c->find("{}") != std::string::npos)
+        return InvalidInput(fmt::format("{}'{}' takes no number here; remove {{}}", where(&e, key), *c));
+      std::string norm = Normalised(*c);
+      for (const std::string* on : {&p.load.input_on, &p.supply.output_on})
+        if (!on->empty() && norm == Normalised(*on))
+          return InvalidInput(fmt::format("{}'{}' switches the {} on; {} may not (the run does that itself)", where(&e, key), *c,
+                                          on == &p.load.input_on ? "load input" : "supply output", key));
+      out.push_back(*c);
+    }
+  }
+  for (const char* key : {"check-settings", "strip-reply-units"}) {
+    const toml::node* n = doc.get(key);
+    if (n == nullptr) continue;
+    std::optional<bool> v = n->is_boolean() ? n->value<bool>() : std::nullopt;
+    if (!v) return InvalidInput(fmt::format("{}must be true or false", where(n, key)));
+    (std::string_view(key) == "check-settings" ? p.check_settings : p.strip_units) = *v;
+  }
+  if (const toml::node* n = doc.get("error-query")) {
+    std::optional<std::string> v = n->value<std::string>();
+    if (!v || v->find('?') == std::string::npos || v->find("{}") != std::string::npos)
+      return InvalidInput(fmt::format("{}must be a query in quotes (with '?'), as in \"SYST:ERR?\"", where(n, "error-query")));
+    p.error_query = *v;
+  }
+  if (const toml::node* n = doc.get("mode-settle-s")) {
+    std::optional<double> v = n->value<double>();
+    if (!v || !(*v >= 0.0 && *v <= 60.0))
+      return InvalidInput(fmt::format("{}must be a number of seconds from 0 to 60", where(n, "mode-settle-s")));
+    if (!p.HasRole("load")) return InvalidInput(fmt::format("{}is for loads, which this dialect's roles do not list", where(n, "mode-settle-s")));
+    p.load.mode_settle_s = *v;
+  }
+  return Status::Ok();
+}
+
 }  // namespace
 
 Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string& file) {
@@ -132,7 +200,9 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
   auto where = [&](const toml::node* n, const std::string& key) {
     return fmt::format("{}:{}: key '{}': ", file, LineOf(n), key);
   };
-  static const std::vector<std::string> kTop = {"format", "roles", "description", "identity", "commands"};
+  static const std::vector<std::string> kTop = {"format",         "roles",       "description",       "identity",     "commands",
+                                                "init",           "teardown",    "check-settings",    "error-query",
+                                                "strip-reply-units", "mode-settle-s"};
   for (const auto& [k, v] : doc) {
     std::string key(k.str());
     if (std::find(kTop.begin(), kTop.end(), key) == kTop.end()) {
@@ -140,8 +210,9 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       for (const auto& [name, spec] : Keys()) commands.push_back(name);
       if (std::find(commands.begin(), commands.end(), key) != commands.end())
         return InvalidInput(fmt::format("{}a command belongs under [commands]", where(&v, key)));
-      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, [commands])", where(&v, key),
-                                      DidYouMean(key, kTop)));
+      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, init, teardown, "
+                                      "check-settings, error-query, strip-reply-units, mode-settle-s, [commands])",
+                                      where(&v, key), DidYouMean(key, kTop)));
     }
   }
   if (const toml::node* f = doc.get("format")) {
@@ -158,8 +229,8 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
     std::optional<std::string> role = r.value<std::string>();
     if (!role) return InvalidInput(fmt::format("{}every role is a quoted word", where(&r, "roles")));
     if (!Required().count(*role))
-      return InvalidInput(fmt::format("{}unknown role '{}'{} (load, meter, thermometer, supply)", where(&r, "roles"), *role,
-                                      DidYouMean(*role, {"load", "meter", "thermometer", "supply"})));
+      return InvalidInput(fmt::format("{}unknown role '{}'{} (load, meter, thermometer, supply, chamber)", where(&r, "roles"), *role,
+                                      DidYouMean(*role, {"load", "meter", "thermometer", "supply", "chamber"})));
     p.roles.push_back(*role);
   }
   if (p.roles.empty()) return InvalidInput(fmt::format("{}lists no role", where(roles, "roles")));
@@ -202,6 +273,7 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       spec.field(p) = *value;
     }
   }
+  KP_RETURN_IF_ERROR(ParseBehaviour(doc, p, where));
   for (const std::string& role : p.roles) {
     for (const std::string& key : Required().at(role)) {
       if (Keys().at(key).field(p).empty())
@@ -248,9 +320,12 @@ Result<std::string> FindProfile(const std::string& ref, const std::string& base_
 }
 
 void ApplyChannel(InstrumentProfile& p, const std::string& channel) {
-  ForEachCommand(p, [&](std::string& c) {
+  auto fill = [&](std::string& c) {
     for (size_t pos; (pos = c.find("{ch}")) != std::string::npos;) c.replace(pos, 4, channel);
-  });
+  };
+  ForEachCommand(p, fill);
+  for (std::string& c : p.init) fill(c);
+  for (std::string& c : p.teardown) fill(c);
 }
 
 bool IdentityMatches(std::string_view pattern, std::string_view idn) {

@@ -4,7 +4,7 @@
 // recompile. See drivers/profiles/*.kpd and DEVELOPERS.md:
 //
 //   format = "kneepoint-dialect 1"   # optional; the format's version
-//   roles = ["load"]                 # load, meter, thermometer, supply
+//   roles = ["load"]                 # load, meter, thermometer, supply, chamber
 //   description = "free text"
 //   identity = "*,MY-LOAD*"          # glob (* and ?) the *IDN? reply must match, case-insensitive
 //   [commands]
@@ -12,14 +12,23 @@
 //
 // In command text `{}` stands for the number and `{ch}` for the rig file's
 // channel; "none" (or leaving the key out) says the instrument cannot do it.
-// Lists of commands (a later init/teardown sequence) fit as TOML arrays of
-// strings at the top level. Errors name file:line (and the key).
+// Top-level behaviour keys (all optional):
+//   init = ["*CLS", "SYST:REM"]   # sent once the *IDN? reply matched, before anything else
+//   teardown = ["SYST:LOC"]       # sent when the rig closes, after the load input went off
+//   check-settings = true         # drain the error queue after every command; a queued error
+//                                 # refuses the command (the run aborts with the load off)
+//   error-query = "SYST:ERR?"     # the error-queue query, when the instrument spells it otherwise
+//   strip-reply-units = true      # numeric replies may end in a base unit ("12.003 V")
+//   mode-settle-s = 0.2           # seconds to wait after a load mode change, before the level
+// init and teardown may not switch a load input or supply output on.
+// Errors name file:line (and the key).
 #pragma once
 
 #include <string>
 #include <string_view>
 #include <vector>
 
+#include "drivers/chamber.h"
 #include "drivers/roles.h"
 #include "drivers/status.h"
 #include "drivers/supply.h"
@@ -35,6 +44,11 @@ struct InstrumentProfile {
   MeterCommands meter;
   ThermometerCommands thermometer;
   SupplyCommands supply;
+  ChamberCommands chamber;
+  std::vector<std::string> init, teardown;
+  bool check_settings = false;
+  std::string error_query = "SYST:ERR?";
+  bool strip_units = false;
   bool HasRole(std::string_view role) const;
 };
 

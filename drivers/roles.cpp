@@ -90,6 +90,10 @@ Status LoadDriver::SetMode(LoadMode mode) {
   KP_RETURN_IF_ERROR(session_.Write(*c));
   mode_ = mode;
   mode_known_ = true;
+  if (cmd_.mode_settle_s > 0) {
+    Clock& clock = session_.clock();
+    clock.SleepUntil(clock.Now() + Seconds(cmd_.mode_settle_s));
+  }
   return Status::Ok();
 }
 

@@ -71,6 +71,9 @@ struct LoadCommands {
   std::string mode_read;
   std::string remote_sense_on;         // optional: 4-wire sense at the cell
   std::string remote_sense_off;
+  // Time the load needs after a mode change before the level is sent (the
+  // dialect's `mode-settle-s`), waited on the session's clock.
+  double mode_settle_s = 0.0;
 };
 
 // Whether `c` has a command for the guard (empty = the load cannot).

@@ -1,5 +1,7 @@
 #include "drivers/scpi_session.h"
 
+#include <cctype>
+
 #include <fmt/format.h>
 
 #include <functional>
@@ -94,6 +96,22 @@ Status ScpiSession::Retrying(std::string_view what, bool retry_protocol, const s
 }
 
 Status ScpiSession::Write(std::string_view command) {
+  KP_RETURN_IF_ERROR(WriteOnce(command));
+  if (!options_.check_settings || command.find('?') != std::string_view::npos || command.starts_with("*CLS")) return Status::Ok();
+  // The dialect asks for the error queue after every setting: whatever the
+  // instrument queued now was caused by this command.
+  Status queued = DrainErrors();
+  if (queued.code() == StatusCode::kInstrumentError) {
+    std::string what = queued.message();
+    if (size_t at = what.find(" reported "); at != std::string::npos) what.erase(0, at + 10);
+    Status refused = InstrumentError(fmt::format("{} refused '{}': {}", address_, command, what));
+    Trace('!', refused.message());
+    return refused;
+  }
+  return queued;
+}
+
+Status ScpiSession::WriteOnce(std::string_view command) {
   return Retrying(command, /*retry_protocol=*/true, [&]() -> Status {
     KP_RETURN_IF_ERROR(CheckQuiet(command));
     KP_RETURN_IF_ERROR(Send(command));
@@ -145,7 +163,7 @@ Result<ScpiNumber> ScpiSession::QueryNumber(std::string_view query) {
   for (int attempt = 0; attempt <= options_.retries; ++attempt) {
     Result<std::string> reply = Query(query);
     if (!reply.ok()) return reply.status();
-    Result<ScpiNumber> n = ParseScpiNumber(*reply);
+    Result<ScpiNumber> n = ParseScpiNumber(options_.strip_units ? StripReplyUnit(*reply) : std::string_view(*reply));
     if (n.ok()) return n;
     // A garbled line is retried like a lost one: the next reply is usually clean.
     last = n.status();
@@ -163,15 +181,38 @@ Status ScpiSession::WaitComplete() {
   return Status::Ok();
 }
 
+std::string_view StripReplyUnit(std::string_view reply) {
+  std::string_view r = reply;
+  auto unit_byte = [](unsigned char c) {
+    // Letters, blanks, and the UTF-8 bytes of ° (C2 B0) and Ω (CE A9).
+    return std::isalpha(c) || c == ' ' || c == '\t' || c == 0xC2 || c == 0xB0 || c == 0xCE || c == 0xA9;
+  };
+  while (!r.empty() && unit_byte(static_cast<unsigned char>(r.back()))) r.remove_suffix(1);
+  if (r.size() == reply.size() || r.empty()) return reply;
+  char last = r.back();
+  if (!((last >= '0' && last <= '9') || last == '.')) return reply;
+  // Only base units: a prefixed one ("2.5 mV", "1.2 kOhm") would change the
+  // value, and kelvin is not Celsius, so those stay and fail as numbers.
+  std::string unit;
+  for (char c : reply.substr(r.size()))
+    if (c != ' ' && c != '\t') unit += static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  static const char* const kBaseUnits[] = {"V", "VDC", "VOLT", "VOLTS", "A", "ADC", "AMP", "AMPS", "W", "WATT", "WATTS", "C",
+                                           "\xC2\xB0" "C", "DEGC", "CEL", "OHM", "OHMS", "\xCE\xA9"};
+  for (const char* u : kBaseUnits)
+    if (unit == u) return r;
+  return reply;
+}
+
 Status ScpiSession::DrainErrors() {
   if (!options_.error_queue) return Status::Ok();
   std::vector<std::string> entries;
   for (int i = 0; i < options_.max_error_drain; ++i) {
-    KP_ASSIGN_OR_RETURN(std::string reply, Query("SYST:ERR?"));
+    KP_ASSIGN_OR_RETURN(std::string reply, Query(options_.error_query));
     // Replies look like  0,"No error"  or  -113,"Undefined header"  (SCPI-99).
     size_t comma = reply.find(',');
     Result<ScpiNumber> code = ParseScpiNumber(reply.substr(0, comma));
-    if (!code.ok() || !code->finite()) return ProtocolError(fmt::format("{} 'SYST:ERR?' replied '{}'", address_, reply));
+    if (!code.ok() || !code->finite())
+      return ProtocolError(fmt::format("{} '{}' replied '{}'", address_, options_.error_query, reply));
     if (code->value == 0) break;
     entries.push_back(reply);
   }

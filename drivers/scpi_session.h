@@ -36,7 +36,22 @@ struct ScpiOptions {
   // is repeated; so does a timeout when late_reply > 0 (a late reply may
   // still come); a stray line is never taken as a reply.
   bool strict_framing = true;
+  // The instrument's error-queue query (the dialect's `error-query`).
+  std::string error_query = "SYST:ERR?";
+  // Numeric replies may end in a unit ("12.003 V", "1.500A", "25.1 °C"): the
+  // trailing letters, degree sign and blanks are dropped before the number
+  // is read (the dialect's `strip-reply-units`).
+  bool strip_units = false;
+  // After every command that is not a query (nor *CLS), drain the error
+  // queue; anything queued fails the command with kInstrumentError naming it
+  // ("... refused 'CURR 40': -222,\"Data out of range\"") (the dialect's
+  // `check-settings`).
+  bool check_settings = false;
 };
+
+// "12.003 V" -> "12.003": drops trailing letters, blanks and a degree or ohm
+// sign when a digit or '.' is left at the end; anything else is returned as given.
+std::string_view StripReplyUnit(std::string_view reply);
 
 // Direction of a traced line: '>' sent, '<' received, '!' a failure note.
 using ScpiTraceHook = std::function<void(Seconds at, char direction, const std::string& address, std::string_view text)>;
@@ -47,6 +62,10 @@ class ScpiSession {
 
   void SetTrace(ScpiTraceHook hook) { trace_ = std::move(hook); }
   const std::string& address() const { return address_; }
+  // Switches the check-settings behaviour (ScpiOptions::check_settings).
+  void SetCheckSettings(bool on) { options_.check_settings = on; }
+  // The clock the session was given (settle times wait on it).
+  Clock& clock() { return clock_; }
   // Number of retried exchanges so far (for the run log).
   int retry_count() const { return retry_count_; }
   // Number of resynchronisations after a late, duplicate or unasked reply.
@@ -73,6 +92,7 @@ class ScpiSession {
 
  private:
   Status Send(std::string_view line);
+  Status WriteOnce(std::string_view command);
   // Before a retry: drops unread input and, after a timeout, a late reply.
   void Resync(const Status& last);
   // Runs `once` up to 1 + retries times. Before each retry: counts and traces

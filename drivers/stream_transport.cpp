@@ -16,6 +16,8 @@
 
 #include <fmt/format.h>
 
+#include "drivers/vxi11_transport.h"
+
 namespace kp {
 namespace {
 
@@ -324,6 +326,8 @@ Result<std::unique_ptr<Transport>> OpenTransport(const Address& address, const S
     case Address::Kind::kSerial: t = std::make_unique<SerialTransport>(address, options); break;
     case Address::Kind::kPty:
       return InvalidInput(fmt::format("address '{}': 'pty' is for `kneepoint sim`; connect with serial:/dev/pts/N", address.text));
+    case Address::Kind::kUsbtmc: return OpenUsbtmcTransport(address, options.usbtmc);
+    case Address::Kind::kVxi11: return OpenVxi11Transport(address, options.connect_timeout);
   }
   KP_RETURN_IF_ERROR(t->Open());
   return std::unique_ptr<Transport>(std::move(t));

@@ -15,6 +15,7 @@
 #include <string_view>
 
 #include "drivers/address.h"
+#include "drivers/usbtmc_transport.h"
 #include "drivers/transport.h"
 
 namespace kp {
@@ -23,9 +24,13 @@ struct StreamOptions {
   Seconds connect_timeout{3.0};
   // Receives one-line notes for the log (e.g. "using POSIX termios for /dev/pts/3").
   std::function<void(std::string_view)> note;
+  // usbtmc: how the device is opened and where USB identities are looked up
+  // (tests inject both; drivers/usbtmc_transport.h).
+  UsbtmcOptions usbtmc;
 };
 
-// Opens a tcp: or serial: address (pty is a server-side form and is refused).
+// Opens a tcp:, serial:, usbtmc: or vxi11: address (pty is a server-side
+// form and is refused).
 Result<std::unique_ptr<Transport>> OpenTransport(const Address& address, const StreamOptions& options = {});
 // Same, from the address text.
 Result<std::unique_ptr<Transport>> OpenTransport(std::string_view address, const StreamOptions& options = {});

@@ -57,6 +57,19 @@ std::string DeviceIdentity(const Address& address) {
       std::filesystem::path real = std::filesystem::canonical(address.path, ec);
       return "serial:" + (ec ? address.path : real.string());
     }
+    case Address::Kind::kUsbtmc: {
+      // One instrument however it is named: by its USB identity when given,
+      // else by the device file the path leads to.
+      if (address.path.empty())
+        return fmt::format("usb:{:04x}:{:04x}:{}:{}", address.usb_vid, address.usb_pid, address.usb_serial, address.usb_interface);
+      std::error_code ec;
+      std::filesystem::path real = std::filesystem::canonical(address.path, ec);
+      return "usbtmc:" + (ec ? address.path : real.string());
+    }
+    case Address::Kind::kVxi11: {
+      std::string host = ResolvedHost(address.host);
+      return fmt::format("vxi11:{}:{}", host.empty() ? address.host : host, address.vxi11_device);
+    }
     case Address::Kind::kPty:
       break;
   }

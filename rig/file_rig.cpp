@@ -14,6 +14,8 @@ namespace {
 
 class FileRig final : public Rig {
  public:
+  ~FileRig() override { Close(); }
+
   RigRoles roles() override {
     RigRoles r;
     r.load = load_.get();
@@ -43,6 +45,7 @@ class FileRig final : public Rig {
       clock_ = owned_clock_.get();
     }
     auto note = o.note ? o.note : [](std::string_view m) { std::cerr << "kneepoint: " << m << "\n"; };
+    note_ = note;
     std::string trace_path = o.trace_path.empty() ? spec.trace : o.trace_path;
     ScpiTraceHook trace;
     if (!trace_path.empty()) {
@@ -62,6 +65,8 @@ class FileRig final : public Rig {
       opts.retries = is.retries;
       opts.confirm_writes = is.confirm_writes;
       opts.late_reply = Seconds(is.late_reply_s >= 0 ? is.late_reply_s : is.timeout_s);
+      opts.error_query = is.profile.error_query;
+      opts.strip_units = is.profile.strip_units;
       auto session = std::make_unique<ScpiSession>(std::move(*t), *clock_, opts);
       if (trace) session->SetTrace(trace);
       (void)session->Clear();
@@ -71,6 +76,16 @@ class FileRig final : public Rig {
         return InvalidInput(fmt::format("{} answered *IDN? with '{}', but profile '{}' expects '{}'", where, *idn, is.profile_ref,
                                         is.profile.identity));
       if (Status st = session->DrainErrors(); !st.ok()) note(fmt::format("{}: errors queued before the run: {}", is.name, st.message()));
+      // From here the dialect's error check applies to every setting; the
+      // teardown list is owed from now on, whatever fails next.
+      session->SetCheckSettings(is.profile.check_settings);
+      Closing closing{session.get(), is.name, is.profile.teardown, nullptr, nullptr};
+      for (const std::string& c : is.profile.init)
+        if (Status st = session->Write(c); !st.ok()) {
+          closings_.push_back(closing);
+          sessions_.push_back(std::move(session));
+          return st.WithContext(fmt::format("{}: init command '{}'", where, c));
+        }
       InstrumentRecord rec;
       rec.name = is.name;
       for (const std::string& role : is.roles) rec.roles += (rec.roles.empty() ? "" : ",") + role;
@@ -85,10 +100,12 @@ class FileRig final : public Rig {
       instruments_.push_back(std::move(rec));
       ScpiSession& s = *session;
       sessions_.push_back(std::move(session));
+      closings_.push_back(closing);
       addresses.push_back(DeviceIdentity(addr));  // one key however the address is spelt
       for (const std::string& role : is.roles) {
         if (role == "load") {
           load_ = std::make_unique<LoadDriver>(s, is.profile.load);
+          closings_.back().load = load_.get();
           load_->SetCalibration(is.voltage, is.current);
           load_->SetLimits(limits_.max_current_a, limits_.load_rating_w);
           // Inert first: whatever state the load was left in, its input goes off now.
@@ -109,6 +126,7 @@ class FileRig final : public Rig {
           thermometer_tolerance_c_ = is.temperature_tolerance_c;
         } else if (role == "supply") {
           supply_ = std::make_unique<SupplyDriver>(s, is.profile.supply);
+          closings_.back().supply = supply_.get();
           KP_RETURN_IF_ERROR(supply_->SetOutput(false).WithContext(where + ": switching the output off"));
         }
       }
@@ -127,6 +145,43 @@ class FileRig final : public Rig {
   }
 
  private:
+  // One instrument's way out: its teardown list, between its load input (or
+  // supply output) going off and being read back off.
+  struct Closing {
+    ScpiSession* session = nullptr;
+    std::string name;
+    std::vector<std::string> teardown;
+    LoadDriver* load = nullptr;
+    SupplyDriver* supply = nullptr;
+  };
+
+  // Runs each instrument's teardown; a load ends with its input off whatever
+  // the list said (switched off again when it reads back on).
+  void Close() {
+    for (Closing& c : closings_) {
+      if (c.teardown.empty()) continue;
+      if (c.load != nullptr) (void)c.load->SetInput(false);
+      if (c.supply != nullptr) (void)c.supply->SetOutput(false);
+      for (const std::string& cmd : c.teardown)
+        if (Status st = c.session->Write(cmd); !st.ok() && note_) note_(fmt::format("{}: teardown '{}': {}", c.name, cmd, st.message()));
+      if (c.load != nullptr) {
+        Result<bool> on = c.load->InputState();
+        if (!on.ok() || *on) {
+          Status st = c.load->SetInput(false);
+          if (note_) note_(fmt::format("{}: after the teardown the load input {}; switched off again{}", c.name,
+                                       on.ok() ? "read back on" : "could not be read back", st.ok() ? "" : ": " + st.message()));
+        }
+      }
+      if (c.supply != nullptr) {
+        Result<bool> on = c.supply->OutputState();
+        if (!on.ok() || *on) (void)c.supply->SetOutput(false);
+      }
+    }
+    closings_.clear();
+  }
+
+  std::function<void(std::string_view)> note_;
+  std::vector<Closing> closings_;
   std::unique_ptr<Clock> owned_clock_;
   Clock* clock_ = nullptr;
   std::vector<std::unique_ptr<ScpiSession>> sessions_;

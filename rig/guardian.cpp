@@ -1,5 +1,7 @@
 #include "rig/guardian.h"
 
+#include "drivers/device_sysfs.h"
+
 #include <fmt/format.h>
 
 #include <algorithm>
@@ -17,6 +19,8 @@
 #include <netdb.h>
 #include <netinet/in.h>
 #include <netinet/tcp.h>
+#include <linux/usb/tmc.h>
+#include <sys/ioctl.h>
 #include <poll.h>
 #include <sys/socket.h>
 #include <sys/wait.h>
@@ -54,6 +58,10 @@ struct Target {
   std::string path;
   SerialSettings serial;
   double timeout_s = 1.0;
+  // usbtmc: one message per write, one reply per read (the driver asks the
+  // instrument on read), so the lines go one by one.
+  bool usbtmc = false;
+  std::string query_line, off_line;  // with their terminators
 };
 
 // What happened to one target; filled without allocating.
@@ -185,8 +193,55 @@ int ReadStates(int fd, int want, int* states, double deadline) {
   return got;
 }
 
+// One usbtmc exchange: the query's reply as a state (1 on, 0 off, -1 none).
+int UsbtmcState(int fd, const Target& t) {
+  if (::write(fd, t.query_line.data(), t.query_line.size()) != static_cast<ssize_t>(t.query_line.size())) return -1;
+  char buf[256];
+  ssize_t n = ::read(fd, buf, sizeof buf);
+  if (n <= 0) return -1;
+  size_t len = static_cast<size_t>(n);
+  while (len > 0 && (buf[len - 1] == '\n' || buf[len - 1] == '\r')) --len;
+  std::optional<bool> s = ParseStateReply(std::string_view(buf, len));
+  return s ? (*s ? 1 : 0) : -1;
+}
+
+void SwitchOffUsbtmc(const Target& t, double ended_at, double give_up, TargetResult& res) {
+  bool first = true;
+  while (!res.verified && MonoNow() < give_up) {
+    ++res.attempts;
+    int fd = ::open(t.path.c_str(), O_RDWR | O_CLOEXEC);
+    if (fd < 0) {
+      std::snprintf(res.error, sizeof res.error, "open %s: %s", t.path.c_str(), std::strerror(errno));
+      SleepS(0.1);
+      continue;
+    }
+    auto ms = static_cast<uint32_t>(std::max(100.0, t.timeout_s * 1000.0));
+    (void)::ioctl(fd, USBTMC_IOCTL_SET_TIMEOUT, &ms);
+    if (first) res.found = UsbtmcState(fd, t);
+    first = false;
+    if (::write(fd, t.off_line.data(), t.off_line.size()) != static_cast<ssize_t>(t.off_line.size())) {
+      std::snprintf(res.error, sizeof res.error, "write failed: %s", std::strerror(errno));
+      ::close(fd);
+      SleepS(0.1);
+      continue;
+    }
+    res.off_sent = true;
+    int state = UsbtmcState(fd, t);
+    ::close(fd);
+    if (state == 0) {
+      res.verified = true;
+      res.verified_after_s = MonoNow() - ended_at;
+      res.error[0] = '\0';
+      break;
+    }
+    if (state == 1) std::snprintf(res.error, sizeof res.error, "%s still reads on after the off command", t.query.c_str());
+    else std::snprintf(res.error, sizeof res.error, "no state reply to %s within %.1f s", t.query.c_str(), t.timeout_s);
+  }
+}
+
 // Switches one target off and verifies it by query; gives up at `give_up`.
 void SwitchOff(const Target& t, double ended_at, double give_up, TargetResult& res) {
+  if (t.usbtmc) return SwitchOffUsbtmc(t, ended_at, give_up, res);
   bool first = true;
   while (!res.verified && MonoNow() < give_up) {
     ++res.attempts;
@@ -600,6 +655,19 @@ Result<std::vector<Target>> PrepareTargets(const RigFileSpec& rig) {
       } else if (a.kind == Address::Kind::kSerial) {
         t.path = a.path;
         t.serial = a.serial;
+      } else if (a.kind == Address::Kind::kUsbtmc) {
+        // A USB identity is looked up now, before the fork.
+        if (Status st = ResolveUsbtmc(a); !st.ok())
+          return st.WithContext(fmt::format("{}:{}: instrument '{}'", rig.path, is.line, is.name));
+        t.usbtmc = true;
+        t.path = a.path;
+        t.query_line = query + a.eol;
+        t.off_line = off + a.eol;
+      } else if (a.kind == Address::Kind::kVxi11) {
+        return InvalidInput(fmt::format(
+            "{}:{}: instrument '{}': the guardian that switches a {} off when the runner dies cannot speak VXI-11; address it "
+            "by its raw socket (tcp:HOST:5025 or TCPIP0::HOST::5025::SOCKET) or over USB",
+            rig.path, is.line, is.name, t.what));
       } else {
         return InvalidInput(fmt::format("{}:{}: instrument '{}': no address the guardian can reach", rig.path, is.line, is.name));
       }

@@ -16,6 +16,14 @@ std::string Upper(std::string_view s) {
   return out;
 }
 
+// A command with a numeric argument ("CURR 1.5", "VOLT:PROT:LOW 2.5").
+bool IsSetting(std::string_view line) {
+  ScpiCommand c = SplitScpiCommand(line);
+  if (c.header.empty() || c.header.front() == '*' || c.args.size() != 1) return false;
+  Result<ScpiNumber> n = ParseScpiNumber(c.args[0]);
+  return n.ok();
+}
+
 }  // namespace
 
 FaultedReply FaultInjector::Respond(std::string_view line) {
@@ -23,6 +31,12 @@ FaultedReply FaultInjector::Respond(std::string_view line) {
   FaultedReply out;
   bool query = line.find('?') != std::string_view::npos;
   if (!query) {
+    if (options_.refuse_setting_at > 0 && IsSetting(line) && ++settings_ == options_.refuse_setting_at) {
+      errors_.push_back("-222,\"Data out of range\"");
+      out.fault = "refused setting";
+      ++faults_;
+      return out;
+    }
     out.reply = inner_.HandleLine(line);
     return out;
   }

@@ -28,8 +28,13 @@ struct FaultOptions {
                              // a pseudo-terminal cannot be closed, so there it acts as a dropped reply
   int error_every = 0;       // > 0: every N-th query answers 9.91E37 (no reading) and queues an SCPI error
   int stick_at = 0;          // > 0: from the N-th query on, measurement replies repeat the value they had then
+  // > 0: the N-th setting (a command with a numeric argument, such as
+  // "CURR 1.5") is refused as an instrument refuses a value: not applied, and
+  // -222,"Data out of range" queued for SYSTem:ERRor?. Counted per instrument.
+  int refuse_setting_at = 0;
   bool any() const {
-    return drop_every > 0 || corrupt_every > 0 || delay_every > 0 || disconnect_at > 0 || error_every > 0 || stick_at > 0;
+    return drop_every > 0 || corrupt_every > 0 || delay_every > 0 || disconnect_at > 0 || error_every > 0 || stick_at > 0 ||
+           refuse_setting_at > 0;
   }
 };
 
@@ -57,6 +62,7 @@ class FaultInjector final : public LineDevice {
   FaultOptions options_;
   mutable std::mutex mu_;
   int queries_ = 0;
+  int settings_ = 0;
   int faults_ = 0;
   bool disconnected_ = false;
   std::deque<std::string> errors_;              // injected SYSTem:ERRor? entries

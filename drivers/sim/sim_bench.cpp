@@ -83,6 +83,13 @@ class SimBench::Device final : public LineDevice {
       return std::nullopt;
     }
     if (Is("*OPC?")) return std::string("1");
+    // Remote and local control, as dialects' init and teardown lists send them.
+    if (Is("SYSTem:REMote") || Is("SYSTem:RWLock") || Is("SYSTem:LOCal")) {
+      bool remote = !Is("SYSTem:LOCal");
+      if (role_ == Role::kLoad) bench_.load_remote_ = remote;
+      return std::nullopt;
+    }
+    if (Is("SYSTem:REMote?")) return std::string(role_ == Role::kLoad && bench_.load_remote_ ? "1" : "0");
     if (Is("*ESR?") || Is("*STB?")) return std::string("0");
     if (Is("SYSTem:ERRor[:NEXT]?")) {
       if (errors_.empty()) return std::string("0,\"No error\"");
@@ -375,6 +382,11 @@ LineDevice& SimBench::load() { return *load_; }
 LineDevice& SimBench::meter() { return *meter_; }
 LineDevice& SimBench::thermometer() { return *thermometer_; }
 LineDevice& SimBench::supply() { return *supply_; }
+
+bool SimBench::load_remote() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return load_remote_;
+}
 
 bool SimBench::load_input_on() const {
   std::lock_guard<std::mutex> lock(mu_);

@@ -61,6 +61,8 @@ class SimBench {
 
   // Observers for tests and the simulator console.
   bool load_input_on() const;
+  // Whether the load is under remote control (SYSTem:REMote / :RWLock; :LOCal gives it back).
+  bool load_remote() const;
   // Why the load's own protection last switched its input off ("", "undervoltage"
   // is a limit, not a trip: "overcurrent", "overpower", "watchdog").
   std::string load_trip() const;
@@ -98,6 +100,7 @@ class SimBench {
   std::mt19937_64 rng_;
 
   bool input_on_ = false;
+  bool load_remote_ = false;
   LoadMode mode_ = LoadMode::kCurrent;
   double level_current_a_ = 0.0;
   double level_resistance_ohm_ = 1e6;

@@ -196,6 +196,7 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterReport(registry);
   RegisterExport(registry);
   RegisterPorts(registry);
+  RegisterDiscover(registry);
   RegisterProbe(registry);
   RegisterSim(registry);
   RegisterCheck(registry);

@@ -67,6 +67,7 @@ void RegisterRuns(CliRegistry& r);
 void RegisterReport(CliRegistry& r);
 void RegisterExport(CliRegistry& r);
 void RegisterPorts(CliRegistry& r);
+void RegisterDiscover(CliRegistry& r);
 void RegisterProbe(CliRegistry& r);
 void RegisterSim(CliRegistry& r);
 void RegisterCheck(CliRegistry& r);

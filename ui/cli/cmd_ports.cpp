@@ -1,41 +1,47 @@
-// `ports`: serial ports the system knows (libserialport's enumeration).
+// `ports`: serial ports and USB-TMC devices as the kernel describes them
+// (sysfs: a USB adapter with its identity, or a UART built into the board),
+// with udev's stable /dev/serial/by-id names.
 #include <iostream>
 
 #include <fmt/format.h>
-#include <libserialport.h>
 
+#include "drivers/text_hygiene.h"
 #include "ui/cli/cli.h"
+#include "rig/discovery.h"
 
 namespace kp::cli {
 namespace {
 
-int RunPorts() {
-  sp_port** ports = nullptr;
-  if (sp_list_ports(&ports) != SP_OK) {
-    char* m = sp_last_error_message();
-    std::string msg = m != nullptr ? m : "unknown error";
-    if (m != nullptr) sp_free_error_message(m);
-    return Fail(IoError("cannot list serial ports: " + msg));
+struct PortsOptions {
+  SysfsRoots roots;
+};
+
+int RunPorts(const PortsOptions& o) {
+  std::vector<FoundInstrument> found = DiscoverLocal(o.roots);
+  for (const FoundInstrument& f : found) {
+    std::cout << TerminalSafe(fmt::format("{:<32} {}\n", f.path_address, f.description));
+    if (f.address != f.path_address) std::cout << TerminalSafe(fmt::format("{:<32} (same device)\n", f.address));
+    for (const std::string& a : f.also)
+      if ("serial:" + a != f.path_address) std::cout << TerminalSafe(fmt::format("{:<32} (same device)\n", "serial:" + a));
   }
-  int n = 0;
-  for (sp_port** p = ports; *p != nullptr; ++p, ++n) {
-    const char* name = sp_get_port_name(*p);
-    const char* desc = sp_get_port_description(*p);
-    std::string usb = "-";
-    int vid = 0, pid = 0;
-    if (sp_get_port_transport(*p) == SP_TRANSPORT_USB && sp_get_port_usb_vid_pid(*p, &vid, &pid) == SP_OK)
-      usb = fmt::format("{:04x}:{:04x}", vid, pid);
-    std::cout << fmt::format("serial:{:<24} usb {:<10} {}\n", name != nullptr ? name : "?", usb, desc != nullptr ? desc : "");
-  }
-  sp_free_port_list(ports);
-  if (n == 0) std::cout << "no serial ports found (TCP instruments are addressed as tcp:HOST:5025)\n";
+  if (found.empty())
+    std::cout << "no serial ports or USB-TMC devices found (LAN instruments: `kneepoint discover`, or tcp:HOST:5025)\n";
   return kExitOk;
 }
 
 }  // namespace
 
+void AddSysfsRootOptions(CLI::App* c, SysfsRoots& roots) {
+  c->add_option("--sysfs-root", roots.sys, "Read the kernel's device information under this folder instead of /sys (for tests)")
+      ->group("Testing");
+  c->add_option("--dev-root", roots.dev, "Device files under this folder instead of /dev (for tests)")->group("Testing");
+}
+
 void RegisterPorts(CliRegistry& r) {
-  r.Add("ports", "List serial ports: address, USB VID:PID, description", [] { return RunPorts(); });
+  static PortsOptions opt;
+  CLI::App* c = r.Add("ports", "List serial ports (USB adapter or built-in UART, by-id names) and USB-TMC devices",
+                      [] { return RunPorts(opt); });
+  AddSysfsRootOptions(c, opt.roots);
 }
 
 }  // namespace kp::cli

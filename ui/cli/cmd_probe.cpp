@@ -44,8 +44,8 @@ int RunProbe(const ProbeOptions& o) {
 
 void RegisterProbe(CliRegistry& r) {
   static ProbeOptions opt;
-  CLI::App* c = r.Add("probe", "Ask one instrument *IDN? (tcp:HOST:PORT, HOST:PORT, serial:PATH?baud=... or a device path)", [] { return RunProbe(opt); });
-  c->add_option("address", opt.address, "Instrument address: tcp:HOST:PORT, HOST:PORT, tcp:[IPv6]:PORT, serial:PATH?baud=N..., or a device path such as /dev/ttyUSB0 (serial, 9600 8N1)")->required();
+  CLI::App* c = r.Add("probe", "Ask one instrument *IDN? (tcp:HOST:PORT, serial:PATH?baud=..., usbtmc:/dev/usbtmcN, vxi11:HOST, a VISA resource string or a device path)", [] { return RunProbe(opt); });
+  c->add_option("address", opt.address, "Instrument address: tcp:HOST:PORT, HOST:PORT, tcp:[IPv6]:PORT, serial:PATH?baud=N..., usbtmc:/dev/usbtmcN, vxi11:HOST[:DEVICE], a VISA resource string (TCPIP0::HOST::5025::SOCKET, TCPIP0::HOST::INSTR, ASRL/dev/ttyUSB0::INSTR, USB0::VID::PID::SERIAL::INSTR), or a device path such as /dev/ttyUSB0 (serial, 9600 8N1)")->required();
   AddQuantityOption(c, "--timeout", opt.timeout_s, Dimension::kTime, "How long to wait for the connection and the reply", 1e-3,
                     600.0);
   c->add_option("--trace", opt.trace, "Append the SCPI exchange to this file");

@@ -76,6 +76,8 @@ void RegisterSim(CliRegistry& r) {
   c->add_option("--disconnect-at", opt.faults.disconnect_at, "Fault: close the link after the N-th query (once)");
   c->add_option("--error-every", opt.faults.error_every, "Fault: every N-th query answers 9.91E37 and queues an SCPI error");
   c->add_option("--stick-at", opt.faults.stick_at, "Fault: readings freeze from the N-th query on");
+  c->add_option("--refuse-setting", opt.faults.refuse_setting_at,
+                "Fault: the N-th command with a number (a setpoint) is refused with -222 in the error queue");
   AddQuantityOption(c, "--runaway-at", opt.runaway_at_s, Dimension::kTime, "Fault: thermal runaway from this simulated time on")
       ->default_str("");
   c->add_flag("--verbose", opt.verbose, "Log every injected fault");
