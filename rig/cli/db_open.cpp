@@ -5,6 +5,9 @@
 
 #include <fmt/format.h>
 
+#include "rig/lab/lab_mirror.h"
+#include "rig/lab/pg.h"
+
 namespace kp::cli {
 namespace {
 
@@ -31,6 +34,11 @@ Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, bool r
 
 Result<std::unique_ptr<Store>> OpenExistingDb(const std::string& path, Clock& wall) { return Open(path, wall, false); }
 
-Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall) { return Open(path, wall, true); }
+Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall) { return OpenDbForReading(path, wall, {}); }
+
+Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall, const std::vector<std::string>& runs) {
+  if (pg::IsPostgresUrl(path)) return lab::OpenLabStore(path, wall, runs);
+  return Open(path, wall, true);
+}
 
 }  // namespace kp::cli
