@@ -120,7 +120,8 @@ TEST_F(LabApi, OneRunsFiguresAreTheBenchReport) {
     json want = RunReportJson(*rep);
     // The copy numbers its runs by start; the figures are the same.
     want["run"] = got.at("report").at("run");
-    EXPECT_EQ(got.at("report"), want);
+    want["run_record"]["id"] = got.at("report").at("run_record").at("id");
+    EXPECT_EQ(got.at("report"), want) << json::diff(want, got.at("report")).dump(1);
   }
   Get("/api/runs/0b6d3c56-33a5-4f4e-9a53-4b2b4f1c7a10", {}, 404);
   Get("/api/runs/not-a-uuid", {}, 400);
