@@ -136,6 +136,8 @@ int RunRun(const RunCmdOptions& opt) {
 
   std::cout << SafetyCautions() << "\n" << DescribePlan(*plan, EstimatePlan(*plan, sim_choice.start_soc)) << "\n";
   SteadyClock wall;
+  if (pg::IsPostgresUrl(opt.db))
+    return Fail(InvalidInput("--db: a run logs into the bench's own SQLite file; copy it to the lab database with --sync URL"));
   auto store = Store::Open(opt.db, wall);
   if (!store.ok()) return Fail(store.status());
 

@@ -12,6 +12,10 @@ namespace kp::cli {
 namespace {
 
 Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, bool reading) {
+  if (pg::IsPostgresUrl(path))
+    return InvalidInput(fmt::format("{} is a lab database, which kneepoint only reads: notes, control requests and resumes go to "
+                                    "the bench's own database file",
+                                    pg::RedactUrl(path)));
   std::error_code ec;
   if (!std::filesystem::exists(path, ec)) return NotFound(fmt::format("no database at '{}' (give one with --db)", path));
   Store::Options o;

@@ -111,6 +111,10 @@ TEST_F(LabRead, TheLabSessionIsReadOnly) {
   Status st = (*m)->conn().Exec("DELETE FROM kneepoint.samples");
   EXPECT_FALSE(st.ok());
   EXPECT_NE(st.message().find("read-only"), std::string::npos) << st.ToString();
+  // Commands that write refuse the lab database and say where to write instead.
+  CliOut note = Cli({"note", "1", "a note", "--db", url_});
+  EXPECT_EQ(note.code, cli::kExitBadInput);
+  EXPECT_NE(note.err.find("only reads"), std::string::npos) << note.err;
   // An unknown run is a clear error.
   CliOut r = Cli({"report", "9", "--db", url_});
   EXPECT_NE(r.code, 0);

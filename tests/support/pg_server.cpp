@@ -19,6 +19,11 @@ namespace {
 
 // The newest /usr/lib/postgresql/<version>/bin holding initdb and pg_ctl.
 std::string FindBin() {
+  // KNEEPOINT_TEST_PG_BIN names another folder holding initdb and pg_ctl.
+  if (const char* env = std::getenv("KNEEPOINT_TEST_PG_BIN"); env != nullptr && *env != '\0') {
+    const fs::path p(env);
+    return fs::exists(p / "initdb") && fs::exists(p / "pg_ctl") ? p.string() : std::string();
+  }
   std::string best;
   int best_v = -1;
   std::error_code ec;
@@ -50,7 +55,8 @@ Result<std::unique_ptr<PgServer>> PgServer::Start() {
   s->bin_ = FindBin();
   if (s->bin_.empty())
     return NotFound(
-        "PostgreSQL server binaries not found under /usr/lib/postgresql/<version>/bin: the lab tests need a real server; "
+        "PostgreSQL server binaries (initdb, pg_ctl) not found under /usr/lib/postgresql/<version>/bin (or $KNEEPOINT_TEST_PG_BIN): "
+        "the lab tests need a real server; "
         "install Debian's `postgresql` package (`make deps` does)");
   char tmpl[] = "/tmp/kneepoint-pg-XXXXXX";
   if (mkdtemp(tmpl) == nullptr) return IoError("cannot make a temporary folder for PostgreSQL");

@@ -1,5 +1,6 @@
 // A real PostgreSQL server for the lab tests, from Debian's `postgresql`
-// package (binaries under /usr/lib/postgresql/<version>/bin): initdb into a
+// package (binaries under /usr/lib/postgresql/<version>/bin, or the folder
+// $KNEEPOINT_TEST_PG_BIN names): initdb into a
 // fresh temporary folder, listening only on a Unix socket in that folder (no
 // TCP at all), started with `pg_ctl -w start`, stopped and removed with the
 // object. PostgreSQL refuses to run as root: when the tests are root, the
