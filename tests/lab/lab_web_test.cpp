@@ -14,6 +14,7 @@
 #include "rig/lab/lab_server.h"
 #include "rig/lab/lab_sync.h"
 #include "rig/lab/lab_web.h"
+#include "rig/lab/pg.h"
 #include "rig/run_report.h"
 #include "rig/store.h"
 #include "tests/lab/lab_test_support.h"
@@ -89,6 +90,15 @@ TEST_F(LabApi, RunListWithFilters) {
   json page = Get("/api/runs", {{"limit", "1"}, {"offset", "1"}});
   EXPECT_EQ(page.at("total"), 3);
   EXPECT_EQ(page.at("runs").size(), 1u);
+  // Any text comes back as the same text (JSON escaping of quotes, controls, non-ASCII).
+  {
+    auto c = pg::PgConn::Connect(url_);
+    ASSERT_TRUE(c.ok());
+    ASSERT_OK((*c)->Exec("UPDATE kneepoint.runs SET cell = E'odd \"cell\"\\\\\n\t\u00e9 \x01' WHERE bench = 'bench L'"));
+    json odd = Get("/api/runs", {{"bench", "bench L"}});
+    ASSERT_EQ(odd.at("runs").size(), 1u);
+    EXPECT_EQ(odd.at("runs").at(0).at("cell"), "odd \"cell\"\\\n\t\u00e9 \x01");
+  }
   Get("/api/runs", {{"outcome", "finished"}}, 400);
   Get("/api/runs", {{"limit", "0"}}, 400);
   Get("/api/runs", {{"limit", "12abc"}}, 400);
