@@ -12,7 +12,7 @@ PKGS := build-essential cmake ninja-build pkg-config ccache \
         libimgui-dev libglfw3-dev libgl-dev libstb-dev \
         libgtest-dev libbenchmark-dev libxml2-utils \
         libtomlplusplus-dev libcli11-dev libfmt-dev nlohmann-json3-dev libxlsxwriter-dev \
-        libgsl-dev liblxi-dev libtirpc-dev \
+        libgsl-dev liblxi-dev libtirpc-dev postgresql libpq-dev libcpp-httplib-dev \
         xvfb xauth libgl1-mesa-dri help2man dpkg-dev
 
 # Hardening (see DEVELOPERS.md, "Hardening"): a second build with clang under

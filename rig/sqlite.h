@@ -39,6 +39,7 @@ class Stmt {
   double Real(int col) const { return sqlite3_column_double(stmt_, col); }
   std::string Text(int col) const;
   bool IsNull(int col) const { return sqlite3_column_type(stmt_, col) == SQLITE_NULL; }
+  sqlite3_stmt* raw() { return stmt_; }
 
  private:
   sqlite3* db_ = nullptr;

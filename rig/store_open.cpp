@@ -5,10 +5,17 @@
 
 #include <fmt/format.h>
 
+#include "rig/lab/lab_mirror.h"
+#include "rig/lab/pg.h"
+
 namespace kp {
 namespace {
 
 Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, bool reading) {
+  if (pg::IsPostgresUrl(path))
+    return InvalidInput(fmt::format("{} is a lab database, which kneepoint only reads: notes, control requests and resumes go to "
+                                    "the bench's own database file",
+                                    pg::RedactUrl(path)));
   std::error_code ec;
   if (!std::filesystem::exists(path, ec)) return NotFound(fmt::format("no database at '{}' (give one with --db)", path));
   Store::Options o;
@@ -31,6 +38,11 @@ Result<std::unique_ptr<Store>> Open(const std::string& path, Clock& wall, bool r
 
 Result<std::unique_ptr<Store>> OpenExistingDb(const std::string& path, Clock& wall) { return Open(path, wall, false); }
 
-Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall) { return Open(path, wall, true); }
+Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall) { return OpenDbForReading(path, wall, {}); }
+
+Result<std::unique_ptr<Store>> OpenDbForReading(const std::string& path, Clock& wall, const std::vector<std::string>& runs) {
+  if (pg::IsPostgresUrl(path)) return lab::OpenLabStore(path, wall, runs);
+  return Open(path, wall, true);
+}
 
 }  // namespace kp

@@ -206,6 +206,8 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterControl(registry);
   RegisterResume(registry);
   RegisterNote(registry);
+  RegisterSync(registry);
+  RegisterServe(registry);
   for (Registrar r : extra) r(registry);
   Result<UserConfig> config = LoadUserConfig();
   if (!config.ok()) return Fail(config.status());

@@ -76,6 +76,8 @@ void RegisterCompare(CliRegistry& r);
 void RegisterLife(CliRegistry& r);
 void RegisterControl(CliRegistry& r);  // abort / pause / continue
 void RegisterResume(CliRegistry& r);
+void RegisterSync(CliRegistry& r);   // lab database (PostgreSQL)
+void RegisterServe(CliRegistry& r);  // read-only web view of the lab
 void RegisterNote(CliRegistry& r);
 
 // An option taking a physical value with its unit, read by the one unit

@@ -34,7 +34,9 @@ void RegisterCompare(CliRegistry& r) {
       at_a = *q.value;
     }
     SteadyClock wall;
-    auto store = OpenDbForReading(db_path, wall);
+    std::vector<std::string> refs;
+    for (int64_t id : run_ids) refs.push_back(std::to_string(id));
+    auto store = OpenDbForReading(db_path, wall, refs);
     if (!store.ok()) return Fail(store.status());
     if (brownout_v > 0) options.brownout_v = brownout_v;
     auto rep = BuildCompareReport(**store, run_ids, at_a, options);
@@ -54,7 +56,7 @@ void RegisterCompare(CliRegistry& r) {
     return kExitOk;
   });
   cmd->add_option("RUN", run_ids, "Run ids (two or more)")->required()->expected(2, -1);
-  cmd->add_option("--db", db_path, "Database file")->capture_default_str();
+  cmd->add_option("--db", db_path, "Database file, or a lab database postgresql://... (read only)")->capture_default_str();
   cmd->add_flag("--json", json, "Machine-readable output");
   cmd->add_option("--html", html_path, "Also write a self-contained HTML comparison to this file");
   cmd->add_option("--csv", csv_path, "Also write the side-by-side table as CSV to this file");

@@ -77,7 +77,7 @@ int RunExport(const ExportOptions& opt) {
   if (opt.decimal_comma && opt.csv_path.empty()) return Fail(InvalidInput("--decimal-comma is an option of --csv"));
   if (Status st = CheckOutputPaths(opt.db_path, {opt.csv_path, opt.json_path, opt.xlsx_path}); !st.ok()) return Fail(st);
   SteadyClock wall;
-  auto store = OpenDbForReading(opt.db_path, wall);
+  auto store = OpenDbForReading(opt.db_path, wall, {opt.run_ref});
   if (!store.ok()) return Fail(store.status());
   auto id = (*store)->ResolveRun(opt.run_ref);
   if (!id.ok()) return Fail(id.status());
@@ -107,7 +107,7 @@ void RegisterExport(CliRegistry& r) {
   opt = ExportOptions{};  // fresh defaults for each command line parsed
   CLI::App* exp = r.Add("export", "Write a run's samples as CSV, JSON or .xlsx (streamed)", [] { return RunExport(opt); });
   exp->add_option("RUN", opt.run_ref, "Run number or UUID")->required();
-  exp->add_option("--db", opt.db_path, "Database file")->capture_default_str();
+  exp->add_option("--db", opt.db_path, "Database file, or a lab database postgresql://... (read only)")->capture_default_str();
   exp->add_option("--csv", opt.csv_path,
                   "Output CSV file, RFC 4180 (t_s, voltage_V, current_A, temperature_C, step, step_number, cycle, time_utc, "
                   "step_kind, charge_Ah, energy_Wh)");

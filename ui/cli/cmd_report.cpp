@@ -46,7 +46,7 @@ void RegisterReport(CliRegistry& r) {
   CLI::App* report = r.Add("report", "Figures of one run, computed from its logged samples", [] {
     if (Status st = CheckOutputPaths(db_path, {html_path, csv_path, cycles_csv_path}); !st.ok()) return Fail(st);
     SteadyClock wall;
-    auto store = OpenDbForReading(db_path, wall);
+    auto store = OpenDbForReading(db_path, wall, {std::to_string(run_id)});
     if (!store.ok()) return Fail(store.status());
     if (brownout_v > 0) options.brownout_v = brownout_v;
     auto rep = BuildRunReport(**store, run_id, options);
@@ -71,7 +71,7 @@ void RegisterReport(CliRegistry& r) {
     return kExitOk;
   });
   report->add_option("RUN", run_id, "Run id (see `kneepoint runs`)")->required();
-  report->add_option("--db", db_path, "Database file")->capture_default_str();
+  report->add_option("--db", db_path, "Database file, or a lab database postgresql://... (read only)")->capture_default_str();
   report->add_flag("--json", json, "Machine-readable output");
   report->add_option("--html", html_path, "Also write a self-contained HTML report (inline SVG plots) to this file");
   report->add_option("--csv", csv_path, "Also write the per-step figures as CSV to this file");

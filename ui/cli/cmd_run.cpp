@@ -14,6 +14,8 @@
 #include "drivers/sim/cell_file.h"
 #include "procedures/estimate.h"
 #include "rig/control_channel.h"
+#include "rig/lab/lab_sync.h"
+#include "rig/lab/pg.h"
 #include "rig/load_guards.h"
 #include "rig/rig.h"
 #include "rig/run_controller.h"
@@ -46,6 +48,7 @@ struct RunCmdOptions {
   double link_grace_s = 30.0;
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
   RecordOptions record;
+  std::string sync_url;  // --sync: lab database the run is copied to as it goes
 };
 
 // Records which simulated cell the run just begun uses (event "sim-cell").
@@ -135,6 +138,8 @@ int RunRun(const RunCmdOptions& opt) {
 
   std::cout << SafetyCautions() << "\n" << DescribePlan(*plan, EstimatePlan(*plan, sim_choice.start_soc)) << "\n";
   SteadyClock wall;
+  if (pg::IsPostgresUrl(opt.db))
+    return Fail(InvalidInput("--db: a run logs into the bench's own SQLite file; copy it to the lab database with --sync URL"));
   auto store = Store::Open(opt.db, wall);
   if (!store.ok()) return Fail(store.status());
 
@@ -172,6 +177,13 @@ int RunRun(const RunCmdOptions& opt) {
               << std::flush;
   };
   std::cout << fmt::format("running '{}' on cell '{}' ({}), logging to {}\n", plan->name, cell, opt.rig, opt.db);
+  // The lab copy: its own thread and connections, only ever reading the bench
+  // file; a failure there is logged and retried, never stops the run.
+  std::unique_ptr<lab::BackgroundSync> sync;
+  if (!opt.sync_url.empty()) {
+    sync = std::make_unique<lab::BackgroundSync>(opt.db, opt.sync_url, [](const std::string& m) { std::cerr << "kneepoint: " + m + "\n"; });
+    sync->Start();
+  }
   auto result = controller.Execute(*plan, run);
   if (!result.ok()) return Fail(result.status());
   NoteStopSignal(**store, *result);
@@ -187,6 +199,7 @@ int RunRun(const RunCmdOptions& opt) {
     if (Status st = RecordVerdict(**store, *rep); !st.ok()) std::cerr << "kneepoint: verdict not recorded: " << st.message() << "\n";
     std::cout << RunReportText(*rep);
   }
+  if (sync) sync->Stop(15.0);  // a last pass: the end of the run and its verdict
   return result->outcome == Outcome::kCompleted ? kExitOk : kExitFailure;
 }
 
@@ -217,6 +230,9 @@ void RegisterRun(CliRegistry& r) {
                     0.0, 3600.0);
   AddHangLimitOption(c, opt.hang_limit_s);
   AddRecordOptions(c, opt.record);
+  c->add_option("--sync", opt.sync_url,
+                "Also copy the run to this lab database (postgresql://...) while it goes on; failures are retried, never stop the run")
+      ->check([](const std::string& v) { return pg::IsPostgresUrl(v) ? std::string() : std::string("give a postgresql://... URL"); });
 }
 
 }  // namespace kp::cli

@@ -105,7 +105,7 @@ void RegisterRuns(CliRegistry& r) {
   opt = RunsOptions{};
   CLI::App* runs = r.Add("runs", "List the runs in a database (filters narrow the list; all given must hold)",
                          [] { return RunRuns(opt); });
-  runs->add_option("--db", opt.db_path, "Database file")->capture_default_str();
+  runs->add_option("--db", opt.db_path, "Database file, or a lab database postgresql://... (read only)")->capture_default_str();
   runs->add_flag("--json", opt.json, "Machine-readable output");
   RunFilter& f = opt.filter;
   runs->add_option("--cell", f.cell, "Cell name (case-insensitive; * and ? are wildcards)");
