@@ -94,6 +94,14 @@ bool InstrumentProfile::HasRole(std::string_view role) const {
   return std::find(roles.begin(), roles.end(), role) != roles.end();
 }
 
+bool InstrumentProfile::SelectsChannels() const {
+  if (!channel_select.empty()) return true;
+  bool suffixed = false;
+  InstrumentProfile copy = *this;
+  ForEachCommand(copy, [&](std::string& c) { suffixed = suffixed || c.find("{ch}") != std::string::npos; });
+  return suffixed;
+}
+
 namespace {
 
 // The older `key = text` dialect files (".kpp" before dialects became TOML).
@@ -132,7 +140,7 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
   auto where = [&](const toml::node* n, const std::string& key) {
     return fmt::format("{}:{}: key '{}': ", file, LineOf(n), key);
   };
-  static const std::vector<std::string> kTop = {"format", "roles", "description", "identity", "commands"};
+  static const std::vector<std::string> kTop = {"format", "roles", "description", "identity", "channels", "channel-select", "commands"};
   for (const auto& [k, v] : doc) {
     std::string key(k.str());
     if (std::find(kTop.begin(), kTop.end(), key) == kTop.end()) {
@@ -140,7 +148,7 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       for (const auto& [name, spec] : Keys()) commands.push_back(name);
       if (std::find(commands.begin(), commands.end(), key) != commands.end())
         return InvalidInput(fmt::format("{}a command belongs under [commands]", where(&v, key)));
-      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, [commands])", where(&v, key),
+      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, channels, channel-select, [commands])", where(&v, key),
                                       DidYouMean(key, kTop)));
     }
   }
@@ -174,6 +182,21 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       if (v->empty()) return InvalidInput(fmt::format("{}empty pattern (use \"*\" to accept any)", where(n, key)));
       p.identity = *v;
     }
+  }
+  if (const toml::node* n = doc.get("channels")) {
+    std::optional<int64_t> v = n->value<int64_t>();
+    if (!n->is_integer() || !v || *v < 1 || *v > 256)
+      return InvalidInput(fmt::format("{}the number of channels, a whole number 1 .. 256", where(n, "channels")));
+    p.channels = static_cast<int>(*v);
+  }
+  if (const toml::node* n = doc.get("channel-select")) {
+    std::optional<std::string> v = n->value<std::string>();
+    if (!v || v->empty()) return InvalidInput(fmt::format("{}must be the SCPI text in quotes", where(n, "channel-select")));
+    if (v->find("{ch}") == std::string::npos)
+      return InvalidInput(fmt::format("{}'{}' needs {{ch}} where the channel number goes", where(n, "channel-select"), *v));
+    if (v->find('?') != std::string::npos || v->find("{}") != std::string::npos)
+      return InvalidInput(fmt::format("{}'{}' must be a command without a reply or a number", where(n, "channel-select"), *v));
+    p.channel_select = *v;
   }
   if (const toml::node* cn = doc.get("commands")) {
     const toml::table* commands = cn->as_table();
@@ -248,9 +271,11 @@ Result<std::string> FindProfile(const std::string& ref, const std::string& base_
 }
 
 void ApplyChannel(InstrumentProfile& p, const std::string& channel) {
-  ForEachCommand(p, [&](std::string& c) {
+  auto fill = [&](std::string& c) {
     for (size_t pos; (pos = c.find("{ch}")) != std::string::npos;) c.replace(pos, 4, channel);
-  });
+  };
+  ForEachCommand(p, fill);
+  fill(p.channel_select);
 }
 
 bool IdentityMatches(std::string_view pattern, std::string_view idn) {

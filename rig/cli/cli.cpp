@@ -219,6 +219,7 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterControl(registry);
   RegisterResume(registry);
   RegisterNote(registry);
+  RegisterBatch(registry);
   for (Registrar r : extra) r(registry);
   Result<UserConfig> config = LoadUserConfig();
   if (!config.ok()) return Fail(config.status());

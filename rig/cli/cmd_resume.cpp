@@ -10,6 +10,7 @@
 #include "drivers/sim/cell_file.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
+#include "rig/cli/run_bench_cmd.h"
 #include "rig/cli/run_guard.h"
 #include "rig/control_channel.h"
 #include "rig/resume.h"
@@ -80,7 +81,8 @@ int RunResume(const ResumeOptions& opt) {
   // closed around its start.
   if (opt.rig != "sim") {
     store->reset();
-    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id);
+    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id,
+                                    SlotOfRun(run->tags).empty() ? std::vector<std::string>{} : std::vector<std::string>{SlotOfRun(run->tags)});
     if (!started.ok()) return Fail(started.status());
     guardian = std::move(*started);
     store = OpenExistingDb(opt.db_path, wall);
@@ -88,6 +90,7 @@ int RunResume(const ResumeOptions& opt) {
   }
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
+  ro.slot = SlotOfRun(run->tags);  // a run on one channel of a multi-channel bench resumes there
   if (opt.rig == "sim") {  // the same simulated cell, in the state of the last logged sample
     auto cell = SimCellOfRun(**store, *run);
     if (!cell.ok()) return Fail(cell.status());
@@ -96,7 +99,7 @@ int RunResume(const ResumeOptions& opt) {
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);
-  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
+  auto lock = AcquireAll((*rig)->LockKeys(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());

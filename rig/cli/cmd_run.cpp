@@ -15,6 +15,7 @@
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
 #include "rig/cli/record_options.h"
+#include "rig/cli/run_bench_cmd.h"
 #include "rig/cli/run_guard.h"
 #include "rig/control_channel.h"
 #include "rig/load_guards.h"
@@ -44,6 +45,7 @@ struct RunCmdOptions {
   double link_grace_s = 30.0;
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
   RecordOptions record;
+  BenchRunArgs bench;  // --slot / --slots / --serials / --batch (rig/cli/run_bench_cmd.h)
 };
 
 // Records which simulated cell the run just begun uses (event "sim-cell").
@@ -62,13 +64,21 @@ bool NoteSimCell(Store& store, const Plan& plan, const std::string& cell, const 
 }
 
 int RunRun(const RunCmdOptions& opt) {
+  // Several channels of a multi-channel bench at once: rig/cli/cmd_run_bench.cpp.
+  if (!opt.bench.slots.empty())
+    return RunBenchCommand(opt.file, opt.rig, opt.db, opt.trace, opt.link_grace_s, opt.hang_limit_s, opt.progress_s, opt.record,
+                           opt.bench);
+  if (!opt.bench.serials.empty() || !opt.bench.batch.empty())
+    return Fail(InvalidInput("--serials and --batch go with --slots (the channels of a multi-channel bench)"));
   // First: from here on a stop signal takes the safe-off path and a closed
   // stdout does not kill the run.
   const std::atomic<bool>* stop = InstallStopSignals();
   // A rig file's outputs are watched by a guardian before any is opened.
   double longest_period_s = 0.0;
   if (auto draft = LoadProcedure(opt.file); draft.ok()) longest_period_s = LongestSamplePeriodS(*draft);
-  auto guardian = StartGuardianFor(opt.rig, opt.db, opt.link_grace_s, opt.hang_limit_s, longest_period_s, 0);
+  std::vector<std::string> slots;
+  if (!opt.bench.slot.empty()) slots.push_back(opt.bench.slot);
+  auto guardian = StartGuardianFor(opt.rig, opt.db, opt.link_grace_s, opt.hang_limit_s, longest_period_s, 0, slots);
   if (!guardian.ok()) return Fail(guardian.status());
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
@@ -111,6 +121,7 @@ int RunRun(const RunCmdOptions& opt) {
     return Fail(InvalidInput("--sim-soc, --sim-age, --sim-ambient: only for --rig sim (a real cell is as it is)"));
   }
   ro.trace_path = opt.trace;
+  ro.slot = opt.bench.slot;
   auto rig = OpenRig(opt.rig, ro);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
@@ -138,7 +149,7 @@ int RunRun(const RunCmdOptions& opt) {
 
   // One runner per rig: nothing is switched on before this process holds the
   // instruments' lock.
-  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
+  auto lock = AcquireAll((*rig)->LockKeys(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
   if (!lock.ok()) return Fail(lock.status());
   ControlChannel control(**store, wall);
   RunController controller(**store, (*rig)->clock(), roles);
@@ -146,6 +157,7 @@ int RunRun(const RunCmdOptions& opt) {
   run.control = &control;
   run.cell_name = cell;
   if (Status st = FillRecord(opt.record, run.record); !st.ok()) return Fail(st);
+  if (!opt.bench.slot.empty()) run.record.tags.push_back(SlotTag(opt.bench.slot));
   run.stop = stop;
   run.stop_reason = "stopped by operator (signal)";
   if (std::string warn = MissingGuardsWarning(*roles.load); !warn.empty()) {
@@ -215,6 +227,7 @@ void RegisterRun(CliRegistry& r) {
                     0.0, 3600.0);
   AddHangLimitOption(c, opt.hang_limit_s);
   AddRecordOptions(c, opt.record);
+  AddBenchRunOptions(c, opt.bench);
 }
 
 }  // namespace kp::cli
