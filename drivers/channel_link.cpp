@@ -1,57 +1,86 @@
 #include "drivers/channel_link.h"
 
+#include "drivers/lockstep_clock.h"
+
 namespace kp {
+
+SharedLink::SharedLink(std::unique_ptr<Transport> transport, Clock& clock)
+    : transport_(std::move(transport)), lockstep_(dynamic_cast<LockstepClock*>(&clock)) {}
 
 std::unique_ptr<Transport> SharedLink::Channel(std::string tag, std::string select_line) {
   return std::make_unique<ChannelTransport>(*this, std::move(tag), std::move(select_line));
 }
 
-void ChannelTransport::BeginExchange() {
-  if (link_.mu_.try_lock()) return;
-  link_.clock_.BeginWait();
-  link_.mu_.lock();
-  link_.clock_.EndWait();
+void SharedLink::Acquire() {
+  if (mu_.try_lock()) return;
+  if (lockstep_ != nullptr) lockstep_->BeginWait();
+  mu_.lock();
+  if (lockstep_ != nullptr) lockstep_->EndWait();
 }
 
-void ChannelTransport::EndExchange() { link_.mu_.unlock(); }
+ChannelTransport::~ChannelTransport() { Release(); }
 
-Status ChannelTransport::Note(Status st) {
-  const bool link_fault = st.code() == StatusCode::kTimeout || st.code() == StatusCode::kIo;
-  if (link_fault) link_.failing_.store(true);
-  else if (st.ok()) link_.failing_.store(false);
+void ChannelTransport::Release() {
+  if (!held_) return;
+  held_ = false;
+  link_.mu_.unlock();
+}
+
+namespace {
+bool IsLinkFault(const Status& st) { return st.code() == StatusCode::kTimeout || st.code() == StatusCode::kIo; }
+}  // namespace
+
+Status ChannelTransport::WriteLine(std::string_view line) {
+  if (!held_) {
+    link_.Acquire();
+    held_ = true;
+  }
+  ++link_.lines_;
+  Status st = Status::Ok();
+  if (!select_.empty()) st = link_.transport_->WriteLine(select_);
+  if (st.ok()) st = link_.transport_->WriteLine(line);
+  if (IsLinkFault(st)) link_.failing_.store(true);  // only a reply clears it: a write into a dead peer may still succeed
+  // A command has no reply: the link is free again. A query keeps it until its reply.
+  if (!st.ok() || line.find('?') == std::string_view::npos) Release();
   return st;
 }
 
-Status ChannelTransport::WriteLine(std::string_view line) {
-  std::lock_guard<std::recursive_mutex> hold(link_.mu_);
-  ++link_.exchanges_;
-  if (!select_.empty()) {
-    Status st = link_.transport_->WriteLine(select_);
-    if (!st.ok()) return Note(st);
-  }
-  return Note(link_.transport_->WriteLine(line));
-}
-
 Result<std::string> ChannelTransport::ReadLine(Seconds timeout) {
-  std::lock_guard<std::recursive_mutex> hold(link_.mu_);
+  const bool was_held = held_;
+  if (!held_) {
+    link_.Acquire();
+    held_ = true;
+  }
   Result<std::string> r = link_.transport_->ReadLine(timeout);
-  (void)Note(r.ok() ? Status::Ok() : r.status());
+  if (r.ok()) link_.failing_.store(false);
+  else if (IsLinkFault(r.status())) link_.failing_.store(true);
+  // The reply read (or given up): free, unless more lines of it are waiting
+  // (a compound query's extra lines are read by the same exchange).
+  if (!was_held || !r.ok() || !link_.transport_->HasUnreadInput()) Release();
   return r;
 }
 
 void ChannelTransport::Flush() {
-  std::lock_guard<std::recursive_mutex> hold(link_.mu_);
+  if (held_) {
+    link_.transport_->Flush();
+    return;
+  }
+  std::lock_guard<std::mutex> hold(link_.mu_);
   link_.transport_->Flush();
 }
 
 bool ChannelTransport::HasUnreadInput() {
-  std::lock_guard<std::recursive_mutex> hold(link_.mu_);
+  if (held_) return link_.transport_->HasUnreadInput();
+  std::lock_guard<std::mutex> hold(link_.mu_);
   return link_.transport_->HasUnreadInput();
 }
 
 Status ChannelTransport::Reconnect() {
-  std::lock_guard<std::recursive_mutex> hold(link_.mu_);
-  return Note(link_.transport_->Reconnect());
+  if (!held_) link_.Acquire();
+  held_ = true;
+  Status st = link_.transport_->Reconnect();
+  Release();
+  return st;
 }
 
 }  // namespace kp

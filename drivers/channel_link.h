@@ -3,17 +3,19 @@
 // a scanner), from several run loops at once.
 //
 // SharedLink owns the real Transport. Each channel talks through its own
-// ChannelTransport (and so its own ScpiSession, drivers unchanged): every
-// exchange holds the link's lock from its first line to its last reply
-// (Transport::BeginExchange), and, for an instrument whose dialect selects
-// channels with a command (`channel-select`, e.g. "INST:NSEL 3"), that line is
-// written before every line the channel sends, inside the same hold. So a
-// channel's select and its command are never split by another channel's
-// access, even across a retry after a reconnect. Dialects that address
-// channels inside the commands (`{ch}` in the command text) need no select line.
+// ChannelTransport (and so its own ScpiSession; drivers unchanged). A line
+// is written with the link held, preceded, for an instrument whose dialect
+// selects channels with a command (`channel-select`, e.g. "INST:NSEL 3"), by
+// that select line: a channel's select and its command are never split by
+// another channel's access, whatever the session retries. A line that asks
+// something (holds '?') keeps the link held until its reply has been read (or
+// failed), so no other channel's line comes between a query and its reply.
+// Dialects that address channels inside the commands (`{ch}` in the command
+// text, a SCPI channel list) need no select line.
 //
-// Waiting for the lock tells the clock (Clock::BeginWait), so channels in
-// virtual time (LockstepClock) do not stall each other. Thread-safe.
+// A channel waiting for the link tells a LockstepClock (BeginWait), so
+// channels in virtual time do not stall each other. Each ChannelTransport is
+// used by one thread at a time (as every Transport); the link is shared.
 #pragma once
 
 #include <atomic>
@@ -26,46 +28,51 @@
 
 namespace kp {
 
+class LockstepClock;
+
 class SharedLink {
  public:
-  SharedLink(std::unique_ptr<Transport> transport, Clock& clock) : transport_(std::move(transport)), clock_(clock) {}
+  // `clock`: when it is a LockstepClock, waits for the link are reported to it.
+  SharedLink(std::unique_ptr<Transport> transport, Clock& clock);
 
   // A transport for one channel: `tag` names it in messages ("ch 3"),
   // `select_line` (empty: none) is written before each of its lines.
   std::unique_ptr<Transport> Channel(std::string tag, std::string select_line);
 
-  // Exchanges made and failed at the link (timeouts, drops) since the last
-  // success: a bench sees a lost instrument serving several channels here.
+  // The link's last reply attempt failed (a timeout or drop, not cleared by
+  // a later reply): a bench sees a lost instrument serving several channels here.
   bool failing() const { return failing_.load(); }
-  long exchanges() const { return exchanges_.load(); }
+  // Lines written (select lines not counted).
+  long lines() const { return lines_.load(); }
   std::string Address() const { return transport_->Address(); }
 
  private:
   friend class ChannelTransport;
+  void Acquire();
   std::unique_ptr<Transport> transport_;
-  Clock& clock_;
-  std::recursive_mutex mu_;
+  LockstepClock* lockstep_ = nullptr;
+  std::mutex mu_;
   std::atomic<bool> failing_{false};
-  std::atomic<long> exchanges_{0};
+  std::atomic<long> lines_{0};
 };
 
 class ChannelTransport final : public Transport {
  public:
   ChannelTransport(SharedLink& link, std::string tag, std::string select_line)
       : link_(link), tag_(std::move(tag)), select_(std::move(select_line)) {}
+  ~ChannelTransport() override;
   Status WriteLine(std::string_view line) override;
   Result<std::string> ReadLine(Seconds timeout) override;
   void Flush() override;
   bool HasUnreadInput() override;
   Status Reconnect() override;
-  std::string Address() const override { return link_.Address() + " " + tag_; }
-  void BeginExchange() override;
-  void EndExchange() override;
+  std::string Address() const override { return tag_.empty() ? link_.Address() : link_.Address() + " " + tag_; }
 
  private:
-  Status Note(Status st);
+  void Release();
   SharedLink& link_;
   std::string tag_, select_;
+  bool held_ = false;  // this channel holds the link, awaiting a reply
 };
 
 }  // namespace kp

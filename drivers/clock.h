@@ -25,11 +25,6 @@ class Clock {
   virtual void SleepUntil(Seconds deadline, const std::atomic<bool>* wake = nullptr) = 0;
   // Calendar time for records, ISO 8601 UTC ("2026-12-01T21:44:15Z").
   virtual std::string WallTimeIso() const;
-  // Around a wait for something other than time (a shared instrument link
-  // held by another channel's thread): a clock shared by several run loops in
-  // virtual time (LockstepClock) may move on meanwhile. Others: nothing.
-  virtual void BeginWait() {}
-  virtual void EndWait() {}
 };
 
 // Real steady clock, optionally running `speed` times faster than the wall

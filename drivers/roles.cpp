@@ -34,6 +34,9 @@ const char* LoadGuardUnit(LoadGuard g) {
   return "";
 }
 
+namespace {
+// `command` without a trailing SCPI channel list ("INP ON,(@3)" -> "INP ON");
+// the list ("(@3)") into `*list` when given.
 std::string_view WithoutChannelList(std::string_view command, std::string_view* list) {
   size_t at = command.rfind("(@");
   if (at == std::string_view::npos || command.empty() || command.back() != ')') return command;
@@ -42,7 +45,9 @@ std::string_view WithoutChannelList(std::string_view command, std::string_view* 
   while (!command.empty() && (command.back() == ' ' || command.back() == ',' || command.back() == '\t')) command.remove_suffix(1);
   return command;
 }
+}  // namespace
 
+// A command ending in a SCPI channel list keeps it: "CURR {},(@3)" -> "CURR? (@3)".
 std::string ReadBackQuery(std::string_view command) {
   size_t start = command.find_first_not_of(" \t");
   if (start == std::string_view::npos) return {};

@@ -42,11 +42,7 @@ const char* LoadGuardUnit(LoadGuard g);  // "V", "A", "W", "s"
 // command's header (the text before its first space) with '?' appended
 // ("VOLT:PROT:LOW {}" -> "VOLT:PROT:LOW?", "INP OFF" -> "INP?"). Empty for an
 // empty command.
-// A command ending in a SCPI channel list keeps it: "CURR {},(@3)" -> "CURR? (@3)".
 std::string ReadBackQuery(std::string_view command);
-// `command` without a trailing channel list ("INP ON,(@3)" -> "INP ON"); the
-// list ("(@3)") into `*list` when given.
-std::string_view WithoutChannelList(std::string_view command, std::string_view* list);
 // "1"/"0"/"ON"/"OFF" (any case, surrounding blanks, a leading '+') as a state;
 // nullopt for anything else.
 std::optional<bool> ParseStateReply(std::string_view reply);

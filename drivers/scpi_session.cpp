@@ -94,7 +94,6 @@ Status ScpiSession::Retrying(std::string_view what, bool retry_protocol, const s
 }
 
 Status ScpiSession::Write(std::string_view command) {
-  ExchangeScope hold(*transport_);
   return Retrying(command, /*retry_protocol=*/true, [&]() -> Status {
     KP_RETURN_IF_ERROR(CheckQuiet(command));
     KP_RETURN_IF_ERROR(Send(command));
@@ -117,7 +116,6 @@ Status ScpiSession::Write(std::string_view command) {
 }
 
 Result<std::string> ScpiSession::Query(std::string_view query) {
-  ExchangeScope hold(*transport_);
   std::string line;
   // Under strict framing a reply with company (a second line right behind
   // it) is not trusted: the exchange is resynchronised and repeated.
@@ -143,7 +141,6 @@ Result<std::string> ScpiSession::Query(std::string_view query) {
 }
 
 Result<ScpiNumber> ScpiSession::QueryNumber(std::string_view query) {
-  ExchangeScope hold(*transport_);
   Status last;
   for (int attempt = 0; attempt <= options_.retries; ++attempt) {
     Result<std::string> reply = Query(query);
@@ -167,7 +164,6 @@ Status ScpiSession::WaitComplete() {
 }
 
 Status ScpiSession::DrainErrors() {
-  ExchangeScope hold(*transport_);
   if (!options_.error_queue) return Status::Ok();
   std::vector<std::string> entries;
   for (int i = 0; i < options_.max_error_drain; ++i) {

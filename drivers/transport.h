@@ -32,24 +32,6 @@ class Transport {
   virtual Status Reconnect() { return Status::Ok(); }
   // Address as the user wrote it, for messages and the trace ("tcp:127.0.0.1:5025").
   virtual std::string Address() const = 0;
-  // Around one whole exchange of the session (a command with its *OPC?, a
-  // query with its reply, the retries and resyncs between): a link shared by
-  // several channels (drivers/channel_link.h) holds it for that long, so no
-  // other channel's lines come in between. Nested calls nest. Default: nothing.
-  virtual void BeginExchange() {}
-  virtual void EndExchange() {}
-};
-
-// Holds a transport's exchange for a scope.
-class ExchangeScope {
- public:
-  explicit ExchangeScope(Transport& t) : t_(t) { t_.BeginExchange(); }
-  ~ExchangeScope() { t_.EndExchange(); }
-  ExchangeScope(const ExchangeScope&) = delete;
-  ExchangeScope& operator=(const ExchangeScope&) = delete;
-
- private:
-  Transport& t_;
 };
 
 // Something that answers SCPI lines in-process: the simulated instruments.

@@ -211,7 +211,7 @@ class ChannelRig final : public Rig {
     for (const auto& k : keys) out += (out.empty() ? "" : " ") + k;
     return out;
   }
-  std::vector<std::string> LockKeys() const override { return bench_->channel(index_).lock_keys; }
+  std::vector<std::string> LockKeys() const { return bench_->channel(index_).lock_keys; }
   BenchLimits limits() const override { return bench_->limits(); }
 
  private:
@@ -233,6 +233,21 @@ Result<std::unique_ptr<Rig>> OpenChannelRig(const RigFileSpec& spec, const std::
   one.channels = {keep};  // only this channel's instruments are opened and switched
   KP_ASSIGN_OR_RETURN(std::unique_ptr<ChannelBench> bench, OpenChannelBench(one, options));
   return std::unique_ptr<Rig>(new ChannelRig(std::move(bench), 0));
+}
+
+Result<std::unique_ptr<Rig>> OpenRigForSlot(const std::string& rig, const RigOpenOptions& options, const std::string& slot) {
+  if (slot.empty()) return OpenRig(rig, options);
+  if (!rig.ends_with(".toml")) return InvalidInput(fmt::format("--slot needs a multi-channel rig file (.toml), not '{}'", rig));
+  KP_ASSIGN_OR_RETURN(RigFileSpec spec, LoadRigFile(rig));
+  if (spec.channels.empty()) return InvalidInput(fmt::format("--slot: {} declares no [[channel]] tables", rig));
+  BenchOpenOptions bo;
+  bo.rig = options;
+  return OpenChannelRig(spec, slot, bo);
+}
+
+std::vector<std::string> RigLockKeys(const Rig& rig) {
+  if (const auto* channel = dynamic_cast<const ChannelRig*>(&rig)) return channel->LockKeys();
+  return {rig.LockKey()};
 }
 
 }  // namespace kp

@@ -83,8 +83,17 @@ class ChannelBench {
 Result<std::unique_ptr<ChannelBench>> OpenChannelBench(const RigFileSpec& spec, const BenchOpenOptions& options);
 
 // One channel of a bench as a Rig (owns the bench): `run --slot`, `resume`.
-// Its lock key is its instrument channels, so other processes can run the
-// other channels of the same instruments.
+// Its locks are its instrument channels (RigLockKeys), so other processes can
+// run the other channels of the same instruments.
 Result<std::unique_ptr<Rig>> OpenChannelRig(const RigFileSpec& spec, const std::string& slot, const BenchOpenOptions& options);
+
+// OpenRig (rig/rig.h), or for a non-empty `slot` that channel of the
+// multi-channel rig file `rig` (OpenChannelRig).
+Result<std::unique_ptr<Rig>> OpenRigForSlot(const std::string& rig, const RigOpenOptions& options, const std::string& slot);
+
+// The locks a run on `rig` takes, each on its own (AcquireAll, rig/run_lock.h):
+// one per instrument channel for a channel of a multi-channel bench, else
+// the rig's one LockKey().
+std::vector<std::string> RigLockKeys(const Rig& rig);
 
 }  // namespace kp

@@ -1,5 +1,4 @@
 #include "rig/rig.h"
-#include "rig/channel_bench.h"
 
 #include <fmt/format.h>
 #include <unistd.h>
@@ -46,17 +45,11 @@ Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptio
   if (spec.ends_with(".toml")) {
     KP_ASSIGN_OR_RETURN(RigFileSpec file, LoadRigFile(spec));
     if (!file.channels.empty()) {
-      if (options.slot.empty()) {
-        std::string slots;
-        for (const ChannelSpec& c : file.channels) slots += (slots.empty() ? "" : ", ") + c.slot;
-        return InvalidInput(fmt::format("{} is a multi-channel bench (slots {}): choose the channel with --slot, or several with --slots",
-                                        spec, slots));
-      }
-      BenchOpenOptions bo;
-      bo.rig = options;
-      return OpenChannelRig(file, options.slot, bo);
+      std::string slots;
+      for (const ChannelSpec& c : file.channels) slots += (slots.empty() ? "" : ", ") + c.slot;
+      return InvalidInput(fmt::format("{} is a multi-channel bench (slots {}): choose the channel with --slot, or several with --slots",
+                                      spec, slots));
     }
-    if (!options.slot.empty()) return InvalidInput(fmt::format("--slot: {} declares no [[channel]] tables", spec));
     return OpenFileRig(file, options);
   }
   return InvalidInput(fmt::format("unknown rig '{}': use 'sim' or a rig file (.toml)", spec));

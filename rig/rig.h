@@ -8,7 +8,6 @@
 #include <functional>
 #include <memory>
 #include <string>
-#include <vector>
 
 #include "drivers/clock.h"
 #include "drivers/sim/cell_model.h"
@@ -36,10 +35,6 @@ class Rig {
   virtual Clock& clock() = 0;
   // Identifies the instruments for the one-runner-per-rig lock (addresses).
   virtual std::string LockKey() const = 0;
-  // The locks a run takes, each on its own (RunLock): one per instrument
-  // channel on a multi-channel bench, so other processes can run the free
-  // channels; else the one LockKey().
-  virtual std::vector<std::string> LockKeys() const { return {LockKey()}; }
   virtual BenchLimits limits() const { return {}; }
 };
 
@@ -53,8 +48,6 @@ struct RigOpenOptions {
   // Rig files: use this clock instead of a SteadyClock at the file's
   // clock_speed (tests share a VirtualClock with a simulator server). Not owned.
   Clock* clock = nullptr;
-  // Rig files with [[channel]] tables: the channel (slot) to open as the rig.
-  std::string slot;
   // Receives notes for the log (termios fallback, refused optional settings).
   std::function<void(std::string_view)> note;
 };

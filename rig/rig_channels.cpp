@@ -1,5 +1,6 @@
 #include "rig/rig_channels.h"
 
+#include <algorithm>
 #include <cctype>
 #include <map>
 #include <set>

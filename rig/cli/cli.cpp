@@ -17,6 +17,8 @@
 #include "rig/version.h"
 
 namespace kp::cli {
+
+void RegisterBatch(CliRegistry& r);  // batch report (cmd_batch.cpp)
 namespace {
 
 std::atomic<bool> g_stop{false};

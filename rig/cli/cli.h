@@ -79,7 +79,6 @@ void RegisterLife(CliRegistry& r);
 void RegisterControl(CliRegistry& r);  // abort / pause / continue
 void RegisterResume(CliRegistry& r);
 void RegisterNote(CliRegistry& r);
-void RegisterBatch(CliRegistry& r);  // batch report
 
 // An option taking a physical value with its unit, read by the one unit
 // parser (procedures/units.h) while the command line is parsed: a bare number

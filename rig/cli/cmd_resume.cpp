@@ -8,6 +8,7 @@
 #include <sstream>
 
 #include "drivers/sim/cell_file.h"
+#include "rig/channel_bench.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/db_open.h"
 #include "rig/cli/run_bench_cmd.h"
@@ -90,16 +91,16 @@ int RunResume(const ResumeOptions& opt) {
   }
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
-  ro.slot = SlotOfRun(run->tags);  // a run on one channel of a multi-channel bench resumes there
   if (opt.rig == "sim") {  // the same simulated cell, in the state of the last logged sample
     auto cell = SimCellOfRun(**store, *run);
     if (!cell.ok()) return Fail(cell.status());
     ro.sim_cell = *cell;
   }
-  auto rig = OpenRig(opt.rig, ro);
+  // A run on one channel of a multi-channel bench resumes there (its slot tag).
+  auto rig = OpenRigForSlot(opt.rig, ro, SlotOfRun(run->tags));
   if (!rig.ok()) return Fail(rig.status());
   if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);
-  auto lock = AcquireAll((*rig)->LockKeys(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
+  auto lock = AcquireAll(RigLockKeys(**rig), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());

@@ -12,6 +12,7 @@
 
 #include "drivers/sim/cell_file.h"
 #include "procedures/estimate.h"
+#include "rig/channel_bench.h"
 #include "rig/cli/cli.h"
 #include "rig/cli/procedure_file.h"
 #include "rig/cli/record_options.h"
@@ -121,8 +122,7 @@ int RunRun(const RunCmdOptions& opt) {
     return Fail(InvalidInput("--sim-soc, --sim-age, --sim-ambient: only for --rig sim (a real cell is as it is)"));
   }
   ro.trace_path = opt.trace;
-  ro.slot = opt.bench.slot;
-  auto rig = OpenRig(opt.rig, ro);
+  auto rig = OpenRigForSlot(opt.rig, ro, opt.bench.slot);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
   if (Status st = EnableWatchdogFor(opt.rig, *roles.load); !st.ok()) return Fail(st);
@@ -149,7 +149,7 @@ int RunRun(const RunCmdOptions& opt) {
 
   // One runner per rig: nothing is switched on before this process holds the
   // instruments' lock.
-  auto lock = AcquireAll((*rig)->LockKeys(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
+  auto lock = AcquireAll(RigLockKeys(**rig), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
   if (!lock.ok()) return Fail(lock.status());
   ControlChannel control(**store, wall);
   RunController controller(**store, (*rig)->clock(), roles);

@@ -5,6 +5,7 @@
 // it dies any other way.
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <iostream>
 #include <map>
 #include <mutex>
@@ -127,6 +128,8 @@ int RunBenchCommand(const std::string& file, const std::string& rig, const std::
   opt.holder = fmt::format("a bench run of {} slots into {}", jobs.size(), db);
   std::mutex print_mu;
   std::vector<double> next_report(jobs.size(), 0.0);
+  std::vector<std::string> job_slot;  // RunBench takes the jobs; the progress lines keep their slots
+  for (const ChannelJob& j : jobs) job_slot.push_back((*bench)->channel(j.channel).slot);
   Guardian* watcher = guardian->get();
   RunOptions guardian_probe;  // StopIfGuardianGone's reason lands in the bench's stop
   CrashInjection crash = CrashInjectionFromEnv();  // counts the readings of every channel
@@ -136,7 +139,7 @@ int RunBenchCommand(const std::string& file, const std::string& rig, const std::
     StopIfGuardianGone(watcher, guardian_probe);
     if (r.t_s < next_report[static_cast<size_t>(job)]) return;
     next_report[static_cast<size_t>(job)] = r.t_s + progress_s;
-    std::cout << fmt::format("  {:<6} {}  {:.3f} V  {:+.3f} A  {:.1f} °C  {:.1f} mAh\n", (*bench)->channel(jobs[job].channel).slot,
+    std::cout << fmt::format("  {:<6} {}  {:.3f} V  {:+.3f} A  {:.1f} °C  {:.1f} mAh\n", job_slot[static_cast<size_t>(job)],
                              FormatDuration(r.t_s), r.voltage_v, r.current_a, r.temperature_c, mah)
               << std::flush;
   };
