@@ -65,14 +65,17 @@ void ChannelTransport::Flush() {
     link_.transport_->Flush();
     return;
   }
-  std::lock_guard<std::mutex> hold(link_.mu_);
+  link_.Acquire();  // a wait the lockstep clock must know of
   link_.transport_->Flush();
+  link_.mu_.unlock();
 }
 
 bool ChannelTransport::HasUnreadInput() {
   if (held_) return link_.transport_->HasUnreadInput();
-  std::lock_guard<std::mutex> hold(link_.mu_);
-  return link_.transport_->HasUnreadInput();
+  link_.Acquire();
+  const bool unread = link_.transport_->HasUnreadInput();
+  link_.mu_.unlock();
+  return unread;
 }
 
 Status ChannelTransport::Reconnect() {

@@ -1,7 +1,7 @@
 // kill -9 in the middle of a batch: `kneepoint run --slots A1,A2,A3` against
 // `kneepoint sim`'s multi-channel instruments over TCP (served from this
-// process, channels selected by INST:NSEL) dies by SIGKILL after its 60th
-// reading. The guardian must switch every channel's load off (with the select
+// process, channels selected by INST:NSEL) dies by SIGKILL after its 1200th
+// reading (a third of the way: at least one commit of each run is in). The guardian must switch every channel's load off (with the select
 // line before each of its lines), every run must end `interrupted`, and
 // `resume` must finish each one on its own channel (found from the run's slot
 // tag), after which the batch report compares the three cells.
@@ -97,7 +97,7 @@ TEST(BatchCrash, KillNineMidBatchThenResumeEveryChannel) {
   ServedBatch b;
   pid_t pid = b.Start({"run", b.proc, "--rig", b.rig, "--db", b.db, "--slots", "A1,A2,A3", "--serials", "LX-01,LX-02,LX-03",
                        "--batch", "LX", "--progress", "100000s"},
-                      "KILL@60");
+                      "KILL@1200");
   ASSERT_GT(pid, 0);
   int status = 0;
   ASSERT_EQ(waitpid(pid, &status, 0), pid);
@@ -137,7 +137,7 @@ TEST(BatchCrash, KillNineMidBatchThenResumeEveryChannel) {
       auto run = store->GetRun(id);
       ASSERT_TRUE(run.ok());
       EXPECT_EQ(run->outcome, Outcome::kInterrupted) << id << ": " << run->reason;
-      EXPECT_GT(run->sample_count, 2) << id;
+      EXPECT_GT(run->sample_count, 50) << id;  // committed samples survive the kill
     }
   }
   std::vector<double> soc_before;

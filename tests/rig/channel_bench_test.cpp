@@ -118,7 +118,6 @@ struct SimBenchFixture {
   BenchRunOptions RunOptions() {
     BenchRunOptions o;
     o.db_path = dir.File("runs.db");
-    o.wall = &clock;  // control requests are polled in run time
     o.lock_dir = dir.File("locks");
     return o;
   }
@@ -152,14 +151,14 @@ TEST(ChannelRigFile, BadChannelDeclarationsNameFileLineAndColumn) {
     std::string from, to, expect;
   };
   const std::vector<Case> cases = {
-      {"load = \"mload#2\"", "load = \"mlaod#2\"", "bench.toml:35:8: key 'channel[2].load': no [[instrument]] is named 'mlaod' (did you mean 'mload'?)"},
+      {"load = \"mload#2\"", "load = \"mlaod#2\"", "bench.toml:35:8: key 'channel[2].load': no [[instrument]] is named 'mlaod': did you mean 'mload'?"},
       {"load = \"mload#2\"", "load = \"mload\"", "bench.toml:35:8: key 'channel[2].load': instrument 'mload' has several channels"},
       {"load = \"mload#2\"", "load = \"mload#99\"", "bench.toml:35:8: key 'channel[2].load': channel 99 is beyond instrument 'mload', which has 64"},
       {"load = \"mload#2\"", "load = \"mload#1\"", "bench.toml:35:8: key 'channel[2].load': 'mload#1' already serves slot 'A1' as its load"},
-      {"load = \"mload#2\"", "load = \"scanner#2\"", "bench.toml:35:8: key 'channel[2].load': instrument 'scanner' (line 17) does not have the role 'load'"},
+      {"load = \"mload#2\"", "load = \"scanner#2\"", "bench.toml:35:8: key 'channel[2].load': instrument 'scanner' (line 15) does not have the role 'load'"},
       {"slot = \"A2\"", "slot = \"A1\"", "bench.toml:34:8: key 'channel[2].slot': slot 'A1' is already declared on line 28"},
       {"load = \"mload#2\"\n", "", "bench.toml:33:1: key 'channel[2].load': missing"},
-      {"slot = \"A2\"", "slot = \"A2\"\ncolour = \"red\"", "bench.toml:35:1: key 'channel[2].colour': unknown key"},
+      {"slot = \"A2\"", "slot = \"A2\"\ncolour = \"red\"", "bench.toml:35:10: key 'channel[2].colour': unknown key"},
       {"max_c = 45", "max_c = \"hot\"", "key 'enclosure.max_c': must be a temperature in degC"},
   };
   TempDir dir;
@@ -295,6 +294,7 @@ TEST(ChannelBench, AbortOnOneChannelLeavesTheOthersRunning) {
   ASSERT_TRUE(bench.ok()) << bench.status().ToString();
   Plan plan = TestPlan();
   BenchRunOptions o = f.RunOptions();
+  o.wall = &f.clock;  // control requests are polled in run time
   SteadyClock wall;
   auto requester = Store::Open(o.db_path, wall);
   ASSERT_TRUE(requester.ok());
@@ -416,28 +416,42 @@ temperature = "tB#2"
   };
   auto bench = OpenChannelBench(*spec, bo);
   ASSERT_TRUE(bench.ok()) << bench.status().ToString();
-  broken.silent_after = broken.lines_seen + 400;  // the load goes silent a few minutes in
   broken.forward_when = [](std::string_view line) { return line.find("INP OFF") != std::string_view::npos; };
   Plan plan = TestPlan();
+  // A2 reads every 5 minutes: it is asleep when A1 finds the load gone, and
+  // only the bench can end it before its next reading.
+  std::string slow_text = kProcedure;
+  slow_text.replace(slow_text.find("every=10s\n", slow_text.find("discharge")), 10, "every=5min\n");
+  auto slow = CompileProcedure(slow_text, "slow.kpp");
+  ASSERT_TRUE(slow.ok()) << slow.status().ToString();
   std::vector<ChannelJob> jobs;
   for (int k = 0; k < 4; ++k) {
     ChannelJob j;
     j.channel = k;
-    j.plan = &plan;
+    j.plan = k == 1 ? &*slow : &plan;
     j.options.cell_name = "c" + std::to_string(k);
-    // A1 gives up at its first failed reading; A2 would hold its step for
-    // 10 minutes waiting for the link: the bench stops it first.
-    j.options.link_grace_s = k == 0 ? 0.0 : 600.0;
+    j.options.link_grace_s = 0.0;
     jobs.push_back(std::move(j));
   }
   BenchRunOptions o;
   o.db_path = dir.File("runs.db");
-  o.wall = &clock;
   o.lock_dir = dir.File("locks");
+  // The load goes silent at A1's first reading after 1000 s, while A2 sleeps
+  // until its next reading (A2 reads at 71 s + 5 min steps: 971 s, 1271 s).
+  // Only A1 talks to load A at that moment, so setting it here races nothing.
+  bool silenced = false;
+  o.on_sample = [&](int job, const Reading& r, double) {
+    if (job == 0 && r.t_s >= 1000 && !silenced) {
+      silenced = true;
+      broken.silent_after = broken.lines_seen;
+    }
+  };
   auto out = RunBench(**bench, std::move(jobs), o);
+  ASSERT_TRUE(silenced);
   ASSERT_TRUE(out.ok()) << out.status().ToString();
   EXPECT_EQ((*out)[0].result.outcome, Outcome::kAborted);
-  EXPECT_NE((*out)[0].result.reason.find("instrument lost"), std::string::npos) << (*out)[0].result.reason;
+  // A1 ends on its own failed exchange with the silent load (a reading or a read-back).
+  EXPECT_NE((*out)[0].result.reason.find("no reply from inproc:loadA"), std::string::npos) << (*out)[0].result.reason;
   EXPECT_EQ((*out)[0].fault, "");
   EXPECT_EQ((*out)[1].result.outcome, Outcome::kAborted);
   EXPECT_NE((*out)[1].result.reason.find("bench fault: instrument inproc:loadA serving several channels was lost (slot A1"),
@@ -486,7 +500,7 @@ TEST(ChannelBench, PerChannelLocksAgainstASecondProcess) {
   free.erase(free.begin() + 1);
   auto out = RunBench(**bench, std::move(free), o);
   ASSERT_TRUE(out.ok()) << out.status().ToString();
-  for (const ChannelOutcome& x : *out) EXPECT_EQ(x.result.outcome, Outcome::kCompleted) << x.slot;
+  for (const ChannelOutcome& x : *out) EXPECT_EQ(x.result.outcome, Outcome::kCompleted) << x.slot << ": " << x.result.reason;
   EXPECT_GT(f.multi.channel(2).cell_soc(), 0.95) << "the held channel's cell was not touched";
   ::kill(child, SIGKILL);
   ::waitpid(child, nullptr, 0);
