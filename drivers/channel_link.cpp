@@ -12,10 +12,22 @@ std::unique_ptr<Transport> SharedLink::Channel(std::string tag, std::string sele
 }
 
 void SharedLink::Acquire() {
-  if (mu_.try_lock()) return;
+  std::unique_lock<std::mutex> lk(mu_);
+  const uint64_t mine = next_ticket_++;
+  if (mine == serving_) return;  // free
   if (lockstep_ != nullptr) lockstep_->BeginWait();
-  mu_.lock();
-  if (lockstep_ != nullptr) lockstep_->EndWait();
+  turn_.wait(lk, [&] { return serving_ == mine; });
+  // Counted as working again by Unlock, when the link was handed over.
+}
+
+void SharedLink::Unlock() {
+  std::lock_guard<std::mutex> lk(mu_);
+  ++serving_;
+  if (serving_ < next_ticket_) {
+    // Handed to the next waiter: it is working from now on, before it even wakes.
+    if (lockstep_ != nullptr) lockstep_->EndWait();
+    turn_.notify_all();
+  }
 }
 
 ChannelTransport::~ChannelTransport() { Release(); }
@@ -23,7 +35,7 @@ ChannelTransport::~ChannelTransport() { Release(); }
 void ChannelTransport::Release() {
   if (!held_) return;
   held_ = false;
-  link_.mu_.unlock();
+  link_.Unlock();
 }
 
 namespace {
@@ -67,14 +79,14 @@ void ChannelTransport::Flush() {
   }
   link_.Acquire();  // a wait the lockstep clock must know of
   link_.transport_->Flush();
-  link_.mu_.unlock();
+  link_.Unlock();
 }
 
 bool ChannelTransport::HasUnreadInput() {
   if (held_) return link_.transport_->HasUnreadInput();
   link_.Acquire();
   const bool unread = link_.transport_->HasUnreadInput();
-  link_.mu_.unlock();
+  link_.Unlock();
   return unread;
 }
 

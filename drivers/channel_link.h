@@ -13,12 +13,17 @@
 // Dialects that address channels inside the commands (`{ch}` in the command
 // text, a SCPI channel list) need no select line.
 //
-// A channel waiting for the link tells a LockstepClock (BeginWait), so
-// channels in virtual time do not stall each other. Each ChannelTransport is
+// The link is handed over in turn (a ticket lock): the channel that waited
+// longest gets it next. A channel waiting for the link counts as waiting on a
+// LockstepClock (BeginWait) until the link is handed to it, so channels in
+// virtual time neither stall each other nor let time run while a channel
+// that holds the link (or was just handed it) is still working. Each ChannelTransport is
 // used by one thread at a time (as every Transport); the link is shared.
 #pragma once
 
 #include <atomic>
+#include <condition_variable>
+#include <cstdint>
 #include <memory>
 #include <mutex>
 #include <string>
@@ -49,9 +54,12 @@ class SharedLink {
  private:
   friend class ChannelTransport;
   void Acquire();
+  void Unlock();
   std::unique_ptr<Transport> transport_;
   LockstepClock* lockstep_ = nullptr;
-  std::mutex mu_;
+  std::mutex mu_;  // guards the tickets
+  std::condition_variable turn_;
+  uint64_t next_ticket_ = 0, serving_ = 0;
   std::atomic<bool> failing_{false};
   std::atomic<long> lines_{0};
 };
