@@ -172,7 +172,9 @@ TEST(BatchCrash, KillNineMidBatchThenResumeEveryChannel) {
   for (const BatchCell& c : rep->cells) {
     EXPECT_TRUE(c.in_statistics) << c.slot;
     ASSERT_TRUE(c.capacity_mah.has_value());
-    EXPECT_GT(*c.capacity_mah, 300.0) << c.slot;
+    // Most of a 500 mAh cell at 3 It to 3.0 V, kill and outage included (real-time scheduling moves it by some %).
+    EXPECT_GT(*c.capacity_mah, 200.0) << c.slot;
+    EXPECT_LT(*c.capacity_mah, 525.0) << c.slot;
   }
   EXPECT_EQ(rep->cells[0].slot, "A1");
   EXPECT_EQ(rep->cells[2].run.cell_serial, "LX-03");
