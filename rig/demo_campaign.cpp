@@ -224,8 +224,8 @@ std::string IndexHtml(const DemoFigures& f) {
   return o;
 }
 
-// Plan item Q7's bench: one multi-channel load, scanner and thermometer of
-// the simulator (both channel-select styles), four cell positions.
+// Plan item Q7's bench: one multi-channel load, scanner, thermometer and
+// supply of the simulator (both channel-select styles), four cell positions.
 constexpr const char* kDemoBench = R"([bench]
 name = "demo four-channel bench"
 max_current_a = 5.0
@@ -250,29 +250,40 @@ address = "tcp:127.0.0.1:5027"
 profile = "kneepoint-sim-chlist"
 roles = ["thermometer"]
 
+[[instrument]]
+name = "psu"
+address = "tcp:127.0.0.1:5028"
+profile = "kneepoint-sim-select"
+roles = ["supply"]
+confirm_writes = true
+
 [[channel]]
 slot = "B1"
 load = "mload#1"
 sense = "scanner#1"
 temperature = "tlog#1"
+supply = "psu#1"
 
 [[channel]]
 slot = "B2"
 load = "mload#2"
 sense = "scanner#2"
 temperature = "tlog#2"
+supply = "psu#2"
 
 [[channel]]
 slot = "B3"
 load = "mload#3"
 sense = "scanner#3"
 temperature = "tlog#3"
+supply = "psu#3"
 
 [[channel]]
 slot = "B4"
 load = "mload#4"
 sense = "scanner#4"
 temperature = "tlog#4"
+supply = "psu#4"
 
 [enclosure]
 sensor = "tlog#0"
@@ -427,7 +438,8 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
     BenchOpenOptions bo;
     bo.rig.clock = &clock;
     bo.connect = [&](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
-      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter() : &multi.thermometer();
+      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter()
+                      : is.name == "psu"   ? &multi.supply() : &multi.thermometer();
       return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, "sim:" + is.name));
     };
     KP_ASSIGN_OR_RETURN(std::unique_ptr<ChannelBench> bench, OpenChannelBench(spec, bo));
