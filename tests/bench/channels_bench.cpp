@@ -107,7 +107,7 @@ void BM_EightChannelsTcp100ms(benchmark::State& state) {
   // A current edge every 2 s: 1 s at 1 A, 1 s at rest, repeated.
   std::string body = "name \"eight channels at 100 ms\"\n"
                      "cell li-ion rated=2560mAh nominal=3.65V max=4.2V cutoff=2.5V max-temp=60degC\n";
-  for (int i = 0; i < seconds / 2; ++i) body += "discharge 1A for 1s every=100ms\nrest 1s every=100ms\n";
+  for (int i = 0; i < seconds / 2; ++i) body += "discharge 1A until time>=1s every=100ms\nrest 1s every=100ms\n";
   auto plan = CompileProcedure(body, "edges.kpp");
   if (!plan.ok()) return state.SkipWithError(plan.status().ToString().c_str());
   double worst_dev = 0.0, worst_late = 0.0;
