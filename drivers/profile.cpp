@@ -99,6 +99,14 @@ bool InstrumentProfile::HasRole(std::string_view role) const {
   return std::find(roles.begin(), roles.end(), role) != roles.end();
 }
 
+bool InstrumentProfile::SelectsChannels() const {
+  if (!channel_select.empty()) return true;
+  bool suffixed = false;
+  InstrumentProfile copy = *this;
+  ForEachCommand(copy, [&](std::string& c) { suffixed = suffixed || c.find("{ch}") != std::string::npos; });
+  return suffixed;
+}
+
 namespace {
 
 // The older `key = text` dialect files (".kpp" before dialects became TOML).
@@ -200,9 +208,9 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
   auto where = [&](const toml::node* n, const std::string& key) {
     return fmt::format("{}:{}: key '{}': ", file, LineOf(n), key);
   };
-  static const std::vector<std::string> kTop = {"format",         "roles",       "description",       "identity",     "commands",
-                                                "init",           "teardown",    "check-settings",    "error-query",
-                                                "strip-reply-units", "mode-settle-s"};
+  static const std::vector<std::string> kTop = {"format",         "roles",       "description",       "identity",     "channels",
+                                                "channel-select", "commands",    "init",              "teardown",     "check-settings",
+                                                "error-query",    "strip-reply-units", "mode-settle-s"};
   for (const auto& [k, v] : doc) {
     std::string key(k.str());
     if (std::find(kTop.begin(), kTop.end(), key) == kTop.end()) {
@@ -210,9 +218,9 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       for (const auto& [name, spec] : Keys()) commands.push_back(name);
       if (std::find(commands.begin(), commands.end(), key) != commands.end())
         return InvalidInput(fmt::format("{}a command belongs under [commands]", where(&v, key)));
-      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, init, teardown, "
-                                      "check-settings, error-query, strip-reply-units, mode-settle-s, [commands])",
-                                      where(&v, key), DidYouMean(key, kTop)));
+  static const std::vector<std::string> kTop = {"format",         "roles",       "description",       "identity",     "channels",
+                                                "channel-select", "commands",    "init",              "teardown",     "check-settings",
+                                                "error-query",    "strip-reply-units", "mode-settle-s"};
     }
   }
   if (const toml::node* f = doc.get("format")) {
@@ -245,6 +253,21 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       if (v->empty()) return InvalidInput(fmt::format("{}empty pattern (use \"*\" to accept any)", where(n, key)));
       p.identity = *v;
     }
+  }
+  if (const toml::node* n = doc.get("channels")) {
+    std::optional<int64_t> v = n->value<int64_t>();
+    if (!n->is_integer() || !v || *v < 1 || *v > 256)
+      return InvalidInput(fmt::format("{}the number of channels, a whole number 1 .. 256", where(n, "channels")));
+    p.channels = static_cast<int>(*v);
+  }
+  if (const toml::node* n = doc.get("channel-select")) {
+    std::optional<std::string> v = n->value<std::string>();
+    if (!v || v->empty()) return InvalidInput(fmt::format("{}must be the SCPI text in quotes", where(n, "channel-select")));
+    if (v->find("{ch}") == std::string::npos)
+      return InvalidInput(fmt::format("{}'{}' needs {{ch}} where the channel number goes", where(n, "channel-select"), *v));
+    if (v->find('?') != std::string::npos || v->find("{}") != std::string::npos)
+      return InvalidInput(fmt::format("{}'{}' must be a command without a reply or a number", where(n, "channel-select"), *v));
+    p.channel_select = *v;
   }
   if (const toml::node* cn = doc.get("commands")) {
     const toml::table* commands = cn->as_table();
@@ -326,6 +349,7 @@ void ApplyChannel(InstrumentProfile& p, const std::string& channel) {
   ForEachCommand(p, fill);
   for (std::string& c : p.init) fill(c);
   for (std::string& c : p.teardown) fill(c);
+  fill(p.channel_select);
 }
 
 bool IdentityMatches(std::string_view pattern, std::string_view idn) {

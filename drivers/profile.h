@@ -7,6 +7,9 @@
 //   roles = ["load"]                 # load, meter, thermometer, supply, chamber
 //   description = "free text"
 //   identity = "*,MY-LOAD*"          # glob (* and ?) the *IDN? reply must match, case-insensitive
+//   channels = 8                     # optional: a multi-channel instrument's channel count (1..256)
+//   channel-select = "INST:NSEL {ch}" # optional: the line that selects a channel, sent before
+//                                    # every line of a channel's exchange (rig files' [[channel]])
 //   [commands]
 //   cc-select = "FUNC CURR"          # one key per command, the SCPI text in quotes
 //
@@ -40,6 +43,13 @@ struct InstrumentProfile {
   std::string description;  // the `description` key, free text
   std::vector<std::string> roles;
   std::string identity = "*";
+  // Multi-channel instruments: how many channels (0: not said) and the line
+  // selecting one (`{ch}` = the channel's number; empty: channels are chosen
+  // by `{ch}` inside the commands themselves, if at all).
+  int channels = 0;
+  std::string channel_select;
+  // True when a channel can be addressed at all: a select line or `{ch}` in a command.
+  bool SelectsChannels() const;
   LoadCommands load;
   MeterCommands meter;
   ThermometerCommands thermometer;

@@ -34,13 +34,30 @@ const char* LoadGuardUnit(LoadGuard g) {
   return "";
 }
 
+namespace {
+// `command` without a trailing SCPI channel list ("INP ON,(@3)" -> "INP ON");
+// the list ("(@3)") into `*list` when given.
+std::string_view WithoutChannelList(std::string_view command, std::string_view* list) {
+  size_t at = command.rfind("(@");
+  if (at == std::string_view::npos || command.empty() || command.back() != ')') return command;
+  if (list != nullptr) *list = command.substr(at);
+  command = command.substr(0, at);
+  while (!command.empty() && (command.back() == ' ' || command.back() == ',' || command.back() == '\t')) command.remove_suffix(1);
+  return command;
+}
+}  // namespace
+
+// A command ending in a SCPI channel list keeps it: "CURR {},(@3)" -> "CURR? (@3)".
 std::string ReadBackQuery(std::string_view command) {
   size_t start = command.find_first_not_of(" \t");
   if (start == std::string_view::npos) return {};
   command.remove_prefix(start);
+  std::string_view list;
+  command = WithoutChannelList(command, &list);
   std::string_view header = command.substr(0, command.find_first_of(" \t"));
   std::string q(header);
   if (q.back() != '?') q += '?';
+  if (!list.empty()) q += " " + std::string(list);  // the same channel: "CURR 1,(@3)" -> "CURR? (@3)"
   return q;
 }
 
@@ -173,10 +190,11 @@ std::string UpperWord(std::string_view t) {
       out += static_cast<char>(ch >= 'a' && ch <= 'z' ? ch - 'a' + 'A' : ch);
   return out;
 }
-bool SameModeWord(const std::string& reply, const std::string& command) {
+bool SameModeWord(const std::string& reply, const std::string& full_command) {
+  std::string_view command = WithoutChannelList(full_command, nullptr);
   size_t sp = command.find_first_of(" \t");
   if (sp == std::string::npos) return false;
-  std::string arg = UpperWord(std::string_view(command).substr(sp + 1));
+  std::string arg = UpperWord(command.substr(sp + 1));
   if (arg.empty() || reply.empty()) return false;
   if (arg == reply) return true;
   // Short and long forms: CURR / CURRENT, RES / RESISTANCE.

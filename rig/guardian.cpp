@@ -1,4 +1,5 @@
 #include "rig/guardian.h"
+#include "rig/rig_channels.h"
 
 #include "drivers/device_sysfs.h"
 
@@ -611,34 +612,60 @@ struct ChildPlan {
   ::_exit(all_off ? 0 : 1);
 }
 
-Result<std::vector<Target>> PrepareTargets(const RigFileSpec& rig) {
+Result<std::vector<Target>> PrepareTargets(const RigFileSpec& rig, const std::vector<std::string>& slots) {
   std::vector<Target> loads, supplies;
-  for (const InstrumentSpec& is : rig.instruments) {
-    for (const std::string& role : is.roles) {
-      if (role != "load" && role != "supply") continue;
+  // What to switch: each load and supply instrument of a one-cell rig; on a
+  // multi-channel rig each load and supply channel of the slots this runner
+  // runs (other processes may be running the others).
+  struct Switch {
+    const InstrumentSpec* is;
+    std::string role, name;
+    InstrumentProfile profile;
+  };
+  std::vector<Switch> switches;
+  if (rig.channels.empty()) {
+    for (const InstrumentSpec& is : rig.instruments)
+      for (const std::string& role : is.roles)
+        if (role == "load" || role == "supply") switches.push_back({&is, role, is.name, is.profile});
+  } else {
+    for (const ChannelSpec& c : rig.channels) {
+      if (!slots.empty() && std::find(slots.begin(), slots.end(), c.slot) == slots.end()) continue;
+      for (auto [role, b] : {std::pair<const char*, const ChannelBinding*>{"load", &c.load}, {"supply", &c.supply}}) {
+        if (!b->bound()) continue;
+        const InstrumentSpec& is = rig.instruments.at(static_cast<size_t>(b->instrument));
+        switches.push_back({&is, role, BindingText(rig, *b), BoundProfile(rig, *b)});
+      }
+    }
+  }
+  for (const Switch& sw : switches) {
+    {
+      const InstrumentSpec& is = *sw.is;
+      const std::string& role = sw.role;
       KP_ASSIGN_OR_RETURN(Address a, ParseAddress(is.address));
       Target t;
-      t.name = is.name;
+      t.name = sw.name;
       t.address = is.address;
       t.eol = a.eol;
       t.timeout_s = std::max(0.2, is.timeout_s);
       std::string off, query;
       if (role == "load") {
         t.what = "load input";
-        off = is.profile.load.input_off;
-        query = is.profile.load.input_state.empty() ? ReadBackQuery(off) : is.profile.load.input_state;
+        off = sw.profile.load.input_off;
+        query = sw.profile.load.input_state.empty() ? ReadBackQuery(off) : sw.profile.load.input_state;
       } else {
         t.what = "supply output";
-        off = is.profile.supply.output_off;
-        query = is.profile.supply.output_state.empty() ? ReadBackQuery(off) : is.profile.supply.output_state;
+        off = sw.profile.supply.output_off;
+        query = sw.profile.supply.output_state.empty() ? ReadBackQuery(off) : sw.profile.supply.output_state;
       }
       if (off.empty() || query.empty())
         return InvalidInput(fmt::format("{}:{}: instrument '{}': the profile has no off command or state query for the {}", rig.path,
                                         is.line, is.name, t.what));
       t.query = query;
+      // A channel chosen by a select line: the select goes before each line.
+      const std::string sel = sw.profile.channel_select.empty() ? "" : sw.profile.channel_select + a.eol;
       // A leading terminator ends whatever line the dead runner left half-written.
-      t.first_lines = a.eol + query + a.eol + off + a.eol + query + a.eol;
-      t.retry_lines = off + a.eol + query + a.eol;
+      t.first_lines = a.eol + sel + query + a.eol + sel + off + a.eol + sel + query + a.eol;
+      t.retry_lines = sel + off + a.eol + sel + query + a.eol;
       if (a.kind == Address::Kind::kTcp) {
         t.tcp = true;
         addrinfo hints{};
@@ -727,7 +754,7 @@ Result<std::unique_ptr<Guardian>> Guardian::Start(const RigFileSpec& rig, const 
     return InternalError(fmt::format("{} is open in this process; the guardian must be started before the database is opened",
                                      options.db_path));
   ChildPlan plan;
-  KP_ASSIGN_OR_RETURN(plan.targets, PrepareTargets(rig));
+  KP_ASSIGN_OR_RETURN(plan.targets, PrepareTargets(rig, options.slots));
   plan.options = options;
   plan.runner = ::getpid();
   int down[2], up[2];

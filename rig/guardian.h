@@ -41,6 +41,7 @@
 #include <cstdint>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "drivers/status.h"
 #include "rig/rig_file.h"
@@ -59,6 +60,9 @@ struct GuardianOptions {
   double give_up_s = 30.0;
   // `resume`: the run being continued (0: a new run, created after Start).
   int64_t resume_run_id = 0;
+  // A multi-channel rig: the slots this runner runs (their load and supply
+  // channels are switched off); empty: every channel of the file.
+  std::vector<std::string> slots;
 };
 
 // The hang limit a run gets: kGuardianMinHangS plus the longest a healthy

@@ -3,8 +3,8 @@
 #include <fmt/format.h>
 #include <unistd.h>
 
-#include "rig/rig_file.h"
 #include "drivers/scpi_trace.h"
+#include "rig/rig_file.h"
 #include "rig/sim_rig.h"
 
 namespace kp {
@@ -44,6 +44,12 @@ Result<std::unique_ptr<Rig>> OpenRig(const std::string& spec, const RigOpenOptio
   }
   if (spec.ends_with(".toml")) {
     KP_ASSIGN_OR_RETURN(RigFileSpec file, LoadRigFile(spec));
+    if (!file.channels.empty()) {
+      std::string slots;
+      for (const ChannelSpec& c : file.channels) slots += (slots.empty() ? "" : ", ") + c.slot;
+      return InvalidInput(fmt::format("{} is a multi-channel bench (slots {}): choose the channel with --slot, or several with --slots",
+                                      spec, slots));
+    }
     return OpenFileRig(file, options);
   }
   return InvalidInput(fmt::format("unknown rig '{}': use 'sim' or a rig file (.toml)", spec));

@@ -16,6 +16,7 @@
 #include "drivers/address.h"
 #include "drivers/text_limits.h"
 #include "procedures/units.h"
+#include "rig/rig_channels.h"
 
 namespace kp {
 namespace {
@@ -130,7 +131,8 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
   RigFileSpec spec;
   spec.path = path;
   spec.text = std::string(text);
-  KP_RETURN_IF_ERROR(r.OnlyKnown(root, "", {"bench", "instrument"}));
+  KP_RETURN_IF_ERROR(r.OnlyKnown(root, "", {"bench", "instrument", "channel", "enclosure"}));
+  const bool has_channels = root.contains("channel");
 
   if (const toml::node* bn = root.get("bench")) {
     const toml::table* b = bn->as_table();
@@ -183,7 +185,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     for (const toml::node& e : *ra) {
       std::optional<std::string> role = e.value<std::string>();
       if (!role || !kRoles.count(*role)) return r.Error(&e, p + "roles", "each role must be \"load\", \"meter\", \"thermometer\" or \"supply\"");
-      if (auto [it, fresh] = role_owner.emplace(*role, is.name); !fresh)
+      if (auto [it, fresh] = role_owner.emplace(*role, is.name); !fresh && !has_channels)
         return r.Error(&e, p + "roles", fmt::format("role '{}' is already taken by '{}'", *role, it->second));
       is.roles.push_back(*role);
     }
@@ -270,6 +272,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     if (!role_owner.count(needed))
       return r.Error(in, "instrument", fmt::format("no instrument has the role '{}' (a run needs a load and a thermometer)", needed));
   }
+  KP_RETURN_IF_ERROR(ParseChannelTables(root, spec));
   return spec;
 }
 

@@ -26,6 +26,23 @@
 //   unguarded = ["watchdog"]               # load: its own protections the profile lacks
 //                                          # (undervoltage, overcurrent, overpower, watchdog)
 //
+// Multi-channel benches add one [[channel]] table per cell position (see
+// rig/rig_channels.h for the keys):
+//
+//   [[channel]]
+//   slot = "A1"                    # the cell position, unique on the bench
+//   load = "mload#1"               # instrument name # its channel
+//   sense = "scanner#1"            # optional: cell voltage from a meter; else the load's reading
+//   temperature = "scanner#101"    # the cell's thermocouple
+//   supply = "psu#1"               # optional: for charge steps
+//
+//   [enclosure]                    # optional: a bench-level temperature limit
+//   sensor = "scanner#0"           # a thermometer channel in the enclosure's air
+//   max_c = 45                     # above this, every channel is switched off
+//
+// With [[channel]] tables a role may be held by several instruments (eight
+// single-channel loads), and instruments used by channels take no `channel` key.
+//
 // A load whose profile has no command for one of its protections
 // (`guard-NAME = none`) is refused unless the rig file lists NAME in the
 // load's `unguarded`: running without a hardware backstop is a decision the
@@ -66,6 +83,26 @@ struct InstrumentSpec {
   int line = 0;  // where the [[instrument]] table starts
 };
 
+// Where one role of a channel is wired: an instrument and its channel.
+struct ChannelBinding {
+  int instrument = -1;   // index into RigFileSpec::instruments; -1: not bound
+  std::string channel;   // the instrument's channel ("3", "101"); empty: a one-channel instrument
+  int line = 0, col = 0;  // where it is written
+  bool bound() const { return instrument >= 0; }
+};
+
+// One [[channel]] table: a cell position and its wiring.
+struct ChannelSpec {
+  std::string slot;
+  ChannelBinding load, sense, temperature, supply;
+  int line = 0, col = 0;
+};
+
+struct EnclosureSpec {
+  ChannelBinding sensor;  // not bound: no enclosure limit
+  double max_c = 0.0;
+};
+
 struct RigFileSpec {
   std::string path;
   std::string text;  // the file as read: stored with every run made on it
@@ -74,6 +111,8 @@ struct RigFileSpec {
   std::string trace;  // resolved path, empty for none
   BenchLimits limits;
   std::vector<InstrumentSpec> instruments;
+  std::vector<ChannelSpec> channels;  // empty: a one-cell rig
+  EnclosureSpec enclosure;
 };
 
 // Parses rig-file text; `path` names it in messages and anchors relative

@@ -131,4 +131,15 @@ RunLock::~RunLock() {
   close(fd_);
 }
 
+Result<std::vector<std::unique_ptr<RunLock>>> AcquireAll(const std::vector<std::string>& keys, const std::string& holder,
+                                                         const std::string& dir) {
+  std::vector<std::unique_ptr<RunLock>> locks;
+  for (const std::string& key : keys) {
+    Result<std::unique_ptr<RunLock>> l = RunLock::Acquire(key, holder, dir);
+    if (!l.ok()) return l.status();  // the ones taken are released here
+    locks.push_back(std::move(*l));
+  }
+  return locks;
+}
+
 }  // namespace kp

@@ -10,6 +10,7 @@
 
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "drivers/status.h"
 
@@ -44,6 +45,11 @@ class RunLock {
   int fd_;
   std::string path_;
 };
+
+// Takes every key's lock (RunLock::Acquire each, same holder and folder);
+// refused as a whole when any is held, nothing kept.
+Result<std::vector<std::unique_ptr<RunLock>>> AcquireAll(const std::vector<std::string>& keys, const std::string& holder,
+                                                         const std::string& dir = RunLock::DefaultDir());
 
 // The checks Acquire makes on the lock directory (creating its last component).
 Status CheckLockDir(const std::string& dir);

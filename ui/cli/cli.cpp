@@ -17,6 +17,8 @@
 #include "rig/version.h"
 
 namespace kp::cli {
+
+void RegisterBatch(CliRegistry& r);  // batch report (cmd_batch.cpp)
 namespace {
 
 std::atomic<bool> g_stop{false};
@@ -208,6 +210,7 @@ int RunCli(int argc, char** argv, std::span<const Registrar> extra) {
   RegisterNote(registry);
   RegisterSync(registry);
   RegisterServe(registry);
+  RegisterBatch(registry);
   for (Registrar r : extra) r(registry);
   Result<UserConfig> config = LoadUserConfig();
   if (!config.ok()) return Fail(config.status());

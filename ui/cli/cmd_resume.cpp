@@ -8,6 +8,7 @@
 #include <sstream>
 
 #include "drivers/sim/cell_file.h"
+#include "rig/channel_bench.h"
 #include "rig/control_channel.h"
 #include "rig/resume.h"
 #include "rig/rig.h"
@@ -16,6 +17,7 @@
 #include "rig/sim_rig.h"
 #include "rig/store_open.h"
 #include "ui/cli/cli.h"
+#include "ui/cli/run_bench_cmd.h"
 #include "ui/cli/run_guard.h"
 #include "ui/report/run_report.h"
 
@@ -81,7 +83,8 @@ int RunResume(const ResumeOptions& opt) {
   // closed around its start.
   if (opt.rig != "sim") {
     store->reset();
-    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id);
+    auto started = StartGuardianFor(opt.rig, opt.db_path, opt.link_grace_s, opt.hang_limit_s, LongestSamplePeriodS(*plan), opt.run_id,
+                                    SlotOfRun(run->tags).empty() ? std::vector<std::string>{} : std::vector<std::string>{SlotOfRun(run->tags)});
     if (!started.ok()) return Fail(started.status());
     guardian = std::move(*started);
     store = OpenExistingDb(opt.db_path, wall);
@@ -94,10 +97,11 @@ int RunResume(const ResumeOptions& opt) {
     if (!cell.ok()) return Fail(cell.status());
     ro.sim_cell = *cell;
   }
-  auto rig = OpenRig(opt.rig, ro);
+  // A run on one channel of a multi-channel bench resumes there (its slot tag).
+  auto rig = OpenRigForSlot(opt.rig, ro, SlotOfRun(run->tags));
   if (!rig.ok()) return Fail(rig.status());
   if (Status st = EnableWatchdogFor(opt.rig, *(*rig)->roles().load); !st.ok()) return Fail(st);
-  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
+  auto lock = AcquireAll(RigLockKeys(**rig), fmt::format("resume of run {} in {}", opt.run_id, opt.db_path));
   if (!lock.ok()) return Fail(lock.status());
   auto point = PrepareResume(**store, opt.run_id, *plan, (*rig)->roles());
   if (!point.ok()) return Fail(point.status());

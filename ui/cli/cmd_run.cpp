@@ -13,6 +13,7 @@
 #include "analysis/duration_format.h"
 #include "drivers/sim/cell_file.h"
 #include "procedures/estimate.h"
+#include "rig/channel_bench.h"
 #include "rig/control_channel.h"
 #include "rig/lab/lab_sync.h"
 #include "rig/lab/pg.h"
@@ -26,6 +27,7 @@
 #include "ui/cli/cli.h"
 #include "ui/cli/procedure_file.h"
 #include "ui/cli/record_options.h"
+#include "ui/cli/run_bench_cmd.h"
 #include "ui/cli/run_guard.h"
 #include "ui/report/run_report.h"
 
@@ -49,6 +51,7 @@ struct RunCmdOptions {
   double hang_limit_s = 0.0;  // 0: DefaultHangLimitS
   RecordOptions record;
   std::string sync_url;  // --sync: lab database the run is copied to as it goes
+  BenchRunArgs bench;  // --slot / --slots / --serials / --batch (ui/cli/run_bench_cmd.h)
 };
 
 // Records which simulated cell the run just begun uses (event "sim-cell").
@@ -67,13 +70,21 @@ bool NoteSimCell(Store& store, const Plan& plan, const std::string& cell, const 
 }
 
 int RunRun(const RunCmdOptions& opt) {
+  // Several channels of a multi-channel bench at once: ui/cli/cmd_run_bench.cpp.
+  if (!opt.bench.slots.empty())
+    return RunBenchCommand(opt.file, opt.rig, opt.db, opt.trace, opt.link_grace_s, opt.hang_limit_s, opt.progress_s, opt.record,
+                           opt.bench);
+  if (!opt.bench.serials.empty() || !opt.bench.batch.empty())
+    return Fail(InvalidInput("--serials and --batch go with --slots (the channels of a multi-channel bench)"));
   // First: from here on a stop signal takes the safe-off path and a closed
   // stdout does not kill the run.
   const std::atomic<bool>* stop = InstallStopSignals();
   // A rig file's outputs are watched by a guardian before any is opened.
   double longest_period_s = 0.0;
   if (auto draft = LoadProcedure(opt.file); draft.ok()) longest_period_s = LongestSamplePeriodS(*draft);
-  auto guardian = StartGuardianFor(opt.rig, opt.db, opt.link_grace_s, opt.hang_limit_s, longest_period_s, 0);
+  std::vector<std::string> slots;
+  if (!opt.bench.slot.empty()) slots.push_back(opt.bench.slot);
+  auto guardian = StartGuardianFor(opt.rig, opt.db, opt.link_grace_s, opt.hang_limit_s, longest_period_s, 0, slots);
   if (!guardian.ok()) return Fail(guardian.status());
   RigOpenOptions ro;
   ro.sim_speed = opt.speed;
@@ -116,7 +127,7 @@ int RunRun(const RunCmdOptions& opt) {
     return Fail(InvalidInput("--sim-soc, --sim-age, --sim-ambient: only for --rig sim (a real cell is as it is)"));
   }
   ro.trace_path = opt.trace;
-  auto rig = OpenRig(opt.rig, ro);
+  auto rig = OpenRigForSlot(opt.rig, ro, opt.bench.slot);
   if (!rig.ok()) return Fail(rig.status());
   RigRoles roles = (*rig)->roles();
   if (Status st = EnableWatchdogFor(opt.rig, *roles.load); !st.ok()) return Fail(st);
@@ -145,7 +156,7 @@ int RunRun(const RunCmdOptions& opt) {
 
   // One runner per rig: nothing is switched on before this process holds the
   // instruments' lock.
-  auto lock = RunLock::Acquire((*rig)->LockKey(), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
+  auto lock = AcquireAll(RigLockKeys(**rig), fmt::format("'{}' on cell '{}' into {}", plan->name, cell, opt.db));
   if (!lock.ok()) return Fail(lock.status());
   ControlChannel control(**store, wall);
   RunController controller(**store, (*rig)->clock(), roles);
@@ -153,6 +164,7 @@ int RunRun(const RunCmdOptions& opt) {
   run.control = &control;
   run.cell_name = cell;
   if (Status st = FillRecord(opt.record, run.record); !st.ok()) return Fail(st);
+  if (!opt.bench.slot.empty()) run.record.tags.push_back(SlotTag(opt.bench.slot));
   run.stop = stop;
   run.stop_reason = "stopped by operator (signal)";
   if (std::string warn = MissingGuardsWarning(*roles.load); !warn.empty()) {
@@ -233,6 +245,7 @@ void RegisterRun(CliRegistry& r) {
   c->add_option("--sync", opt.sync_url,
                 "Also copy the run to this lab database (postgresql://...) while it goes on; failures are retried, never stop the run")
       ->check([](const std::string& v) { return pg::IsPostgresUrl(v) ? std::string() : std::string("give a postgresql://... URL"); });
+  AddBenchRunOptions(c, opt.bench);
 }
 
 }  // namespace kp::cli

@@ -5,6 +5,8 @@
 #include <fmt/format.h>
 
 #include "drivers/address.h"
+#include "drivers/sim/cell_file.h"
+#include "drivers/sim/multi_bench.h"
 #include "drivers/sim/sim_bench.h"
 #include "drivers/sim/sim_server.h"
 #include "ui/cli/cli.h"
@@ -20,6 +22,8 @@ struct SimCmdOptions {
   double runaway_at_s = -1.0;
   double delay_s = 0.0;
   bool verbose = false;
+  int channels = 0;          // > 0: multi-channel instruments (drivers/sim/multi_bench.h)
+  uint64_t batch_seed = 0;   // the batch the channels' cells are drawn from (0: nominal cells)
   sim::FaultOptions faults;
 };
 
@@ -36,6 +40,15 @@ int RunSim(SimCmdOptions o) {
   sim::SimBench bench(sim::DemoLiIonCell(o.capacity_mah / 1000.0), clock, so);
   std::vector<sim::ServedDevice> devices{{"load", &bench.load()}, {"meter", &bench.meter()}, {"thermometer", &bench.thermometer()},
                                          {"supply", &bench.supply()}};
+  std::unique_ptr<sim::SimMultiBench> multi;
+  if (o.channels > 0) {
+    // A different cell behind each channel: one batch of the li-ion preset's spread.
+    auto preset = sim::BuiltInCell("li-ion");
+    if (!preset.ok()) return Fail(preset.status());
+    sim::CellParams nominal = sim::DemoLiIonCell(o.capacity_mah / 1000.0);
+    multi = std::make_unique<sim::SimMultiBench>(sim::BatchCells(nominal, preset->spread, o.channels, o.batch_seed), clock, so);
+    devices = {{"load", &multi->load()}, {"meter", &multi->meter()}, {"thermometer", &multi->thermometer()}, {"supply", &multi->supply()}};
+  }
   auto note = o.verbose ? std::function<void(std::string_view)>([](std::string_view m) { std::cerr << "sim: " << m << "\n"; }) : nullptr;
   auto server = sim::SimServer::Start(*listen, devices, o.faults, note);
   if (!server.ok()) return Fail(server.status());
@@ -46,7 +59,12 @@ int RunSim(SimCmdOptions o) {
   std::cout << fmt::format("Simulated bench ({:.2f} Ah cell) at {} simulated seconds per wall second.\n", o.capacity_mah / 1000.0, o.speed);
   const auto& addrs = (*server)->client_addresses();
   for (size_t i = 0; i < devices.size(); ++i) std::cout << fmt::format("  {:<12} {}\n", devices[i].name, addrs[i]);
-  std::cout << fmt::format("In the rig file set clock_speed = {} and these addresses (profile \"kneepoint-sim\").\n", o.speed);
+  if (multi)
+    std::cout << fmt::format("{} channels (cells of batch seed {}); in the rig file set clock_speed = {}, these addresses and profile "
+                             "\"kneepoint-sim-select\" or \"kneepoint-sim-chlist\"; thermometer channel 0 is the enclosure.\n",
+                             o.channels, o.batch_seed, o.speed);
+  else
+    std::cout << fmt::format("In the rig file set clock_speed = {} and these addresses (profile \"kneepoint-sim\").\n", o.speed);
   if (o.faults.any()) std::cout << "Fault injection is on.\n";
   std::cout << "Ctrl-C stops.\n" << std::flush;
   const std::atomic<bool>* stop = InstallStopSignals();
@@ -54,8 +72,10 @@ int RunSim(SimCmdOptions o) {
   int faults = (*server)->faults_injected();
   long lines = (*server)->lines_handled();
   (*server)->Stop();
-  std::cout << fmt::format("\nStopped after {} lines, {} faults injected; load input was {}.\n", lines, faults,
-                           bench.load_input_on() ? "ON" : "off");
+  bool on = bench.load_input_on();
+  for (int c = 1; multi && c <= multi->channels(); ++c) on = on || multi->channel(c).load_input_on();
+  std::cout << fmt::format("\nStopped after {} lines, {} faults injected; load input{} {}.\n", lines, faults, multi ? "s were" : " was",
+                           on ? "ON" : "off");
   return kExitOk;
 }
 
@@ -81,6 +101,9 @@ void RegisterSim(CliRegistry& r) {
   AddQuantityOption(c, "--runaway-at", opt.runaway_at_s, Dimension::kTime, "Fault: thermal runaway from this simulated time on")
       ->default_str("");
   c->add_flag("--verbose", opt.verbose, "Log every injected fault");
+  c->add_option("--channels", opt.channels, "Serve multi-channel instruments with this many channels, a cell on each")
+      ->check(CLI::Range(1, 64));
+  c->add_option("--batch-seed", opt.batch_seed, "With --channels: draw the cells from the preset's batch spread with this seed (0: nominal)");
 }
 
 }  // namespace kp::cli

@@ -9,12 +9,19 @@
 
 #include "analysis/svg_plot.h"
 #include "drivers/clock.h"
+#include "drivers/inproc_transport.h"
+#include "drivers/lockstep_clock.h"
 #include "drivers/sim/cell_file.h"
+#include "drivers/sim/multi_bench.h"
 #include "procedures/estimate.h"
 #include "procedures/procedure_parser.h"
+#include "rig/bench_run.h"
+#include "rig/channel_bench.h"
+#include "rig/rig_file.h"
 #include "rig/run_controller.h"
 #include "rig/sim_rig.h"
 #include "ui/cli/demo_procedures.h"
+#include "ui/report/batch_report.h"
 #include "ui/report/run_report.h"
 
 namespace kp {
@@ -207,9 +214,81 @@ std::string IndexHtml(const DemoFigures& f) {
   o += fmt::format("<p>Run {} {}: {}. Load input after the abort: {} ({:.3f} A). Hottest reading {:.1f} &#176;C.</p>\n",
                    f.failing_run, OutcomeName(f.failing_outcome), Esc(f.failing_reason), f.failing_load_on_after ? "ON" : "off",
                    f.failing_load_current_after_a, f.failing_max_temperature_c);
+  o += "<h2>Q7 Batch qualification on a four-channel bench</h2>\n";
+  if (f.batch_capacity.n > 0)
+    o += fmt::format("<p>Cells 4 to 7 of the lot ({}) at once, one channel each: mean {:.0f} mAh, standard deviation {:.1f} mAh, "
+                     "{:.0f} to {:.0f} mAh; {} of {} pass; {} outlier(s). <a href=\"{}\">Batch report</a>.</p>\n",
+                     Esc(f.batch_name), f.batch_capacity.mean, f.batch_capacity.stddev.value_or(0.0), f.batch_capacity.min,
+                     f.batch_capacity.max, f.batch_passes, f.batch_runs.size(), f.batch_outliers, Esc(f.batch_page));
   o += "</body>\n</html>\n";
   return o;
 }
+
+// Plan item Q7's bench: one multi-channel load, scanner, thermometer and
+// supply of the simulator (both channel-select styles), four cell positions.
+constexpr const char* kDemoBench = R"([bench]
+name = "demo four-channel bench"
+max_current_a = 5.0
+max_voltage_v = 4.3
+
+[[instrument]]
+name = "mload"
+address = "tcp:127.0.0.1:5025"
+profile = "kneepoint-sim-select"
+roles = ["load"]
+confirm_writes = true
+
+[[instrument]]
+name = "scanner"
+address = "tcp:127.0.0.1:5026"
+profile = "kneepoint-sim-chlist"
+roles = ["meter"]
+
+[[instrument]]
+name = "tlog"
+address = "tcp:127.0.0.1:5027"
+profile = "kneepoint-sim-chlist"
+roles = ["thermometer"]
+
+[[instrument]]
+name = "psu"
+address = "tcp:127.0.0.1:5028"
+profile = "kneepoint-sim-select"
+roles = ["supply"]
+confirm_writes = true
+
+[[channel]]
+slot = "B1"
+load = "mload#1"
+sense = "scanner#1"
+temperature = "tlog#1"
+supply = "psu#1"
+
+[[channel]]
+slot = "B2"
+load = "mload#2"
+sense = "scanner#2"
+temperature = "tlog#2"
+supply = "psu#2"
+
+[[channel]]
+slot = "B3"
+load = "mload#3"
+sense = "scanner#3"
+temperature = "tlog#3"
+supply = "psu#3"
+
+[[channel]]
+slot = "B4"
+load = "mload#4"
+sense = "scanner#4"
+temperature = "tlog#4"
+supply = "psu#4"
+
+[enclosure]
+sensor = "tlog#0"
+max_c = 45
+)";
 
 }  // namespace
 
@@ -348,6 +427,76 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
     f.runs.push_back(std::move(run));
   }
 
+  // Cells 4-7 of the lot: plan item Q7, four at once on a four-channel bench.
+  {
+    f.batch_name = "LN-2500 lot A";
+    LockstepClock clock;
+    std::vector<sim::CellParams> cells;
+    for (int k = 0; k < 4; ++k) cells.push_back(sim::VaryCell(preset.params, preset.spread, CellSeed(4 + k)));
+    sim::SimMultiBench multi(std::move(cells), clock);
+    KP_ASSIGN_OR_RETURN(RigFileSpec spec, ParseRigFile(kDemoBench, "demo-bench.toml"));
+    BenchOpenOptions bo;
+    bo.rig.clock = &clock;
+    bo.connect = [&](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
+      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter()
+                      : is.name == "psu"   ? &multi.supply() : &multi.thermometer();
+      return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, "sim:" + is.name));
+    };
+    KP_ASSIGN_OR_RETURN(std::unique_ptr<ChannelBench> bench, OpenChannelBench(spec, bo));
+    const kp::Plan& plan = c.planned(0).plan;  // the rated-capacity check of Q1
+    std::vector<ChannelJob> jobs;
+    for (int k = 0; k < 4; ++k) {
+      ChannelJob j;
+      j.channel = k;
+      j.plan = &plan;
+      j.options.cell_name = fmt::format("LN-2500 #{}", 4 + k);
+      j.options.record.cell_serial = fmt::format("LN25-A-{:03}", 4 + k);
+      j.options.record.cell_lot = "A";
+      j.options.record.tags = {"slot=" + bench->channel(k).slot, "batch=" + f.batch_name};
+      j.options.stop = options.stop;
+      jobs.push_back(std::move(j));
+    }
+    BenchRunOptions bro;
+    bro.db_path = options.db_path;
+    bro.stop = options.stop;
+    bro.take_locks = false;  // the simulated instruments live in this process
+    bro.control = false;
+    KP_ASSIGN_OR_RETURN(std::vector<ChannelOutcome> outcomes, RunBench(*bench, std::move(jobs), bro));
+    for (size_t k = 0; k < outcomes.size(); ++k) {
+      const ChannelOutcome& o = outcomes[k];
+      KP_RETURN_IF_ERROR(o.status);
+      KP_ASSIGN_OR_RETURN(RunReport rep, BuildRunReport(*store, o.result.run_id));
+      KP_RETURN_IF_ERROR(RecordVerdict(*store, rep));
+      DemoRun run;
+      run.run_id = o.result.run_id;
+      run.part = "Q7 batch " + o.slot;
+      run.cell = rep.run.cell;
+      run.procedure = c.planned(0).file;
+      run.outcome = rep.run.outcome;
+      run.reason = rep.run.reason;
+      run.discharge_mah = rep.analysis.discharge_charge_mah;
+      run.discharge_wh = rep.analysis.discharge_energy_wh;
+      run.discharge_h = rep.analysis.discharge_duration_s / 3600.0;
+      run.mean_voltage_v = rep.analysis.mean_voltage_v;
+      run.max_temperature_c = rep.analysis.max_temperature_c;
+      run.samples = static_cast<int64_t>(rep.figures.sample_count);
+      run.virtual_s = rep.figures.duration_s;
+      run.report_file = fmt::format("run-{}.html", o.result.run_id);
+      KP_RETURN_IF_ERROR(c.WritePage(run.report_file, RunReportHtml(rep)));
+      f.batch_runs.push_back(run.run_id);
+      f.runs.push_back(std::move(run));
+    }
+    KP_ASSIGN_OR_RETURN(BatchReport batch, BuildBatchReport(*store, f.batch_name));
+    f.batch_capacity = batch.capacity;
+    for (const BatchCell& cell : batch.cells) {
+      f.batch_passes += cell.verdict == "pass" ? 1 : 0;
+      f.batch_outliers += cell.capacity_outlier || cell.resistance_outlier ? 1 : 0;
+    }
+    f.batch_page = "batch-lot-a.html";
+    KP_RETURN_IF_ERROR(c.WritePage(f.batch_page, BatchReportHtml(batch)));
+    if (options.on_progress) options.on_progress(1.0, "Q7 batch");
+  }
+
   for (const DemoRun& r : f.runs) f.virtual_hours += r.virtual_s / 3600.0;
   KP_RETURN_IF_ERROR(c.WritePage("index.html", IndexHtml(f)));
   f.pages = c.pages();
@@ -390,6 +539,10 @@ std::string DemoSummaryText(const DemoFigures& f) {
     for (const std::string& a : f.life->assumptions) o += fmt::format("                   - {}\n", a);
   o += fmt::format("Q6 failing cell    run {} {}: {}; load input {}\n", f.failing_run, OutcomeName(f.failing_outcome),
                    f.failing_reason, f.failing_load_on_after ? "STILL ON" : "off");
+  if (f.batch_capacity.n > 0)
+    o += fmt::format("Q7 batch of {}      {}: mean {:.0f} mAh, sd {:.1f} mAh, {:.0f}..{:.0f} mAh; {} pass; {} outlier(s)\n",
+                     f.batch_runs.size(), f.batch_name, f.batch_capacity.mean, f.batch_capacity.stddev.value_or(0.0),
+                     f.batch_capacity.min, f.batch_capacity.max, f.batch_passes, f.batch_outliers);
   o += fmt::format("\n{} runs, {:.0f} h of simulated bench time.\n", f.runs.size(), f.virtual_hours);
   return o;
 }

@@ -1,6 +1,6 @@
 // The demo campaign: an example qualification plan for an invented Li-ion cell
 // (LN-2500) meant for a field sensor node, on the built-in simulated rig, in
-// virtual time. Six plan items, ten runs:
+// virtual time. Seven plan items, fourteen runs:
 //  Q1. rated-capacity check of cell 1 (CC-CV charge, rest, 0.2 It to cutoff);
 //  Q2. cell 1 again (state carried over): the product's duty cycle (sleep
 //     time-compressed), its 2 A peak as a pulse train, 2 A continuously;
@@ -8,7 +8,9 @@
 //  Q4. cell 2 of the same batch: a Peukert series at four constant currents;
 //  Q5. the product-life projection from the measured duty-cycle capacity;
 //  Q6. cell 3 with the simulator's thermal-runaway fault, aborted by the
-//     over-temperature limit with the load off.
+//     over-temperature limit with the load off;
+//  Q7. batch qualification: cells 4-7 of the lot at once on a simulated
+//     four-channel bench (rig/bench_run.h), compared by the batch report.
 // Every figure in DemoFigures is computed by the analysis code from the
 // samples logged in the database (BuildRunReport / BuildCompareReport).
 // Writes the database and an XHTML report folder (index.html, one page per
@@ -22,6 +24,7 @@
 #include <string>
 #include <vector>
 
+#include "analysis/batch_stats.h"
 #include "analysis/compare.h"
 #include "analysis/dcir.h"
 #include "analysis/life.h"
@@ -90,6 +93,12 @@ struct DemoFigures {
   bool failing_load_on_after = true;  // the simulated load's input state after the run
   double failing_load_current_after_a = 0.0;
   double failing_max_temperature_c = 0.0;
+  // 7. batch qualification on a four-channel bench
+  std::string batch_name;
+  std::vector<int64_t> batch_runs;  // by slot
+  BatchStats batch_capacity;        // over the completed runs (analysis/batch_stats.h)
+  int batch_passes = 0, batch_outliers = 0;
+  std::string batch_page;  // relative to the report folder
   // Output
   std::string index_html;                // path of the report folder's index.html
   std::vector<std::string> pages;        // every page written, relative to the report folder

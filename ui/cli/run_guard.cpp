@@ -20,13 +20,15 @@ double LongestSamplePeriodS(const Plan& plan) {
 }
 
 Result<std::unique_ptr<Guardian>> StartGuardianFor(const std::string& rig, const std::string& db, double link_grace_s,
-                                                   double hang_limit_s, double longest_period_s, int64_t resume_run_id) {
+                                                   double hang_limit_s, double longest_period_s, int64_t resume_run_id,
+                                                   const std::vector<std::string>& slots) {
   if (rig == "sim") return std::unique_ptr<Guardian>();
   KP_ASSIGN_OR_RETURN(RigFileSpec spec, LoadRigFile(rig));
   GuardianOptions go;
   go.db_path = db;
   go.hang_limit_s = hang_limit_s > 0 ? hang_limit_s : DefaultHangLimitS(link_grace_s, longest_period_s, spec.clock_speed);
   go.resume_run_id = resume_run_id;
+  go.slots = slots;
   return Guardian::Start(spec, go);
 }
 

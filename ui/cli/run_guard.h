@@ -19,7 +19,7 @@ namespace kp::cli {
 // DefaultHangLimitS from the link grace, the longest sample period and the
 // rig file's clock_speed.
 Result<std::unique_ptr<Guardian>> StartGuardianFor(const std::string& rig, const std::string& db, double link_grace_s,
-                                                   double hang_limit_s, double longest_period_s, int64_t resume_run_id);
+                                                   double hang_limit_s, double longest_period_s, int64_t resume_run_id, const std::vector<std::string>& slots = {});
 
 // A rig file's load gets the watchdog guard, counted in the instruments'
 // seconds (the file's clock_speed per wall second); nothing for "sim".

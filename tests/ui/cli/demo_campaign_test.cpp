@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -79,7 +80,7 @@ TEST_F(DemoCampaignTest, EveryRunIsStoredAndAllButTheFailingCellCompleted) {
   auto runs = store_->ListRuns();
   ASSERT_TRUE(runs.ok());
   ASSERT_EQ(runs->size(), figures_->runs.size());
-  EXPECT_EQ(figures_->runs.size(), 10u);
+  EXPECT_EQ(figures_->runs.size(), 14u);
   for (const DemoRun& r : figures_->runs) {
     auto row = store_->GetRun(r.run_id);
     ASSERT_TRUE(row.ok());
@@ -87,6 +88,34 @@ TEST_F(DemoCampaignTest, EveryRunIsStoredAndAllButTheFailingCellCompleted) {
     EXPECT_EQ(row->sample_count, r.samples) << r.part;
     if (r.run_id != figures_->failing_run) EXPECT_EQ(r.outcome, Outcome::kCompleted) << r.part << ": " << r.reason;
   }
+}
+
+// Q7: four cells at once on the four-channel bench; the batch figures are
+// those of the four runs' own reports, recomputed here from the database.
+TEST_F(DemoCampaignTest, BatchOfFourRanAtOnceAndItsStatisticsComeFromTheRuns) {
+  const DemoFigures& f = *figures_;
+  ASSERT_EQ(f.batch_runs.size(), 4u);
+  std::vector<double> mah;
+  std::set<std::string> uuids, slots;
+  for (int64_t id : f.batch_runs) {
+    auto row = store_->GetRun(id);
+    ASSERT_TRUE(row.ok());
+    EXPECT_EQ(row->outcome, Outcome::kCompleted) << row->reason;
+    uuids.insert(row->uuid);
+    for (const std::string& t : row->tags)
+      if (t.rfind("slot=", 0) == 0) slots.insert(t);
+    auto rep = BuildRunReport(*store_, id);
+    ASSERT_TRUE(rep.ok());
+    mah.push_back(rep->analysis.discharge_charge_mah);
+  }
+  EXPECT_EQ(uuids.size(), 4u);
+  EXPECT_EQ(slots.size(), 4u);
+  double mean = (mah[0] + mah[1] + mah[2] + mah[3]) / 4.0;
+  EXPECT_NEAR(f.batch_capacity.mean, mean, 1e-9);
+  EXPECT_DOUBLE_EQ(f.batch_capacity.min, *std::min_element(mah.begin(), mah.end()));
+  EXPECT_DOUBLE_EQ(f.batch_capacity.max, *std::max_element(mah.begin(), mah.end()));
+  EXPECT_GT(f.batch_capacity.max - f.batch_capacity.min, 1.0) << "four different cells of the lot";
+  EXPECT_TRUE(std::filesystem::is_regular_file(dir_->path() / "report" / f.batch_page));
 }
 
 TEST_F(DemoCampaignTest, ReportedChargeMatchesTheStoredSamples) {
@@ -261,7 +290,7 @@ TEST_F(DemoCampaignTest, EveryLinkInTheReportResolves) {
     ++links;
     EXPECT_TRUE(std::filesystem::is_regular_file(dir / (*it)[1].str())) << (*it)[1].str();
   }
-  EXPECT_EQ(links, static_cast<int>(figures_->runs.size()) + 2);  // each run, two comparisons
+  EXPECT_EQ(links, static_cast<int>(figures_->runs.size()) + 3);  // each run, two comparisons, the batch report
   for (const std::string& page : figures_->pages) EXPECT_TRUE(std::filesystem::is_regular_file(dir / page)) << page;
 }
 
