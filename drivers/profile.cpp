@@ -218,9 +218,9 @@ Result<InstrumentProfile> ParseProfile(std::string_view text, const std::string&
       for (const auto& [name, spec] : Keys()) commands.push_back(name);
       if (std::find(commands.begin(), commands.end(), key) != commands.end())
         return InvalidInput(fmt::format("{}a command belongs under [commands]", where(&v, key)));
-  static const std::vector<std::string> kTop = {"format",         "roles",       "description",       "identity",     "channels",
-                                                "channel-select", "commands",    "init",              "teardown",     "check-settings",
-                                                "error-query",    "strip-reply-units", "mode-settle-s"};
+      return InvalidInput(fmt::format("{}unknown key{} (known: format, roles, description, identity, channels, channel-select, "
+                                      "init, teardown, check-settings, error-query, strip-reply-units, mode-settle-s, [commands])",
+                                      where(&v, key), DidYouMean(key, kTop)));
     }
   }
   if (const toml::node* f = doc.get("format")) {

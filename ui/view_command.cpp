@@ -1,6 +1,7 @@
 #include "ui/view_command.h"
 
 #include "rig/config.h"
+#include "rig/lab/pg.h"
 
 #include <filesystem>
 #include <fstream>
@@ -110,7 +111,7 @@ int RunView(const ViewOptions& o) {
   po.dark = !o.light;
   po.new_run_procedure = o.new_run;
   std::error_code ec;
-  if (!std::filesystem::exists(o.db, ec))
+  if (!pg::IsPostgresUrl(o.db) && !std::filesystem::exists(o.db, ec))
     return cli::Fail(NotFound(fmt::format("database '{}' not found (create one with `kneepoint demo`)", o.db)));
   if (o.frames < 1) return cli::Fail(InvalidInput("--frames must be at least 1"));
 
@@ -196,7 +197,7 @@ void RegisterView(cli::CliRegistry& registry) {
   auto opt = std::make_shared<ViewOptions>();
   CLI::App* cmd = registry.Add("view", "Open the live panel: watch, start and stop runs, compare them",
                                [opt] { return RunView(*opt); });
-  cmd->add_option("--db", opt->db, "database file")->capture_default_str();
+  cmd->add_option("--db", opt->db, "database file, or a lab database (postgresql://..., read only)")->capture_default_str();
   cmd->add_option("--run", opt->run, "run shown first (default: the newest)");
   cmd->add_option("--compare", opt->compare, "runs overlaid in the compare view, e.g. 1,2,3");
   cmd->add_option("--tab", opt->tab, "live or compare")->capture_default_str();

@@ -12,6 +12,7 @@
 #include <fmt/format.h>
 
 #include "drivers/clock.h"
+#include "rig/lab/pg.h"
 #include "rig/store_open.h"
 
 namespace kp::ui {
@@ -387,6 +388,10 @@ void RunFeed::Loop() {
   SteadyClock steady;
   Clock& clock = options_.clock ? *options_.clock : steady;
   std::unique_ptr<Store> store;
+  lab_ = pg::IsPostgresUrl(options_.db_path);
+  Seconds opened_at{0};
+  std::set<int64_t> opened_watch;  // the watched runs the lab copy was filled with
+  const std::string shown_path = lab_ ? pg::RedactUrl(options_.db_path) : options_.db_path;
   while (true) {
     {
       std::lock_guard<std::mutex> lock(mu_);
@@ -394,15 +399,31 @@ void RunFeed::Loop() {
     }
     wake_ = false;
     bool news = false;
+    if (lab_ && store) {  // a fresh copy: after a while, or when other runs are watched
+      std::lock_guard<std::mutex> lock(mu_);
+      if (clock.Now() - opened_at >= Seconds(options_.lab_refresh_s) || watch_ != opened_watch) store.reset();
+    }
     if (!store) {
-      auto opened = OpenExistingDb(options_.db_path, clock);
+      Result<std::unique_ptr<Store>> opened = NotFound("");
+      if (lab_) {
+        std::vector<std::string> refs;
+        {
+          std::lock_guard<std::mutex> lock(mu_);
+          opened_watch = watch_;
+          for (int64_t id : watch_) refs.push_back(std::to_string(id));
+        }
+        opened = OpenDbForReading(options_.db_path, clock, refs);
+      } else {
+        opened = OpenExistingDb(options_.db_path, clock);
+      }
+      opened_at = clock.Now();
       std::lock_guard<std::mutex> lock(mu_);
       if (opened.ok()) {
         store = std::move(*opened);
         connected_ = true;
       } else {
         connected_ = false;
-        notes_.push_back(fmt::format("cannot open {}: {}", options_.db_path, opened.status().message()));
+        notes_.push_back(fmt::format("cannot open {}: {}", shown_path, opened.status().message()));
       }
       news = true;
     }
@@ -470,6 +491,13 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
     for (const auto& [id, p] : pending_)
       if (p.blocks.size() >= options_.max_pending_blocks) still_pending.insert(id);
   }
+  if (lab_ && (!requests.empty() || !run_notes.empty())) {
+    std::lock_guard<std::mutex> lock(mu_);
+    notes_.push_back("the lab database is read only: pause, abort, continue and notes go to the bench's own database file");
+    *news = true;
+    requests.clear();
+    run_notes.clear();
+  }
   for (auto& [run_id, action] : requests) {
     auto r = store.AddRequest(run_id, action, "panel");
     std::lock_guard<std::mutex> lock(mu_);
@@ -487,7 +515,8 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
 
   // A runner that died while the panel watched: mark its run interrupted
   // (every few seconds; the store checks the runner's pid and host).
-  if (++worker_polls_ % 20 == 0) KP_RETURN_IF_ERROR(store.ReconcileOrphans().status());
+  // Not on a lab copy: its runners are on other hosts, and the copy is not the record.
+  if (++worker_polls_ % 20 == 0 && !lab_) KP_RETURN_IF_ERROR(store.ReconcileOrphans().status());
   bool more = false;
   KP_ASSIGN_OR_RETURN(auto runs, store.ListRuns());
   std::map<int64_t, Pending> out;

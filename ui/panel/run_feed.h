@@ -156,6 +156,11 @@ class RunFeed {
   struct Options {
     std::string db_path;
     double poll_s = 0.25;             // at least twice a second
+    // A lab database (`postgresql://...`, rig/lab/lab_mirror.h) is read into
+    // an in-memory copy of the runs list and the watched runs; the copy is
+    // taken again this often to show what the benches have synced since.
+    // Requests and notes are refused there (they belong to the bench's file).
+    double lab_refresh_s = 5.0;
     size_t max_rows_per_poll = 32768;  // block summaries per run and poll (bounds one poll's work)
     size_t max_append_per_frame = 100000;  // block summaries per Drain (bounds a frame's work)
     size_t max_pending_blocks = 65536;     // read no more of a run while this many wait for Drain
@@ -243,6 +248,7 @@ class RunFeed {
   uint64_t polls_done_ = 0;
   uint64_t caught_up_poll_ = 0;  // last poll that found nothing left to read
   uint64_t worker_polls_ = 0;    // worker only
+  bool lab_ = false;              // worker only: db_path is a lab database
   // worker only
   std::map<int64_t, BlockCursor> list_cursors_;
   std::map<int64_t, WatchCursor> watch_cursors_;
