@@ -1024,7 +1024,8 @@ void Panel::BenchView() {
     ImGui::PushStyleColor(ImGuiCol_Text, volt);
     ImGui::TextUnformatted(tile.voltage_v ? fmt::format("{:.3f} V", *tile.voltage_v).c_str() : "– V");
     ImGui::PopStyleColor();
-    ImGui::SameLine(x - p0.x + inner_w * 0.5f);
+    ImGui::SameLine();
+    ImGui::SetCursorScreenPos({x + inner_w * 0.5f, y});
     ImGui::PushStyleColor(ImGuiCol_Text, theme_.charge);
     ImGui::TextUnformatted(fmt::format("{:.0f} mAh", tile.delivered_mah).c_str());
     ImGui::PopStyleColor();
