@@ -86,7 +86,11 @@ Status WriteLayout(const std::string& path, const Panel& panel) {
     const DrawnBadge& b = *panel.badge();
     j["badge"] = {{"text", b.text}, {"x0", b.min.x}, {"y0", b.min.y}, {"x1", b.max.x}, {"y1", b.max.y}, {"rgb", Rgb(b.colour)}};
   }
-  j["tab"] = panel.tab() == Tab::kLive ? "live" : "compare";
+  j["tab"] = panel.tab() == Tab::kLive ? "live" : panel.tab() == Tab::kCompare ? "compare" : "bench";
+  // The bench overview's tiles: box, state colour and slot.
+  j["tiles"] = nlohmann::json::array();
+  for (const DrawnBadge& t : panel.tiles())
+    j["tiles"].push_back({{"text", t.text}, {"x0", t.min.x}, {"y0", t.min.y}, {"x1", t.max.x}, {"y1", t.max.y}, {"rgb", Rgb(t.colour)}});
   j["voltage_rgb"] = Rgb(panel.theme().voltage);
   j["cutoff_rgb"] = Rgb(panel.theme().cutoff);
   if (panel.selected()) {
@@ -107,7 +111,8 @@ int RunView(const ViewOptions& o) {
   if (o.run > 0) po.run_id = o.run;
   if (Status st = ParseIds(o.compare, &po.compare); !st.ok()) return cli::Fail(st);
   if (o.tab == "compare") po.tab = Tab::kCompare;
-  else if (o.tab != "live") return cli::Fail(InvalidInput(fmt::format("--tab '{}': expected live or compare", o.tab)));
+  else if (o.tab == "bench") po.tab = Tab::kBench;
+  else if (o.tab != "live") return cli::Fail(InvalidInput(fmt::format("--tab '{}': expected live, compare or bench", o.tab)));
   po.dark = !o.light;
   po.new_run_procedure = o.new_run;
   std::error_code ec;
@@ -200,7 +205,7 @@ void RegisterView(cli::CliRegistry& registry) {
   cmd->add_option("--db", opt->db, "database file, or a lab database (postgresql://..., read only)")->capture_default_str();
   cmd->add_option("--run", opt->run, "run shown first (default: the newest)");
   cmd->add_option("--compare", opt->compare, "runs overlaid in the compare view, e.g. 1,2,3");
-  cmd->add_option("--tab", opt->tab, "live or compare")->capture_default_str();
+  cmd->add_option("--tab", opt->tab, "live, compare or bench (the overview of a multi-channel bench)")->capture_default_str();
   cmd->add_flag("--light", opt->light, "start in the light (day shift) theme");
   cmd->add_option("--scale", opt->scale, "font and spacing scale (default: the monitor's)");
   cmd->add_option("--new-run", opt->new_run, "open the start dialog for this procedure file (a folder: browse it)");

@@ -13,6 +13,7 @@
 
 #include "analysis/duration_format.h"
 #include "analysis/metrics.h"
+#include "procedures/procedure_parser.h"
 #include "rig/safety_monitor.h"
 
 namespace kp::ui {
@@ -126,10 +127,17 @@ void Panel::Frame() {
   if (!selected_ && !state_.runs.empty()) selected_ = state_.runs.front().id;
   std::set<int64_t> watch = compare_;
   if (selected_) watch.insert(*selected_);
+  if (tab_ == Tab::kBench) {
+    // The overview's tiles need each channel's latest readings, events and steps.
+    std::vector<BenchGroup> groups = GroupBenches(state_.runs);
+    for (const BenchGroup& g : groups)
+      if (g.key == bench_key_ || (bench_key_.empty() && &g == &groups.front())) watch.insert(g.run_ids.begin(), g.run_ids.end());
+  }
   feed_.Watch(watch);
 
   plots_.clear();
   badge_.reset();
+  tiles_.clear();
   Shortcuts();
   const ImGuiViewport* vp = ImGui::GetMainViewport();
   ImGui::SetNextWindowPos(vp->WorkPos);
@@ -146,8 +154,10 @@ void Panel::Frame() {
   ImGui::BeginChild("main", {0, 0}, false);
   if (tab_ == Tab::kLive)
     LiveView();
-  else
+  else if (tab_ == Tab::kCompare)
     CompareView();
+  else
+    BenchView();
   ImGui::EndChild();
   StartDialog();
   AbortDialog();
@@ -161,6 +171,7 @@ void Panel::Shortcuts() {
   if (io.KeyCtrl) return;
   if (Key(GLFW_KEY_1) || Key(GLFW_KEY_F1)) tab_ = Tab::kLive;
   if (Key(GLFW_KEY_2) || Key(GLFW_KEY_F2)) tab_ = Tab::kCompare;
+  if (Key(GLFW_KEY_3) || Key(GLFW_KEY_F3)) tab_ = Tab::kBench;
   if (Key(GLFW_KEY_T)) SetTheme(!theme_.dark);
   if (Key(GLFW_KEY_F)) {
     live_x_.follow = true;
@@ -198,10 +209,12 @@ void Panel::TopBar() {
   ImGui::SameLine();
   float right = ImGui::GetWindowContentRegionMax().x;
   float bw = ImGui::GetFontSize() * 7.5f;
-  ImGui::SetCursorPosX(right - bw * 4.2f);
+  ImGui::SetCursorPosX(right - bw * 5.2f);
   if (ImGui::Selectable("Live  [1]", tab_ == Tab::kLive, 0, {bw, 0})) tab_ = Tab::kLive;
   ImGui::SameLine();
   if (ImGui::Selectable("Compare  [2]", tab_ == Tab::kCompare, 0, {bw, 0})) tab_ = Tab::kCompare;
+  ImGui::SameLine();
+  if (ImGui::Selectable("Bench  [3]", tab_ == Tab::kBench, 0, {bw, 0})) tab_ = Tab::kBench;
   ImGui::SameLine();
   if (ImGui::Button("New run…  Ctrl+N", {bw * 1.1f, 0})) open_start_ = true;
   ImGui::SameLine();
@@ -913,6 +926,148 @@ void Panel::AbortDialog() {
   ImGui::SameLine();
   if (ImGui::Button("Keep running") || Key(GLFW_KEY_ESCAPE)) ImGui::CloseCurrentPopup();
   ImGui::EndPopup();
+}
+
+const Plan* Panel::PlanOf(const RunData& d) {
+  auto it = plans_.find(d.row.id);
+  if (it == plans_.end()) {
+    ParseOutput parsed = ParseProcedure(d.row.procedure_text, d.row.procedure_name);
+    std::optional<Plan> plan;
+    if (parsed.ok()) plan = std::move(parsed.plan);
+    it = plans_.emplace(d.row.id, std::move(plan)).first;
+  }
+  return it->second ? &*it->second : nullptr;
+}
+
+// One tile per channel of a multi-channel bench or batch (runs tagged
+// `slot=`, grouped by `batch=` or by bench): state badge, voltage, delivered
+// charge, time left (its basis in the tooltip) and alarms; a click opens the
+// run in the live view.
+void Panel::BenchView() {
+  std::vector<BenchGroup> groups = GroupBenches(state_.runs);
+  if (groups.empty()) {
+    ImGui::TextDisabled(state_.connected ? "No multi-channel bench runs in this database (runs started with --slots)."
+                                         : "Opening the database…");
+    return;
+  }
+  const BenchGroup* group = &groups.front();
+  for (const BenchGroup& g : groups)
+    if (g.key == bench_key_) group = &g;
+  ImGui::PushFont(fonts_.medium);
+  ImGui::TextUnformatted(group->title.c_str());
+  ImGui::PopFont();
+  ImGui::SameLine();
+  ImGui::TextDisabled("%zu channel%s%s", group->run_ids.size(), group->run_ids.size() == 1 ? "" : "s",
+                      group->live ? "  ·  running" : "  ·  ended");
+  if (groups.size() > 1) {
+    ImGui::SameLine();
+    ImGui::SetNextItemWidth(ImGui::GetFontSize() * 16.0f);
+    if (ImGui::BeginCombo("##bench", group->title.c_str())) {
+      for (const BenchGroup& g : groups)
+        if (ImGui::Selectable(fmt::format("{}{}##{}", g.title, g.live ? "  (running)" : "", g.key).c_str(), &g == group))
+          bench_key_ = g.key;
+      ImGui::EndCombo();
+    }
+  }
+  ImGui::Separator();
+
+  const float fs = ImGui::GetFontSize();
+  const float gap = ImGui::GetStyle().ItemSpacing.x;
+  const ImVec2 tile_size{fs * 17.0f, fs * 10.5f};
+  const int cols = std::max(1, static_cast<int>((ImGui::GetContentRegionAvail().x + gap) / (tile_size.x + gap)));
+  ImDrawList* dl = ImGui::GetWindowDrawList();
+  for (size_t k = 0; k < group->run_ids.size(); ++k) {
+    const int64_t id = group->run_ids[k];
+    if (k % static_cast<size_t>(cols) != 0) ImGui::SameLine();
+    auto it = state_.watched.find(id);
+    ImGui::PushID(static_cast<int>(id));
+    ImGui::BeginGroup();
+    const ImVec2 p0 = ImGui::GetCursorScreenPos();
+    const ImVec2 p1{p0.x + tile_size.x, p0.y + tile_size.y};
+    const bool clicked = ImGui::InvisibleButton("tile", tile_size);
+    const bool hovered = ImGui::IsItemHovered();
+    dl->AddRectFilled(p0, p1, theme_.plot_bg, fs * 0.3f);
+    if (it == state_.watched.end()) {
+      dl->AddRect(p0, p1, theme_.plot_frame, fs * 0.3f);
+      dl->AddText({p0.x + fs * 0.6f, p0.y + fs * 0.5f}, theme_.tick_text,
+                  fmt::format("{}  ·  loading run {}…", group->slots[k], id).c_str());
+      ImGui::EndGroup();
+      ImGui::PopID();
+      continue;
+    }
+    const RunData& d = it->second;
+    const BenchTile tile = MakeTile(group->slots[k], d, PlanOf(d));
+    const ImU32 state_colour = StateColour(theme_, tile.status.state);
+    dl->AddRect(p0, p1, tile.alarms.empty() ? state_colour : theme_.alarm, fs * 0.3f, 0, hovered ? 3.0f : 1.5f);
+    ImGui::SetCursorScreenPos({p0.x + fs * 0.6f, p0.y + fs * 0.4f});
+    ImGui::PushFont(fonts_.medium);
+    ImGui::TextUnformatted(tile.slot.c_str());
+    ImGui::PopFont();
+    ImGui::SameLine();
+    const DrawnBadge badge = Badge(tile.status.badge.c_str(), state_colour, theme_.badge_text, fonts_.body);
+    tiles_.push_back({p0, p1, state_colour, tile.slot});
+    (void)badge;
+    const float x = p0.x + fs * 0.6f, inner_w = tile_size.x - fs * 1.2f;
+    auto line = [&](float y, ImU32 colour, const std::string& text) {
+      ImGui::SetCursorScreenPos({x, y});
+      ImGui::PushStyleColor(ImGuiCol_Text, colour);
+      ImGui::TextUnformatted(Ellipsize(text, inner_w, MeasureText, nullptr).c_str());
+      ImGui::PopStyleColor();
+    };
+    const float lh = ImGui::GetTextLineHeightWithSpacing();
+    float y = p0.y + fs * 0.4f + fs * 1.9f;
+    line(y, theme_.tick_text, tile.serial.empty() ? "(no serial)" : tile.serial);
+    y += lh;
+    ImU32 volt = tile.status.load_off ? theme_.Dimmed(theme_.voltage) : theme_.voltage;
+    ImGui::SetCursorScreenPos({x, y});
+    ImGui::PushFont(fonts_.medium);
+    ImGui::PushStyleColor(ImGuiCol_Text, volt);
+    ImGui::TextUnformatted(tile.voltage_v ? fmt::format("{:.3f} V", *tile.voltage_v).c_str() : "– V");
+    ImGui::PopStyleColor();
+    ImGui::SameLine();
+    ImGui::SetCursorScreenPos({x + inner_w * 0.5f, y});
+    ImGui::PushStyleColor(ImGuiCol_Text, theme_.charge);
+    ImGui::TextUnformatted(fmt::format("{:.0f} mAh", tile.delivered_mah).c_str());
+    ImGui::PopStyleColor();
+    ImGui::PopFont();
+    y += lh * 1.35f;
+    const std::string left = tile.left.s ? "time left " + Hms(*tile.left.s) : tile.status.state == RunState::kCompleted ||
+                                                                                     tile.status.state == RunState::kAborted ||
+                                                                                     tile.status.state == RunState::kInterrupted
+                                                                                 ? "ended"
+                                                                                 : "time left –";
+    line(y, theme_.tick_text, tile.rated_mah > 0 ? fmt::format("{}  ·  {:.0f} % of rated", left, 100.0 * tile.delivered_mah / tile.rated_mah)
+                                                 : left);
+    const bool over_left = ImGui::IsMouseHoveringRect({x, y}, {x + inner_w, y + lh});
+    y += lh;
+    if (tile.alarms.empty()) {
+      line(y, theme_.tick_text, "no alarms");
+    } else {
+      line(y, theme_.alarm, fmt::format("{} alarm{}: {}", tile.alarms.size(), tile.alarms.size() == 1 ? "" : "s", tile.alarms.back()));
+      if (tile.alarms.size() > 1) line(y + lh, theme_.alarm, tile.alarms[tile.alarms.size() - 2]);
+    }
+    const bool over_alarms = !tile.alarms.empty() && ImGui::IsMouseHoveringRect({x, y}, {x + inner_w, y + 2 * lh});
+    ImGui::SetCursorScreenPos(p0);
+    ImGui::Dummy(tile_size);
+    ImGui::EndGroup();
+    if (hovered) {
+      ImGui::BeginTooltip();
+      if (over_left) {
+        ImGui::TextUnformatted(tile.left.basis.c_str());
+      } else if (over_alarms) {
+        for (const std::string& a : tile.alarms) ImGui::TextUnformatted(a.c_str());
+      } else {
+        ImGui::Text("run %lld  ·  %s  ·  click to open it in the live view", static_cast<long long>(id), d.row.procedure_name.c_str());
+        if (!tile.status.reason.empty()) ImGui::TextUnformatted(tile.status.reason.c_str());
+      }
+      ImGui::EndTooltip();
+    }
+    if (clicked) {
+      selected_ = id;
+      tab_ = Tab::kLive;
+    }
+    ImGui::PopID();
+  }
 }
 
 }  // namespace kp::ui

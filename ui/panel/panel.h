@@ -14,6 +14,8 @@
 #include <string>
 #include <vector>
 
+#include "procedures/plan.h"
+#include "ui/panel/bench_overview.h"
 #include "ui/panel/child_process.h"
 #include "ui/panel/plot_widget.h"
 #include "ui/panel/run_feed.h"
@@ -21,7 +23,7 @@
 
 namespace kp::ui {
 
-enum class Tab { kLive, kCompare };
+enum class Tab { kLive, kCompare, kBench };
 
 // A state badge as last drawn (for the headless check).
 struct DrawnBadge {
@@ -57,6 +59,9 @@ class Panel {
   // Every plot and the state badge of the last frame.
   const std::vector<DrawnPlot>& plots() const { return plots_; }
   const std::optional<DrawnBadge>& badge() const { return badge_; }
+  // The bench overview's tiles of the last frame: each tile's box, its state
+  // colour (the tile's badge) and its slot.
+  const std::vector<DrawnBadge>& tiles() const { return tiles_; }
   const Theme& theme() const { return theme_; }
   const FeedState& state() const { return state_; }
   std::optional<int64_t> selected() const { return selected_; }
@@ -71,6 +76,9 @@ class Panel {
   void RunsList();
   void LiveView();
   void CompareView();
+  void BenchView();
+  // The parsed plan of a run's stored procedure (nullptr when it does not parse), kept per run.
+  const Plan* PlanOf(const RunData& d);
   void StartDialog();
   void AbortDialog();
   void FileBrowser(char* path, size_t size, const char* id);
@@ -102,6 +110,9 @@ class Panel {
   PlotResult voltage_plot_;
   std::vector<DrawnPlot> plots_;
   std::optional<DrawnBadge> badge_;
+  std::vector<DrawnBadge> tiles_;
+  std::string bench_key_;  // the bench or batch the overview shows (empty: the first)
+  std::map<int64_t, std::optional<Plan>> plans_;
   std::map<int64_t, std::pair<int64_t, int64_t>> asked_windows_;  // run -> seq range last asked
   char filter_[128] = "";
   char run_note_[512] = "";

@@ -159,7 +159,12 @@ RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures) {
                 : run.outcome == Outcome::kInterrupted ? RunState::kInterrupted
                                                        : RunState::kRunning;
   r.record = fmt::format("{} {} {} {} {} {}", run.uuid, run.cell_serial, run.cell_lot, run.cell_part, run.operator_name, run.bench);
-  for (const std::string& t : run.tags) r.record += " " + t;
+  for (const std::string& t : run.tags) {
+    r.record += " " + t;
+    if (r.slot.empty() && t.rfind("slot=", 0) == 0) r.slot = t.substr(5);
+    if (r.batch.empty() && t.rfind("batch=", 0) == 0) r.batch = t.substr(6);
+  }
+  r.bench = run.bench.empty() ? run.rig : run.bench;
   if (run.outcome == Outcome::kAborted || run.outcome == Outcome::kInterrupted) {
     r.verdict = std::string("incomplete");  // a capacity verdict needs a discharge that reached its end
   } else if (run.outcome == Outcome::kRunning || run.rated_mah <= 0.0 || figures.count() == 0) {

@@ -90,6 +90,9 @@ struct RunListRow {
   // The traceable record the filter also searches: UUID, cell serial, lot and
   // part, operator, bench, tags (space-separated).
   std::string record;
+  // Multi-channel benches: the run's `slot=` and `batch=` tags (empty when
+  // none) and the bench it ran on (its recorded bench name, else the rig).
+  std::string slot, batch, bench;
 };
 RunListRow MakeRunListRow(const RunRow& run, const RunningFigures& figures);
 // The run list's verdict of a completed run, without the full analysis: the

@@ -7,6 +7,9 @@
 // every plot the layout lists shows its background and, inside its frame,
 // drawn pixels and the colour of each of its traces; at least MIN_PLOTS plots;
 // and the state badge reads BADGE ("-": no badge expected) in its colour.
+// An optional MIN_TILES (the bench overview): at least that many tiles, each
+// filled with the plot background and showing its state colour (its badge and
+// frame).
 #include <stb_image.h>
 
 #include <algorithm>
@@ -69,7 +72,7 @@ long WholeNumber(const char* text) {
 }
 
 int CheckElements(int argc, char** argv) {
-  if (argc != 8) return Fail("usage: kp_panel_png_check --elements PNG LAYOUT_JSON WIDTH HEIGHT BADGE MIN_PLOTS");
+  if (argc != 8 && argc != 9) return Fail("usage: kp_panel_png_check --elements PNG LAYOUT_JSON WIDTH HEIGHT BADGE MIN_PLOTS [MIN_TILES]");
   Image img;
   int comp = 0;
   img.px = stbi_load(argv[2], &img.w, &img.h, &comp, 3);
@@ -119,6 +122,27 @@ int CheckElements(int argc, char** argv) {
                             static_cast<int>(b["x1"].get<double>()), static_cast<int>(b["y1"].get<double>()), b["rgb"], 12, &total);
     std::cout << "badge " << want_badge << ": " << n << " of " << total << " px in its colour\n";
     if (total < 100 || n < total / 3) return Fail("badge colour missing where the badge was drawn");
+  }
+  if (argc == 9) {
+    const long min_tiles = WholeNumber(argv[8]);
+    if (min_tiles < 0) return Fail(std::string("MIN_TILES must be a whole number, not ") + argv[8]);
+    const auto tiles = lay.value("tiles", nlohmann::json::array());
+    if (static_cast<long>(tiles.size()) < min_tiles)
+      return Fail("only " + std::to_string(tiles.size()) + " tiles drawn, expected " + argv[8]);
+    for (const auto& t : tiles) {
+      const std::string slot = t["text"];
+      const int x0 = static_cast<int>(t["x0"].get<double>()), y0 = static_cast<int>(t["y0"].get<double>());
+      const int x1 = static_cast<int>(t["x1"].get<double>()), y1 = static_cast<int>(t["y1"].get<double>());
+      if (x1 - x0 < 80 || y1 - y0 < 60 || x0 < 0 || y0 < 0 || x1 > img.w || y1 > img.h)
+        return Fail("tile " + slot + " is too small or outside the picture");
+      int total = 0;
+      const int bg_px = CountNear(img, x0 + 3, y0 + 3, x1 - 3, y1 - 3, bg, 6, &total);
+      const int state_px = CountNear(img, x0, y0, x1, y1, t["rgb"], 12, nullptr);
+      std::cout << "tile " << slot << ": " << bg_px << " of " << total << " px background, " << state_px << " px in its state colour\n";
+      if (bg_px < total / 3) return Fail("tile " + slot + ": its background is missing");
+      if (bg_px > total - total / 100) return Fail("tile " + slot + " is empty");
+      if (state_px < 300) return Fail("tile " + slot + ": its state colour (badge, frame) is missing");
+    }
   }
   std::cout << "panel elements check passed (" << argv[2] << ")\n";
   stbi_image_free(img.px);

@@ -6,7 +6,9 @@
 #     shows -- running, paused, aborted, completed -- and the compare view
 #     with four runs, in both palettes: every plot shows its background,
 #     drawn pixels and each trace's colour, and the state badge reads the
-#     run's state in its colour.
+#     run's state in its colour;
+#  3. the bench overview of the demo's four-channel batch: four tiles, each
+#     on its background with its state colour.
 # Usage: screenshot_test.sh KNEEPOINT PNG_CHECK BENCH_RUNS WORKDIR
 set -eu
 kneepoint=$1
@@ -56,6 +58,7 @@ shot aborted --run 2
 shot completed --run 1 --light
 shot compare-night --tab compare --compare 1,2,3,4
 shot compare-day --tab compare --compare 1,2,3,4 --light
+"$kneepoint" view --db "$work/demo.db" --tab bench --screenshot "$work/bench.png" --size 1280x800 --frames 3 --layout-out "$work/bench.json"
 SHOTS
 xvfb-run -a -s '-screen 0 1600x1000x24' sh "$work/shots.sh"
 "$check" "$work/panel.png" "$work/layout.json" "$work/demo.db" 1 1600 1000
@@ -65,3 +68,4 @@ xvfb-run -a -s '-screen 0 1600x1000x24' sh "$work/shots.sh"
 "$check" --elements "$work/completed.png" "$work/completed.json" 1280 800 COMPLETED 3
 "$check" --elements "$work/compare-night.png" "$work/compare-night.json" 1280 800 - 3
 "$check" --elements "$work/compare-day.png" "$work/compare-day.json" 1280 800 - 3
+"$check" --elements "$work/bench.png" "$work/bench.json" 1280 800 - 0 4
