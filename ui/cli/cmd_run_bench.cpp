@@ -14,7 +14,6 @@
 #include "procedures/estimate.h"
 #include "rig/bench_run.h"
 #include "rig/load_guards.h"
-#include "rig/safety_monitor.h"
 #include "rig/rig_file.h"
 #include "rig/safety_monitor.h"
 #include "ui/cli/cli.h"
