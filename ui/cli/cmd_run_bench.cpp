@@ -10,10 +10,12 @@
 #include <map>
 #include <mutex>
 
+#include "analysis/duration_format.h"
 #include "procedures/estimate.h"
 #include "rig/bench_run.h"
 #include "rig/load_guards.h"
 #include "rig/rig_file.h"
+#include "rig/safety_monitor.h"
 #include "ui/cli/cli.h"
 #include "ui/cli/procedure_file.h"
 #include "ui/cli/run_bench_cmd.h"
@@ -140,7 +142,7 @@ int RunBenchCommand(const std::string& file, const std::string& rig, const std::
     if (r.t_s < next_report[static_cast<size_t>(job)]) return;
     next_report[static_cast<size_t>(job)] = r.t_s + progress_s;
     std::cout << fmt::format("  {:<6} {}  {:.3f} V  {:+.3f} A  {:.1f} °C  {:.1f} mAh\n", job_slot[static_cast<size_t>(job)],
-                             FormatDuration(r.t_s), r.voltage_v, r.current_a, r.temperature_c, mah)
+                             FormatHms(r.t_s), r.voltage_v, r.current_a, r.temperature_c, mah)
               << std::flush;
   };
   auto outcomes = RunBench(**bench, std::move(jobs), opt);
