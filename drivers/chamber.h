@@ -38,6 +38,7 @@ class ChamberDriver {
   // kLimitExceeded when the reading is past a limit by more than the alarm margin.
   Result<double> ReadTemperature();
   const ChamberLimits& limits() const { return limits_; }
+  const ChamberCommands& commands() const { return cmd_; }
   ScpiSession& session() { return session_; }
 
  private:

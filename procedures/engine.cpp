@@ -31,6 +31,8 @@ Setpoint StepEngine::SetpointFor(const Step& step) const {
   Setpoint sp;
   switch (step.kind) {
     case StepKind::kRest:
+    case StepKind::kChamberSet:   // the load stays off while the chamber moves
+    case StepKind::kChamberSoak:
       break;
     case StepKind::kConstantCurrent:
       sp.load_on = true;
@@ -255,7 +257,11 @@ void StepEngine::EnterStep(int index, double t_s, int looped_back, EngineOutput&
   PlaceSegment(t_s);
   std::optional<Setpoint> before = applied_;
   Emit(SetpointFor(entered), out);
-  Schedule(t_s, !before || !(*before == *applied_));
+  soak_.reset();
+  if (entered.kind == StepKind::kChamberSet) out.chamber_setpoint_c = entered.chamber_c;
+  if (entered.kind == StepKind::kChamberSoak)
+    soak_.emplace(SoakSpec{entered.chamber_c, entered.soak_band_c, entered.soak_hold_s, entered.soak_max_s}, t_s);
+  Schedule(t_s, !before || !(*before == *applied_) || entered.kind == StepKind::kChamberSet);
 }
 
 int StepEngine::NextIndex(int ended, int exited_loop, int& looped_back) {
@@ -369,6 +375,29 @@ EngineOutput StepEngine::OnReading(const Reading& r) {
     }
   }
 
+  if (step.kind == StepKind::kChamberSet) {
+    // The set point went out when the step began; the reading after it ends the step.
+    end_step(step_, -1, fmt::format("chamber set to {:.1f} degC", step.chamber_c));
+    return out;
+  }
+  if (step.kind == StepKind::kChamberSoak && soak_) {
+    if (!r.chamber_c) {
+      out.abort_reason = "chamber soak: no chamber reading";
+      Schedule(r.t_s, false);
+      return out;
+    }
+    SoakJudge::State st = soak_->OnReading(r.t_s, *r.chamber_c);
+    if (st == SoakJudge::State::kStable) {
+      out.log = true;
+      end_step(step_, -1, "chamber " + soak_->Describe());
+      return out;
+    }
+    if (st == SoakJudge::State::kTimedOut) {
+      out.abort_reason = "chamber soak failed: " + soak_->Describe();
+      Schedule(r.t_s, false);
+      return out;
+    }
+  }
   if (step.kind == StepKind::kResistanceTest) {
     double seg_end = seg_start_s_ + step.segments[seg_].duration_s;
     if (r.t_s >= seg_end - kEps) {

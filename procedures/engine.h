@@ -15,6 +15,7 @@
 #include <string_view>
 #include <vector>
 
+#include "drivers/chamber.h"
 #include "procedures/plan.h"
 
 namespace kp {
@@ -24,6 +25,8 @@ struct Reading {
   double voltage_v = 0.0;
   double current_a = 0.0;  // > 0 discharging, < 0 charging
   double temperature_c = 0.0;
+  // The temperature chamber's reading (degC), taken when the plan drives a chamber.
+  std::optional<double> chamber_c;
 };
 
 // What the load (and the supply, for charge steps) should do from now on.
@@ -81,7 +84,10 @@ struct EngineOutput {
   // period, or one a measurement used (U1/U2). Readings taken only to check
   // limits between logs are not (edges and step ends are stored anyway).
   bool log = false;
-  // Set when the run must stop: the load could not hold the commanded level.
+  // A chamber step began: send this set point (degC) and start the chamber.
+  std::optional<double> chamber_setpoint_c;
+  // Set when the run must stop: the load could not hold the commanded level,
+  // or a chamber soak did not settle in its maximum time.
   std::optional<std::string> abort_reason;
 };
 
@@ -171,6 +177,7 @@ class StepEngine {
   bool last_was_charge_ = false;
   std::optional<double> low_since_s_;     // lost regulation: first low reading
   std::optional<StepResult> pulse_edge_;  // an edge waiting for its U2
+  std::optional<SoakJudge> soak_;          // a chamber soak step's judgement (restarts on restore)
 };
 
 }  // namespace kp

@@ -39,6 +39,8 @@ double MeanCurrentA(const Step& step, const CellSpec& cell) {
   double v = cell.nominal_v > 0 ? cell.nominal_v : 1.0;
   switch (step.kind) {
     case StepKind::kRest:
+    case StepKind::kChamberSet:
+    case StepKind::kChamberSoak:
       return 0.0;
     case StepKind::kConstantCurrent:
       return step.current_a;
@@ -101,6 +103,8 @@ PlanEstimate EstimatePlan(const Plan& plan, double start_soc) {
     double ma = amps * 1000.0;
     double dur = kInf;
     if (s.kind == StepKind::kResistanceTest) dur = s.CycleSeconds();
+    if (s.kind == StepKind::kChamberSet) dur = 0.0;
+    if (s.kind == StepKind::kChamberSoak) dur = s.soak_max_s;  // at most (the lag decides)
     const EndConditions& e = s.end;
     if (e.time_s) dur = std::min(dur, *e.time_s);
     if (e.charge_mah && ma != 0) dur = std::min(dur, *e.charge_mah / std::abs(ma) * 3600.0);

@@ -25,11 +25,21 @@ const char* StepKindName(StepKind kind) {
       return "dc resistance";
     case StepKind::kCharge:
       return "charge";
+    case StepKind::kChamberSet:
+      return "chamber set point";
+    case StepKind::kChamberSoak:
+      return "chamber soak";
   }
   return "?";
 }
 
-bool IsDischargeKind(StepKind kind) { return kind != StepKind::kRest && kind != StepKind::kCharge; }
+bool IsDischargeKind(StepKind kind) { return kind != StepKind::kRest && kind != StepKind::kCharge && !IsChamberKind(kind); }
+
+bool IsChamberKind(StepKind kind) { return kind == StepKind::kChamberSet || kind == StepKind::kChamberSoak; }
+
+bool PlanUsesChamber(const Plan& plan) {
+  return std::any_of(plan.steps.begin(), plan.steps.end(), [](const Step& s) { return IsChamberKind(s.kind); });
+}
 
 const char* StepModeName(const Step& s) {
   switch (s.kind) {
@@ -43,6 +53,9 @@ const char* StepModeName(const Step& s) {
       return "resistance";
     case StepKind::kCharge:
       return "charge";
+    case StepKind::kChamberSet:
+    case StepKind::kChamberSoak:
+      return "chamber";  // load off; the level is the chamber set point (degC)
     default:
       return "segments";
   }
@@ -60,6 +73,9 @@ std::optional<double> StepLevel(const Step& s) {
       return s.charge_current_a;
     case StepKind::kRest:
       return 0.0;
+    case StepKind::kChamberSet:
+    case StepKind::kChamberSoak:
+      return s.chamber_c;
     default:
       return std::nullopt;
   }
@@ -96,6 +112,8 @@ std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig) {
   l.max_temp_c = std::min(l.max_temp_c, rig.max_temp_c);
   l.hard_temp_c = std::min(l.hard_temp_c, rig.max_temp_c);
   plan.edge_settle_s = std::max(plan.edge_settle_s, rig.min_sample_period_s);
+  if (rig.chamber_min_c) l.chamber_min_c = std::max(l.chamber_min_c.value_or(*rig.chamber_min_c), *rig.chamber_min_c);
+  if (rig.chamber_max_c) l.chamber_max_c = std::min(l.chamber_max_c.value_or(*rig.chamber_max_c), *rig.chamber_max_c);
   auto where = [](const Step& s) { return fmt::format("line {}: ", s.source_line); };
   for (Step& s : plan.steps) {
     if (s.sample_period_s < rig.min_sample_period_s) {
@@ -122,6 +140,19 @@ std::vector<std::string> ApplyRigLimits(Plan& plan, const RigLimits& rig) {
         if (s.charge_voltage_v > rig.max_voltage_v)
           problems.push_back(where(s) +
                              fmt::format("charge to {:g} V exceeds the rig's {:g} V", s.charge_voltage_v, rig.max_voltage_v));
+        break;
+      case StepKind::kChamberSet:
+      case StepKind::kChamberSoak:
+        if (!rig.has_chamber) {
+          problems.push_back(where(s) + "this step needs a temperature chamber, and this rig has none");
+        } else if (s.kind == StepKind::kChamberSet) {
+          if (rig.chamber_min_c && s.chamber_c < *rig.chamber_min_c)
+            problems.push_back(where(s) + fmt::format("chamber set point {:g} degC is below the rig's chamber limit {:g} degC",
+                                                      s.chamber_c, *rig.chamber_min_c));
+          if (rig.chamber_max_c && s.chamber_c > *rig.chamber_max_c)
+            problems.push_back(where(s) + fmt::format("chamber set point {:g} degC is above the rig's chamber limit {:g} degC",
+                                                      s.chamber_c, *rig.chamber_max_c));
+        }
         break;
       default:
         break;

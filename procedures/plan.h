@@ -42,6 +42,9 @@ struct SafetyLimits {
   OverTempAction over_temp_action = OverTempAction::kAbort;
   double resume_temp_c = 0.0;
   double hard_temp_c = std::numeric_limits<double>::infinity();
+  // Chamber set points allowed (safety chamber-min= / chamber-max=, tightened
+  // by the rig's); a chamber reading 5 degC beyond them aborts the run.
+  std::optional<double> chamber_min_c, chamber_max_c;
 };
 
 // Any combination may be set; the step ends at the first that holds.
@@ -67,6 +70,8 @@ enum class StepKind {
   kDutyCycle,       // a named profile's segments repeated
   kResistanceTest,  // DC-IR two-current method: segments[0] then segments[1], once
   kCharge,          // supply: constant current, then constant voltage
+  kChamberSet,      // chamber: new set point (load off); ends at the next reading
+  kChamberSoak,     // chamber: wait (load off) until stable around the set point
 };
 const char* StepKindName(StepKind kind);
 
@@ -93,6 +98,13 @@ struct Step {
   std::string profile_name;       // kDutyCycle
   double charge_current_a = 0.0;  // kCharge: constant-current phase (supply limit)
   double charge_voltage_v = 0.0;  // kCharge: constant-voltage setting
+  // kChamberSet: the set point; kChamberSoak: the set point it judges against
+  // (the latest chamber step before it), within ±soak_band_c for soak_hold_s,
+  // the run aborts when that has not happened soak_max_s after the soak began.
+  double chamber_c = 0.0;
+  double soak_band_c = 0.0;
+  double soak_hold_s = 0.0;
+  double soak_max_s = 0.0;
   double sample_period_s = 1.0;
   // Log-on-change: readings keep coming every sample period (for safety), but
   // one is stored only when |dV| since the last stored one reaches this, or
@@ -160,6 +172,9 @@ struct Plan {
 // True for the steps that take charge out of the cell (CC, CP, CR, pulse
 // train, duty cycle, DC-IR test).
 bool IsDischargeKind(StepKind kind);
+bool IsChamberKind(StepKind kind);
+// True when some step drives the temperature chamber.
+bool PlanUsesChamber(const Plan& plan);
 // What a step commands, as stored with its step record: the mode name
 // ("current", "power", "resistance", "charge", "segments", "off") and the
 // commanded level (A, W, Ohm; the charge current; 0 for a rest; none for
@@ -176,6 +191,8 @@ struct RigLimits {
   double max_temp_c = std::numeric_limits<double>::infinity();
   double min_sample_period_s = 0.05;  // fastest full reading (V, I, T)
   bool has_supply = true;             // charge steps need one
+  bool has_chamber = true;            // chamber and soak steps need one
+  std::optional<double> chamber_min_c, chamber_max_c;  // set points the rig's chamber may take
 };
 
 // Tightens the plan's safety limits to the rig's and returns what cannot run

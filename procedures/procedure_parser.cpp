@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <functional>
 #include <cctype>
 #include <charconv>
 #include <cmath>
@@ -124,12 +125,14 @@ struct Block {
 // The words of the language, for "did you mean ...?".
 const std::initializer_list<const char*> kStatements = {"name",  "cell",  "safety", "sample", "rest",   "discharge",
                                                         "pulse", "duty",  "phase",  "play",   "dcir",   "charge",
-                                                        "repeat", "end"};
+                                                        "repeat", "end",  "chamber", "soak"};
 const std::initializer_list<const char*> kConditions = {"voltage", "current", "time", "charge", "energy", "temp"};
 const std::initializer_list<const char*> kStepOptions = {"every", "log-change", "log-gap", "until"};
 const std::initializer_list<const char*> kCellFields = {"rated", "nominal", "max", "cutoff", "max-temp"};
 const std::initializer_list<const char*> kSafetyKeys = {"max-temp",  "min-voltage", "max-voltage", "max-current", "max-time",
-                                                        "max-charge", "when-hot",   "resume-temp", "hard-temp"};
+                                                        "max-charge", "when-hot",   "resume-temp", "hard-temp",
+                                                        "chamber-min", "chamber-max"};
+const std::initializer_list<const char*> kSoakOptions = {"within", "for", "max", "every", "log-change", "log-gap"};
 
 // Where a step's level was written, for checks made after the whole file.
 struct StepSite {
@@ -388,7 +391,9 @@ class Parser {
   }
 
   // Trailing per-step parts: "until ..." and options every=, log-change=, log-gap=.
-  void StepTail(Step& s, bool allow_until) {
+  // `extra`, when given, reads the step's own key=value options (the '=' read);
+  // it returns false for keys that are not its own.
+  void StepTail(Step& s, bool allow_until, const std::function<bool(const Tok&)>& extra = nullptr) {
     while (Peek().kind != Tok::kEnd) {
       if (PeekWord("until")) {
         const Tok& u = Next();
@@ -408,6 +413,7 @@ class Parser {
         s.log_change_v = Positive(Quantity(Dimension::kVoltage, "the logging threshold"), vt, "the logging threshold");
       } else if (key.text == "log-gap") {
         s.log_max_gap_s = Positive(Quantity(Dimension::kTime, "the longest gap between logged samples"), vt, "log-gap");
+      } else if (extra && extra(key)) {
       } else {
         Fail(key, Unknown("step option", key.text, kStepOptions, "use every=, log-change= or log-gap="));
       }
@@ -415,7 +421,7 @@ class Parser {
   }
 
   void AddStep(Step s, StepSite site) {
-    if (s.kind != StepKind::kResistanceTest && !s.end.any())
+    if (s.kind != StepKind::kResistanceTest && !IsChamberKind(s.kind) && !s.end.any())
       Fail(toks_.back(), fmt::format("the {} needs an end: add 'until' with a condition such as time>=1h", StepKindName(s.kind)));
     if (s.kind == StepKind::kCharge && !s.end.current_below_a && !s.end.time_s)
       Fail(toks_.back(), "a charge step needs 'until current<=...' (taper) or 'until time>=...'");
@@ -613,6 +619,10 @@ class Parser {
         l.resume_temp_c = Quantity(Dimension::kTemperature, "resume-temp"), set_.resume = true, resume_col_ = vt.col;
       else if (k == "hard-temp")
         l.hard_temp_c = Quantity(Dimension::kTemperature, "hard-temp"), set_.hard = true;
+      else if (k == "chamber-min")
+        l.chamber_min_c = Quantity(Dimension::kTemperature, "chamber-min"), chamber_limit_line_ = line_, chamber_limit_col_ = vt.col;
+      else if (k == "chamber-max")
+        l.chamber_max_c = Quantity(Dimension::kTemperature, "chamber-max"), chamber_limit_line_ = line_, chamber_limit_col_ = vt.col;
       else if (k == "when-hot") {
         const Tok& a = ExpectWord("'abort' or 'pause'");
         if (a.text == "abort")
@@ -624,16 +634,16 @@ class Parser {
       } else {
         Fail(key, Unknown("safety limit", k, kSafetyKeys,
                           "use max-temp=, min-voltage=, max-voltage=, max-current=, max-time=, max-charge=, when-hot=, "
-                          "resume-temp=, hard-temp="));
+                          "resume-temp=, hard-temp=, chamber-min=, chamber-max="));
       }
     });
   }
 
   void StepStatement(const Tok& kw, const std::string& k) {
-    static const char* const kSteps[] = {"rest", "discharge", "pulse", "play", "dcir", "charge"};
+    static const char* const kSteps[] = {"rest", "discharge", "pulse", "play", "dcir", "charge", "chamber", "soak"};
     if (std::none_of(std::begin(kSteps), std::end(kSteps), [&](const char* w) { return k == w; }))
       Fail(kw, Unknown("statement", k, kStatements,
-                       "use cell, safety, sample, rest, discharge, pulse, duty/phase, play, dcir, charge, repeat or end"));
+                       "use cell, safety, sample, rest, discharge, pulse, duty/phase, play, dcir, charge, chamber, soak, repeat or end"));
     if (!cell_seen_) {
       // Once, and not at all when an earlier line (a misspelt 'cell') has its error.
       if (!out_.errors.empty() || no_cell_reported_) throw LineSkipped{};
@@ -727,6 +737,36 @@ class Parser {
         Fail(vt, fmt::format("charge voltage {} is above the cell's max {}", vt.text,
                              FormatQuantity(plan_.cell.max_v, Dimension::kVoltage)));
       StepTail(s, true);
+    } else if (k == "chamber") {
+      s.kind = StepKind::kChamberSet;
+      const Tok& ct = Peek();
+      site.level_col = ct.col;
+      s.chamber_c = Quantity(Dimension::kTemperature, "the chamber set point");
+      last_chamber_c_ = s.chamber_c;
+      StepTail(s, false);
+    } else if (k == "soak") {
+      s.kind = StepKind::kChamberSoak;
+      if (!last_chamber_c_) Fail(kw, "'soak' needs a 'chamber' step before it (the set point to settle at, as in chamber 40degC)");
+      s.chamber_c = *last_chamber_c_;
+      const Tok* max_tok = nullptr;
+      StepTail(s, false, [&](const Tok& key) {
+        const Tok& vt = Peek();
+        if (key.text == "within") {
+          s.soak_band_c = Positive(Quantity(Dimension::kTemperature, "the soak band (±)"), vt, "the soak band");
+        } else if (key.text == "for") {
+          s.soak_hold_s = Positive(Quantity(Dimension::kTime, "how long the chamber must stay in the band"), vt, "for=");
+        } else if (key.text == "max") {
+          s.soak_max_s = Positive(Quantity(Dimension::kTime, "the longest the soak may take"), vt, "max=");
+          max_tok = &vt;
+        } else {
+          Fail(key, Unknown("soak option", key.text, kSoakOptions, "use within=, for=, max=, every=, log-change= or log-gap="));
+        }
+        return true;
+      });
+      if (!(s.soak_band_c > 0)) Fail(toks_.back(), "a soak needs within= (the band around the set point, e.g. within=0.5degC)");
+      if (!(s.soak_hold_s > 0)) Fail(toks_.back(), "a soak needs for= (how long the chamber stays in the band, e.g. for=30min)");
+      if (!(s.soak_max_s > 0)) Fail(toks_.back(), "a soak needs max= (when to give up and abort, e.g. max=2h)");
+      if (s.soak_max_s <= s.soak_hold_s) Fail(*max_tok, "max= must be longer than for= (the soak could never finish)");
     } else {
       Fail(kw, Unknown("statement", k, kStatements, "not a step"));
     }
@@ -814,6 +854,18 @@ class Parser {
         Warn(s.source_line, site.keyword_col,
              fmt::format("'temperature>={:g}degC' is already true in a laboratory at room temperature", *s.end.temperature_above_c));
     }
+    if (l.chamber_min_c && l.chamber_max_c && *l.chamber_min_c >= *l.chamber_max_c)
+      Error(chamber_limit_line_, chamber_limit_col_, "chamber-min must be below chamber-max");
+    for (size_t i = 0; i < plan_.steps.size(); ++i) {
+      const Step& s = plan_.steps[i];
+      if (s.kind != StepKind::kChamberSet) continue;
+      if (l.chamber_min_c && s.chamber_c < *l.chamber_min_c)
+        Error(s.source_line, sites_[i].level_col,
+              fmt::format("chamber set point {:g} degC is below the safety chamber-min={:g}degC", s.chamber_c, *l.chamber_min_c));
+      if (l.chamber_max_c && s.chamber_c > *l.chamber_max_c)
+        Error(s.source_line, sites_[i].level_col,
+              fmt::format("chamber set point {:g} degC is above the safety chamber-max={:g}degC", s.chamber_c, *l.chamber_max_c));
+    }
     for (const std::string& p : ApplyRigLimits(plan_, rig_)) {
       // "line N: message"
       int line = 1;
@@ -824,6 +876,8 @@ class Parser {
   }
 
   const RigLimits& rig_;
+  std::optional<double> last_chamber_c_;  // the latest chamber set point, for the soaks after it
+  int chamber_limit_line_ = 1, chamber_limit_col_ = 1;
   Plan plan_;
   ParseOutput out_;
   std::vector<Tok> toks_;

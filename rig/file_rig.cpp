@@ -22,6 +22,7 @@ class FileRig final : public Rig {
     r.meter = meter_.get();
     r.thermometer = thermometer_.get();
     r.supply = supply_.get();
+    r.chamber = chamber_.get();
     r.description = description_;
     r.thermometer_tolerance_c = thermometer_tolerance_c_;
     r.instruments = instruments_;
@@ -124,6 +125,8 @@ class FileRig final : public Rig {
           thermometer_ = std::make_unique<ThermometerDriver>(s, is.profile.thermometer);
           thermometer_->SetCalibration(is.temperature);
           thermometer_tolerance_c_ = is.temperature_tolerance_c;
+        } else if (role == "chamber") {
+          chamber_ = std::make_unique<ChamberDriver>(s, is.profile.chamber, ChamberLimits{limits_.chamber_min_c, limits_.chamber_max_c});
         } else if (role == "supply") {
           supply_ = std::make_unique<SupplyDriver>(s, is.profile.supply);
           closings_.back().supply = supply_.get();
@@ -190,6 +193,7 @@ class FileRig final : public Rig {
   std::unique_ptr<ThermometerDriver> thermometer_;
   double thermometer_tolerance_c_ = 0.5;
   std::unique_ptr<SupplyDriver> supply_;
+  std::unique_ptr<ChamberDriver> chamber_;
   std::string description_, lock_key_, rig_text_, bench_;
   std::vector<InstrumentRecord> instruments_;
   BenchLimits limits_;

@@ -61,7 +61,13 @@ RigLimits PlanLimitsFor(Rig& rig) {
   if (b.max_current_a > 0) out.max_current_a = b.max_current_a;
   if (b.max_voltage_v > 0) out.max_voltage_v = b.max_voltage_v;
   if (b.load_rating_w > 0) out.max_power_w = b.load_rating_w;
-  out.has_supply = rig.roles().supply != nullptr;
+  RigRoles roles = rig.roles();
+  out.has_supply = roles.supply != nullptr;
+  out.has_chamber = roles.chamber != nullptr;
+  if (roles.chamber != nullptr) {
+    out.chamber_min_c = roles.chamber->limits().min_c;
+    out.chamber_max_c = roles.chamber->limits().max_c;
+  }
   return out;
 }
 

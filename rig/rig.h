@@ -7,6 +7,7 @@
 
 #include <functional>
 #include <memory>
+#include <optional>
 #include <string>
 
 #include "drivers/clock.h"
@@ -24,6 +25,8 @@ struct BenchLimits {
   double max_current_a = 0.0;
   double max_voltage_v = 0.0;
   double load_rating_w = 0.0;
+  // The chamber's set-point range ([bench] chamber_min_c / chamber_max_c).
+  std::optional<double> chamber_min_c, chamber_max_c;
 };
 
 class Rig {

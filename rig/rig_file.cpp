@@ -6,6 +6,8 @@
 #include <cctype>
 #include <filesystem>
 #include <fstream>
+#include <limits>
+#include <cmath>
 #include <map>
 #include <set>
 #include <sstream>
@@ -113,7 +115,7 @@ class Reader {
   std::string path_;
 };
 
-const std::set<std::string> kRoles = {"load", "meter", "thermometer", "supply"};
+const std::set<std::string> kRoles = {"load", "meter", "thermometer", "supply", "chamber"};
 
 }  // namespace
 
@@ -138,7 +140,8 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     const toml::table* b = bn->as_table();
     if (b == nullptr) return r.Error(bn, "bench", "must be a table ([bench])");
     const std::string p = "bench.";
-    KP_RETURN_IF_ERROR(r.OnlyKnown(*b, p, {"name", "clock_speed", "trace", "max_current_a", "max_voltage_v", "load_rating_w"}));
+    KP_RETURN_IF_ERROR(r.OnlyKnown(*b, p, {"name", "clock_speed", "trace", "max_current_a", "max_voltage_v", "load_rating_w",
+                                          "chamber_min_c", "chamber_max_c"}));
     int line = static_cast<int>(bn->source().begin.line);
     KP_RETURN_IF_ERROR(r.String(*b, p, "name", spec.name, false, line));
     KP_RETURN_IF_ERROR(r.Number(*b, p, "clock_speed", spec.clock_speed, 1e-3, 1e6));
@@ -148,6 +151,14 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     KP_RETURN_IF_ERROR(r.Number(*b, p, "max_current_a", spec.limits.max_current_a, 0.0, 1e4));
     KP_RETURN_IF_ERROR(r.Number(*b, p, "max_voltage_v", spec.limits.max_voltage_v, 0.0, 1e4));
     KP_RETURN_IF_ERROR(r.Number(*b, p, "load_rating_w", spec.limits.load_rating_w, 0.0, 1e6));
+    // Set points the chamber may be given (absent: the chamber's own range).
+    for (const char* key : {"chamber_min_c", "chamber_max_c"}) {
+      double v = std::numeric_limits<double>::quiet_NaN();
+      KP_RETURN_IF_ERROR(r.Number(*b, p, key, v, -100.0, 300.0));
+      if (!std::isnan(v)) (std::string_view(key) == "chamber_min_c" ? spec.limits.chamber_min_c : spec.limits.chamber_max_c) = v;
+    }
+    if (spec.limits.chamber_min_c && spec.limits.chamber_max_c && *spec.limits.chamber_min_c >= *spec.limits.chamber_max_c)
+      return r.Error(b->get("chamber_max_c"), p + "chamber_max_c", "must be above chamber_min_c");
   }
   if (spec.name.empty()) spec.name = fs::path(path).stem().string();
 
@@ -184,7 +195,7 @@ Result<RigFileSpec> ParseRigFile(std::string_view text, const std::string& path)
     if (ra == nullptr || ra->empty()) return r.Error(rn, p + "roles", "must be a non-empty list of strings");
     for (const toml::node& e : *ra) {
       std::optional<std::string> role = e.value<std::string>();
-      if (!role || !kRoles.count(*role)) return r.Error(&e, p + "roles", "each role must be \"load\", \"meter\", \"thermometer\" or \"supply\"");
+      if (!role || !kRoles.count(*role)) return r.Error(&e, p + "roles", "each role must be \"load\", \"meter\", \"thermometer\", \"supply\" or \"chamber\"");
       if (auto [it, fresh] = role_owner.emplace(*role, is.name); !fresh && !has_channels)
         return r.Error(&e, p + "roles", fmt::format("role '{}' is already taken by '{}'", *role, it->second));
       is.roles.push_back(*role);

@@ -8,12 +8,14 @@
 //   max_current_a = 10.0     # absolute rig limits (0 or absent: none)
 //   max_voltage_v = 5.0
 //   load_rating_w = 150.0
+//   chamber_min_c = -20.0    # set points the chamber may be given (absent: any)
+//   chamber_max_c = 60.0
 //
 //   [[instrument]]
 //   name = "load"
 //   address = "tcp:192.168.0.20:5025"      # see drivers/address.h
 //   profile = "generic-scpi-load"          # name or path of a .kpd dialect (drivers/profile.h)
-//   roles = ["load"]                       # load, meter, thermometer, supply
+//   roles = ["load"]                       # load, meter, thermometer, supply, chamber
 //   channel = "101"                        # replaces {ch} in the profile
 //   timeout_s = 2.0, retries = 2, confirm_writes = false, remote_sense = false,
 //   stuck_after = 0                        # meter: N identical readings = stuck

@@ -67,6 +67,19 @@ bool PlanNeedsSupply(const Plan& plan) {
   return false;
 }
 
+ChamberLimits RunChamberLimits(const ChamberLimits& rig, const SafetyLimits& plan) {
+  ChamberLimits out = rig;
+  if (plan.chamber_min_c) out.min_c = std::max(out.min_c.value_or(*plan.chamber_min_c), *plan.chamber_min_c);
+  if (plan.chamber_max_c) out.max_c = std::min(out.max_c.value_or(*plan.chamber_max_c), *plan.chamber_max_c);
+  return out;
+}
+
+Status RunController::SetChamber(double celsius) {
+  if (!chamber_) return InvalidInput("a chamber step needs a temperature chamber in the rig");
+  KP_RETURN_IF_ERROR(chamber_->SetTemperature(celsius));
+  return chamber_->Run(true);
+}
+
 std::string RunController::SafeOff() {
   commanded_.load_on = false;
   commanded_.supply_on = false;
@@ -147,6 +160,11 @@ Result<Reading> RunController::Read(double t_s) {
     KP_ASSIGN_OR_RETURN(r.current_a, roles_.load->MeasureCurrent());
   }
   KP_ASSIGN_OR_RETURN(r.temperature_c, roles_.thermometer->MeasureTemperature());
+  if (chamber_) {
+    // kLimitExceeded when the chamber has run past its limits: the run aborts.
+    KP_ASSIGN_OR_RETURN(double chamber_c, chamber_->ReadTemperature());
+    r.chamber_c = chamber_c;
+  }
   return r;
 }
 
@@ -347,6 +365,7 @@ Status RunSession::Handle(const EngineOutput& out) {
     KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
     KP_RETURN_IF_ERROR(Reconcile(false));
   }
+  if (out.chamber_setpoint_c) KP_RETURN_IF_ERROR(rc_.SetChamber(*out.chamber_setpoint_c));
   for (const StepResult& res : out.results) {
     DcirRow row;
     row.source = res.source;
@@ -571,6 +590,8 @@ Result<RunResult> RunSession::Run() {
       }
       if (auto ended = PollControl()) return *ended;
       Result<Reading> rr = TakeReading();
+      if (!rr.ok() && rr.status().code() == StatusCode::kLimitExceeded)
+        return Finish(Outcome::kAborted, "safety limit: " + rr.status().message(), "abort");  // load off first
       if (!rr.ok()) {
         // Only a silent or broken link is waited for; an instrument that
         // answers with an error, an over-range or nonsense is not trusted again.
@@ -640,6 +661,12 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
   if (plan.steps.empty()) return InvalidInput("the procedure has no steps");
   if (PlanNeedsSupply(plan) && roles_.supply == nullptr)
     return InvalidInput("the procedure charges the cell, but the rig has no supply");
+  chamber_.reset();
+  if (PlanUsesChamber(plan)) {
+    if (roles_.chamber == nullptr)
+      return InvalidInput("the procedure drives a temperature chamber (chamber/soak steps), but the rig has no chamber");
+    chamber_.emplace(roles_.chamber->session(), roles_.chamber->commands(), RunChamberLimits(roles_.chamber->limits(), plan.limits));
+  }
 
   // A resumed run continues its own record; a new one gets a fresh row.
   std::optional<ReopenedRun> reopened;

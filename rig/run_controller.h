@@ -16,9 +16,11 @@
 #include <atomic>
 #include <cstdint>
 #include <functional>
+#include <optional>
 #include <string>
 #include <vector>
 
+#include "drivers/chamber.h"
 #include "drivers/clock.h"
 #include "drivers/roles.h"
 #include "drivers/supply.h"
@@ -35,6 +37,7 @@ struct RigRoles {
   MeterDriver* meter = nullptr;              // optional: cell voltage by 4-wire sense; else the load's reading
   ThermometerDriver* thermometer = nullptr;  // required for safety
   SupplyDriver* supply = nullptr;            // optional: needed by charge steps
+  ChamberDriver* chamber = nullptr;          // optional: needed by chamber and soak steps
   std::string description;                   // "sim", "rig.toml"
   // Measurement tolerance of the thermometer (± degC), stored with the run:
   // verdicts judge the start temperature with it. 0.5 degC is a usual
@@ -123,6 +126,8 @@ class RunController {
   friend class RunSession;
   Result<Reading> Read(double t_s);
   Status Apply(const Setpoint& sp);
+  // Sends a chamber set point (within the run's chamber limits) and starts the chamber.
+  Status SetChamber(double celsius);
   // Load off (and supply off), then read back: empty when verified off or
   // when the instrument cannot say; else what is still on.
   std::string SafeOff();
@@ -133,10 +138,16 @@ class RunController {
   bool input_on_ = false;
   bool supply_on_ = false;
   CommandedState commanded_;  // what the instruments should hold (reconciliation)
+  // The rig's chamber with the run's limits (the tighter of the rig's and the
+  // procedure's); set only while a plan that drives the chamber runs.
+  std::optional<ChamberDriver> chamber_;
 };
 
 // True when some step of `plan` needs a supply role (charge steps).
 bool PlanNeedsSupply(const Plan& plan);
+// The chamber limits a run uses: the rig's chamber limits tightened by the
+// procedure's chamber-min= / chamber-max=.
+ChamberLimits RunChamberLimits(const ChamberLimits& rig, const SafetyLimits& plan);
 
 
 }  // namespace kp

@@ -11,7 +11,15 @@
 
 namespace kp {
 
-SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : bench_(std::move(cell), clock, options) {
+SimRig::SimRig(Clock& clock, sim::CellParams cell, sim::SimOptions options) : bench_(cell, clock, options) {
+  // The chamber starts (and drifts back to) the cell's own surroundings, so a
+  // run that never drives it sees the same cell as before.
+  sim::SimChamberOptions chamber_options;
+  chamber_options.room_c = cell.ambient_c;
+  chamber_dev_ = std::make_unique<sim::SimChamber>(clock, chamber_options, &bench_);
+  chamber_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(*chamber_dev_, clock, "inproc:sim-chamber"), clock);
+  chamber_ = std::make_unique<ChamberDriver>(*chamber_session_, ChamberCommands{},
+                                             ChamberLimits{chamber_options.min_c, chamber_options.max_c});
   load_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.load(), clock, "inproc:sim-load"), clock);
   meter_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.meter(), clock, "inproc:sim-meter"), clock);
   thermo_session_ = std::make_unique<ScpiSession>(std::make_unique<InProcTransport>(bench_.thermometer(), clock, "inproc:sim-temp"), clock);
@@ -45,6 +53,7 @@ RigRoles SimRig::roles() { RigRoles r;
   r.meter = meter_.get();
   r.thermometer = thermometer_.get();
   r.supply = supply_.get();
+  r.chamber = chamber_.get();
   r.description = "sim";
   r.load_in_process = true;
   r.bench = "sim";
@@ -52,7 +61,8 @@ RigRoles SimRig::roles() { RigRoles r;
   return r; }
 
 void SimRig::SetTrace(const ScpiTraceHook& hook) {
-  for (ScpiSession* s : {load_session_.get(), meter_session_.get(), thermo_session_.get(), supply_session_.get()})
+  for (ScpiSession* s : {load_session_.get(), meter_session_.get(), thermo_session_.get(), supply_session_.get(),
+                         chamber_session_.get()})
     if (s != nullptr) s->SetTrace(hook);
 }
 

@@ -1,6 +1,7 @@
 // SimRig: the built-in simulated bench assembled as a rig — a SimBench behind
 // in-process transports, SCPI sessions and the same role drivers real
-// instruments use (load, meter, thermometer and a DC supply for charging).
+// instruments use (load, meter, thermometer, a DC supply for charging and a
+// temperature chamber around the cell, whose temperature is the cell's ambient).
 // Owns everything; RigRoles points into it. The simulated cell lives as long
 // as the SimRig, so consecutive runs continue from the state the last left.
 #pragma once
@@ -14,6 +15,7 @@
 #include "drivers/roles.h"
 #include "drivers/scpi_session.h"
 #include "drivers/sim/sim_bench.h"
+#include "drivers/sim/sim_chamber.h"
 #include "drivers/supply.h"
 #include "rig/run_controller.h"
 #include "rig/store.h"
@@ -28,16 +30,19 @@ class SimRig {
   sim::SimBench& bench() { return bench_; }
   ScpiSession& load_session() { return *load_session_; }
   ScpiSession& supply_session() { return *supply_session_; }
+  sim::SimChamber& chamber_device() { return *chamber_dev_; }
   // Traces every exchange of the four simulated instruments.
   void SetTrace(const ScpiTraceHook& hook);
 
  private:
   sim::SimBench bench_;
-  std::unique_ptr<ScpiSession> load_session_, meter_session_, thermo_session_, supply_session_;
+  std::unique_ptr<sim::SimChamber> chamber_dev_;
+  std::unique_ptr<ScpiSession> load_session_, meter_session_, thermo_session_, supply_session_, chamber_session_;
   std::unique_ptr<LoadDriver> load_;
   std::unique_ptr<MeterDriver> meter_;
   std::unique_ptr<ThermometerDriver> thermometer_;
   std::unique_ptr<SupplyDriver> supply_;
+  std::unique_ptr<ChamberDriver> chamber_;
   std::vector<InstrumentRecord> instruments_;  // asked once, at construction
 };
 

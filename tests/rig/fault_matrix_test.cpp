@@ -198,7 +198,7 @@ struct FaultRig {
     thermometer = std::make_unique<ThermometerDriver>(*thermo_s);
     supply = std::make_unique<SupplyDriver>(*supply_s);
   }
-  RigRoles roles() { return RigRoles{load.get(), meter.get(), thermometer.get(), supply.get(), "fault matrix"}; }
+  RigRoles roles() { return RigRoles{load.get(), meter.get(), thermometer.get(), supply.get(), nullptr, "fault matrix"}; }
 };
 
 struct CellResult {

@@ -228,3 +228,28 @@ TEST(RigFile, CalibrationDateAndTheTextAreKept) {
 
 }  // namespace
 }  // namespace kp
+
+namespace kp {
+namespace {
+
+// A chamber is one more role; its set-point range is a [bench] limit.
+TEST(RigFile, ChamberRoleAndItsLimits) {
+  std::string text = Replace(kGood, "load_rating_w = 60.0\n", "load_rating_w = 60.0\nchamber_min_c = -20.0\nchamber_max_c = \"60degC\"\n");
+  text += "\n[[instrument]]\nname = \"climate\"\naddress = \"tcp:192.0.2.12:5025\"\nprofile = \"kneepoint-sim-chamber\"\n"
+          "roles = [\"chamber\"]\n";
+  auto spec = ParseRigFile(text, "/tmp/bench.toml");
+  ASSERT_TRUE(spec.ok()) << spec.status().ToString();
+  EXPECT_EQ(spec->limits.chamber_min_c, -20.0);
+  EXPECT_EQ(spec->limits.chamber_max_c, 60.0);
+  ASSERT_EQ(spec->instruments.size(), 4u);
+  EXPECT_EQ(spec->instruments.back().roles, std::vector<std::string>{"chamber"});
+
+  auto crossed = ParseRigFile(Replace(kGood, "load_rating_w = 60.0\n", "load_rating_w = 60.0\nchamber_min_c = 50\nchamber_max_c = 40\n"),
+                              "/tmp/bench.toml");
+  ASSERT_FALSE(crossed.ok());
+  EXPECT_NE(crossed.status().message().find("bench.chamber_max_c"), std::string::npos) << crossed.status().ToString();
+  EXPECT_NE(crossed.status().message().find("must be above chamber_min_c"), std::string::npos) << crossed.status().ToString();
+}
+
+}  // namespace
+}  // namespace kp

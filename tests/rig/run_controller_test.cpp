@@ -103,7 +103,7 @@ struct FlakyThermometerRig {
     flaky.silent_after = silent_after;
     flaky.silent_until = silent_until;
   }
-  RigRoles roles() { return RigRoles{&load, nullptr, &thermo, nullptr, "test"}; }
+  RigRoles roles() { return RigRoles{&load, nullptr, &thermo, nullptr, nullptr, "test"}; }
 
   sim::SimBench bench;
   testing::FaultyDevice flaky;
@@ -193,7 +193,7 @@ TEST(RunController, RetriedExchangesAreLoggedAndTheRunCompletes) {
   LoadDriver load(load_s);
   MeterDriver meter(meter_s);
   ThermometerDriver thermo(temp_s);
-  RunController rc(*f.store, f.clock, RigRoles{&load, &meter, &thermo, nullptr, "test"});
+  RunController rc(*f.store, f.clock, RigRoles{&load, &meter, &thermo, nullptr, nullptr, "test"});
   Plan p = RatedCapacityPlan(Cell2500());
   p.steps[0].end.voltage_below_v.reset();
   p.steps[0].end.time_s = 60;

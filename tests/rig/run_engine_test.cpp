@@ -280,7 +280,7 @@ TEST(RunEngineAborts, InstrumentLoss) {
   LoadDriver load(load_s);
   MeterDriver meter(meter_s);
   ThermometerDriver thermo(temp_s);
-  RunController rc(**store, clock, RigRoles{&load, &meter, &thermo, nullptr, "test"});
+  RunController rc(**store, clock, RigRoles{&load, &meter, &thermo, nullptr, nullptr, "test"});
   auto r = rc.Execute(Compile("pulse 1A/2s 0A/2s until time>=1h\n"), {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, Outcome::kAborted);
