@@ -327,6 +327,7 @@ std::optional<std::string> RunInPrivateNetwork(const std::function<std::string()
   if (pid < 0) return "fork failed";
   if (pid == 0) {
     ::close(pipefd[0]);
+    ::alarm(60);  // a hung body ends as a failure naming SIGALRM, not as a ctest timeout
     int flags = CLONE_NEWNET | (::geteuid() == 0 ? 0 : CLONE_NEWUSER);
     if (::unshare(flags) != 0) ::_exit(77);
     int s = ::socket(AF_INET, SOCK_DGRAM | SOCK_CLOEXEC, 0);
