@@ -131,10 +131,9 @@ Status LabSync::SyncRun(sql::Db& bench, int64_t run_id, const std::string& uuid,
   // First a row the children can point at (an existing row is left as it is
   // until they are all sent, so its fingerprint never runs ahead of them).
   {
-    std::vector<pg::Param> p = row;
     KP_ASSIGN_OR_RETURN(auto r, conn_->Query(fmt::format("INSERT INTO kneepoint.runs ({}) VALUES ({}) ON CONFLICT (uuid) DO NOTHING",
                                                          RunColumnList(), placeholders),
-                                             p));
+                                             row));
     (void)r;
   }
 
