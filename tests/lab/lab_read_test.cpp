@@ -13,6 +13,7 @@
 #include "rig/lab/lab_sync.h"
 #include "rig/lab/pg.h"
 #include "tests/lab/lab_test_support.h"
+#include "tests/support/fixtures.h"
 
 namespace kp {
 namespace {
@@ -20,23 +21,8 @@ namespace {
 using lab::testing::Bench;
 using lab::testing::SharedServer;
 
-struct CliOut {
-  int code = 0;
-  std::string out, err;
-};
-
-CliOut Cli(std::vector<std::string> args) {
-  args.insert(args.begin(), "kneepoint");
-  std::vector<char*> argv;
-  for (std::string& a : args) argv.push_back(a.data());
-  ::testing::internal::CaptureStdout();
-  ::testing::internal::CaptureStderr();
-  CliOut r;
-  r.code = cli::RunCli(static_cast<int>(argv.size()), argv.data());
-  r.out = ::testing::internal::GetCapturedStdout();
-  r.err = ::testing::internal::GetCapturedStderr();
-  return r;
-}
+using CliOut = testing::CliResult;
+CliOut Cli(std::vector<std::string> args) { return testing::RunKneepointCaptured(std::move(args)); }
 
 std::string Slurp(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
