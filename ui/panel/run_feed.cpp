@@ -390,7 +390,6 @@ void RunFeed::Loop() {
   std::unique_ptr<Store> store;
   lab_ = pg::IsPostgresUrl(options_.db_path);
   Seconds opened_at{0};
-  std::set<int64_t> opened_watch;  // the watched runs the lab copy was filled with
   const std::string shown_path = lab_ ? pg::RedactUrl(options_.db_path) : options_.db_path;
   while (true) {
     {
@@ -401,7 +400,7 @@ void RunFeed::Loop() {
     bool news = false;
     if (lab_ && store) {  // a fresh copy: after a while, or when other runs are watched
       std::lock_guard<std::mutex> lock(mu_);
-      if (clock.Now() - opened_at >= Seconds(options_.lab_refresh_s) || watch_ != opened_watch) store.reset();
+      if (clock.Now() - opened_at >= Seconds(options_.lab_refresh_s) || watch_ != lab_watch_) store.reset();
     }
     if (!store) {
       Result<std::unique_ptr<Store>> opened = NotFound("");
@@ -409,7 +408,7 @@ void RunFeed::Loop() {
         std::vector<std::string> refs;
         {
           std::lock_guard<std::mutex> lock(mu_);
-          opened_watch = watch_;
+          lab_watch_ = watch_;
           for (int64_t id : watch_) refs.push_back(std::to_string(id));
         }
         opened = OpenDbForReading(options_.db_path, clock, refs);
@@ -485,6 +484,11 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
   {
     std::lock_guard<std::mutex> lock(mu_);
     watch = watch_;
+    // A lab copy holds samples only of the runs watched when it was taken:
+    // a run watched since waits for the next copy (read now, its cursor
+    // would mark samples the copy lacks as seen).
+    if (lab_)
+      for (auto it = watch.begin(); it != watch.end();) it = lab_watch_.count(*it) ? std::next(it) : watch.erase(it);
     requests.swap(requests_);
     run_notes.swap(run_notes_);
     window_asks.swap(window_asks_);
@@ -593,7 +597,7 @@ Status RunFeed::Poll(Store& store, bool* caught_up, bool* news, bool* throttled)
     runs_fresh_ = true;
   }
   if (runs_changed || !out.empty()) *news = true;
-  if (watch != watch_) more = true;  // the watch set changed meanwhile
+  if (watch != watch_) more = true;  // the watch set changed meanwhile (or a lab copy lacks a watched run)
   for (auto& [id, p] : out) {
     Pending& dst = pending_[id];
     if (p.reset) {

@@ -249,6 +249,7 @@ class RunFeed {
   uint64_t caught_up_poll_ = 0;  // last poll that found nothing left to read
   uint64_t worker_polls_ = 0;    // worker only
   bool lab_ = false;              // worker only: db_path is a lab database
+  std::set<int64_t> lab_watch_;   // worker only: the watched runs whose samples the lab copy holds
   // worker only
   std::map<int64_t, BlockCursor> list_cursors_;
   std::map<int64_t, WatchCursor> watch_cursors_;
