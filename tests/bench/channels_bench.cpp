@@ -8,10 +8,12 @@
 //   BM_EightChannelsTcp100ms — eight channels sampled every 100 ms through
 //     `kneepoint sim`'s multi-channel instruments over TCP loopback, in real
 //     time, with a current edge every 2 s. Targets: every channel's sample
-//     period within 10 % (`period_dev_pct`, the largest deviation of any
-//     interval from 100 ms while sampling at that period) and every edge
+//     period within 10 % (`period_dev_pct`, the largest deviation from 100 ms
+//     of any interval between readings on a step's grid; the one extra
+//     reading 50 ms after each edge is not on the grid) and every edge
 //     logged within one sample period of its commanded time (`edge_late_ms`,
-//     the latest). KP_BENCH_SMOKE: 3 s instead of 12 s.
+//     the latest first reading after an edge, counted from the commanded
+//     time). KP_BENCH_SMOKE: 3 s instead of 12 s.
 #include <benchmark/benchmark.h>
 
 #include <algorithm>
@@ -137,19 +139,31 @@ void BM_EightChannelsTcp100ms(benchmark::State& state) {
       auto samples = (*store)->LoadSamples(c.result.run_id);
       auto steps = (*store)->LoadSteps(c.result.run_id);
       if (!samples.ok() || !steps.ok()) return state.SkipWithError("cannot read the run back");
-      for (size_t i = 2; i < samples->size(); ++i) {
-        double dt = (*samples)[i].t_s - (*samples)[i - 1].t_s;
-        // Intervals at the logging period (edge readings and step ends come in between).
-        if (dt > 0.05) worst_dev = std::max(worst_dev, std::fabs(dt - 0.1) / 0.1 * 100.0);
-      }
-      // Each edge: the step began (its record) how long after its planned
-      // time (the previous step's start + its 1 s), and its first reading
-      // came how long after that.
+      // Per step: the readings on its 100 ms grid, from the step's start
+      // (the previous step's end reading) to its end. The one forced reading
+      // just after the edge (plan edge_settle_s, 50 ms) is off the grid by
+      // design and is judged by edge_late_ms instead.
       for (size_t k = 0; k < steps->size(); ++k) {
         const StepRow& st = (*steps)[k];
-        if (k > 0) worst_late = std::max(worst_late, (st.started_s - ((*steps)[k - 1].started_s + 1.0)) * 1000.0);
+        if (!st.ended_s) continue;
+        double prev = st.started_s;
+        bool first = true;
+        for (const Sample& s : *samples) {
+          if (s.t_s <= st.started_s + 1e-9 || s.t_s > *st.ended_s + 1e-9) continue;
+          const bool edge_reading = first && s.t_s - st.started_s < 0.075;
+          first = false;
+          if (edge_reading) continue;
+          worst_dev = std::max(worst_dev, std::fabs(s.t_s - prev - 0.1) / 0.1 * 100.0);
+          prev = s.t_s;
+        }
+      }
+      // Each edge: its first reading came how long after the commanded time
+      // (the previous step's start + its 1 s; the first step: its start).
+      for (size_t k = 0; k < steps->size(); ++k) {
+        const StepRow& st = (*steps)[k];
+        const double planned = k > 0 ? (*steps)[k - 1].started_s + 1.0 : st.started_s;
         auto it = std::find_if(samples->begin(), samples->end(), [&](const Sample& s) { return s.t_s > st.started_s + 1e-9; });
-        if (it != samples->end()) worst_late = std::max(worst_late, (it->t_s - st.started_s) * 1000.0);
+        if (it != samples->end()) worst_late = std::max(worst_late, (it->t_s - planned) * 1000.0);
       }
     }
   }
