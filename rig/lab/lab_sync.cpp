@@ -159,6 +159,7 @@ Status LabSync::SyncRun(sql::Db& bench, int64_t run_id, const std::string& uuid,
         "INSERT INTO kneepoint.{0} (run_uuid{1}) SELECT run_uuid{1} FROM {2} ON CONFLICT (run_uuid, {3}) {4}", t.name, lab_cols,
         stage, t.mark_lab, t.rows_change && !updates.empty() ? "DO UPDATE SET " + updates : std::string("DO NOTHING"));
     const std::string copy_target = fmt::format("{} (run_uuid{})", stage, lab_cols);
+    const std::string direct_target = fmt::format("kneepoint.{} (run_uuid{})", t.name, lab_cols);
 
     KP_ASSIGN_OR_RETURN(auto q, bench.Prepare(fmt::format("SELECT {} FROM {} t WHERE t.run_id = ?1 AND t.{} >= ?2 ORDER BY t.{} LIMIT ?3",
                                                           bench_cols.substr(2), t.name, t.mark_bench, t.mark_bench)));
@@ -183,14 +184,33 @@ Status LabSync::SyncRun(sql::Db& bench, int64_t run_id, const std::string& uuid,
         ++n;
       }
       if (n == 0) break;
-      KP_RETURN_IF_ERROR(conn_->Exec("BEGIN"));
-      Status st = conn_->CopyIn(copy_target, data);
-      if (st.ok() && options_.after_copy) options_.after_copy(stats.batches + 1);
-      if (st.ok()) st = conn_->Exec(merge);
-      if (st.ok()) st = conn_->Exec("COMMIT");
+      // Rows that never change (samples, events) start above what the server
+      // holds, so they go straight into the table: one COPY, the speed of a
+      // raw load. A key already there (another sync of the same bench got
+      // ahead) refuses the whole COPY and the batch goes again through the
+      // staging table, whose merge skips what the server has.
+      if (options_.before_batch) options_.before_batch(stats.batches + 1);
+      Status st = InvalidInput("");
+      if (!t.rows_change) {
+        st = conn_->Exec("BEGIN");
+        if (st.ok()) st = conn_->CopyIn(direct_target, data);
+        if (st.ok() && options_.after_copy) options_.after_copy(stats.batches + 1);
+        if (st.ok()) st = conn_->Exec("COMMIT");
+        if (!st.ok()) {
+          (void)conn_->Exec("ROLLBACK");
+          if (st.code() != StatusCode::kInvalidInput) return st.WithContext(fmt::format("sending {}", t.name));
+        }
+      }
       if (!st.ok()) {
-        (void)conn_->Exec("ROLLBACK");
-        return st.WithContext(fmt::format("sending {}", t.name));
+        KP_RETURN_IF_ERROR(conn_->Exec("BEGIN"));
+        st = conn_->CopyIn(copy_target, data);
+        if (st.ok() && options_.after_copy) options_.after_copy(stats.batches + 1);
+        if (st.ok()) st = conn_->Exec(merge);
+        if (st.ok()) st = conn_->Exec("COMMIT");
+        if (!st.ok()) {
+          (void)conn_->Exec("ROLLBACK");
+          return st.WithContext(fmt::format("sending {}", t.name));
+        }
       }
       ++stats.batches;
       stats.rows += n;

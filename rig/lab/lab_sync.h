@@ -29,6 +29,8 @@ struct SyncOptions {
   // Test hook: called with the batch count so far after a batch was copied
   // into the staging table and before it is committed (kill tests).
   std::function<void(int64_t)> after_copy;
+  // Test hook: called with the batch's number (from 1) before it is sent.
+  std::function<void(int64_t)> before_batch;
 };
 
 struct SyncStats {

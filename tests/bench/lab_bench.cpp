@@ -3,6 +3,9 @@
 //  - sync throughput: `kneepoint sync` of one long run (target >= 100,000
 //    samples/s), beside a raw COPY of the same rows into the same table in
 //    one transaction (ratio sync / raw);
+//  - catch-up after a 1-hour outage of a 10 Hz bench: the server holds the
+//    first hour of a 2-hour run and lacks the second (36,000 samples); one
+//    sync pass sends it (target < 60 s, `catch_up_s`);
 //  - the web API's run list of 10,000 runs (target < 100 ms).
 // KP_BENCH_SMOKE=1 shrinks the sizes (the smoke test in `make test`).
 #include <benchmark/benchmark.h>
@@ -132,6 +135,50 @@ void BM_SyncVersusRawCopy(benchmark::State& state) {
   state.counters["sync_over_raw"] = raw_s / sync_s;
 }
 BENCHMARK(BM_SyncVersusRawCopy)->Arg(360000)->Unit(benchmark::kMillisecond)->UseManualTime()->Iterations(2);
+
+void BM_CatchUpAfterOneHourOutage(benchmark::State& state) {
+  kp::testing::PgServer* server = Server();
+  if (server == nullptr) {
+    state.SkipWithError("no PostgreSQL server (install Debian's postgresql)");
+    return;
+  }
+  const int64_t per_hour = kp::bench::Smoke() ? 2000 : 36000;  // 10 Hz
+  kp::bench::BenchDir dir("kneepoint-lab-catchup");
+  const std::string bench = dir.File("bench.db");
+  if (!MakeBench(bench, 2 * per_hour)) {
+    state.SkipWithError("cannot fill the bench database");
+    return;
+  }
+  double catch_up_s = 0;
+  for (auto _ : state) {
+    auto url = server->NewDatabase();
+    if (!url.ok()) {
+      state.SkipWithError(url.status().ToString().c_str());
+      return;
+    }
+    auto first = kp::lab::SyncOnce(bench, *url);
+    auto c = kp::pg::PgConn::Connect(*url);
+    // The outage: the server has only what was sent before it (the first
+    // hour's samples), and its fingerprint of the run is old.
+    if (!first.ok() || !c.ok() ||
+        !(*c)->Exec(fmt::format("DELETE FROM kneepoint.samples WHERE seq >= {}; UPDATE kneepoint.runs SET sync_mark = ''", per_hour)).ok()) {
+      state.SkipWithError("cannot set up the outage");
+      return;
+    }
+    auto t0 = std::chrono::steady_clock::now();
+    auto stats = kp::lab::SyncOnce(bench, *url);
+    const double s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    catch_up_s += s;
+    state.SetIterationTime(s);
+    if (!stats.ok() || stats->samples != per_hour) {
+      state.SkipWithError(stats.ok() ? "not the missing hour sent" : stats.status().ToString().c_str());
+      return;
+    }
+  }
+  state.counters["catch_up_s"] = catch_up_s / static_cast<double>(state.iterations());  // target < 60
+  state.counters["samples"] = static_cast<double>(per_hour);
+}
+BENCHMARK(BM_CatchUpAfterOneHourOutage)->Unit(benchmark::kMillisecond)->UseManualTime()->Iterations(3);
 
 void BM_ApiRunList10k(benchmark::State& state) {
   kp::testing::PgServer* server = Server();
