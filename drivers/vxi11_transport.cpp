@@ -8,6 +8,8 @@
 #include <fmt/format.h>
 #include <lxi.h>
 
+#include "drivers/stream_transport.h"
+
 namespace kp {
 namespace {
 
@@ -21,6 +23,21 @@ class Vxi11Transport final : public Transport {
   Status Open() {
     static std::once_flag init;
     std::call_once(init, [] { lxi_init(); });
+    // A VXI-11 instrument answers the portmapper on TCP port 111 (VXI-11
+    // rev. 1.0, B.1.1, from memory). Try that first, bounded by the connect
+    // timeout: the RPC library's own lookup has retries and timeouts of its
+    // own that connect_timeout does not bound, and with nobody at the address
+    // it was once seen to wait for minutes.
+    kp::Address portmapper;
+    portmapper.kind = kp::Address::Kind::kTcp;
+    portmapper.host = addr_.host;
+    portmapper.port = 111;
+    portmapper.text = FormatTcpAddress(addr_.host, 111);
+    StreamOptions probe_options;
+    probe_options.connect_timeout = connect_timeout_;
+    if (auto probe = OpenTransport(portmapper, probe_options); !probe.ok())
+      return IoError(fmt::format("{}: no VXI-11 instrument answers at {} (its portmapper, TCP port 111: {})", addr_.text, addr_.host,
+                                 probe.status().message()));
     int id = lxi_connect(addr_.host.c_str(), 0, addr_.vxi11_device.c_str(), Ms(connect_timeout_), VXI11);
     if (id < 0)
       return IoError(fmt::format("{}: no VXI-11 link to device '{}' on {} (portmapper or create_link failed within {:.3g} s)",
