@@ -77,7 +77,17 @@ ChamberLimits RunChamberLimits(const ChamberLimits& rig, const SafetyLimits& pla
 Status RunController::SetChamber(double celsius) {
   if (!chamber_) return InvalidInput("a chamber step needs a temperature chamber in the rig");
   KP_RETURN_IF_ERROR(chamber_->SetTemperature(celsius));
+  chamber_running_ = true;  // from here on the end of the run stops it, even if the start was not acknowledged
   return chamber_->Run(true);
+}
+
+std::string RunController::StopChamber() {
+  if (!chamber_ || !chamber_running_) return "";
+  chamber_running_ = false;
+  Status st = chamber_->Run(false);
+  if (!st.ok()) st = chamber_->Run(false);  // once more: the first may have found the link down
+  if (!st.ok()) return "the chamber could not be stopped (" + st.message() + "): STOP IT BY HAND";
+  return "chamber stopped at the end of the run: it drifts back to room temperature";
 }
 
 std::string RunController::SafeOff() {
@@ -304,8 +314,14 @@ RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_vi
     result_.reason += "; " + still_on + ": SWITCH IT OFF BY HAND";
     kind = "fault";
   }
+  // Load first, then the chamber: a chamber that will not stop does not make
+  // the run's end wrong, but it is said in the reason and the log.
+  const std::string chamber = rc_.StopChamber();
+  const bool chamber_failed = chamber.find("BY HAND") != std::string::npos;
+  if (chamber_failed) result_.reason += "; " + chamber;
   Status st = store.EndStep(run_id_, t_s_, result_.reason,
                             {engine_.step_charge_mah(), engine_.step_energy_wh(), engine_.step_voltage_time_vs()});
+  if (st.ok() && !chamber.empty()) st = store.AddEvent(run_id_, t_s_, chamber_failed ? "fault" : "chamber", chamber);
   if (st.ok()) st = store.AddEvent(run_id_, t_s_, kind, result_.reason);
   if (st.ok()) st = store.FinishRun(run_id_, outcome, result_.reason);
   if (!st.ok()) {
@@ -662,6 +678,9 @@ Result<RunResult> RunController::Execute(const Plan& plan, const RunOptions& opt
   if (PlanNeedsSupply(plan) && roles_.supply == nullptr)
     return InvalidInput("the procedure charges the cell, but the rig has no supply");
   chamber_.reset();
+  // A resumed run may have started the chamber before it was interrupted:
+  // its end stops it too (stopping a chamber that is not running is harmless).
+  chamber_running_ = options.resume != nullptr && PlanUsesChamber(plan);
   if (PlanUsesChamber(plan)) {
     if (roles_.chamber == nullptr)
       return InvalidInput("the procedure drives a temperature chamber (chamber/soak steps), but the rig has no chamber");

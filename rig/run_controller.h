@@ -131,6 +131,9 @@ class RunController {
   // Load off (and supply off), then read back: empty when verified off or
   // when the instrument cannot say; else what is still on.
   std::string SafeOff();
+  // At the end of a run that started the chamber: stop it (it drifts back to
+  // room temperature) and say so; empty when it never ran.
+  std::string StopChamber();
 
   Store& store_;
   Clock& clock_;
@@ -141,6 +144,7 @@ class RunController {
   // The rig's chamber with the run's limits (the tighter of the rig's and the
   // procedure's); set only while a plan that drives the chamber runs.
   std::optional<ChamberDriver> chamber_;
+  bool chamber_running_ = false;  // this run started the chamber
 };
 
 // True when some step of `plan` needs a supply role (charge steps).

@@ -84,6 +84,13 @@ TEST(ChamberRun, SoakEndsWhenTheLagSaysSo) {
   }
   EXPECT_GT(rig.bench().cell_temperature_c(), 35.0);
   EXPECT_FALSE(rig.bench().load_input_on());
+  // The run started the chamber, so its end stopped it, and the log says so.
+  EXPECT_FALSE(rig.chamber_device().running());
+  Result<std::vector<EventRow>> events = f.store->LoadEvents(r->run_id);
+  ASSERT_TRUE(events.ok());
+  bool said = false;
+  for (const EventRow& e : *events) said = said || (e.kind == "chamber" && e.message.find("chamber stopped") != std::string::npos);
+  EXPECT_TRUE(said);
 }
 
 // max= shorter than the lag needs (t_in ≈ 35 min + 30 min hold > 40 min):
@@ -141,6 +148,8 @@ TEST(ChamberRun, RunawayChamberAbortsTheDischarge) {
   EXPECT_FALSE(rig.bench().load_input_on());
   // It stopped soon after the chamber passed 35 degC, not at the end of the discharge.
   EXPECT_LT(rig.chamber_device().temperature_c(), 40.0);
+  // An abort stops the chamber too.
+  EXPECT_FALSE(rig.chamber_device().running());
 }
 
 TEST(ChamberRun, SetPointOutsideTheRunLimitsIsRefused) {
