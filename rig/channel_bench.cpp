@@ -6,6 +6,8 @@
 #include <fmt/format.h>
 
 #include "drivers/address.h"
+#include "drivers/inproc_transport.h"
+#include "drivers/sim/multi_bench.h"
 #include "drivers/scpi_trace.h"
 #include "drivers/stream_transport.h"
 #include "rig/device_identity.h"
@@ -187,6 +189,21 @@ std::string ChannelBench::SwitchOff(int i) {
     if ((!ss.ok() && (!out.ok() || *out)) || (out.ok() && *out)) still += std::string(still.empty() ? "" : ", ") + "supply output";
   }
   return still;
+}
+
+std::function<Result<std::unique_ptr<Transport>>(const InstrumentSpec&)> ConnectToSimBench(sim::SimMultiBench& multi, Clock& clock,
+                                                                                            std::string prefix) {
+  return [&multi, &clock, prefix = std::move(prefix)](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
+    const std::string role = is.roles.empty() ? std::string() : is.roles.front();
+    LineDevice* d = role == "load"          ? &multi.load()
+                    : role == "meter"       ? &multi.meter()
+                    : role == "thermometer" ? &multi.thermometer()
+                    : role == "supply"      ? &multi.supply()
+                                            : nullptr;
+    if (d == nullptr)
+      return InvalidInput(fmt::format("instrument '{}': the simulated bench has no '{}' (load, meter, thermometer, supply)", is.name, role));
+    return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, prefix + is.name));
+  };
 }
 
 Result<std::unique_ptr<ChannelBench>> OpenChannelBench(const RigFileSpec& spec, const BenchOpenOptions& options) {

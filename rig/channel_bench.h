@@ -82,6 +82,16 @@ class ChannelBench {
 
 Result<std::unique_ptr<ChannelBench>> OpenChannelBench(const RigFileSpec& spec, const BenchOpenOptions& options);
 
+namespace sim {
+class SimMultiBench;
+}
+// A BenchOpenOptions::connect that links every instrument of the rig file to
+// the simulated multi-channel bench in process, by the instrument's first role
+// (load, meter, thermometer, supply), on `clock`: the demo, tests and
+// benchmarks in virtual time. Addresses read "PREFIX + instrument name".
+std::function<Result<std::unique_ptr<Transport>>(const InstrumentSpec&)> ConnectToSimBench(sim::SimMultiBench& multi, Clock& clock,
+                                                                                            std::string prefix = "inproc:");
+
 // One channel of a bench as a Rig (owns the bench): `run --slot`, `resume`.
 // Its locks are its instrument channels (RigLockKeys), so other processes can
 // run the other channels of the same instruments.

@@ -20,7 +20,6 @@
 #include <cmath>
 
 #include "drivers/address.h"
-#include "drivers/inproc_transport.h"
 #include "drivers/lockstep_clock.h"
 #include "drivers/sim/multi_bench.h"
 #include "drivers/sim/sim_server.h"
@@ -29,35 +28,25 @@
 #include "rig/channel_bench.h"
 #include "rig/rig_file.h"
 #include "tests/bench/bench_support.h"
+#include "tests/support/sim_channels.h"
 
 namespace kp {
 namespace {
 
 constexpr int kChannels = 8;
 
-std::string RigText(const std::vector<std::string>& addresses, double clock_speed) {
-  std::string t = "[bench]\nname = \"eight\"\nclock_speed = " + std::to_string(clock_speed) + "\nmax_current_a = 5.0\n";
-  const char* names[] = {"mload", "scanner", "tlog"};
-  const char* roles[] = {"load", "meter", "thermometer"};
-  for (int i = 0; i < 3; ++i)
-    t += std::string("\n[[instrument]]\nname = \"") + names[i] + "\"\naddress = \"" + addresses[static_cast<size_t>(i)] +
-         "\"\nprofile = \"kneepoint-sim-select\"\nroles = [\"" + roles[i] + "\"]\ntimeout_s = 1.0\n";
-  for (int k = 1; k <= kChannels; ++k) {
-    std::string n = std::to_string(k);
-    t += "\n[[channel]]\nslot = \"C" + n + "\"\nload = \"mload#" + n + "\"\nsense = \"scanner#" + n + "\"\ntemperature = \"tlog#" + n + "\"\n";
-  }
-  return t;
+std::string RigText(const std::vector<std::string>& addresses) {
+  testing::SimChannelRig r;
+  r.bench_name = "eight";
+  r.channels = kChannels;
+  r.slot_prefix = "C";
+  r.addresses = addresses;
+  return testing::SimChannelRigText(r);
 }
 
 std::vector<ChannelJob> Jobs(const Plan& plan) {
-  std::vector<ChannelJob> jobs;
-  for (int k = 0; k < kChannels; ++k) {
-    ChannelJob j;
-    j.channel = k;
-    j.plan = &plan;
-    j.options.cell_name = "bench-cell-" + std::to_string(k + 1);
-    jobs.push_back(std::move(j));
-  }
+  std::vector<ChannelJob> jobs = testing::BatchJobs(plan, kChannels, "SN", "", "C");
+  for (ChannelJob& j : jobs) j.options.link_grace_s = RunOptions{}.link_grace_s;  // rides out a slow reply, as `run` does
   return jobs;
 }
 
@@ -73,14 +62,11 @@ void BM_EightChannelBatchVirtual(benchmark::State& state) {
     bench::BenchDir dir("kp-bench-channels");
     LockstepClock clock;
     sim::SimMultiBench multi(sim::BatchCells(sim::DemoLiIonCell(2.56), {0.03, 0.1, 0.0}, kChannels, 3), clock);
-    auto spec = ParseRigFile(RigText({"tcp:127.0.0.1:1", "tcp:127.0.0.1:2", "tcp:127.0.0.1:3"}, 1.0), dir.File("eight.toml"));
+    auto spec = ParseRigFile(RigText({"tcp:127.0.0.1:1", "tcp:127.0.0.1:2", "tcp:127.0.0.1:3"}), dir.File("eight.toml"));
     if (!spec.ok()) return state.SkipWithError(spec.status().ToString().c_str());
     BenchOpenOptions bo;
     bo.rig.clock = &clock;
-    bo.connect = [&](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
-      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter() : &multi.thermometer();
-      return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock));
-    };
+    bo.connect = ConnectToSimBench(multi, clock);
     auto bench = OpenChannelBench(*spec, bo);
     if (!bench.ok()) return state.SkipWithError(bench.status().ToString().c_str());
     BenchRunOptions o;
@@ -120,7 +106,7 @@ void BM_EightChannelsTcp100ms(benchmark::State& state) {
     auto server = sim::SimServer::Start(*ParseAddress("tcp:127.0.0.1:0"),
                                         {{"load", &multi.load()}, {"meter", &multi.meter()}, {"thermometer", &multi.thermometer()}});
     if (!server.ok()) return state.SkipWithError(server.status().ToString().c_str());
-    auto spec = ParseRigFile(RigText((*server)->client_addresses(), 1.0), dir.File("eight.toml"));
+    auto spec = ParseRigFile(RigText((*server)->client_addresses()), dir.File("eight.toml"));
     if (!spec.ok()) return state.SkipWithError(spec.status().ToString().c_str());
     BenchOpenOptions bo;
     bo.rig.clock = &clock;

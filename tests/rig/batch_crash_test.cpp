@@ -23,6 +23,7 @@
 #include "drivers/sim/multi_bench.h"
 #include "drivers/sim/sim_server.h"
 #include "rig/store.h"
+#include "tests/support/sim_channels.h"
 #include "tests/support/test_support.h"
 #include "ui/cli/cli.h"
 #include "ui/report/batch_report.h"
@@ -42,15 +43,13 @@ struct ServedBatch {
     EXPECT_TRUE(s.ok()) << s.status().ToString();
     server = std::move(*s);
     const auto& a = server->client_addresses();
-    std::string text = fmt::format("[bench]\nname = \"batch bench\"\nclock_speed = {}\nmax_current_a = 5.0\n", kSpeed);
-    const char* names[] = {"mload", "scanner", "tlog"};
-    const char* roles[] = {"load", "meter", "thermometer"};
-    for (int i = 0; i < 3; ++i)
-      text += fmt::format("\n[[instrument]]\nname = \"{}\"\naddress = \"{}\"\nprofile = \"kneepoint-sim-select\"\nroles = [\"{}\"]\n"
-                          "timeout_s = 0.5\n",
-                          names[i], a[static_cast<size_t>(i)], roles[i]);
-    for (int k = 1; k <= kChannels; ++k)
-      text += fmt::format("\n[[channel]]\nslot = \"A{}\"\nload = \"mload#{}\"\nsense = \"scanner#{}\"\ntemperature = \"tlog#{}\"\n", k, k, k, k);
+    testing::SimChannelRig r;
+    r.bench_name = "batch bench";
+    r.channels = kChannels;
+    r.clock_speed = kSpeed;
+    r.addresses = a;
+    r.timeout_s = 0.5;
+    const std::string text = testing::SimChannelRigText(r);
     std::ofstream(rig) << text;
     std::ofstream(proc) << "name \"batch: 1.5 A to 3.0 V\"\n"
                            "cell li-ion rated=500mAh nominal=3.6V max=4.2V cutoff=3.0V max-temp=60degC\n"

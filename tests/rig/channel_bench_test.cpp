@@ -22,6 +22,7 @@
 #include "rig/control_channel.h"
 #include "rig/rig_file.h"
 #include "rig/run_lock.h"
+#include "tests/support/sim_channels.h"
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -33,38 +34,12 @@ constexpr double kCellAh = 2.56;
 
 // A four-channel bench: one multi-channel load, scanner and thermometer.
 std::string BenchText(const std::string& dialect, bool enclosure = true) {
-  std::string t = R"([bench]
-name = "test bench"
-clock_speed = 1.0
-max_current_a = 5.0
-max_voltage_v = 4.3
-
-[[instrument]]
-name = "mload"
-address = "tcp:127.0.0.1:5025"
-profile = "DIALECT"
-roles = ["load"]
-timeout_s = 1.0
-confirm_writes = true
-
-[[instrument]]
-name = "scanner"
-address = "tcp:127.0.0.1:5026"
-profile = "DIALECT"
-roles = ["meter"]
-
-[[instrument]]
-name = "tlog"
-address = "tcp:127.0.0.1:5027"
-profile = "DIALECT"
-roles = ["thermometer"]
-)";
-  for (int k = 1; k <= 4; ++k)
-    t += "\n[[channel]]\nslot = \"A" + std::to_string(k) + "\"\nload = \"mload#" + std::to_string(k) + "\"\nsense = \"scanner#" +
-         std::to_string(k) + "\"\ntemperature = \"tlog#" + std::to_string(k) + "\"\n";
-  if (enclosure) t += "\n[enclosure]\nsensor = \"tlog#0\"\nmax_c = 45\n";
-  for (size_t p; (p = t.find("DIALECT")) != std::string::npos;) t.replace(p, 7, dialect);
-  return t;
+  testing::SimChannelRig r;
+  r.dialect = dialect;
+  r.max_voltage_v = 4.3;
+  r.confirm_load_writes = true;
+  r.enclosure = enclosure;
+  return testing::SimChannelRigText(r);
 }
 
 const char* kProcedure = R"(name "bench test: 1 It to cutoff"
@@ -94,27 +69,13 @@ struct SimBenchFixture {
   BenchOpenOptions Options() {
     BenchOpenOptions o;
     o.rig.clock = &clock;
-    o.connect = [this](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
-      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter() : &multi.thermometer();
-      if (wrap_load && is.name == "mload") d = wrap_load;
-      return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, "inproc:" + is.name));
+    o.connect = [this, sim = ConnectToSimBench(multi, clock)](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
+      if (wrap_load && is.name == "mload") return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*wrap_load, clock, "inproc:mload"));
+      return sim(is);
     };
     return o;
   }
-  std::vector<ChannelJob> Jobs(const Plan& plan, int n) {
-    std::vector<ChannelJob> jobs;
-    for (int k = 0; k < n; ++k) {
-      ChannelJob j;
-      j.channel = k;
-      j.plan = &plan;
-      j.options.cell_name = "cell-" + std::to_string(k + 1);
-      j.options.record.cell_serial = "SN-" + std::to_string(k + 1);
-      j.options.record.tags = {"slot=A" + std::to_string(k + 1), "batch=T1"};
-      j.options.link_grace_s = 0.0;
-      jobs.push_back(std::move(j));
-    }
-    return jobs;
-  }
+  std::vector<ChannelJob> Jobs(const Plan& plan, int n) { return testing::BatchJobs(plan, n, "SN", "T1"); }
   BenchRunOptions RunOptions() {
     BenchRunOptions o;
     o.db_path = dir.File("runs.db");
@@ -151,15 +112,15 @@ TEST(ChannelRigFile, BadChannelDeclarationsNameFileLineAndColumn) {
     std::string from, to, expect;
   };
   const std::vector<Case> cases = {
-      {"load = \"mload#2\"", "load = \"mlaod#2\"", "bench.toml:35:8: key 'channel[2].load': no [[instrument]] is named 'mlaod': did you mean 'mload'?"},
-      {"load = \"mload#2\"", "load = \"mload\"", "bench.toml:35:8: key 'channel[2].load': instrument 'mload' has several channels"},
-      {"load = \"mload#2\"", "load = \"mload#99\"", "bench.toml:35:8: key 'channel[2].load': channel 99 is beyond instrument 'mload', which has 64"},
-      {"load = \"mload#2\"", "load = \"mload#1\"", "bench.toml:35:8: key 'channel[2].load': 'mload#1' already serves slot 'A1' as its load"},
-      {"load = \"mload#2\"", "load = \"scanner#2\"", "bench.toml:35:8: key 'channel[2].load': instrument 'scanner' (line 15) does not have the role 'load'"},
-      {"slot = \"A2\"", "slot = \"A1\"", "bench.toml:34:8: key 'channel[2].slot': slot 'A1' is already declared on line 28"},
-      {"load = \"mload#2\"\n", "", "bench.toml:33:1: key 'channel[2].load': missing"},
-      {"slot = \"A2\"", "slot = \"A2\"\ncolour = \"red\"", "bench.toml:35:10: key 'channel[2].colour': unknown key"},
-      {"max_c = 45", "max_c = \"hot\"", "key 'enclosure.max_c': must be a temperature in degC"},
+      {"load = \"mload#2\"", "load = \"mlaod#2\"", "bench.toml:37:8: key 'channel[2].load': no [[instrument]] is named 'mlaod': did you mean 'mload'?"},
+      {"load = \"mload#2\"", "load = \"mload\"", "bench.toml:37:8: key 'channel[2].load': instrument 'mload' has several channels"},
+      {"load = \"mload#2\"", "load = \"mload#99\"", "bench.toml:37:8: key 'channel[2].load': channel 99 is beyond instrument 'mload', which has 64"},
+      {"load = \"mload#2\"", "load = \"mload#1\"", "bench.toml:37:8: key 'channel[2].load': 'mload#1' already serves slot 'A1' as its load"},
+      {"load = \"mload#2\"", "load = \"scanner#2\"", "bench.toml:37:8: key 'channel[2].load': instrument 'scanner' (line 15) does not have the role 'load'"},
+      {"slot = \"A2\"", "slot = \"A1\"", "bench.toml:36:8: key 'channel[2].slot': slot 'A1' is already declared on line 30"},
+      {"load = \"mload#2\"\n", "", "bench.toml:35:1: key 'channel[2].load': missing"},
+      {"slot = \"A2\"", "slot = \"A2\"\ncolour = \"red\"", "bench.toml:37:10: key 'channel[2].colour': unknown key"},
+      {"max_c = 45.0", "max_c = \"hot\"", "key 'enclosure.max_c': must be a temperature in degC"},
   };
   TempDir dir;
   std::string good = BenchText("kneepoint-sim-select");
@@ -185,7 +146,7 @@ TEST(ChannelRigFile, OneChannelDialectTakesNoChannelNumber) {
   auto spec = ParseRigFile(text, dir.File("bench.toml"));
   ASSERT_FALSE(spec.ok());
   EXPECT_NE(spec.status().message().find("cannot address channels"), std::string::npos) << spec.status().message();
-  EXPECT_NE(spec.status().message().find("bench.toml:31:15:"), std::string::npos) << spec.status().message();
+  EXPECT_NE(spec.status().message().find("bench.toml:33:15:"), std::string::npos) << spec.status().message();
 }
 
 TEST(ChannelDialect, SelectLineMustCarryTheChannel) {

@@ -9,7 +9,6 @@
 
 #include "analysis/svg_plot.h"
 #include "drivers/clock.h"
-#include "drivers/inproc_transport.h"
 #include "drivers/lockstep_clock.h"
 #include "drivers/sim/cell_file.h"
 #include "drivers/sim/multi_bench.h"
@@ -437,11 +436,7 @@ Result<DemoFigures> RunDemoCampaign(const DemoOptions& options) {
     KP_ASSIGN_OR_RETURN(RigFileSpec spec, ParseRigFile(kDemoBench, "demo-bench.toml"));
     BenchOpenOptions bo;
     bo.rig.clock = &clock;
-    bo.connect = [&](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
-      LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter()
-                      : is.name == "psu"   ? &multi.supply() : &multi.thermometer();
-      return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, "sim:" + is.name));
-    };
+    bo.connect = ConnectToSimBench(multi, clock, "sim:");
     KP_ASSIGN_OR_RETURN(std::unique_ptr<ChannelBench> bench, OpenChannelBench(spec, bo));
     const kp::Plan& plan = c.planned(0).plan;  // the rated-capacity check of Q1
     std::vector<ChannelJob> jobs;

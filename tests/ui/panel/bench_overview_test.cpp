@@ -9,7 +9,6 @@
 #include <atomic>
 #include <fstream>
 
-#include "drivers/inproc_transport.h"
 #include "drivers/lockstep_clock.h"
 #include "drivers/sim/multi_bench.h"
 #include "procedures/procedure_parser.h"
@@ -17,6 +16,7 @@
 #include "rig/channel_bench.h"
 #include "rig/control_channel.h"
 #include "rig/rig_file.h"
+#include "tests/support/sim_channels.h"
 #include "tests/support/test_support.h"
 
 namespace kp::ui {
@@ -131,35 +131,12 @@ discharge 0.5C until voltage<=3.0V every=10s
 constexpr double kCellAh = 2.56;
 
 std::string BenchText() {
-  std::string t = R"([bench]
-name = "overview bench"
-clock_speed = 1.0
-max_current_a = 5.0
-max_voltage_v = 4.3
-
-[[instrument]]
-name = "mload"
-address = "tcp:127.0.0.1:5025"
-profile = "kneepoint-sim-chlist"
-roles = ["load"]
-timeout_s = 1.0
-
-[[instrument]]
-name = "scanner"
-address = "tcp:127.0.0.1:5026"
-profile = "kneepoint-sim-chlist"
-roles = ["meter"]
-
-[[instrument]]
-name = "tlog"
-address = "tcp:127.0.0.1:5027"
-profile = "kneepoint-sim-chlist"
-roles = ["thermometer"]
-)";
-  for (int k = 1; k <= 3; ++k)
-    t += "\n[[channel]]\nslot = \"A" + std::to_string(k) + "\"\nload = \"mload#" + std::to_string(k) + "\"\nsense = \"scanner#" +
-         std::to_string(k) + "\"\ntemperature = \"tlog#" + std::to_string(k) + "\"\n";
-  return t;
+  testing::SimChannelRig r;
+  r.bench_name = "overview bench";
+  r.dialect = "kneepoint-sim-chlist";
+  r.channels = 3;
+  r.max_voltage_v = 4.3;
+  return testing::SimChannelRigText(r);
 }
 
 TEST(BenchOverview, TilesOfARealBatchWithOneChannelAborted) {
@@ -172,10 +149,7 @@ TEST(BenchOverview, TilesOfARealBatchWithOneChannelAborted) {
   ASSERT_TRUE(spec.ok()) << spec.status().ToString();
   BenchOpenOptions bo;
   bo.rig.clock = &clock;
-  bo.connect = [&](const InstrumentSpec& is) -> Result<std::unique_ptr<Transport>> {
-    LineDevice* d = is.name == "mload" ? &multi.load() : is.name == "scanner" ? &multi.meter() : &multi.thermometer();
-    return std::unique_ptr<Transport>(std::make_unique<InProcTransport>(*d, clock, "inproc:" + is.name));
-  };
+  bo.connect = ConnectToSimBench(multi, clock);
   auto bench = OpenChannelBench(*spec, bo);
   ASSERT_TRUE(bench.ok()) << bench.status().ToString();
   Plan plan = Compile(R"(name "overview batch: 1 It"
@@ -184,17 +158,7 @@ safety max-temp=55degC max-time=6h
 rest 1min every=10s
 discharge 1C until voltage<=3.0V every=10s
 )");
-  std::vector<ChannelJob> jobs;
-  for (int k = 0; k < 3; ++k) {
-    ChannelJob j;
-    j.channel = k;
-    j.plan = &plan;
-    j.options.cell_name = "cell-" + std::to_string(k + 1);
-    j.options.record.cell_serial = "OV-" + std::to_string(k + 1);
-    j.options.record.tags = {"slot=A" + std::to_string(k + 1), "batch=OV1"};
-    j.options.link_grace_s = 0.0;
-    jobs.push_back(std::move(j));
-  }
+  std::vector<ChannelJob> jobs = testing::BatchJobs(plan, 3, "OV", "OV1");
   BenchRunOptions o;
   o.db_path = dir.File("runs.db");
   o.lock_dir = dir.File("locks");
