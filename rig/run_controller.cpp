@@ -201,6 +201,7 @@ class RunSession {
   // only when the voltage moved enough or the longest gap passed).
   Status LogSample(const Reading& r, int step, bool force, bool regular = true);
   Status Handle(const EngineOutput& out);
+  Status Record(const EngineOutput& out);  // Handle's database writes
   // Logs a "retry" event when any instrument session had to repeat an
   // exchange since the last check (the run went on; the trace has details).
   Status NoteRetries();
@@ -375,13 +376,22 @@ Status RunSession::LogSample(const Reading& r, int step, bool force, bool regula
 }
 
 Status RunSession::Handle(const EngineOutput& out) {
-  Store& store = rc_.store_;
   // Setpoint first: an edge is applied as close to its time as possible.
   if (out.setpoint) {
     KP_RETURN_IF_ERROR(rc_.Apply(*out.setpoint));
     KP_RETURN_IF_ERROR(Reconcile(false));
   }
   if (out.chamber_setpoint_c) KP_RETURN_IF_ERROR(rc_.SetChamber(*out.chamber_setpoint_c));
+  // Then the records of the change, in one commit (no instrument I/O while
+  // the database's write lock is held).
+  Store::CommitGroup group(rc_.store_);
+  Status st = Record(out);
+  Status closed = group.Close();
+  return st.ok() ? closed : st;
+}
+
+Status RunSession::Record(const EngineOutput& out) {
+  Store& store = rc_.store_;
   for (const StepResult& res : out.results) {
     DcirRow row;
     row.source = res.source;

@@ -499,8 +499,21 @@ Status Store::FlushStaged() {
   return st;
 }
 
+Status Store::CommitGroup::Close() {
+  if (store_ == nullptr) return Status::Ok();
+  Store& s = *store_;
+  store_ = nullptr;
+  if (--s.group_depth_ > 0 || !s.group_commit_) return Status::Ok();
+  s.group_commit_ = false;
+  return s.Commit();
+}
+
 Status Store::Commit() {
   if (!in_batch_ && staged_.empty()) return Status::Ok();
+  if (group_depth_ > 0) {
+    group_commit_ = true;  // made when the outermost group closes
+    return Status::Ok();
+  }
   // A heartbeat in the same transaction tells readers the runner is alive.
   // So does the run's progress, which therefore always matches the samples.
   Status st = FlushStaged();

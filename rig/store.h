@@ -280,6 +280,23 @@ class Store {
   Status AddNote(int64_t run_id, std::string_view text);
   Status Commit();
   Status MaybeCommit();
+  // The writes made while a group is open (a step change: the step's end,
+  // the next step's start, its event, DC-IR points) share one commit, made
+  // when the group closes: one durable commit instead of several, so runs
+  // sharing the database file (a multi-channel bench) wait less for each
+  // other at their edges. Groups nest; Commit() inside one is deferred.
+  class CommitGroup {
+   public:
+    explicit CommitGroup(Store& store) : store_(&store) { ++store_->group_depth_; }
+    ~CommitGroup() { (void)Close(); }
+    CommitGroup(const CommitGroup&) = delete;
+    CommitGroup& operator=(const CommitGroup&) = delete;
+    // Commits what the group deferred (when it is the outermost one).
+    Status Close();
+
+   private:
+    Store* store_;
+  };
 
   // --- control requests (any process) ---
   // Queues a request for the runner of `run_id`; committed at once.
@@ -355,6 +372,8 @@ class Store {
   Clock& wall_;
   Options options_;
   bool in_batch_ = false;
+  int group_depth_ = 0;          // open CommitGroups
+  bool group_commit_ = false;    // a commit was asked for inside them
   Seconds batch_started_{0};
   // Samples staged in memory: the write transaction is opened only when they
   // are written at the commit, so other writers (control requests, a second

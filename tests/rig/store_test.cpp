@@ -87,6 +87,43 @@ TEST(Store, EventsAndStepsAreCommittedAtOnce) {
   EXPECT_EQ((*reader)->LoadSteps(*run)->size(), 1u);
 }
 
+TEST(Store, ACommitGroupMakesItsWritesVisibleTogetherWhenItCloses) {
+  testing::TempDir dir;
+  SteadyClock wall;
+  Store::Options slow;
+  slow.commit_interval_s = 3600;
+  auto writer = Store::Open(dir.File("g.db"), wall, slow);
+  ASSERT_TRUE(writer.ok());
+  auto run = (*writer)->BeginRun(DemoRun());
+  ASSERT_TRUE(run.ok());
+  auto reader = Store::Open(dir.File("g.db"), wall);
+  ASSERT_TRUE(reader.ok());
+  ASSERT_OK((*writer)->AppendSample(*run, {1.0, 4.1, 0.0, 25.0, 0}));
+  {
+    Store::CommitGroup outer(**writer);
+    ASSERT_OK((*writer)->BeginStep(*run, 0, "rest", "rest 1 h", 1.0));
+    {
+      Store::CommitGroup inner(**writer);
+      ASSERT_OK((*writer)->AddEvent(*run, 1.0, "step", "step 1: rest 1 h"));
+      ASSERT_OK(inner.Close());  // nested: nothing committed yet
+    }
+    EXPECT_EQ((*reader)->LoadSteps(*run)->size(), 0u);
+    EXPECT_EQ((*reader)->LoadEvents(*run)->size(), 0u);
+    EXPECT_EQ((*reader)->LoadSamples(*run)->size(), 0u);
+    ASSERT_OK(outer.Close());
+  }
+  // One commit: the step, its event and the samples staged before them.
+  EXPECT_EQ((*reader)->LoadSteps(*run)->size(), 1u);
+  EXPECT_EQ((*reader)->LoadEvents(*run)->size(), 1u);
+  EXPECT_EQ((*reader)->LoadSamples(*run)->size(), 1u);
+  // A group closed by its destructor commits too.
+  {
+    Store::CommitGroup g(**writer);
+    ASSERT_OK((*writer)->AddEvent(*run, 2.0, "note", "left by the destructor"));
+  }
+  EXPECT_EQ((*reader)->LoadEvents(*run)->size(), 2u);
+}
+
 TEST(Store, OrphanedRunIsMarkedInterrupted) {
   testing::TempDir dir;
   SteadyClock wall;
