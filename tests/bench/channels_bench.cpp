@@ -140,7 +140,6 @@ void BM_EightChannelsTcp100ms(benchmark::State& state) {
           first = false;
           if (edge_reading) continue;
           worst_dev = std::max(worst_dev, std::fabs(s.t_s - prev - 0.1) / 0.1 * 100.0);
-          if (getenv("KP_DUMP") && std::fabs(s.t_s - prev - 0.1) > 0.01) fprintf(stderr, "%s step %d t %.4f dt %.4f off %.4f\n", c.slot.c_str(), st.index, s.t_s, s.t_s - prev, s.t_s - st.started_s);
           prev = s.t_s;
         }
       }
