@@ -45,7 +45,7 @@ Result<std::vector<ChannelOutcome>> RunBench(ChannelBench& bench, std::vector<Ch
     locks = std::move(*taken);
   }
   SteadyClock steady;
-  Clock& wall = opt.wall != nullptr ? *opt.wall : steady;
+  Clock& wall = opt.wall != nullptr ? *opt.wall : static_cast<Clock&>(steady);
   // One store connection per channel, opened here in turn (a new database is
   // created and migrated once, not by eight threads at once).
   std::vector<std::unique_ptr<Store>> stores;

@@ -107,8 +107,8 @@ Status ChannelBench::Open(const BenchOpenOptions& o) {
     auto bind = [&](const ChannelBinding& b, const char* role) -> Result<ScpiSession*> {
       const InstrumentSpec& is = spec_.instruments.at(static_cast<size_t>(b.instrument));
       KP_ASSIGN_OR_RETURN(std::unique_ptr<ScpiSession> s, Session(b, b.channel.empty() ? std::string() : "ch " + b.channel));
-      ScpiSession* raw = s.get();
       d.sessions.push_back(std::move(s));
+      ScpiSession* raw = d.sessions.back().get();  // owned by the channel's drivers
       std::string key = identities_[static_cast<size_t>(b.instrument)] + (b.channel.empty() ? "" : "#" + b.channel);
       if (std::find(bc.lock_keys.begin(), bc.lock_keys.end(), key) == bc.lock_keys.end()) bc.lock_keys.push_back(key);
       if (std::find(bc.links.begin(), bc.links.end(), b.instrument) == bc.links.end()) bc.links.push_back(b.instrument);
