@@ -24,8 +24,8 @@
 #include "drivers/sim/sim_server.h"
 #include "rig/store.h"
 #include "tests/support/sim_channels.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
-#include "ui/cli/cli.h"
 #include "ui/report/batch_report.h"
 
 namespace kp {
@@ -57,19 +57,15 @@ struct ServedBatch {
                            "discharge 1.5A until voltage<=3.0V every=1s\n";
     setenv("KNEEPOINT_LOCK_DIR", dir.File("locks").c_str(), 1);
   }
-  pid_t Start(std::vector<std::string> args, const char* crash) {
-    std::fflush(nullptr);
-    pid_t pid = fork();
-    if (pid == 0) {
-      if (crash != nullptr) setenv("KNEEPOINT_INJECT_CRASH", crash, 1);
-      int devnull = ::open("/dev/null", O_WRONLY);
-      if (devnull >= 0) dup2(devnull, 1);
-      args.insert(args.begin(), "kneepoint");
-      std::vector<char*> argv;
-      for (std::string& x : args) argv.push_back(x.data());
-      _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));
-    }
-    return pid;
+  ~ServedBatch() { unsetenv("KNEEPOINT_LOCK_DIR"); }  // its folder goes with the fixture
+  ServedBatch(const ServedBatch&) = delete;
+  ServedBatch& operator=(const ServedBatch&) = delete;
+  pid_t Start(const std::vector<std::string>& args, const char* crash) {
+    std::vector<std::string> env;
+    if (crash != nullptr) env.push_back(std::string("KNEEPOINT_INJECT_CRASH=") + crash);
+    testing::SpawnIo io;
+    io.stdout_fd = testing::SpawnIo::kDevNull;
+    return testing::SpawnKneepoint(args, env, io);
   }
   std::unique_ptr<Store> OpenDb() {
     Store::Options o;

@@ -35,8 +35,8 @@
 #include "procedures/procedure_parser.h"
 #include "rig/run_controller.h"
 #include "tests/support/faulty_vfs.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
-#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {
@@ -447,14 +447,8 @@ TEST(FaultMatrix, SigtermEndsKneepointRunAsAbortedWithTheLogIntact) {
            "discharge 0.2C until voltage<=2.75V every=1s\n";
   }
   const std::string db = dir.File("term.db");
-  pid_t pid = fork();
-  if (pid == 0) {
-    std::vector<std::string> args = {"kneepoint", "run", proc, "--rig", "sim", "--db", db, "--cell", "term-cell",
-                                     "--speed", "500", "--progress", "100000s"};
-    std::vector<char*> argv;
-    for (std::string& a : args) argv.push_back(a.data());
-    _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));
-  }
+  pid_t pid = testing::SpawnKneepoint(
+      {"run", proc, "--rig", "sim", "--db", db, "--cell", "term-cell", "--speed", "500", "--progress", "100000s"});
   ASSERT_GT(pid, 0);
   // Wait until the run has committed samples (bounded), then send SIGTERM.
   int64_t seen = 0;

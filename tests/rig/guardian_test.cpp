@@ -33,8 +33,8 @@
 #include "rig/guardian.h"
 #include "rig/rig_file.h"
 #include "rig/store.h"
+#include "tests/support/fixtures.h"
 #include "tests/support/test_support.h"
-#include "ui/cli/cli.h"
 
 namespace kp {
 namespace {
@@ -74,18 +74,12 @@ struct GuardedBench {
 
   // `kneepoint ARGS...` in a child process; `crash` sets KNEEPOINT_INJECT_CRASH,
   // `stdout_fd` >= 0 becomes its stdout.
-  pid_t Start(std::vector<std::string> args, const char* crash = nullptr, int stdout_fd = -1) {
-    std::fflush(nullptr);  // the child must not print this process's pending output again
-    pid_t pid = fork();
-    if (pid == 0) {
-      if (crash != nullptr) setenv("KNEEPOINT_INJECT_CRASH", crash, 1);
-      if (stdout_fd >= 0) dup2(stdout_fd, 1);
-      args.insert(args.begin(), "kneepoint");
-      std::vector<char*> argv;
-      for (std::string& a : args) argv.push_back(a.data());
-      _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));
-    }
-    return pid;
+  pid_t Start(const std::vector<std::string>& args, const char* crash = nullptr, int stdout_fd = -1) {
+    std::vector<std::string> env;
+    if (crash != nullptr) env.push_back(std::string("KNEEPOINT_INJECT_CRASH=") + crash);
+    testing::SpawnIo io;
+    io.stdout_fd = stdout_fd;
+    return testing::SpawnKneepoint(args, env, io);
   }
   pid_t StartRun(const char* crash = nullptr, std::vector<std::string> extra = {}, int stdout_fd = -1, const char* progress_s = "100000s") {
     std::vector<std::string> args = {"run", proc, "--rig", rig, "--db", db, "--cell", "guarded-cell", "--progress", progress_s};

@@ -3,6 +3,8 @@
 // parameters); files the tool writes follow the user's umask; the simulator
 // listens on loopback unless told otherwise, and warns when it is not.
 #include <gtest/gtest.h>
+
+#include <fcntl.h>
 #include <poll.h>
 #include <signal.h>
 #include <sys/stat.h>
@@ -151,16 +153,11 @@ TEST(Security, FilesWrittenFollowTheUmask) {
 // banner, stops it with SIGTERM and returns what it printed.
 std::string SimBanner(const std::string& address) {
   int fds[2];
-  EXPECT_EQ(pipe(fds), 0);
-  pid_t pid = fork();
-  if (pid == 0) {
-    dup2(fds[1], STDOUT_FILENO);
-    close(fds[0]);
-    std::vector<std::string> args = {"kneepoint", "sim", "--listen", address};
-    std::vector<char*> argv;
-    for (std::string& a : args) argv.push_back(a.data());
-    _exit(cli::RunCli(static_cast<int>(argv.size()), argv.data()));
-  }
+  EXPECT_EQ(pipe2(fds, O_CLOEXEC), 0);  // the child keeps only its stdout end
+  testing::SpawnIo io;
+  io.stdout_fd = fds[1];
+  pid_t pid = testing::SpawnKneepoint({"sim", "--listen", address}, {}, io);
+  EXPECT_GT(pid, 0);
   close(fds[1]);
   std::string out;
   auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(20);

@@ -2,6 +2,8 @@
 // describe, and a store in a fresh folder with the clocks a run needs.
 #pragma once
 
+#include <sys/types.h>
+
 #include <cstdint>
 #include <memory>
 #include <string>
@@ -25,6 +27,19 @@ struct CliResult {
   std::string out, err;
 };
 CliResult RunKneepointCaptured(std::vector<std::string> args);
+
+// `kneepoint ARGS...` in a child process: this test program executed again
+// with KP_TEST_EXEC_CLI set (tests/support/test_main.cpp), never a plain fork,
+// so no lock held by another thread of this process reaches the child.
+// `env` adds NAME=VALUE entries to this process's environment; `stdout_fd`
+// and `stderr_fd` >= 0 become the child's; "/dev/null" is spelled -2.
+// Returns the child's pid (waitpid it), or -1 when it could not be started.
+struct SpawnIo {
+  int stdout_fd = -1;
+  int stderr_fd = -1;
+  static constexpr int kDevNull = -2;
+};
+pid_t SpawnKneepoint(const std::vector<std::string>& args, const std::vector<std::string>& env = {}, SpawnIo io = {});
 
 // A 2,500 mAh Li-ion cell: 3.6 V nominal, 4.2 V full, 2.75 V cutoff, 60 degC
 // limit (the simulator's DemoLiIonCell(2.56) stands in for it).
