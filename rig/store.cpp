@@ -435,8 +435,16 @@ Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall,
     return store;
   }
   if (!options.read_only) {
-    KP_RETURN_IF_ERROR(store->db_->Exec("PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")
-                           .WithContext("setting up " + path));
+    // Switching a new file to WAL takes an exclusive lock, and SQLite answers
+    // "locked" at once (no busy wait) while another connection opening the
+    // same new file holds a lock: try again for up to about 5 s.
+    Status setup = Status::Ok();
+    for (int attempt = 0; attempt < 1000; ++attempt) {
+      setup = store->db_->Exec("PRAGMA journal_mode=WAL; PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;");
+      if (setup.code() != StatusCode::kUnavailable) break;
+      ::usleep(5000);
+    }
+    KP_RETURN_IF_ERROR(setup.WithContext("setting up " + path));
     KP_RETURN_IF_ERROR(store->Migrate());
   } else if (v != kSchemaVersion) {
     return InvalidInput(fmt::format("{}: schema version {} (this kneepoint reads {}); open it read-write once to upgrade", path, v,
@@ -471,6 +479,19 @@ Status Store::Migrate() {
   }
   while (version < kSchemaVersion) {
     KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
+    // Another connection (a second process opening the new file at the same
+    // moment) may have migrated since the version was read: read it again
+    // under the write lock and apply only what is still missing.
+    Result<int> now = SchemaVersion();
+    if (!now.ok() || *now != version) {
+      (void)db_->Exec(now.ok() ? "COMMIT" : "ROLLBACK");
+      if (!now.ok()) return now.status().WithContext(fmt::format("migrating {}", db_->path()));
+      if (*now > kSchemaVersion)
+        return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
+                                        db_->path(), *now, kSchemaVersion));
+      version = *now;
+      continue;
+    }
     Status st = kMigrations[version](*db_);
     if (st.ok()) st = db_->Exec(fmt::format("PRAGMA user_version={}", version + 1));
     if (st.ok()) st = db_->Exec("COMMIT");

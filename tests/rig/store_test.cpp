@@ -2,6 +2,9 @@
 
 #include <gtest/gtest.h>
 
+#include <atomic>
+#include <thread>
+
 #include "tests/support/test_support.h"
 
 namespace kp {
@@ -122,6 +125,34 @@ TEST(Store, ACommitGroupMakesItsWritesVisibleTogetherWhenItCloses) {
     ASSERT_OK((*writer)->AddEvent(*run, 2.0, "note", "left by the destructor"));
   }
   EXPECT_EQ((*reader)->LoadEvents(*run)->size(), 2u);
+}
+
+// Several processes opening a new database file at the same moment (a runner
+// creating it, a test or the panel polling for it): each one migrates only
+// what the others have not, and every open succeeds.
+TEST(Store, OpensRacingOnANewFileAllSucceed) {
+  testing::TempDir dir;
+  constexpr int kOpeners = 6;
+  for (int round = 0; round < 15; ++round) {
+    const std::string path = dir.File("race" + std::to_string(round) + ".db");
+    std::atomic<int> ready{0};
+    std::vector<std::string> errors(kOpeners);
+    std::vector<std::thread> threads;
+    for (int i = 0; i < kOpeners; ++i)
+      threads.emplace_back([&, i] {
+        ++ready;
+        while (ready.load() < kOpeners) std::this_thread::yield();
+        SteadyClock wall;
+        auto store = Store::Open(path, wall);
+        if (!store.ok()) errors[static_cast<size_t>(i)] = store.status().ToString();
+      });
+    for (std::thread& t : threads) t.join();
+    for (const std::string& e : errors) EXPECT_EQ(e, "") << "round " << round;
+    SteadyClock wall;
+    auto store = Store::Open(path, wall);
+    ASSERT_TRUE(store.ok());
+    EXPECT_EQ(*(*store)->SchemaVersion(), kSchemaVersion);
+  }
 }
 
 TEST(Store, OrphanedRunIsMarkedInterrupted) {
