@@ -197,7 +197,7 @@ std::string_view StripReplyUnit(std::string_view reply) {
   for (char c : reply.substr(r.size()))
     if (c != ' ' && c != '\t') unit += static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
   static const char* const kBaseUnits[] = {"V", "VDC", "VOLT", "VOLTS", "A", "ADC", "AMP", "AMPS", "W", "WATT", "WATTS", "C",
-                                           "\xC2\xB0" "C", "DEGC", "CEL", "OHM", "OHMS", "\xCE\xA9"};
+                                           "\xC2\xB0\x43" /* degree sign, C */, "DEGC", "CEL", "OHM", "OHMS", "\xCE\xA9"};
   for (const char* u : kBaseUnits)
     if (unit == u) return r;
   return reply;
