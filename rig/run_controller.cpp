@@ -81,13 +81,13 @@ Status RunController::SetChamber(double celsius) {
   return chamber_->Run(true);
 }
 
-std::string RunController::StopChamber() {
-  if (!chamber_ || !chamber_running_) return "";
+Result<bool> RunController::StopChamber() {
+  if (!chamber_ || !chamber_running_) return false;
   chamber_running_ = false;
   Status st = chamber_->Run(false);
   if (!st.ok()) st = chamber_->Run(false);  // once more: the first may have found the link down
-  if (!st.ok()) return "the chamber could not be stopped (" + st.message() + "): STOP IT BY HAND";
-  return "chamber stopped at the end of the run: it drifts back to room temperature";
+  if (!st.ok()) return st;
+  return true;
 }
 
 std::string RunController::SafeOff() {
@@ -317,12 +317,17 @@ RunResult RunSession::Finish(Outcome outcome, std::string reason, std::string_vi
   }
   // Load first, then the chamber: a chamber that will not stop does not make
   // the run's end wrong, but it is said in the reason and the log.
-  const std::string chamber = rc_.StopChamber();
-  const bool chamber_failed = chamber.find("BY HAND") != std::string::npos;
-  if (chamber_failed) result_.reason += "; " + chamber;
+  const Result<bool> chamber_stopped = rc_.StopChamber();
+  std::string chamber;
+  if (!chamber_stopped.ok()) {
+    chamber = "the chamber could not be stopped (" + chamber_stopped.status().message() + "): STOP IT BY HAND";
+    result_.reason += "; " + chamber;
+  } else if (*chamber_stopped) {
+    chamber = "chamber stopped at the end of the run: it drifts back to room temperature";
+  }
   Status st = store.EndStep(run_id_, t_s_, result_.reason,
                             {engine_.step_charge_mah(), engine_.step_energy_wh(), engine_.step_voltage_time_vs()});
-  if (st.ok() && !chamber.empty()) st = store.AddEvent(run_id_, t_s_, chamber_failed ? "fault" : "chamber", chamber);
+  if (st.ok() && !chamber.empty()) st = store.AddEvent(run_id_, t_s_, chamber_stopped.ok() ? "chamber" : "fault", chamber);
   if (st.ok()) st = store.AddEvent(run_id_, t_s_, kind, result_.reason);
   if (st.ok()) st = store.FinishRun(run_id_, outcome, result_.reason);
   if (!st.ok()) {

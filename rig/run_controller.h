@@ -132,8 +132,8 @@ class RunController {
   // when the instrument cannot say; else what is still on.
   std::string SafeOff();
   // At the end of a run that started the chamber: stop it (it drifts back to
-  // room temperature) and say so; empty when it never ran.
-  std::string StopChamber();
+  // room temperature). True when stopped, false when this run never started it.
+  Result<bool> StopChamber();
 
   Store& store_;
   Clock& clock_;

@@ -413,6 +413,13 @@ Store::~Store() {
   if (in_batch_ || !staged_.empty()) (void)Commit();
 }
 
+namespace {
+Status NewerSchemaError(const std::string& path, int version) {
+  return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint", path,
+                                  version, kSchemaVersion));
+}
+}  // namespace
+
 Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall, Options options) {
   KP_ASSIGN_OR_RETURN(auto db, sql::Db::Open(path, options.create && !options.read_only, options.read_only, options.vfs));
   std::unique_ptr<Store> store(new Store(std::move(db), wall, options));
@@ -423,8 +430,7 @@ Result<std::unique_ptr<Store>> Store::Open(const std::string& path, Clock& wall,
   KP_ASSIGN_OR_RETURN(int v, store->SchemaVersion());
   if (v > kSchemaVersion) {
     if (!options.read_only_if_newer)
-      return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
-                                      path, v, kSchemaVersion));
+      return NewerSchemaError(path, v);
     if (!options.read_only) {
       store.reset();
       Options ro = options;
@@ -474,8 +480,7 @@ Result<std::string> Store::JournalMode() {
 Status Store::Migrate() {
   KP_ASSIGN_OR_RETURN(int version, SchemaVersion());
   if (version > kSchemaVersion) {
-    return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
-                                    db_->path(), version, kSchemaVersion));
+    return NewerSchemaError(db_->path(), version);
   }
   while (version < kSchemaVersion) {
     KP_RETURN_IF_ERROR(db_->Exec("BEGIN IMMEDIATE"));
@@ -487,8 +492,7 @@ Status Store::Migrate() {
       (void)db_->Exec(now.ok() ? "COMMIT" : "ROLLBACK");
       if (!now.ok()) return now.status().WithContext(fmt::format("migrating {}", db_->path()));
       if (*now > kSchemaVersion)
-        return InvalidInput(fmt::format("{} has schema version {}, newer than this kneepoint understands ({}); use a newer kneepoint",
-                                        db_->path(), *now, kSchemaVersion));
+        return NewerSchemaError(db_->path(), *now);
       version = *now;
       continue;
     }

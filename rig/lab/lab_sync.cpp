@@ -190,28 +190,19 @@ Status LabSync::SyncRun(sql::Db& bench, int64_t run_id, const std::string& uuid,
       // ahead) refuses the whole COPY and the batch goes again through the
       // staging table, whose merge skips what the server has.
       if (options_.before_batch) options_.before_batch(stats.batches + 1);
-      Status st = InvalidInput("");
-      if (!t.rows_change) {
-        st = conn_->Exec("BEGIN");
-        if (st.ok()) st = conn_->CopyIn(direct_target, data);
+      // One transaction: COPY into `target`, then `then` (empty: nothing).
+      auto send = [&](const std::string& target, const std::string& then) {
+        Status st = conn_->Exec("BEGIN");
+        if (st.ok()) st = conn_->CopyIn(target, data);
         if (st.ok() && options_.after_copy) options_.after_copy(stats.batches + 1);
+        if (st.ok() && !then.empty()) st = conn_->Exec(then);
         if (st.ok()) st = conn_->Exec("COMMIT");
-        if (!st.ok()) {
-          (void)conn_->Exec("ROLLBACK");
-          if (st.code() != StatusCode::kInvalidInput) return st.WithContext(fmt::format("sending {}", t.name));
-        }
-      }
-      if (!st.ok()) {
-        KP_RETURN_IF_ERROR(conn_->Exec("BEGIN"));
-        st = conn_->CopyIn(copy_target, data);
-        if (st.ok() && options_.after_copy) options_.after_copy(stats.batches + 1);
-        if (st.ok()) st = conn_->Exec(merge);
-        if (st.ok()) st = conn_->Exec("COMMIT");
-        if (!st.ok()) {
-          (void)conn_->Exec("ROLLBACK");
-          return st.WithContext(fmt::format("sending {}", t.name));
-        }
-      }
+        if (!st.ok()) (void)conn_->Exec("ROLLBACK");
+        return st;
+      };
+      Status st = t.rows_change ? send(copy_target, merge) : send(direct_target, "");
+      if (!t.rows_change && st.code() == StatusCode::kInvalidInput) st = send(copy_target, merge);
+      if (!st.ok()) return st.WithContext(fmt::format("sending {}", t.name));
       ++stats.batches;
       stats.rows += n;
       if (std::string_view(t.name) == "samples") stats.samples += n;
